@@ -1,0 +1,68 @@
+//! `quern dump`: every n-gram (or context) as TSV.
+
+use std::collections::HashMap;
+use std::io::{BufWriter, Write};
+
+use anyhow::{bail, Context};
+use quern::key::Key;
+use quern::store::{ContextStats, Store};
+use quern::words::WordId;
+
+use crate::cli::args::DumpArgs;
+
+fn words(vocab: &HashMap<WordId, String>, key: &Key, out: &mut String) -> anyhow::Result<()> {
+    out.clear();
+    for (i, id) in key.ids().iter().enumerate() {
+        if i > 0 {
+            out.push(' ');
+        }
+        out.push_str(vocab.get(id).with_context(|| format!("word id {id:#018x} is not in the vocabulary"))?);
+    }
+    Ok(())
+}
+
+fn context_line(out: &mut impl Write, w: &str, s: &ContextStats) -> std::io::Result<()> {
+    writeln!(
+        out,
+        "{w}\t{}\t{}\t{}\t{}\t{}\t{}",
+        s.count_sum, s.types, s.adjusted_sum, s.n1, s.n2, s.n3plus
+    )
+}
+
+pub fn run(a: DumpArgs) -> anyhow::Result<()> {
+    let store = Store::open(&a.store)?;
+    let n = store.order();
+    let orders: Vec<usize> = match a.order {
+        Some(k) if k == 0 || k > n => bail!("--order {k}: this store has orders 1 to {n}"),
+        Some(k) => vec![k],
+        None => (1..=n).collect(),
+    };
+    let vocab = store.vocabulary()?;
+    let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    let mut w = String::new();
+    if a.contexts {
+        if a.order.is_none() {
+            context_line(&mut out, "", &store.meta().root)?;
+        }
+        for k in orders.into_iter().filter(|&k| k < n) {
+            for item in store.contexts(k)? {
+                let (key, st) = item?;
+                words(&vocab, &key, &mut w)?;
+                context_line(&mut out, &w, &st)?;
+            }
+        }
+    } else {
+        for k in orders {
+            for item in store.ngrams(k)? {
+                let (key, c, cont) = item?;
+                words(&vocab, &key, &mut w)?;
+                match cont {
+                    Some(x) => writeln!(out, "{w}\t{c}\t{x}")?,
+                    None => writeln!(out, "{w}\t{c}\t-")?,
+                }
+            }
+        }
+    }
+    out.flush()?;
+    Ok(())
+}

@@ -1,0 +1,73 @@
+//! `quern ingest`.
+
+use std::io::Write;
+
+use anyhow::Context;
+use quern::ingest::{ingest, IngestOptions};
+use quern::memory::parse_size;
+
+use super::{bytes, thousands};
+use crate::cli::args::IngestArgs;
+use crate::cli::progress::Bar;
+
+pub fn run(a: IngestArgs) -> anyhow::Result<()> {
+    let mut o = IngestOptions::new(&a.store, a.inputs);
+    o.order = a.order;
+    o.memory = parse_size(&a.memory)?;
+    if let Some(t) = a.threads {
+        o.threads = t;
+    }
+    o.lowercase = a.lowercase;
+    o.max_line_bytes = a.max_line_bytes;
+    o.partitions = a.partitions;
+    o.restart = a.restart;
+    o.append = a.append;
+    let bar = Bar::new(a.quiet);
+    let result = ingest(&o, &bar);
+    bar.finish();
+    let s = result.with_context(|| format!("ingest into {} stopped", a.store.display()))?;
+    let mut out = std::io::stdout().lock();
+    if a.json {
+        serde_json::to_writer_pretty(&mut out, &s)?;
+        writeln!(out)?;
+        return Ok(());
+    }
+    let t = &s.totals;
+    let verb = match (s.resumed, s.appended) {
+        (_, true) => "appended to",
+        (true, false) => "resumed and finished",
+        _ => "built",
+    };
+    writeln!(out, "{verb} {}", s.store.display())?;
+    writeln!(
+        out,
+        "  sentences {}   tokens {}   types {}   vocabulary {}",
+        thousands(t.sentences),
+        thousands(t.tokens),
+        thousands(t.types),
+        thousands(t.vocabulary)
+    )?;
+    for (k, n) in s.ngrams.iter().enumerate() {
+        writeln!(out, "  {}-grams {:>14}", k + 1, thousands(*n))?;
+    }
+    if t.skipped_lines + t.invalid_utf8_lines + t.marker_tokens > 0 {
+        writeln!(
+            out,
+            "  lines skipped (over --max-line-bytes) {}   lines with invalid UTF-8 {}   marker-like tokens read as <unk> {}",
+            thousands(t.skipped_lines),
+            thousands(t.invalid_utf8_lines),
+            thousands(t.marker_tokens)
+        )?;
+    }
+    let phases: Vec<String> = s.phase_seconds.iter().map(|(p, x)| format!("{p} {x:.1}")).collect();
+    writeln!(out, "  time {:.1} s ({})", s.seconds, phases.join(", "))?;
+    writeln!(
+        out,
+        "  input {}   peak memory {}   temporary files {}   store {}",
+        bytes(t.input_bytes),
+        s.peak_rss_bytes.map_or("unknown".into(), bytes),
+        bytes(s.temp_bytes),
+        bytes(s.store_bytes)
+    )?;
+    Ok(())
+}

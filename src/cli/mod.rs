@@ -1,0 +1,18 @@
+//! Command-line parsing and the subcommands. Only this layer prints.
+
+mod args;
+mod cmd;
+mod progress;
+
+use clap::Parser;
+
+/// Parses the command line and runs the subcommand.
+pub fn run() -> anyhow::Result<()> {
+    let cli = args::Cli::parse();
+    match cli.command {
+        args::Command::Ingest(a) => cmd::ingest::run(a),
+        args::Command::Dump(a) => cmd::dump::run(a),
+        args::Command::Stats(a) => cmd::stats::run(a),
+        args::Command::Status(a) => cmd::status::run(a),
+    }
+}

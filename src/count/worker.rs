@@ -1,0 +1,239 @@
+//! The counting workers.
+
+use std::path::Path;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Mutex;
+
+use super::Table;
+use crate::corpus::{open_at, InputFile, Line, LineReader};
+use crate::error::{Error, Result};
+use crate::ingest::manifest::{ReadTotals, Span};
+use crate::key::partition_of;
+use crate::shard::{DictWriter, RunWriter};
+use crate::tokenize::Tokenizer;
+use crate::words::Dictionary;
+
+/// What the counting workers need to know.
+pub struct CountConfig<'a> {
+    /// The inputs (span file indices point into it).
+    pub inputs: &'a [InputFile],
+    /// Highest order N.
+    pub order: usize,
+    /// Lowercase tokens.
+    pub lowercase: bool,
+    /// Longest line kept, in bytes.
+    pub max_line_bytes: usize,
+    /// Number of partitions.
+    pub partitions: u32,
+    /// Worker threads.
+    pub threads: usize,
+    /// Bytes each worker may use for its table and dictionary.
+    pub worker_bytes: usize,
+    /// Folder for run and dictionary files.
+    pub dir: &'a Path,
+    /// Source of unique file ids.
+    pub next_id: &'a AtomicU64,
+    /// Bytes of input read so far (for progress).
+    pub progress: &'a AtomicU64,
+}
+
+/// One finished spill, to be recorded in the manifest.
+pub struct Spill {
+    /// File id.
+    pub id: u64,
+    /// Run file names (more than one when a sentence overflowed the table).
+    pub runs: Vec<String>,
+    /// Dictionary file name.
+    pub dict: String,
+    /// Input ranges covered.
+    pub covers: Vec<Span>,
+    /// What was read in them.
+    pub totals: ReadTotals,
+    /// Bytes written.
+    pub bytes: u64,
+}
+
+/// Counts `spans` with `cfg.threads` workers. `commit` is called (from the
+/// worker, serialised by a lock) after each spill's files are durable; the
+/// worker continues only once it returns. On an error, every worker spills
+/// what it has counted up to its last complete line and commits it, so no
+/// counted input is lost, and the first error is returned.
+pub fn count_spans(
+    cfg: &CountConfig,
+    spans: Vec<Span>,
+    commit: &(dyn Fn(Spill) -> Result<()> + Sync),
+) -> Result<()> {
+    let (tx, rx) = crossbeam::channel::unbounded();
+    for s in spans {
+        tx.send(s).expect("receiver alive");
+    }
+    drop(tx);
+    let stop = AtomicBool::new(false);
+    let first_error: Mutex<Option<Error>> = Mutex::new(None);
+    let commit_lock = Mutex::new(());
+    std::thread::scope(|scope| {
+        for _ in 0..cfg.threads.max(1) {
+            let rx = rx.clone();
+            let (stop, first_error, commit_lock) = (&stop, &first_error, &commit_lock);
+            scope.spawn(move || {
+                let guarded = |s: Spill| {
+                    let _g = commit_lock.lock().unwrap_or_else(|e| e.into_inner());
+                    commit(s)
+                };
+                if let Err(e) = Worker::new(cfg).run(&rx, stop, &guarded) {
+                    stop.store(true, Ordering::SeqCst);
+                    let mut slot = first_error.lock().unwrap_or_else(|e| e.into_inner());
+                    slot.get_or_insert(e);
+                }
+            });
+        }
+    });
+    match first_error.into_inner().unwrap_or_else(|e| e.into_inner()) {
+        Some(e) => Err(e),
+        None => Ok(()),
+    }
+}
+
+struct Worker<'a> {
+    cfg: &'a CountConfig<'a>,
+    table: Table,
+    dict: Dictionary,
+    dict_limit: usize,
+    covers: Vec<Span>,
+    totals: ReadTotals,
+    pending: Vec<(String, u64)>,
+}
+
+impl<'a> Worker<'a> {
+    fn new(cfg: &'a CountConfig<'a>) -> Self {
+        let table_bytes = cfg.worker_bytes / 100 * 85;
+        Worker {
+            cfg,
+            table: Table::with_budget(cfg.order, 1, table_bytes),
+            dict: Dictionary::new(),
+            dict_limit: cfg.worker_bytes - table_bytes,
+            covers: Vec::new(),
+            totals: ReadTotals::default(),
+            pending: Vec::new(),
+        }
+    }
+
+    fn run(
+        &mut self,
+        rx: &crossbeam::channel::Receiver<Span>,
+        stop: &AtomicBool,
+        commit: &dyn Fn(Spill) -> Result<()>,
+    ) -> Result<()> {
+        let result = (|| {
+            while let Ok(span) = rx.recv() {
+                if stop.load(Ordering::SeqCst) {
+                    break;
+                }
+                self.count_span(span, commit)?;
+            }
+            Ok(())
+        })();
+        // Whatever happened, make what was counted durable.
+        let flushed = if self.covers.is_empty() { Ok(()) } else { self.spill(commit) };
+        result.and(flushed)
+    }
+
+    fn count_span(&mut self, span: Span, commit: &dyn Fn(Spill) -> Result<()>) -> Result<()> {
+        let input = &self.cfg.inputs[span.file as usize];
+        let stream = open_at(input, span.start)?;
+        let mut lines = LineReader::new(stream, input.path.clone(), span.start, span.end, self.cfg.max_line_bytes);
+        let tok = Tokenizer::new(self.cfg.lowercase);
+        let mut line = Vec::new();
+        let mut ids = Vec::new();
+        let mut from = span.start;
+        let n = self.cfg.order;
+        loop {
+            let before = lines.position();
+            let step = (|| -> Result<Line> {
+                let kind = lines.next_line(&mut line)?;
+                let read = lines.position() - before;
+                self.totals.bytes += read;
+                self.cfg.progress.fetch_add(read, Ordering::Relaxed);
+                match kind {
+                    Line::End => {}
+                    Line::TooLong => self.totals.skipped_lines += 1,
+                    Line::Text => {
+                        let r = tok.sentence(&line, &mut self.dict, &mut ids)?;
+                        self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
+                        self.totals.marker_tokens += r.marker_tokens;
+                        if !ids.is_empty() {
+                            self.totals.sentences += 1;
+                            for i in 0..ids.len() {
+                                for k in 1..=n.min(ids.len() - i) {
+                                    self.table.add(&ids[i..i + k], &[1]);
+                                }
+                                if self.table.is_full() {
+                                    // Mid-sentence: write the table out now,
+                                    // record it with the next line boundary.
+                                    let run = self.write_run()?;
+                                    self.pending.push(run);
+                                }
+                            }
+                        }
+                    }
+                }
+                Ok(kind)
+            })();
+            match step {
+                Err(e) => {
+                    // The line that failed added nothing; keep every complete
+                    // line before it (the caller spills them).
+                    self.covers.push(Span { file: span.file, start: from, end: before });
+                    return Err(e);
+                }
+                Ok(Line::End) => break,
+                Ok(_) => {}
+            }
+            if self.table.is_full() || self.dict.heap_bytes() > self.dict_limit {
+                let end = lines.position();
+                self.covers.push(Span { file: span.file, start: from, end });
+                self.spill(commit)?;
+                from = end;
+            }
+        }
+        self.covers.push(Span { file: span.file, start: from, end: span.end });
+        Ok(())
+    }
+
+    /// Writes the table as a run file and clears it.
+    fn write_run(&mut self) -> Result<(String, u64)> {
+        let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
+        let run = format!("count-{id:06}.run");
+        let parts = self.cfg.partitions;
+        let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
+        for (key, vals) in self.table.sorted() {
+            w.push(partition_of(key.ids()[0], parts), &key, &vals)?;
+        }
+        let summary = w.finish()?;
+        self.table.clear();
+        Ok((run, summary.bytes))
+    }
+
+    fn spill(&mut self, commit: &dyn Fn(Spill) -> Result<()>) -> Result<()> {
+        if !self.table.is_empty() || self.pending.is_empty() {
+            let run = self.write_run()?;
+            self.pending.push(run);
+        }
+        let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
+        let dict = format!("count-{id:06}.dict");
+        let dict_bytes = DictWriter::write(&self.cfg.dir.join(&dict), &self.dict.drain_sorted())?;
+        crate::fault::point("spill");
+        let pending = std::mem::take(&mut self.pending);
+        let spill = Spill {
+            id,
+            runs: pending.iter().map(|p| p.0.clone()).collect(),
+            dict,
+            covers: std::mem::take(&mut self.covers),
+            totals: std::mem::take(&mut self.totals),
+            bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes,
+        };
+        commit(spill)?;
+        crate::fault::point("committed");
+        Ok(())
+    }
+}

@@ -1,0 +1,139 @@
+//! The one error type of the library.
+//!
+//! Every variant carries what a user needs to act: the file, the position,
+//! the expected and the actual value. The binary adds context and maps
+//! errors to exit codes; nothing below the command line prints.
+
+use std::path::PathBuf;
+
+/// Result with the library's [`Error`].
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// Everything that can go wrong in quern.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Error {
+    /// An I/O operation on a file failed.
+    #[error("{path}: {op}: {source}")]
+    Io {
+        /// The file or directory involved.
+        path: PathBuf,
+        /// What was being done ("open", "read", "write", ...).
+        op: &'static str,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// A file written by quern is damaged: truncated, zero-length, or with a
+    /// checksum that does not match. Never read as data.
+    #[error("{path}: damaged file: {detail}")]
+    Corrupt {
+        /// The damaged file.
+        path: PathBuf,
+        /// Which invariant was broken, with the values seen.
+        detail: String,
+    },
+    /// A file or store written by another format version.
+    #[error("{path}: format version {found}, this build reads version {expected}; rebuild the store with this version of quern")]
+    Version {
+        /// The file or store.
+        path: PathBuf,
+        /// Version found on disk.
+        found: u32,
+        /// Version this build understands.
+        expected: u32,
+    },
+    /// Two different words have the same 64-bit id.
+    #[error("hash collision: the words {first:?} and {second:?} have the same 64-bit id {id:#018x}; no count was merged")]
+    HashCollision {
+        /// The word seen first.
+        first: String,
+        /// The other word.
+        second: String,
+        /// Their shared id.
+        id: u64,
+    },
+    /// A compressed input is truncated or malformed.
+    #[error("{path}: bad input at byte {offset} of the decompressed stream: {detail}")]
+    BadInput {
+        /// The input file.
+        path: PathBuf,
+        /// Position (decompressed bytes) where reading failed.
+        offset: u64,
+        /// What went wrong.
+        detail: String,
+    },
+    /// An input path does not exist or cannot be used.
+    #[error("{path}: {detail}")]
+    Input {
+        /// The input path as given.
+        path: PathBuf,
+        /// Why it cannot be used.
+        detail: String,
+    },
+    /// The store's state does not allow the requested operation.
+    #[error("{path}: {detail}")]
+    State {
+        /// The store directory.
+        path: PathBuf,
+        /// What is wrong and what to do about it.
+        detail: String,
+    },
+    /// Another process holds the store's ingest lock.
+    #[error("{path}: another ingest is running on this store (it holds {lock}); wait for it to finish or stop it first")]
+    Locked {
+        /// The store directory.
+        path: PathBuf,
+        /// The lock file.
+        lock: PathBuf,
+    },
+    /// A setting is out of range.
+    #[error("invalid setting: {0}")]
+    Config(String),
+    /// RocksDB reported an error.
+    #[error("{path}: key-value store: {source}")]
+    Rocks {
+        /// The store directory.
+        path: PathBuf,
+        /// The underlying error.
+        source: rocksdb::Error,
+    },
+}
+
+impl Error {
+    /// Wraps an I/O error with the path and the operation.
+    pub fn io(path: impl Into<PathBuf>, op: &'static str, source: std::io::Error) -> Self {
+        Error::Io {
+            path: path.into(),
+            op,
+            source,
+        }
+    }
+
+    /// A damaged-file error.
+    pub fn corrupt(path: impl Into<PathBuf>, detail: impl Into<String>) -> Self {
+        Error::Corrupt {
+            path: path.into(),
+            detail: detail.into(),
+        }
+    }
+
+    /// A store-state error.
+    pub fn state(path: impl Into<PathBuf>, detail: impl Into<String>) -> Self {
+        Error::State {
+            path: path.into(),
+            detail: detail.into(),
+        }
+    }
+}
+
+/// Adds a path and an operation to `std::io::Result`s.
+pub trait IoContext<T> {
+    /// Maps an I/O error into [`Error::Io`].
+    fn at(self, path: &std::path::Path, op: &'static str) -> Result<T>;
+}
+
+impl<T> IoContext<T> for std::io::Result<T> {
+    fn at(self, path: &std::path::Path, op: &'static str) -> Result<T> {
+        self.map_err(|e| Error::io(path, op, e))
+    }
+}

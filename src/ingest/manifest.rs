@@ -1,0 +1,330 @@
+//! The manifest: what an unfinished ingest has durably done.
+//!
+//! One JSON file, `work/manifest.json`, rewritten atomically (temporary
+//! file, fsync, rename, fsync of the directory) after every step that makes
+//! work durable. A line `#xxh3=<hex>` after the JSON guards against a torn
+//! or edited file. Work not recorded here is redone on resume; files in the
+//! work folder that it does not name are deleted then.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use crate::corpus::{Chunk, InputFile};
+use crate::error::{Error, IoContext, Result};
+use crate::fsutil;
+use crate::store::{ContextStats, Settings};
+
+/// Format version of the manifest.
+pub const MANIFEST_VERSION: u32 = 1;
+
+/// Where an ingest is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Phase {
+    /// Reading inputs into run files.
+    Counting,
+    /// Merging each partition's runs; emitting continuation contributions.
+    Merging,
+    /// Joining counts with continuation counts; writing store files.
+    Joining,
+    /// Loading the store.
+    Building,
+    /// The store is complete; only clean-up is left.
+    Done,
+}
+
+impl Phase {
+    /// The phase's name as shown to users.
+    pub fn name(self) -> &'static str {
+        match self {
+            Phase::Counting => "counting",
+            Phase::Merging => "merging",
+            Phase::Joining => "joining",
+            Phase::Building => "building",
+            Phase::Done => "done",
+        }
+    }
+}
+
+/// Counters of what the readers saw.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ReadTotals {
+    /// Sentences (lines with at least one token).
+    pub sentences: u64,
+    /// Lines skipped for exceeding the line limit.
+    pub skipped_lines: u64,
+    /// Lines that held invalid UTF-8 (decoded lossily).
+    pub invalid_utf8_lines: u64,
+    /// Literal tokens spelled like a marker (counted as `<unk>`).
+    pub marker_tokens: u64,
+    /// Input bytes read (decompressed).
+    pub bytes: u64,
+}
+
+impl ReadTotals {
+    /// Adds `o` into `self`.
+    pub fn add(&mut self, o: &ReadTotals) {
+        self.sentences += o.sentences;
+        self.skipped_lines += o.skipped_lines;
+        self.invalid_utf8_lines += o.invalid_utf8_lines;
+        self.marker_tokens += o.marker_tokens;
+        self.bytes += o.bytes;
+    }
+}
+
+/// A byte range of one input that a run set covers.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Span {
+    /// Input index.
+    pub file: u32,
+    /// First byte.
+    pub start: u64,
+    /// One past the last byte (`u64::MAX`: to the end of the stream).
+    pub end: u64,
+}
+
+/// One durable spill of a counting worker.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct RunSet {
+    /// Unique id.
+    pub id: u64,
+    /// Run file names (in `work/runs`).
+    pub runs: Vec<String>,
+    /// Dictionary file name (in `work/runs`).
+    pub dict: String,
+    /// Input ranges whose counts the runs hold.
+    pub covers: Vec<Span>,
+    /// What the readers saw in those ranges.
+    pub totals: ReadTotals,
+}
+
+/// A partition whose runs were merged.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Merged {
+    /// Merged counts of the partition (in `work/merged`).
+    pub counts: String,
+    /// Continuation contributions emitted to all partitions (in `work/merged`).
+    pub suffix_runs: Vec<String>,
+}
+
+/// Statistics one partition contributes to the store's totals.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct PartitionStats {
+    /// Stored n-grams per order (index 0 = unigrams).
+    pub ngrams: Vec<u64>,
+    /// Raw count-of-counts per order: count → number of n-grams.
+    pub coc_raw: Vec<BTreeMap<u64, u64>>,
+    /// Adjusted count-of-counts per order.
+    pub coc_adjusted: Vec<BTreeMap<u64, u64>>,
+    /// This partition's share of the empty context's statistics.
+    pub root: ContextStats,
+    /// True if the unigram `<unk>` is in this partition.
+    pub unk_seen: bool,
+}
+
+/// A partition whose store files are written.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Joined {
+    /// `(column family, file name in work/sst)`.
+    pub ssts: Vec<(String, String)>,
+    /// Totals.
+    pub stats: PartitionStats,
+}
+
+/// The counts of an existing store, exported for `--append`.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Base {
+    /// Run file with the store's raw counts (in `work/runs`).
+    pub run: String,
+    /// Its dictionary (in `work/runs`).
+    pub dict: String,
+    /// The store's reader totals.
+    pub totals: ReadTotals,
+}
+
+/// Whether this ingest builds a new store or extends a finished one.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Mode {
+    /// A new store.
+    Fresh,
+    /// New inputs added to a finished store.
+    Append,
+}
+
+/// The whole state of an unfinished ingest.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Manifest {
+    /// [`MANIFEST_VERSION`].
+    pub format_version: u32,
+    /// Counting settings (must match on resume).
+    pub settings: Settings,
+    /// Fresh or append.
+    pub mode: Mode,
+    /// The inputs, as found when planned (must match on resume).
+    pub inputs: Vec<InputFile>,
+    /// Their chunks.
+    pub chunks: Vec<Chunk>,
+    /// Number of hash partitions.
+    pub partitions: u32,
+    /// Current phase.
+    pub phase: Phase,
+    /// Next unused file id.
+    pub next_id: u64,
+    /// Exported counts of the store being appended to.
+    pub base: Option<Base>,
+    /// Durable spills.
+    pub runsets: Vec<RunSet>,
+    /// Per partition: merged, or not yet.
+    pub merged: Vec<Option<Merged>>,
+    /// Per partition: joined, or not yet.
+    pub joined: Vec<Option<Joined>>,
+    /// Unix time (seconds) the ingest started.
+    pub started: u64,
+}
+
+impl Manifest {
+    /// The manifest path inside a work folder.
+    pub fn path(work: &Path) -> PathBuf {
+        work.join("manifest.json")
+    }
+
+    /// Reads and verifies the manifest in `work`, if there is one.
+    pub fn load(work: &Path) -> Result<Option<Manifest>> {
+        let path = Self::path(work);
+        let text = match std::fs::read_to_string(&path) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+            r => r.at(&path, "read")?,
+        };
+        let (body, sum) = text
+            .rsplit_once("\n#xxh3=")
+            .ok_or_else(|| Error::corrupt(&path, "no checksum line (truncated?)"))?;
+        let want = format!("{:016x}", xxhash_rust::xxh3::xxh3_64(body.as_bytes()));
+        if sum.trim_end() != want {
+            return Err(Error::corrupt(&path, "checksum mismatch"));
+        }
+        #[derive(Deserialize)]
+        struct Probe {
+            format_version: u32,
+        }
+        let probe: Probe =
+            serde_json::from_str(body).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+        if probe.format_version != MANIFEST_VERSION {
+            return Err(Error::Version {
+                path,
+                found: probe.format_version,
+                expected: MANIFEST_VERSION,
+            });
+        }
+        serde_json::from_str(body)
+            .map(Some)
+            .map_err(|e| Error::corrupt(&path, e.to_string()))
+    }
+
+    /// Writes the manifest atomically and durably.
+    pub fn save(&self, work: &Path) -> Result<()> {
+        let body = serde_json::to_string_pretty(self).expect("manifest serialises");
+        let text = format!(
+            "{body}\n#xxh3={:016x}\n",
+            xxhash_rust::xxh3::xxh3_64(body.as_bytes())
+        );
+        fsutil::write_atomic(&Self::path(work), text.as_bytes())
+    }
+
+    /// Sums the reader totals of the base and every run set.
+    pub fn read_totals(&self) -> ReadTotals {
+        let mut t = self.base.as_ref().map(|b| b.totals).unwrap_or_default();
+        for r in &self.runsets {
+            t.add(&r.totals);
+        }
+        t
+    }
+
+    /// The parts of every chunk that no run set covers yet.
+    pub fn uncovered(&self) -> Vec<Span> {
+        let mut covered: BTreeMap<u32, Vec<(u64, u64)>> = BTreeMap::new();
+        for r in &self.runsets {
+            for s in &r.covers {
+                covered.entry(s.file).or_default().push((s.start, s.end));
+            }
+        }
+        for v in covered.values_mut() {
+            v.sort_unstable();
+        }
+        let mut todo = Vec::new();
+        for c in &self.chunks {
+            let mut at = c.start;
+            for &(s, e) in covered.get(&c.file).map(|v| v.as_slice()).unwrap_or(&[]) {
+                if e <= at || s >= c.end {
+                    continue;
+                }
+                if s > at {
+                    todo.push(Span {
+                        file: c.file,
+                        start: at,
+                        end: s,
+                    });
+                }
+                at = at.max(e);
+            }
+            if at < c.end {
+                todo.push(Span {
+                    file: c.file,
+                    start: at,
+                    end: c.end,
+                });
+            }
+        }
+        todo
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn uncovered_is_chunks_minus_covers() {
+        let mut m = Manifest {
+            format_version: MANIFEST_VERSION,
+            settings: Settings {
+                order: 3,
+                lowercase: false,
+                max_line_bytes: 10,
+            },
+            mode: Mode::Fresh,
+            inputs: vec![],
+            chunks: vec![
+                Chunk { file: 0, start: 0, end: 100 },
+                Chunk { file: 0, start: 100, end: u64::MAX },
+                Chunk { file: 1, start: 0, end: u64::MAX },
+            ],
+            partitions: 1,
+            phase: Phase::Counting,
+            next_id: 0,
+            base: None,
+            runsets: vec![],
+            merged: vec![],
+            joined: vec![],
+            started: 0,
+        };
+        let span = |file, start, end| Span { file, start, end };
+        m.runsets.push(RunSet {
+            id: 0,
+            runs: vec![],
+            dict: String::new(),
+            covers: vec![span(0, 0, 40), span(0, 100, 150), span(1, 0, u64::MAX)],
+            totals: ReadTotals::default(),
+        });
+        assert_eq!(m.uncovered(), vec![span(0, 40, 100), span(0, 150, u64::MAX)]);
+        let dir = tempfile::tempdir().unwrap();
+        m.save(dir.path()).unwrap();
+        assert_eq!(Manifest::load(dir.path()).unwrap(), Some(m));
+        let p = Manifest::path(dir.path());
+        let text = std::fs::read_to_string(&p).unwrap().replace("\"order\": 3", "\"order\": 4");
+        std::fs::write(&p, text).unwrap();
+        assert!(matches!(Manifest::load(dir.path()), Err(Error::Corrupt { .. })));
+    }
+}

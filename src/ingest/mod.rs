@@ -1,0 +1,801 @@
+//! The ingest pipeline: inputs → count runs → merged partitions → store,
+//! resumable at every step.
+//!
+//! [`ingest`] takes the store's lock, then either starts a new ingest (plan
+//! the inputs into chunks and write a manifest), resumes the one recorded
+//! in the store's manifest, or (with `append`) exports a finished store's
+//! counts as a base run and starts an ingest of the new inputs on top.
+//! Each phase records its durable results in the manifest as it goes
+//! ([`manifest`]); on resume, everything the manifest does not name is
+//! deleted and redone. Phases: counting ([`crate::count`]), merging and
+//! joining ([`crate::merge`]), building ([`crate::store::build`]).
+
+pub mod manifest;
+mod status;
+
+pub use manifest::{Manifest, Phase};
+pub use status::{status, IngestStatus};
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Mutex;
+use std::time::Instant;
+
+use serde::Serialize;
+
+use crate::corpus::{self, InputFile};
+use crate::count::{count_spans, CountConfig, Spill};
+use crate::error::{Error, IoContext, Result};
+use crate::fsutil;
+use crate::key::{Key, MAX_ORDER};
+use crate::memory::{peak_rss, Plan};
+use crate::merge::{join_partition, merge_partition, KWayMerge, MergeConfig, RecordSource};
+use crate::shard::{DictReader, DictWriter, RunFile, RunWriter, Values};
+use crate::store::{self, build, keys, ContextStats, OrderStats, Settings, Store, StoreMeta, Totals};
+use crate::words::WordId;
+use manifest::{Base, Joined, Mode, RunSet};
+
+/// What to ingest and how.
+#[derive(Clone, Debug)]
+pub struct IngestOptions {
+    /// The store directory.
+    pub store: PathBuf,
+    /// Files, directories, or `-` for standard input.
+    pub inputs: Vec<PathBuf>,
+    /// Highest order N.
+    pub order: usize,
+    /// Memory budget of the whole process, in bytes.
+    pub memory: u64,
+    /// Worker threads.
+    pub threads: usize,
+    /// Lowercase every token.
+    pub lowercase: bool,
+    /// Skip lines longer than this (bytes, without the line end).
+    pub max_line_bytes: usize,
+    /// Number of partitions (default: chosen from the thread count).
+    pub partitions: Option<u32>,
+    /// Discard an unfinished ingest and start again.
+    pub restart: bool,
+    /// Add the inputs to a finished store.
+    pub append: bool,
+    /// Size of the chunks plain files are cut into.
+    pub chunk_bytes: u64,
+}
+
+impl IngestOptions {
+    /// Options with the defaults: order 5, 1 GiB, all cores, 1 MiB lines.
+    pub fn new(store: impl Into<PathBuf>, inputs: Vec<PathBuf>) -> Self {
+        IngestOptions {
+            store: store.into(),
+            inputs,
+            order: 5,
+            memory: 1 << 30,
+            threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
+            lowercase: false,
+            max_line_bytes: 1 << 20,
+            partitions: None,
+            restart: false,
+            append: false,
+            chunk_bytes: 16 << 20,
+        }
+    }
+}
+
+/// Receives progress; the library never prints.
+pub trait Progress: Sync {
+    /// A phase starts; `total` is its amount of work (bytes or partitions).
+    fn phase(&self, phase: Phase, total: u64);
+    /// Work done so far in the current phase.
+    fn advance(&self, done: u64);
+}
+
+/// A [`Progress`] that ignores everything.
+pub struct Silent;
+
+impl Progress for Silent {
+    fn phase(&self, _: Phase, _: u64) {}
+    fn advance(&self, _: u64) {}
+}
+
+/// What an ingest did.
+#[derive(Clone, Debug, Serialize)]
+pub struct IngestSummary {
+    /// The store directory.
+    pub store: PathBuf,
+    /// An unfinished ingest was resumed.
+    pub resumed: bool,
+    /// Inputs were appended to a finished store.
+    pub appended: bool,
+    /// Corpus totals.
+    pub totals: Totals,
+    /// Stored n-grams per order (index 0: unigrams).
+    pub ngrams: Vec<u64>,
+    /// Count run files written by this process.
+    pub runs_written: u64,
+    /// Bytes of temporary files written by this process.
+    pub temp_bytes: u64,
+    /// Size of the store on disk.
+    pub store_bytes: u64,
+    /// Wall-clock seconds per phase run by this process.
+    pub phase_seconds: BTreeMap<String, f64>,
+    /// Wall-clock seconds in all.
+    pub seconds: f64,
+    /// Peak resident memory of the process, bytes.
+    pub peak_rss_bytes: Option<u64>,
+}
+
+struct Dirs {
+    store: PathBuf,
+    work: PathBuf,
+    runs: PathBuf,
+    merged: PathBuf,
+    sst: PathBuf,
+    tmp: PathBuf,
+}
+
+impl Dirs {
+    fn new(store: &Path, work: PathBuf) -> Dirs {
+        Dirs {
+            store: store.to_path_buf(),
+            runs: work.join("runs"),
+            merged: work.join("merged"),
+            sst: work.join("sst"),
+            tmp: work.join("tmp"),
+            work,
+        }
+    }
+    fn create(&self) -> Result<()> {
+        for d in [&self.work, &self.runs, &self.merged, &self.sst, &self.tmp] {
+            fsutil::create_dir(d)?;
+        }
+        Ok(())
+    }
+}
+
+/// The lock file of a store.
+pub fn lock_path(store: &Path) -> PathBuf {
+    store.join("ingest.lock")
+}
+
+fn lock(store: &Path) -> Result<std::fs::File> {
+    let path = lock_path(store);
+    let f = std::fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(&path)
+        .at(&path, "open")?;
+    f.try_lock().map_err(|_| Error::Locked {
+        path: store.to_path_buf(),
+        lock: path.clone(),
+    })?;
+    Ok(f)
+}
+
+fn now_secs() -> u64 {
+    std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_secs())
+}
+
+/// Runs (or resumes) an ingest.
+pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSummary> {
+    let t0 = Instant::now();
+    if opts.order == 0 || opts.order > MAX_ORDER {
+        return Err(Error::Config(format!("--order {} is outside 1..={MAX_ORDER}", opts.order)));
+    }
+    if opts.inputs.is_empty() {
+        return Err(Error::Config("no inputs given".into()));
+    }
+    let threads = opts.threads.max(1);
+    let plan = Plan::new(opts.memory, threads)?;
+    fsutil::create_dir(&opts.store)?;
+    let _lock = lock(&opts.store)?;
+    let dirs = Dirs::new(&opts.store, store::work_dir(&opts.store));
+    let settings = Settings {
+        order: opts.order,
+        lowercase: opts.lowercase,
+        max_line_bytes: opts.max_line_bytes,
+    };
+    fsutil::remove_dir(&opts.store.join("work.new"))?;
+    if opts.restart {
+        fsutil::remove_dir(&dirs.work)?;
+        fsutil::remove_dir(&opts.store.join("db.new"))?;
+    }
+    let loaded = Manifest::load(&dirs.work).map_err(|e| match e {
+        Error::Corrupt { path, detail } => Error::Corrupt {
+            path,
+            detail: format!("{detail}; run the same command with --restart to start this ingest again"),
+        },
+        e => e,
+    })?;
+    let inputs = corpus::discover(&opts.inputs)?;
+    let (mut m, resumed) = match loaded {
+        Some(m) => {
+            check_resume(&m, &settings, &inputs, opts)?;
+            (m, true)
+        }
+        None => {
+            if dirs.work.exists() {
+                // Started, but not even the first manifest was written.
+                fsutil::remove_dir(&dirs.work)?;
+            }
+            let finished = store::db_dir(&opts.store).join("CURRENT").exists();
+            match (finished, opts.append) {
+                (true, false) => {
+                    return Err(Error::state(
+                        &opts.store,
+                        "this store is finished; use --append to add inputs to it, or give another --store",
+                    ))
+                }
+                (false, true) => return Err(Error::state(&opts.store, "there is no finished store here to append to")),
+                _ => {}
+            }
+            let parts = opts
+                .partitions
+                .unwrap_or_else(|| (threads as u32 * 16).clamp(16, 256));
+            (plan_new(opts, &dirs, settings, inputs, parts)?, false)
+        }
+    };
+    let mut run = Run {
+        dirs: &dirs,
+        plan,
+        threads,
+        progress,
+        runs_written: 0,
+        temp_bytes: 0,
+        phase_seconds: BTreeMap::new(),
+    };
+    cleanup_orphans(&m, &dirs)?;
+    let inputs = m.inputs.clone();
+    run.counting(&mut m, &inputs)?;
+    run.merging(&mut m)?;
+    run.joining(&mut m)?;
+    run.building(&mut m)?;
+    let s = Store::open(&opts.store)?;
+    let meta = s.meta().clone();
+    Ok(IngestSummary {
+        store: opts.store.clone(),
+        resumed,
+        appended: m.mode == Mode::Append,
+        totals: meta.totals,
+        ngrams: meta.orders.iter().map(|o| o.ngrams).collect(),
+        runs_written: run.runs_written,
+        temp_bytes: run.temp_bytes,
+        store_bytes: s.disk_bytes(),
+        phase_seconds: run.phase_seconds,
+        seconds: t0.elapsed().as_secs_f64(),
+        peak_rss_bytes: peak_rss(),
+    })
+}
+
+fn check_resume(m: &Manifest, settings: &Settings, inputs: &[InputFile], opts: &IngestOptions) -> Result<()> {
+    let hint = "run the same command as the interrupted ingest to resume it, or add --restart to discard it";
+    if m.settings != *settings {
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "an unfinished ingest here was started with order {}, lowercase {}, max line bytes {}; this command asks for order {}, lowercase {}, max line bytes {}: {hint}",
+                m.settings.order, m.settings.lowercase, m.settings.max_line_bytes,
+                settings.order, settings.lowercase, settings.max_line_bytes
+            ),
+        ));
+    }
+    if (m.mode == Mode::Append) != opts.append {
+        return Err(Error::state(&opts.store, format!("the unfinished ingest here {} --append: {hint}", if opts.append { "was started without" } else { "was started with" })));
+    }
+    if inputs.iter().any(|f| f.is_stdin()) {
+        return Err(Error::state(&opts.store, "an ingest that reads standard input cannot be resumed; add --restart"));
+    }
+    if m.inputs.len() != inputs.len() {
+        return Err(Error::state(&opts.store, format!("the unfinished ingest here has {} input files, this command {}: {hint}", m.inputs.len(), inputs.len())));
+    }
+    for (a, b) in m.inputs.iter().zip(inputs) {
+        if a.path != b.path {
+            return Err(Error::state(&opts.store, format!("input {} differs from the unfinished ingest's {}: {hint}", b.path.display(), a.path.display())));
+        }
+        if a.size != b.size || a.mtime_ns != b.mtime_ns {
+            return Err(Error::Input {
+                path: b.path.clone(),
+                detail: format!(
+                    "this input changed since the unfinished ingest read it (size {} → {}, modification time changed: {}); counts would mix two versions, so add --restart",
+                    a.size, b.size, a.mtime_ns != b.mtime_ns
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
+fn plan_new(opts: &IngestOptions, dirs: &Dirs, settings: Settings, inputs: Vec<InputFile>, parts: u32) -> Result<Manifest> {
+    let chunks = corpus::plan_chunks(&inputs, opts.chunk_bytes)?;
+    let mut m = Manifest {
+        format_version: manifest::MANIFEST_VERSION,
+        settings,
+        mode: if opts.append { Mode::Append } else { Mode::Fresh },
+        inputs,
+        chunks,
+        partitions: parts,
+        phase: Phase::Counting,
+        next_id: 0,
+        base: None,
+        runsets: vec![],
+        merged: vec![None; parts as usize],
+        joined: vec![None; parts as usize],
+        started: now_secs(),
+    };
+    // Build the work folder under another name and rename it into place,
+    // so a work folder always has a manifest.
+    let staging = Dirs::new(&dirs.store, dirs.store.join("work.new"));
+    staging.create()?;
+    if opts.append {
+        m.base = Some(export_base(&dirs.store, &staging.runs, &settings, parts)?);
+    }
+    m.save(&staging.work)?;
+    fsutil::rename_durable(&staging.work, &dirs.work)?;
+    Ok(m)
+}
+
+/// Writes a finished store's raw counts as one run file, and its words as a
+/// dictionary, for `--append`.
+fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -> Result<Base> {
+    let s = Store::open(store_dir)?;
+    let have = s.meta().settings;
+    if have.order != settings.order || have.lowercase != settings.lowercase {
+        return Err(Error::state(
+            store_dir,
+            format!(
+                "the store was built with order {} and lowercase {}; --append must use the same settings",
+                have.order, have.lowercase
+            ),
+        ));
+    }
+    struct OrderIter<'a>(Box<dyn Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a>);
+    impl RecordSource for OrderIter<'_> {
+        fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
+            Ok(match self.0.next().transpose()? {
+                Some((k, c, _)) => Some((k, [c, 0, 0, 0])),
+                None => None,
+            })
+        }
+    }
+    let sources = (1..=settings.order)
+        .map(|k| Ok(OrderIter(Box::new(s.ngrams(k)?))))
+        .collect::<Result<Vec<_>>>()?;
+    let mut merge = KWayMerge::new(sources)?;
+    let run = "base.run".to_string();
+    let mut w = RunWriter::create(&runs.join(&run), parts, 1)?;
+    while let Some((k, v)) = merge.next_record()? {
+        w.push(crate::key::partition_of(k.ids()[0], parts), &k, &v)?;
+    }
+    w.finish()?;
+    let mut words: Vec<(WordId, Box<str>)> = s
+        .vocabulary()?
+        .into_iter()
+        .filter(|(id, _)| ![crate::words::bos_id(), crate::words::eos_id(), crate::words::unk_id()].contains(id))
+        .map(|(id, w)| (id, w.into_boxed_str()))
+        .collect();
+    words.sort_unstable_by_key(|e| e.0);
+    let dict = "base.dict".to_string();
+    DictWriter::write(&runs.join(&dict), &words)?;
+    let t = s.meta().totals;
+    Ok(Base {
+        run,
+        dict,
+        totals: manifest::ReadTotals {
+            sentences: t.sentences,
+            skipped_lines: t.skipped_lines,
+            invalid_utf8_lines: t.invalid_utf8_lines,
+            marker_tokens: t.marker_tokens,
+            bytes: t.input_bytes,
+        },
+    })
+}
+
+/// Deletes files of the work folder that the manifest does not name
+/// (written by a process that died before recording them).
+fn cleanup_orphans(m: &Manifest, d: &Dirs) -> Result<()> {
+    fsutil::remove_dir(&d.tmp)?;
+    d.create()?;
+    let mut keep: std::collections::HashSet<String> = std::collections::HashSet::new();
+    if let Some(b) = &m.base {
+        keep.insert(b.run.clone());
+        keep.insert(b.dict.clone());
+    }
+    for r in &m.runsets {
+        keep.extend(r.runs.iter().cloned());
+        keep.insert(r.dict.clone());
+    }
+    for x in m.merged.iter().flatten() {
+        keep.insert(x.counts.clone());
+        keep.extend(x.suffix_runs.iter().cloned());
+    }
+    for j in m.joined.iter().flatten() {
+        keep.extend(j.ssts.iter().map(|s| s.1.clone()));
+    }
+    for dir in [&d.runs, &d.merged, &d.sst] {
+        for e in std::fs::read_dir(dir).at(dir, "read directory")? {
+            let e = e.at(dir, "read directory")?;
+            let name = e.file_name().to_string_lossy().into_owned();
+            if !keep.contains(&name) {
+                std::fs::remove_file(e.path()).at(&e.path(), "remove")?;
+            }
+        }
+    }
+    Ok(())
+}
+
+fn merge_config<'b>(dirs: &'b Dirs, plan: &Plan, m: &Manifest, next_tmp: &'b AtomicU64) -> MergeConfig<'b> {
+    MergeConfig {
+        order: m.settings.order,
+        partitions: m.partitions,
+        fanin: plan.fanin,
+        worker_bytes: plan.merge_worker,
+        merged_dir: &dirs.merged,
+        tmp_dir: &dirs.tmp,
+        next_tmp,
+    }
+}
+
+struct Run<'a> {
+    dirs: &'a Dirs,
+    plan: Plan,
+    threads: usize,
+    progress: &'a dyn Progress,
+    runs_written: u64,
+    temp_bytes: u64,
+    phase_seconds: BTreeMap<String, f64>,
+}
+
+impl Run<'_> {
+    fn timed<T>(&mut self, phase: Phase, f: impl FnOnce(&mut Self) -> Result<T>) -> Result<T> {
+        let t = Instant::now();
+        let r = f(self);
+        *self.phase_seconds.entry(phase.name().to_string()).or_insert(0.0) += t.elapsed().as_secs_f64();
+        r
+    }
+
+    fn counting(&mut self, m: &mut Manifest, inputs: &[InputFile]) -> Result<()> {
+        if m.phase != Phase::Counting {
+            return Ok(());
+        }
+        self.timed(Phase::Counting, |run| {
+            let spans = m.uncovered();
+            let total: u64 = m.inputs.iter().map(|f| f.size).sum();
+            let todo: u64 = spans
+                .iter()
+                .map(|s| s.end.min(m.inputs[s.file as usize].size).saturating_sub(s.start))
+                .sum();
+            let done0 = total.saturating_sub(todo);
+            run.progress.phase(Phase::Counting, total);
+            run.progress.advance(done0);
+            let next_id = AtomicU64::new(m.next_id);
+            let read = AtomicU64::new(0);
+            let cfg = CountConfig {
+                inputs,
+                order: m.settings.order,
+                lowercase: m.settings.lowercase,
+                max_line_bytes: m.settings.max_line_bytes,
+                partitions: m.partitions,
+                threads: run.threads,
+                worker_bytes: run.plan.count_worker,
+                dir: &run.dirs.runs,
+                next_id: &next_id,
+                progress: &read,
+            };
+            let shared = Mutex::new((&mut *m, 0u64, 0u64));
+            let work = &run.dirs.work;
+            let commit = |s: Spill| -> Result<()> {
+                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
+                g.1 += s.runs.len() as u64;
+                g.2 += s.bytes;
+                g.0.runsets.push(RunSet {
+                    id: s.id,
+                    runs: s.runs,
+                    dict: s.dict,
+                    covers: s.covers,
+                    totals: s.totals,
+                });
+                g.0.next_id = next_id.load(Ordering::SeqCst);
+                g.0.save(work)
+            };
+            let done = std::sync::atomic::AtomicBool::new(false);
+            let result = std::thread::scope(|scope| {
+                let ticker = scope.spawn(|| {
+                    while !done.load(Ordering::Relaxed) {
+                        run.progress.advance(done0 + read.load(Ordering::Relaxed));
+                        std::thread::sleep(std::time::Duration::from_millis(200));
+                    }
+                });
+                let r = count_spans(&cfg, spans, &commit);
+                done.store(true, Ordering::Relaxed);
+                let _ = ticker.join();
+                r
+            });
+            let (_, runs, bytes) = shared.into_inner().unwrap_or_else(|e| e.into_inner());
+            run.runs_written += runs;
+            run.temp_bytes += bytes;
+            result?;
+            m.phase = Phase::Merging;
+            m.next_id = next_id.load(Ordering::SeqCst);
+            m.save(&run.dirs.work)
+        })
+    }
+
+    /// Runs `job(p)` for every partition `p` in `todo` on the worker threads;
+    /// `record` is called (serialised) with each result.
+    fn per_partition<T: Send>(
+        &self,
+        todo: Vec<u32>,
+        job: &(dyn Fn(u32) -> Result<T> + Sync),
+        record: &mut (dyn FnMut(u32, T) -> Result<()> + Send),
+    ) -> Result<()> {
+        let (tx, rx) = crossbeam::channel::unbounded();
+        for p in todo {
+            tx.send(p).expect("open");
+        }
+        drop(tx);
+        let record = Mutex::new(record);
+        let failed = std::sync::atomic::AtomicBool::new(false);
+        let first: Mutex<Option<Error>> = Mutex::new(None);
+        let done = AtomicU64::new(0);
+        std::thread::scope(|scope| {
+            for _ in 0..self.threads {
+                let rx = rx.clone();
+                let (record, failed, first, done) = (&record, &failed, &first, &done);
+                scope.spawn(move || {
+                    while let Ok(p) = rx.recv() {
+                        if failed.load(Ordering::SeqCst) {
+                            return;
+                        }
+                        let r = job(p).and_then(|t| {
+                            let mut rec = record.lock().unwrap_or_else(|e| e.into_inner());
+                            (*rec)(p, t)
+                        });
+                        if let Err(e) = r {
+                            failed.store(true, Ordering::SeqCst);
+                            first.lock().unwrap_or_else(|e| e.into_inner()).get_or_insert(e);
+                            return;
+                        }
+                        self.progress.advance(done.fetch_add(1, Ordering::SeqCst) + 1);
+                    }
+                });
+            }
+        });
+        match first.into_inner().unwrap_or_else(|e| e.into_inner()) {
+            Some(e) => Err(e),
+            None => Ok(()),
+        }
+    }
+
+    fn merging(&mut self, m: &mut Manifest) -> Result<()> {
+        if m.phase != Phase::Merging {
+            return Ok(());
+        }
+        self.timed(Phase::Merging, |run| {
+            let mut files = Vec::new();
+            if let Some(b) = &m.base {
+                files.push(RunFile::open(&run.dirs.runs.join(&b.run))?);
+            }
+            for r in &m.runsets {
+                for f in &r.runs {
+                    files.push(RunFile::open(&run.dirs.runs.join(f))?);
+                }
+            }
+            for f in &files {
+                if f.partitions() != m.partitions || f.value_width() != 1 {
+                    return Err(Error::corrupt(f.path(), "run file of another ingest (partitions or width differ)"));
+                }
+            }
+            let todo: Vec<u32> = (0..m.partitions).filter(|&p| m.merged[p as usize].is_none()).collect();
+            run.progress.phase(Phase::Merging, m.partitions as u64);
+            let next_tmp = AtomicU64::new(0);
+            let dirs: &Dirs = run.dirs;
+            let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
+            let job = |p: u32| merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect());
+            let work = run.dirs.work.clone();
+            let shared = Mutex::new(&mut *m);
+            run.per_partition(todo, &job, &mut |p, merged| {
+                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
+                g.merged[p as usize] = Some(merged);
+                g.save(&work)?;
+                crate::fault::point("merge");
+                Ok(())
+            })?;
+            m.phase = Phase::Joining;
+            m.save(&run.dirs.work)?;
+            run.temp_bytes += store::dir_bytes(&run.dirs.merged);
+            // The merged counts hold everything the count runs held.
+            remove_matching(&run.dirs.runs, ".run")
+        })
+    }
+
+    fn joining(&mut self, m: &mut Manifest) -> Result<()> {
+        if m.phase != Phase::Joining {
+            return Ok(());
+        }
+        self.timed(Phase::Joining, |run| {
+            let merged: Vec<_> = m
+                .merged
+                .iter()
+                .map(|x| x.clone().ok_or_else(|| Error::corrupt(Manifest::path(&run.dirs.work), "a partition is missing its merge")))
+                .collect::<Result<_>>()?;
+            let mut suffix = Vec::new();
+            for x in &merged {
+                for f in &x.suffix_runs {
+                    suffix.push(RunFile::open(&run.dirs.merged.join(f))?);
+                }
+            }
+            let todo: Vec<u32> = (0..m.partitions).filter(|&p| m.joined[p as usize].is_none()).collect();
+            run.progress.phase(Phase::Joining, m.partitions as u64);
+            let next_tmp = AtomicU64::new(0);
+            let dirs: &Dirs = run.dirs;
+            let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
+            let sst = run.dirs.sst.clone();
+            let job = |q: u32| -> Result<Joined> {
+                let counts = RunFile::open(&run.dirs.merged.join(&merged[q as usize].counts))?;
+                join_partition(&cfg, q, &counts, suffix.iter().map(|f| (f.clone(), q)).collect(), &sst)
+            };
+            let work = run.dirs.work.clone();
+            let shared = Mutex::new(&mut *m);
+            run.per_partition(todo, &job, &mut |q, joined| {
+                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
+                g.joined[q as usize] = Some(joined);
+                g.save(&work)?;
+                crate::fault::point("join");
+                Ok(())
+            })?;
+            m.phase = Phase::Building;
+            m.save(&run.dirs.work)?;
+            run.temp_bytes += store::dir_bytes(&run.dirs.sst);
+            fsutil::remove_dir(&run.dirs.merged)?;
+            fsutil::remove_dir(&run.dirs.tmp)
+        })
+    }
+
+    fn building(&mut self, m: &mut Manifest) -> Result<()> {
+        if m.phase == Phase::Building {
+            self.timed(Phase::Building, |run| {
+                run.progress.phase(Phase::Building, 1);
+                let meta = assemble_meta(m, &run.dirs.work)?;
+                let mut files: Vec<(String, PathBuf)> = Vec::new();
+                if let Some(vocab) = write_vocab(m, run.dirs)? {
+                    files.push((keys::VOCAB_CF.to_string(), vocab));
+                }
+                for j in m.joined.iter().flatten() {
+                    for (cf, f) in &j.ssts {
+                        files.push((cf.clone(), run.dirs.sst.join(f)));
+                    }
+                }
+                let store = &run.dirs.store;
+                let db_new = store.join("db.new");
+                build::create_db(&db_new, m.settings.order, &files, &run.dirs.work.join("staging"), &meta)?;
+                crate::fault::point("build");
+                let db = store::db_dir(store);
+                let old = store.join("db.old");
+                if db.exists() {
+                    fsutil::remove_dir(&old)?;
+                    std::fs::rename(&db, &old).at(&db, "rename")?;
+                }
+                fsutil::rename_durable(&db_new, &db)?;
+                fsutil::remove_dir(&old)?;
+                m.phase = Phase::Done;
+                m.save(&run.dirs.work)?;
+                run.progress.advance(1);
+                Ok(())
+            })?;
+        }
+        if m.phase == Phase::Done {
+            fsutil::remove_dir(&self.dirs.work)?;
+            fsutil::sync_dir(&self.dirs.store)?;
+        }
+        Ok(())
+    }
+}
+
+fn remove_matching(dir: &Path, suffix: &str) -> Result<()> {
+    for e in std::fs::read_dir(dir).at(dir, "read directory")? {
+        let e = e.at(dir, "read directory")?;
+        if e.file_name().to_string_lossy().ends_with(suffix) {
+            std::fs::remove_file(e.path()).at(&e.path(), "remove")?;
+        }
+    }
+    Ok(())
+}
+
+/// Merges every dictionary into the vocabulary SST, checking for
+/// collisions between different words with one id.
+fn write_vocab(m: &Manifest, d: &Dirs) -> Result<Option<PathBuf>> {
+    let mut names: Vec<&String> = m.runsets.iter().map(|r| &r.dict).collect();
+    if let Some(b) = &m.base {
+        names.push(&b.dict);
+    }
+    let mut readers = names
+        .iter()
+        .map(|n| DictReader::open(&d.runs.join(n)))
+        .collect::<Result<Vec<_>>>()?;
+    let mut heap = std::collections::BinaryHeap::new();
+    for (i, r) in readers.iter_mut().enumerate() {
+        if let Some((id, w)) = r.next_entry()? {
+            heap.push(std::cmp::Reverse((id, w, i)));
+        }
+    }
+    let _ = std::fs::remove_file(d.sst.join("all-vocab.sst"));
+    let opts = build::sst_options();
+    let mut sink = build::SstSet::new(&opts, &d.sst, "all".into());
+    let mut last: Option<(WordId, String)> = None;
+    while let Some(std::cmp::Reverse((id, w, i))) = heap.pop() {
+        if let Some(next) = readers[i].next_entry()? {
+            heap.push(std::cmp::Reverse((next.0, next.1, i)));
+        }
+        match &last {
+            Some((lid, lw)) if *lid == id => {
+                if *lw != w {
+                    return Err(Error::HashCollision {
+                        first: lw.clone(),
+                        second: w,
+                        id,
+                    });
+                }
+                continue;
+            }
+            _ => {}
+        }
+        sink.put(keys::VOCAB_CF, &id.to_be_bytes(), w.as_bytes())?;
+        last = Some((id, w));
+    }
+    Ok(sink.finish()?.into_iter().next().map(|(_, name)| d.sst.join(name)))
+}
+
+fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {
+    let n = m.settings.order;
+    let mut ngrams = vec![0u64; n];
+    let mut raw = vec![BTreeMap::<u64, u64>::new(); n];
+    let mut adj = vec![BTreeMap::<u64, u64>::new(); n];
+    let mut root = ContextStats::default();
+    let mut unk_seen = false;
+    for j in &m.joined {
+        let j = j
+            .as_ref()
+            .ok_or_else(|| Error::corrupt(Manifest::path(work), "a partition is missing its join"))?;
+        for k in 0..n {
+            ngrams[k] += j.stats.ngrams[k];
+            for (r, c) in &j.stats.coc_raw[k] {
+                *raw[k].entry(*r).or_insert(0) += c;
+            }
+            for (r, c) in &j.stats.coc_adjusted[k] {
+                *adj[k].entry(*r).or_insert(0) += c;
+            }
+        }
+        root.merge(&j.stats.root);
+        unk_seen |= j.stats.unk_seen;
+    }
+    let rt = m.read_totals();
+    let totals = Totals {
+        sentences: rt.sentences,
+        tokens: root.count_sum,
+        types: root.types,
+        vocabulary: root.types + u64::from(!unk_seen),
+        unk_seen,
+        skipped_lines: rt.skipped_lines,
+        invalid_utf8_lines: rt.invalid_utf8_lines,
+        marker_tokens: rt.marker_tokens,
+        input_bytes: rt.bytes,
+    };
+    let orders = (0..n)
+        .map(|k| OrderStats {
+            order: k + 1,
+            ngrams: ngrams[k],
+            coc_raw: raw[k].iter().map(|(a, b)| (*a, *b)).collect(),
+            coc_adjusted: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
+        })
+        .collect();
+    Ok(StoreMeta {
+        format_version: store::STORE_VERSION,
+        settings: m.settings,
+        totals,
+        orders,
+        root,
+    })
+}

@@ -1,0 +1,139 @@
+//! N-gram keys: up to [`MAX_ORDER`] word ids, compared lexicographically.
+//!
+//! The order of keys everywhere in quern (tables after sorting, run files,
+//! merges, the store) is the lexicographic order of the id sequences, a
+//! prefix before its extensions. Written as big-endian bytes, that is the
+//! byte order RocksDB compares with, so all n-grams that share a prefix are
+//! contiguous. Partitions are ranges of the first word's id, so partition
+//! order agrees with key order.
+
+use std::cmp::Ordering;
+
+use crate::words::WordId;
+
+/// Highest order quern counts.
+pub const MAX_ORDER: usize = 8;
+
+/// A fixed-width n-gram key (no heap allocation).
+#[derive(Clone, Copy, PartialEq, Eq, Hash, Debug, Default)]
+pub struct Key {
+    len: u8,
+    ids: [WordId; MAX_ORDER],
+}
+
+impl Key {
+    /// The key of `ids` (at most [`MAX_ORDER`] of them).
+    #[inline]
+    pub fn new(ids: &[WordId]) -> Self {
+        let mut k = Key {
+            len: ids.len() as u8,
+            ids: [0; MAX_ORDER],
+        };
+        k.ids[..ids.len()].copy_from_slice(ids);
+        k
+    }
+
+    /// The ids.
+    #[inline]
+    pub fn ids(&self) -> &[WordId] {
+        &self.ids[..self.len as usize]
+    }
+
+    /// Number of words.
+    #[inline]
+    pub fn order(&self) -> usize {
+        self.len as usize
+    }
+
+    /// Appends the big-endian bytes of the ids to `out`.
+    pub fn write_be(&self, out: &mut Vec<u8>) {
+        for id in self.ids() {
+            out.extend_from_slice(&id.to_be_bytes());
+        }
+    }
+
+    /// Parses big-endian bytes (a multiple of 8, at most `MAX_ORDER` words).
+    pub fn from_be(bytes: &[u8]) -> Option<Key> {
+        if bytes.len() % 8 != 0 || bytes.len() / 8 > MAX_ORDER {
+            return None;
+        }
+        let mut k = Key {
+            len: (bytes.len() / 8) as u8,
+            ids: [0; MAX_ORDER],
+        };
+        for (i, c) in bytes.chunks_exact(8).enumerate() {
+            k.ids[i] = u64::from_be_bytes(c.try_into().expect("chunk of 8"));
+        }
+        Some(k)
+    }
+}
+
+impl Ord for Key {
+    #[inline]
+    fn cmp(&self, other: &Self) -> Ordering {
+        self.ids().cmp(other.ids())
+    }
+}
+
+impl PartialOrd for Key {
+    #[inline]
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+
+/// The partition (of `parts`) that owns n-grams whose first word is `first`.
+/// Monotone in `first`, so partitions are contiguous key ranges.
+#[inline]
+pub fn partition_of(first: WordId, parts: u32) -> u32 {
+    ((first as u128 * parts as u128) >> 64) as u32
+}
+
+/// The smallest first-word id of partition `p` (of `parts`).
+pub fn partition_start(p: u32, parts: u32) -> WordId {
+    // Smallest x with floor(x * parts / 2^64) >= p, i.e. ceil(p * 2^64 / parts).
+    let num = (p as u128) << 64;
+    num.div_ceil(parts as u128) as WordId
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn prefix_sorts_first_and_bytes_agree() {
+        let a = Key::new(&[5, 1]);
+        let b = Key::new(&[5]);
+        let c = Key::new(&[5, 1, 0]);
+        let d = Key::new(&[6]);
+        let mut v = vec![d, c, a, b];
+        v.sort();
+        assert_eq!(v, vec![b, a, c, d]);
+        let bytes: Vec<Vec<u8>> = v
+            .iter()
+            .map(|k| {
+                let mut o = Vec::new();
+                k.write_be(&mut o);
+                o
+            })
+            .collect();
+        let mut sorted = bytes.clone();
+        sorted.sort();
+        assert_eq!(bytes, sorted);
+        assert_eq!(Key::from_be(&bytes[2]), Some(c));
+    }
+
+    #[test]
+    fn partitions_are_ranges() {
+        for parts in [1u32, 3, 7, 64] {
+            for p in 0..parts {
+                let s = partition_start(p, parts);
+                assert_eq!(partition_of(s, parts), p);
+                if s > 0 {
+                    assert_eq!(partition_of(s - 1, parts), p - 1);
+                }
+            }
+            assert_eq!(partition_of(u64::MAX, parts), parts - 1);
+        }
+    }
+}

@@ -1,0 +1,58 @@
+//! quern counts every n-gram up to order N of a large corpus in bounded
+//! memory, into an on-disk store that survives crashes, and serves counts,
+//! continuation counts, context statistics and count-of-counts from it.
+//!
+//! # The pipeline
+//!
+//! ```text
+//! inputs ──corpus──▶ lines ──tokenize──▶ ids ──count──▶ run files (shard)
+//!        ──merge::merge_partition──▶ merged counts + continuation runs
+//!        ──merge::join_partition──▶ SST files + statistics
+//!        ──store::build──▶ RocksDB store ──▶ store::Store (queries)
+//! ```
+//!
+//! * [`corpus`] finds inputs, cuts plain files into line-aligned chunks and
+//!   reads lines with a hard length limit.
+//! * [`tokenize`] turns a line into the padded ids of its sentence;
+//!   [`words`] defines ids (xxh3-64 of the word) and collision detection.
+//! * [`count`] counts spans of input into bounded [`count::Table`]s and
+//!   spills them as [`shard`] run files: sorted, partitioned by the first
+//!   word's id, zstd-compressed and checksummed.
+//! * [`merge`] merges each partition's runs (k-way), shuffles continuation
+//!   contributions once, and derives every statistic in one ordered pass.
+//! * [`store`] writes and reads the RocksDB store.
+//! * [`ingest`] drives the stages and records each durable step in a
+//!   manifest, so that an interrupted ingest resumes where it stopped.
+//!
+//! # Example
+//!
+//! ```no_run
+//! use quern::ingest::{ingest, IngestOptions, Silent};
+//! use quern::store::Store;
+//!
+//! let mut opts = IngestOptions::new("/tmp/store", vec!["corpus.txt".into()]);
+//! opts.order = 3;
+//! opts.memory = 256 << 20;
+//! ingest(&opts, &Silent)?;
+//! let store = Store::open("/tmp/store".as_ref())?;
+//! println!("{} sentences", store.meta().totals.sentences);
+//! # Ok::<(), quern::Error>(())
+//! ```
+#![deny(missing_docs)]
+#![deny(unsafe_code)]
+
+pub mod corpus;
+pub mod count;
+pub mod error;
+pub mod fault;
+pub mod fsutil;
+pub mod ingest;
+pub mod key;
+pub mod memory;
+pub mod merge;
+pub mod shard;
+pub mod store;
+pub mod tokenize;
+pub mod words;
+
+pub use error::{Error, Result};

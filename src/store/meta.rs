@@ -1,0 +1,114 @@
+//! The store's metadata record: settings, totals, count-of-counts.
+
+use serde::{Deserialize, Serialize};
+
+use super::keys::ContextStats;
+
+/// Format version of the store; checked on open.
+pub const STORE_VERSION: u32 = 1;
+
+/// Settings that change what is counted.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Settings {
+    /// Highest order N.
+    pub order: usize,
+    /// Tokens were lowercased.
+    pub lowercase: bool,
+    /// Lines longer than this many bytes were skipped.
+    pub max_line_bytes: usize,
+}
+
+/// Corpus-wide totals.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Totals {
+    /// Sentences counted.
+    pub sentences: u64,
+    /// T: raw unigram counts summed without `<s>`.
+    pub tokens: u64,
+    /// Distinct tokens seen, without `<s>`.
+    pub types: u64,
+    /// |V|: `types`, plus one if `<unk>` was not seen.
+    pub vocabulary: u64,
+    /// `<unk>` occurred in the counted text.
+    pub unk_seen: bool,
+    /// Lines skipped for exceeding the line limit.
+    pub skipped_lines: u64,
+    /// Lines with invalid UTF-8, decoded lossily.
+    pub invalid_utf8_lines: u64,
+    /// Literal tokens spelled like a marker, counted as `<unk>`.
+    pub marker_tokens: u64,
+    /// Input bytes read (decompressed).
+    pub input_bytes: u64,
+}
+
+/// Statistics of one order.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct OrderStats {
+    /// The order k.
+    pub order: usize,
+    /// Stored k-grams (for k = 1 including `<s>`).
+    pub ngrams: u64,
+    /// Raw count-of-counts `(r, n_r)`, r ascending, `<s>` left out.
+    pub coc_raw: Vec<(u64, u64)>,
+    /// Adjusted count-of-counts `(r, n_r)`, r ascending, `<s>` left out.
+    pub coc_adjusted: Vec<(u64, u64)>,
+}
+
+impl OrderStats {
+    /// n_r of the adjusted spectrum (0 where absent).
+    pub fn adjusted(&self, r: u64) -> u64 {
+        lookup(&self.coc_adjusted, r)
+    }
+
+    /// n_r of the raw spectrum (0 where absent).
+    pub fn raw(&self, r: u64) -> u64 {
+        lookup(&self.coc_raw, r)
+    }
+}
+
+fn lookup(v: &[(u64, u64)], r: u64) -> u64 {
+    v.binary_search_by_key(&r, |e| e.0).map_or(0, |i| v[i].1)
+}
+
+/// Everything the store knows besides its n-grams.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct StoreMeta {
+    /// [`STORE_VERSION`].
+    pub format_version: u32,
+    /// Settings the store was built with.
+    pub settings: Settings,
+    /// Totals.
+    pub totals: Totals,
+    /// Per order, 1..=N.
+    pub orders: Vec<OrderStats>,
+    /// Statistics of the empty context (its children: all unigrams but `<s>`).
+    pub root: ContextStats,
+}
+
+/// Modified Kneser-Ney discounts of one order.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct MknDiscounts {
+    /// D1.
+    pub d1: f64,
+    /// D2.
+    pub d2: f64,
+    /// D3+.
+    pub d3plus: f64,
+}
+
+/// The discounts of Chen & Goodman (1998) from adjusted count-of-counts:
+/// Y = n1/(n1 + 2 n2), D1 = 1 − 2Y n2/n1, D2 = 2 − 3Y n3/n2,
+/// D3+ = 3 − 4Y n4/n3. `None` where any of n1..n4 is 0: the data then
+/// leave at least one of the three undefined or degenerate.
+pub fn mkn_discounts(o: &OrderStats) -> Option<MknDiscounts> {
+    let [n1, n2, n3, n4] = [1, 2, 3, 4].map(|r| o.adjusted(r) as f64);
+    if n1 == 0.0 || n2 == 0.0 || n3 == 0.0 || n4 == 0.0 {
+        return None;
+    }
+    let y = n1 / (n1 + 2.0 * n2);
+    Some(MknDiscounts {
+        d1: 1.0 - 2.0 * y * n2 / n1,
+        d2: 2.0 - 3.0 * y * n3 / n2,
+        d3plus: 3.0 - 4.0 * y * n4 / n3,
+    })
+}

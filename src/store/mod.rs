@@ -1,0 +1,230 @@
+//! The finished store: a RocksDB database of counts, continuation counts,
+//! context statistics, vocabulary and metadata.
+//!
+//! This module is the only user of `rocksdb`. [`build`] writes sorted
+//! SST files and loads them by ingestion (never one put at a time);
+//! [`Store`] opens a finished store read-only. The layout is in [`keys`].
+//!
+//! A store directory holds `db/` (the database), and while an ingest is
+//! unfinished also `work/` (its manifest and intermediate files) and
+//! `ingest.lock`. A store with a `work/` folder is unfinished: [`Store::open`]
+//! refuses it and says which phase it is in.
+
+pub mod build;
+pub mod keys;
+mod meta;
+
+pub use keys::ContextStats;
+pub use meta::{mkn_discounts, MknDiscounts, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+
+use rocksdb::{IteratorMode, Options, DB};
+
+use crate::error::{Error, Result};
+use crate::key::Key;
+use crate::words::{bos_id, eos_id, unk_id, WordId, BOS, EOS, UNK};
+
+/// The database folder inside a store directory.
+pub fn db_dir(store: &Path) -> PathBuf {
+    store.join("db")
+}
+
+/// The work folder of an unfinished ingest.
+pub fn work_dir(store: &Path) -> PathBuf {
+    store.join("work")
+}
+
+/// RocksDB options shared by writing and reading.
+pub(crate) fn cf_options() -> Options {
+    let mut o = Options::default();
+    o.set_compression_type(rocksdb::DBCompressionType::Zstd);
+    let mut b = rocksdb::BlockBasedOptions::default();
+    b.set_block_size(16 << 10);
+    b.set_bloom_filter(10.0, false);
+    o.set_block_based_table_factory(&b);
+    o
+}
+
+/// A finished store, opened read-only.
+pub struct Store {
+    dir: PathBuf,
+    db: DB,
+    meta: StoreMeta,
+}
+
+impl Store {
+    /// Opens the finished store in `dir`.
+    pub fn open(dir: &Path) -> Result<Store> {
+        if let Some(m) = crate::ingest::Manifest::load(&work_dir(dir)).ok().flatten() {
+            return Err(Error::state(
+                dir,
+                format!(
+                    "this store is unfinished: an ingest is in its {} phase; run the same ingest command again to resume it (or `quern status` to see its progress)",
+                    m.phase.name()
+                ),
+            ));
+        }
+        if work_dir(dir).exists() {
+            return Err(Error::state(dir, "this store is unfinished (an ingest has started); run the same ingest command again to resume it"));
+        }
+        let path = db_dir(dir);
+        if !path.join("CURRENT").exists() {
+            return Err(Error::state(dir, "no store here (run `quern ingest --store DIR INPUT...` first)"));
+        }
+        let rocks = |source| Error::Rocks {
+            path: path.clone(),
+            source,
+        };
+        let cfs = DB::list_cf(&Options::default(), &path).map_err(rocks)?;
+        let mut opts = Options::default();
+        opts.set_max_open_files(256);
+        let descs: Vec<_> = cfs
+            .iter()
+            .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options()))
+            .collect();
+        let db = DB::open_cf_descriptors_read_only(&opts, &path, descs, false).map_err(rocks)?;
+        let meta_cf = db
+            .cf_handle(keys::META_CF)
+            .ok_or_else(|| Error::corrupt(&path, "no metadata column family"))?;
+        let raw = db
+            .get_cf(meta_cf, keys::META_KEY)
+            .map_err(rocks)?
+            .ok_or_else(|| Error::corrupt(&path, "no metadata record"))?;
+        #[derive(serde::Deserialize)]
+        struct Probe {
+            format_version: u32,
+        }
+        let probe: Probe =
+            serde_json::from_slice(&raw).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+        if probe.format_version != STORE_VERSION {
+            return Err(Error::Version {
+                path,
+                found: probe.format_version,
+                expected: STORE_VERSION,
+            });
+        }
+        let meta: StoreMeta =
+            serde_json::from_slice(&raw).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+        Ok(Store {
+            dir: dir.to_path_buf(),
+            db,
+            meta,
+        })
+    }
+
+    /// The store directory.
+    pub fn dir(&self) -> &Path {
+        &self.dir
+    }
+
+    /// Settings, totals and count-of-counts.
+    pub fn meta(&self) -> &StoreMeta {
+        &self.meta
+    }
+
+    /// Highest order N.
+    pub fn order(&self) -> usize {
+        self.meta.settings.order
+    }
+
+    fn rocks(&self, source: rocksdb::Error) -> Error {
+        Error::Rocks {
+            path: db_dir(&self.dir),
+            source,
+        }
+    }
+
+    fn cf(&self, name: &str) -> Result<&rocksdb::ColumnFamily> {
+        self.db
+            .cf_handle(name)
+            .ok_or_else(|| Error::corrupt(db_dir(&self.dir), format!("missing column family {name}")))
+    }
+
+    /// The whole vocabulary: id → word (markers included).
+    pub fn vocabulary(&self) -> Result<HashMap<WordId, String>> {
+        let mut m = HashMap::new();
+        for (id, w) in [(bos_id(), BOS), (eos_id(), EOS), (unk_id(), UNK)] {
+            m.insert(id, w.to_string());
+        }
+        for item in self.db.iterator_cf(self.cf(keys::VOCAB_CF)?, IteratorMode::Start) {
+            let (k, v) = item.map_err(|e| self.rocks(e))?;
+            let id = Key::from_be(&k)
+                .filter(|k| k.order() == 1)
+                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad vocabulary key"))?
+                .ids()[0];
+            m.insert(id, String::from_utf8_lossy(&v).into_owned());
+        }
+        Ok(m)
+    }
+
+    /// Every n-gram of order `k` in key order: `(key, count, continuation)`.
+    pub fn ngrams(&self, k: usize) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + '_> {
+        let path = db_dir(&self.dir);
+        let it = self.db.iterator_cf(self.cf(&keys::ngram_cf(k))?, IteratorMode::Start);
+        Ok(it.map(move |item| {
+            let (kb, vb) = item.map_err(|source| Error::Rocks {
+                path: path.clone(),
+                source,
+            })?;
+            let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
+            let (c, cont) = keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
+            Ok((key, c, cont))
+        }))
+    }
+
+    /// Every context of length `k` (1 ≤ k < N) in key order.
+    pub fn contexts(&self, k: usize) -> Result<impl Iterator<Item = Result<(Key, ContextStats)>> + '_> {
+        let path = db_dir(&self.dir);
+        let it = self.db.iterator_cf(self.cf(&keys::context_cf(k))?, IteratorMode::Start);
+        Ok(it.map(move |item| {
+            let (kb, vb) = item.map_err(|source| Error::Rocks {
+                path: path.clone(),
+                source,
+            })?;
+            let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad context key"))?;
+            let st = ContextStats::decode(&vb).ok_or_else(|| Error::corrupt(&path, "bad context value"))?;
+            Ok((key, st))
+        }))
+    }
+
+    /// The count and continuation count of one n-gram, if stored.
+    pub fn get(&self, ids: &[WordId]) -> Result<Option<(u64, Option<u64>)>> {
+        if ids.is_empty() || ids.len() > self.order() {
+            return Ok(None);
+        }
+        let mut kb = Vec::with_capacity(ids.len() * 8);
+        Key::new(ids).write_be(&mut kb);
+        let v = self
+            .db
+            .get_pinned_cf(self.cf(&keys::ngram_cf(ids.len()))?, &kb)
+            .map_err(|e| self.rocks(e))?;
+        match v {
+            None => Ok(None),
+            Some(v) => keys::decode_ngram(&v)
+                .map(Some)
+                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad n-gram value")),
+        }
+    }
+
+    /// Size of the database files on disk, in bytes.
+    pub fn disk_bytes(&self) -> u64 {
+        dir_bytes(&db_dir(&self.dir))
+    }
+}
+
+/// Total size of the files below `dir`.
+pub fn dir_bytes(dir: &Path) -> u64 {
+    let mut total = 0;
+    if let Ok(rd) = std::fs::read_dir(dir) {
+        for e in rd.flatten() {
+            match e.metadata() {
+                Ok(m) if m.is_dir() => total += dir_bytes(&e.path()),
+                Ok(m) => total += m.len(),
+                Err(_) => {}
+            }
+        }
+    }
+    total
+}

@@ -1,0 +1,133 @@
+//! One line of text to the padded id sequence of its sentence. Pure.
+//!
+//! The contract (see README, "What is counted"): tokens are the maximal runs
+//! of characters that are not Unicode White_Space (`char::is_whitespace`);
+//! invalid UTF-8 is decoded lossily (each bad sequence becomes U+FFFD) and
+//! the line is reported; `--lowercase` applies Unicode lowercasing; a token
+//! spelled `<s>`, `</s>` or `<unk>` becomes `<unk>`. A sentence
+//! `w1 … wm` becomes `<s> w1 … wm </s>`; a line without tokens yields nothing.
+
+use std::borrow::Cow;
+
+use crate::error::Result;
+use crate::words::{bos_id, eos_id, unk_id, word_id, Dictionary, WordId, BOS, EOS, UNK};
+
+/// What a line looked like, for the ingest report.
+#[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
+pub struct LineReport {
+    /// The line held invalid UTF-8 (decoded lossily).
+    pub invalid_utf8: bool,
+    /// Number of literal tokens spelled like a marker (mapped to `<unk>`).
+    pub marker_tokens: u64,
+}
+
+/// Turns lines into id sequences, remembering every word it saw.
+pub struct Tokenizer {
+    lowercase: bool,
+    bos: WordId,
+    eos: WordId,
+    unk: WordId,
+}
+
+impl Tokenizer {
+    /// A tokenizer; `lowercase` applies Unicode lowercasing to every token.
+    pub fn new(lowercase: bool) -> Self {
+        Tokenizer {
+            lowercase,
+            bos: bos_id(),
+            eos: eos_id(),
+            unk: unk_id(),
+        }
+    }
+
+    /// Writes the padded ids of `line` (without its line end) into `out`,
+    /// registering each word in `dict`. `out` is left empty for a line
+    /// without tokens.
+    pub fn sentence(
+        &self,
+        line: &[u8],
+        dict: &mut Dictionary,
+        out: &mut Vec<WordId>,
+    ) -> Result<LineReport> {
+        out.clear();
+        let mut report = LineReport::default();
+        let text = String::from_utf8_lossy(line);
+        report.invalid_utf8 = matches!(text, Cow::Owned(_));
+        for raw in text.split_whitespace() {
+            if out.is_empty() {
+                out.push(self.bos);
+            }
+            let tok: Cow<str> = if self.lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
+                Cow::Owned(raw.to_lowercase())
+            } else {
+                Cow::Borrowed(raw)
+            };
+            if tok == BOS || tok == EOS || tok == UNK {
+                report.marker_tokens += 1;
+                out.push(self.unk);
+                continue;
+            }
+            let id = word_id(tok.as_bytes());
+            dict.insert(id, &tok)?;
+            out.push(id);
+        }
+        if !out.is_empty() {
+            out.push(self.eos);
+        }
+        Ok(report)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ids(words: &[&str]) -> Vec<WordId> {
+        words.iter().map(|w| word_id(w.as_bytes())).collect()
+    }
+
+    #[test]
+    fn pads_and_splits_on_unicode_whitespace() {
+        let t = Tokenizer::new(false);
+        let mut d = Dictionary::new();
+        let mut out = Vec::new();
+        // U+3000 IDEOGRAPHIC SPACE and U+00A0 NO-BREAK SPACE are White_Space
+        // (Unicode PropList.txt); U+001C is not.
+        t.sentence("a\u{3000}b\u{a0}c\u{1c}d".as_bytes(), &mut d, &mut out).unwrap();
+        assert_eq!(out, ids(&["<s>", "a", "b", "c\u{1c}d", "</s>"]));
+    }
+
+    #[test]
+    fn blank_line_is_no_sentence() {
+        let t = Tokenizer::new(false);
+        let mut out = vec![1];
+        t.sentence(b" \t ", &mut Dictionary::new(), &mut out).unwrap();
+        assert!(out.is_empty());
+    }
+
+    #[test]
+    fn literal_markers_become_unk() {
+        let t = Tokenizer::new(true);
+        let mut out = Vec::new();
+        let r = t.sentence(b"<S> x </s> <unk>", &mut Dictionary::new(), &mut out).unwrap();
+        assert_eq!(r.marker_tokens, 3);
+        assert_eq!(out, ids(&["<s>", "<unk>", "x", "<unk>", "<unk>", "</s>"]));
+    }
+
+    #[test]
+    fn invalid_utf8_is_replaced_and_reported() {
+        let t = Tokenizer::new(false);
+        let mut out = Vec::new();
+        let r = t.sentence(b"ok \xff\xfe", &mut Dictionary::new(), &mut out).unwrap();
+        assert!(r.invalid_utf8);
+        assert_eq!(out, ids(&["<s>", "ok", "\u{fffd}\u{fffd}", "</s>"]));
+    }
+
+    #[test]
+    fn lowercase_is_unicode() {
+        let t = Tokenizer::new(true);
+        let mut out = Vec::new();
+        t.sentence("ÉCOLE Straße".as_bytes(), &mut Dictionary::new(), &mut out).unwrap();
+        assert_eq!(out, ids(&["<s>", "école", "straße", "</s>"]));
+    }
+}
