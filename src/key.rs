@@ -54,7 +54,7 @@ impl Key {
 
     /// Parses big-endian bytes (a multiple of 8, at most `MAX_ORDER` words).
     pub fn from_be(bytes: &[u8]) -> Option<Key> {
-        if bytes.len() % 8 != 0 || bytes.len() / 8 > MAX_ORDER {
+        if !bytes.len().is_multiple_of(8) || bytes.len() / 8 > MAX_ORDER {
             return None;
         }
         let mut k = Key {

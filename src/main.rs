@@ -10,7 +10,10 @@ fn main() -> ExitCode {
             let broken = |k: Option<std::io::ErrorKind>| k == Some(std::io::ErrorKind::BrokenPipe);
             if e.chain().any(|c| {
                 broken(c.downcast_ref::<std::io::Error>().map(|io| io.kind()))
-                    || broken(c.downcast_ref::<serde_json::Error>().and_then(|j| j.io_error_kind()))
+                    || broken(
+                        c.downcast_ref::<serde_json::Error>()
+                            .and_then(|j| j.io_error_kind()),
+                    )
             }) {
                 return ExitCode::SUCCESS;
             }

@@ -33,7 +33,11 @@ pub fn parse_size(s: &str) -> Result<u64> {
         "mib" => 1024.0 * 1024.0,
         "gib" => 1024.0 * 1024.0 * 1024.0,
         "tib" => 1024.0 * 1024.0 * 1024.0 * 1024.0,
-        _ => return Err(Error::Config(format!("{s:?}: unknown unit {unit:?} (use KiB, MiB, GiB)"))),
+        _ => {
+            return Err(Error::Config(format!(
+                "{s:?}: unknown unit {unit:?} (use KiB, MiB, GiB)"
+            )))
+        }
     };
     Ok((n * mult) as u64)
 }
@@ -99,10 +103,18 @@ mod tests {
 
     #[test]
     fn plan_stays_within_budget() {
-        for (b, t) in [(16u64 << 20, 1usize), (32 << 20, 2), (4 << 30, 2), (1 << 30, 16)] {
+        for (b, t) in [
+            (16u64 << 20, 1usize),
+            (32 << 20, 2),
+            (4 << 30, 2),
+            (1 << 30, 16),
+        ] {
             let p = Plan::new(b, t).unwrap();
-            let used = RESERVE_FIXED + RESERVE_PER_THREAD * t as u64 + (p.count_worker as u64) * t as u64;
-            assert!(used <= b.max(RESERVE_FIXED + RESERVE_PER_THREAD * t as u64 + t as u64 * (2 << 20)));
+            let used =
+                RESERVE_FIXED + RESERVE_PER_THREAD * t as u64 + (p.count_worker as u64) * t as u64;
+            assert!(
+                used <= b.max(RESERVE_FIXED + RESERVE_PER_THREAD * t as u64 + t as u64 * (2 << 20))
+            );
             assert!(p.merge_worker + p.fanin * READER_BYTES <= p.count_worker);
         }
     }

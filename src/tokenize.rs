@@ -57,11 +57,12 @@ impl Tokenizer {
             if out.is_empty() {
                 out.push(self.bos);
             }
-            let tok: Cow<str> = if self.lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
-                Cow::Owned(raw.to_lowercase())
-            } else {
-                Cow::Borrowed(raw)
-            };
+            let tok: Cow<str> =
+                if self.lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
+                    Cow::Owned(raw.to_lowercase())
+                } else {
+                    Cow::Borrowed(raw)
+                };
             if tok == BOS || tok == EOS || tok == UNK {
                 report.marker_tokens += 1;
                 out.push(self.unk);
@@ -93,7 +94,8 @@ mod tests {
         let mut out = Vec::new();
         // U+3000 IDEOGRAPHIC SPACE and U+00A0 NO-BREAK SPACE are White_Space
         // (Unicode PropList.txt); U+001C is not.
-        t.sentence("a\u{3000}b\u{a0}c\u{1c}d".as_bytes(), &mut d, &mut out).unwrap();
+        t.sentence("a\u{3000}b\u{a0}c\u{1c}d".as_bytes(), &mut d, &mut out)
+            .unwrap();
         assert_eq!(out, ids(&["<s>", "a", "b", "c\u{1c}d", "</s>"]));
     }
 
@@ -101,7 +103,8 @@ mod tests {
     fn blank_line_is_no_sentence() {
         let t = Tokenizer::new(false);
         let mut out = vec![1];
-        t.sentence(b" \t ", &mut Dictionary::new(), &mut out).unwrap();
+        t.sentence(b" \t ", &mut Dictionary::new(), &mut out)
+            .unwrap();
         assert!(out.is_empty());
     }
 
@@ -109,7 +112,9 @@ mod tests {
     fn literal_markers_become_unk() {
         let t = Tokenizer::new(true);
         let mut out = Vec::new();
-        let r = t.sentence(b"<S> x </s> <unk>", &mut Dictionary::new(), &mut out).unwrap();
+        let r = t
+            .sentence(b"<S> x </s> <unk>", &mut Dictionary::new(), &mut out)
+            .unwrap();
         assert_eq!(r.marker_tokens, 3);
         assert_eq!(out, ids(&["<s>", "<unk>", "x", "<unk>", "<unk>", "</s>"]));
     }
@@ -118,7 +123,9 @@ mod tests {
     fn invalid_utf8_is_replaced_and_reported() {
         let t = Tokenizer::new(false);
         let mut out = Vec::new();
-        let r = t.sentence(b"ok \xff\xfe", &mut Dictionary::new(), &mut out).unwrap();
+        let r = t
+            .sentence(b"ok \xff\xfe", &mut Dictionary::new(), &mut out)
+            .unwrap();
         assert!(r.invalid_utf8);
         assert_eq!(out, ids(&["<s>", "ok", "\u{fffd}\u{fffd}", "</s>"]));
     }
@@ -127,7 +134,8 @@ mod tests {
     fn lowercase_is_unicode() {
         let t = Tokenizer::new(true);
         let mut out = Vec::new();
-        t.sentence("ÉCOLE Straße".as_bytes(), &mut Dictionary::new(), &mut out).unwrap();
+        t.sentence("ÉCOLE Straße".as_bytes(), &mut Dictionary::new(), &mut out)
+            .unwrap();
         assert_eq!(out, ids(&["<s>", "école", "straße", "</s>"]));
     }
 }

@@ -133,7 +133,10 @@ mod tests {
         let mut d = Dictionary::new();
         d.insert(7, "a").unwrap();
         d.insert(7, "a").unwrap();
-        assert!(matches!(d.insert(7, "b"), Err(Error::HashCollision { id: 7, .. })));
+        assert!(matches!(
+            d.insert(7, "b"),
+            Err(Error::HashCollision { id: 7, .. })
+        ));
     }
 
     #[test]

@@ -29,7 +29,13 @@ pub struct LineReader {
 impl LineReader {
     /// A reader over `inner`, which is positioned at `start`, stopping at
     /// the first line that starts at or after `end`.
-    pub fn new(inner: Box<dyn BufRead + Send>, path: PathBuf, start: u64, end: u64, max_line: usize) -> Self {
+    pub fn new(
+        inner: Box<dyn BufRead + Send>,
+        path: PathBuf,
+        start: u64,
+        end: u64,
+        max_line: usize,
+    ) -> Self {
         LineReader {
             inner,
             path,

@@ -229,7 +229,9 @@ pub fn open_at(f: &InputFile, start: u64) -> Result<Box<dyn BufRead + Send>> {
     if skipped != start {
         return Err(Error::Input {
             path: f.path.clone(),
-            detail: format!("the input is shorter than when it was first read ({skipped} < {start} bytes)"),
+            detail: format!(
+                "the input is shorter than when it was first read ({skipped} < {start} bytes)"
+            ),
         });
     }
     Ok(r)

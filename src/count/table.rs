@@ -35,8 +35,16 @@ impl Table {
     /// A table for keys of up to `width` ids and `values` sums, sized to
     /// spend at most `budget` bytes.
     pub fn with_budget(width: usize, values: usize, budget: usize) -> Table {
-        assert!(width >= 1 && width <= MAX_ORDER && values <= MAX_VALUES);
-        let cap = (budget / Self::slot_bytes(width, values)).max(64);
+        Self::for_keys(width, values, budget, usize::MAX)
+    }
+
+    /// Like [`Table::with_budget`], but no larger than needed for `keys`
+    /// distinct keys (a fresh table's pages cost a fault each when touched,
+    /// so an oversized table is slow as well as large).
+    pub fn for_keys(width: usize, values: usize, budget: usize, keys: usize) -> Table {
+        assert!((1..=MAX_ORDER).contains(&width) && values <= MAX_VALUES);
+        let need = ((keys as f64 / MAX_LOAD) as usize).saturating_add(64);
+        let cap = (budget / Self::slot_bytes(width, values)).min(need).max(64);
         Table {
             width,
             values,
@@ -112,7 +120,9 @@ impl Table {
     /// The entries in key order; the table is emptied afterwards by
     /// [`Table::clear`].
     pub fn sorted(&self) -> impl Iterator<Item = (Key, Values)> + '_ {
-        let mut idx: Vec<u32> = (0..self.cap as u32).filter(|&i| self.lens[i as usize] != 0).collect();
+        let mut idx: Vec<u32> = (0..self.cap as u32)
+            .filter(|&i| self.lens[i as usize] != 0)
+            .collect();
         idx.sort_unstable_by(|&a, &b| self.key_at(a as usize).cmp(self.key_at(b as usize)));
         idx.into_iter().map(move |i| {
             let i = i as usize;
@@ -135,12 +145,22 @@ mod tests {
     use std::collections::BTreeMap;
 
     #[test]
+    fn capacity_follows_budget_and_key_bound() {
+        let slot = Table::slot_bytes(5, 1);
+        assert_eq!(Table::with_budget(5, 1, 1000 * slot).cap, 1000);
+        assert_eq!(Table::for_keys(5, 1, 1000 * slot, 80).cap, 164);
+        assert_eq!(Table::for_keys(5, 1, 1000 * slot, usize::MAX).cap, 1000);
+    }
+
+    #[test]
     fn sums_and_sorts_like_a_btreemap() {
         let mut t = Table::with_budget(3, 1, 1 << 16);
         let mut m = BTreeMap::new();
         let mut x = 12345u64;
         for _ in 0..2000 {
-            x = x.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             let len = 1 + (x >> 60) as usize % 3;
             let key: Vec<u64> = (0..len).map(|j| (x >> (j * 7)) % 13).collect();
             if t.is_full() {

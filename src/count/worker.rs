@@ -134,14 +134,24 @@ impl<'a> Worker<'a> {
             Ok(())
         })();
         // Whatever happened, make what was counted durable.
-        let flushed = if self.covers.is_empty() { Ok(()) } else { self.spill(commit) };
+        let flushed = if self.covers.is_empty() {
+            Ok(())
+        } else {
+            self.spill(commit)
+        };
         result.and(flushed)
     }
 
     fn count_span(&mut self, span: Span, commit: &dyn Fn(Spill) -> Result<()>) -> Result<()> {
         let input = &self.cfg.inputs[span.file as usize];
         let stream = open_at(input, span.start)?;
-        let mut lines = LineReader::new(stream, input.path.clone(), span.start, span.end, self.cfg.max_line_bytes);
+        let mut lines = LineReader::new(
+            stream,
+            input.path.clone(),
+            span.start,
+            span.end,
+            self.cfg.max_line_bytes,
+        );
         let tok = Tokenizer::new(self.cfg.lowercase);
         let mut line = Vec::new();
         let mut ids = Vec::new();
@@ -183,7 +193,11 @@ impl<'a> Worker<'a> {
                 Err(e) => {
                     // The line that failed added nothing; keep every complete
                     // line before it (the caller spills them).
-                    self.covers.push(Span { file: span.file, start: from, end: before });
+                    self.covers.push(Span {
+                        file: span.file,
+                        start: from,
+                        end: before,
+                    });
                     return Err(e);
                 }
                 Ok(Line::End) => break,
@@ -191,12 +205,20 @@ impl<'a> Worker<'a> {
             }
             if self.table.is_full() || self.dict.heap_bytes() > self.dict_limit {
                 let end = lines.position();
-                self.covers.push(Span { file: span.file, start: from, end });
+                self.covers.push(Span {
+                    file: span.file,
+                    start: from,
+                    end,
+                });
                 self.spill(commit)?;
                 from = end;
             }
         }
-        self.covers.push(Span { file: span.file, start: from, end: span.end });
+        self.covers.push(Span {
+            file: span.file,
+            start: from,
+            end: span.end,
+        });
         Ok(())
     }
 

@@ -297,9 +297,21 @@ mod tests {
             mode: Mode::Fresh,
             inputs: vec![],
             chunks: vec![
-                Chunk { file: 0, start: 0, end: 100 },
-                Chunk { file: 0, start: 100, end: u64::MAX },
-                Chunk { file: 1, start: 0, end: u64::MAX },
+                Chunk {
+                    file: 0,
+                    start: 0,
+                    end: 100,
+                },
+                Chunk {
+                    file: 0,
+                    start: 100,
+                    end: u64::MAX,
+                },
+                Chunk {
+                    file: 1,
+                    start: 0,
+                    end: u64::MAX,
+                },
             ],
             partitions: 1,
             phase: Phase::Counting,
@@ -318,13 +330,21 @@ mod tests {
             covers: vec![span(0, 0, 40), span(0, 100, 150), span(1, 0, u64::MAX)],
             totals: ReadTotals::default(),
         });
-        assert_eq!(m.uncovered(), vec![span(0, 40, 100), span(0, 150, u64::MAX)]);
+        assert_eq!(
+            m.uncovered(),
+            vec![span(0, 40, 100), span(0, 150, u64::MAX)]
+        );
         let dir = tempfile::tempdir().unwrap();
         m.save(dir.path()).unwrap();
         assert_eq!(Manifest::load(dir.path()).unwrap(), Some(m));
         let p = Manifest::path(dir.path());
-        let text = std::fs::read_to_string(&p).unwrap().replace("\"order\": 3", "\"order\": 4");
+        let text = std::fs::read_to_string(&p)
+            .unwrap()
+            .replace("\"order\": 3", "\"order\": 4");
         std::fs::write(&p, text).unwrap();
-        assert!(matches!(Manifest::load(dir.path()), Err(Error::Corrupt { .. })));
+        assert!(matches!(
+            Manifest::load(dir.path()),
+            Err(Error::Corrupt { .. })
+        ));
     }
 }

@@ -32,7 +32,9 @@ use crate::key::{Key, MAX_ORDER};
 use crate::memory::{peak_rss, Plan};
 use crate::merge::{join_partition, merge_partition, KWayMerge, MergeConfig, RecordSource};
 use crate::shard::{DictReader, DictWriter, RunFile, RunWriter, Values};
-use crate::store::{self, build, keys, ContextStats, OrderStats, Settings, Store, StoreMeta, Totals};
+use crate::store::{
+    self, build, keys, ContextStats, OrderStats, Settings, Store, StoreMeta, Totals,
+};
 use crate::words::WordId;
 use manifest::{Base, Joined, Mode, RunSet};
 
@@ -183,7 +185,10 @@ fn now_secs() -> u64 {
 pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSummary> {
     let t0 = Instant::now();
     if opts.order == 0 || opts.order > MAX_ORDER {
-        return Err(Error::Config(format!("--order {} is outside 1..={MAX_ORDER}", opts.order)));
+        return Err(Error::Config(format!(
+            "--order {} is outside 1..={MAX_ORDER}",
+            opts.order
+        )));
     }
     if opts.inputs.is_empty() {
         return Err(Error::Config("no inputs given".into()));
@@ -206,7 +211,9 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
     let loaded = Manifest::load(&dirs.work).map_err(|e| match e {
         Error::Corrupt { path, detail } => Error::Corrupt {
             path,
-            detail: format!("{detail}; run the same command with --restart to start this ingest again"),
+            detail: format!(
+                "{detail}; run the same command with --restart to start this ingest again"
+            ),
         },
         e => e,
     })?;
@@ -270,7 +277,12 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
     })
 }
 
-fn check_resume(m: &Manifest, settings: &Settings, inputs: &[InputFile], opts: &IngestOptions) -> Result<()> {
+fn check_resume(
+    m: &Manifest,
+    settings: &Settings,
+    inputs: &[InputFile],
+    opts: &IngestOptions,
+) -> Result<()> {
     let hint = "run the same command as the interrupted ingest to resume it, or add --restart to discard it";
     if m.settings != *settings {
         return Err(Error::state(
@@ -283,17 +295,44 @@ fn check_resume(m: &Manifest, settings: &Settings, inputs: &[InputFile], opts: &
         ));
     }
     if (m.mode == Mode::Append) != opts.append {
-        return Err(Error::state(&opts.store, format!("the unfinished ingest here {} --append: {hint}", if opts.append { "was started without" } else { "was started with" })));
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "the unfinished ingest here {} --append: {hint}",
+                if opts.append {
+                    "was started without"
+                } else {
+                    "was started with"
+                }
+            ),
+        ));
     }
     if inputs.iter().any(|f| f.is_stdin()) {
-        return Err(Error::state(&opts.store, "an ingest that reads standard input cannot be resumed; add --restart"));
+        return Err(Error::state(
+            &opts.store,
+            "an ingest that reads standard input cannot be resumed; add --restart",
+        ));
     }
     if m.inputs.len() != inputs.len() {
-        return Err(Error::state(&opts.store, format!("the unfinished ingest here has {} input files, this command {}: {hint}", m.inputs.len(), inputs.len())));
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "the unfinished ingest here has {} input files, this command {}: {hint}",
+                m.inputs.len(),
+                inputs.len()
+            ),
+        ));
     }
     for (a, b) in m.inputs.iter().zip(inputs) {
         if a.path != b.path {
-            return Err(Error::state(&opts.store, format!("input {} differs from the unfinished ingest's {}: {hint}", b.path.display(), a.path.display())));
+            return Err(Error::state(
+                &opts.store,
+                format!(
+                    "input {} differs from the unfinished ingest's {}: {hint}",
+                    b.path.display(),
+                    a.path.display()
+                ),
+            ));
         }
         if a.size != b.size || a.mtime_ns != b.mtime_ns {
             return Err(Error::Input {
@@ -308,12 +347,22 @@ fn check_resume(m: &Manifest, settings: &Settings, inputs: &[InputFile], opts: &
     Ok(())
 }
 
-fn plan_new(opts: &IngestOptions, dirs: &Dirs, settings: Settings, inputs: Vec<InputFile>, parts: u32) -> Result<Manifest> {
+fn plan_new(
+    opts: &IngestOptions,
+    dirs: &Dirs,
+    settings: Settings,
+    inputs: Vec<InputFile>,
+    parts: u32,
+) -> Result<Manifest> {
     let chunks = corpus::plan_chunks(&inputs, opts.chunk_bytes)?;
     let mut m = Manifest {
         format_version: manifest::MANIFEST_VERSION,
         settings,
-        mode: if opts.append { Mode::Append } else { Mode::Fresh },
+        mode: if opts.append {
+            Mode::Append
+        } else {
+            Mode::Fresh
+        },
         inputs,
         chunks,
         partitions: parts,
@@ -351,13 +400,15 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
             ),
         ));
     }
-    struct OrderIter<'a>(Box<dyn Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a>);
+    type Rows<'a> = Box<dyn Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a>;
+    struct OrderIter<'a>(Rows<'a>);
     impl RecordSource for OrderIter<'_> {
         fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
-            Ok(match self.0.next().transpose()? {
-                Some((k, c, _)) => Some((k, [c, 0, 0, 0])),
-                None => None,
-            })
+            Ok(self
+                .0
+                .next()
+                .transpose()?
+                .map(|(k, c, _)| (k, [c, 0, 0, 0])))
         }
     }
     let sources = (1..=settings.order)
@@ -373,7 +424,14 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
     let mut words: Vec<(WordId, Box<str>)> = s
         .vocabulary()?
         .into_iter()
-        .filter(|(id, _)| ![crate::words::bos_id(), crate::words::eos_id(), crate::words::unk_id()].contains(id))
+        .filter(|(id, _)| {
+            ![
+                crate::words::bos_id(),
+                crate::words::eos_id(),
+                crate::words::unk_id(),
+            ]
+            .contains(id)
+        })
         .map(|(id, w)| (id, w.into_boxed_str()))
         .collect();
     words.sort_unstable_by_key(|e| e.0);
@@ -426,7 +484,12 @@ fn cleanup_orphans(m: &Manifest, d: &Dirs) -> Result<()> {
     Ok(())
 }
 
-fn merge_config<'b>(dirs: &'b Dirs, plan: &Plan, m: &Manifest, next_tmp: &'b AtomicU64) -> MergeConfig<'b> {
+fn merge_config<'b>(
+    dirs: &'b Dirs,
+    plan: &Plan,
+    m: &Manifest,
+    next_tmp: &'b AtomicU64,
+) -> MergeConfig<'b> {
     MergeConfig {
         order: m.settings.order,
         partitions: m.partitions,
@@ -452,7 +515,10 @@ impl Run<'_> {
     fn timed<T>(&mut self, phase: Phase, f: impl FnOnce(&mut Self) -> Result<T>) -> Result<T> {
         let t = Instant::now();
         let r = f(self);
-        *self.phase_seconds.entry(phase.name().to_string()).or_insert(0.0) += t.elapsed().as_secs_f64();
+        *self
+            .phase_seconds
+            .entry(phase.name().to_string())
+            .or_insert(0.0) += t.elapsed().as_secs_f64();
         r
     }
 
@@ -465,7 +531,11 @@ impl Run<'_> {
             let total: u64 = m.inputs.iter().map(|f| f.size).sum();
             let todo: u64 = spans
                 .iter()
-                .map(|s| s.end.min(m.inputs[s.file as usize].size).saturating_sub(s.start))
+                .map(|s| {
+                    s.end
+                        .min(m.inputs[s.file as usize].size)
+                        .saturating_sub(s.start)
+                })
                 .sum();
             let done0 = total.saturating_sub(todo);
             run.progress.phase(Phase::Counting, total);
@@ -555,10 +625,14 @@ impl Run<'_> {
                         });
                         if let Err(e) = r {
                             failed.store(true, Ordering::SeqCst);
-                            first.lock().unwrap_or_else(|e| e.into_inner()).get_or_insert(e);
+                            first
+                                .lock()
+                                .unwrap_or_else(|e| e.into_inner())
+                                .get_or_insert(e);
                             return;
                         }
-                        self.progress.advance(done.fetch_add(1, Ordering::SeqCst) + 1);
+                        self.progress
+                            .advance(done.fetch_add(1, Ordering::SeqCst) + 1);
                     }
                 });
             }
@@ -585,15 +659,21 @@ impl Run<'_> {
             }
             for f in &files {
                 if f.partitions() != m.partitions || f.value_width() != 1 {
-                    return Err(Error::corrupt(f.path(), "run file of another ingest (partitions or width differ)"));
+                    return Err(Error::corrupt(
+                        f.path(),
+                        "run file of another ingest (partitions or width differ)",
+                    ));
                 }
             }
-            let todo: Vec<u32> = (0..m.partitions).filter(|&p| m.merged[p as usize].is_none()).collect();
+            let todo: Vec<u32> = (0..m.partitions)
+                .filter(|&p| m.merged[p as usize].is_none())
+                .collect();
             run.progress.phase(Phase::Merging, m.partitions as u64);
             let next_tmp = AtomicU64::new(0);
             let dirs: &Dirs = run.dirs;
             let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
-            let job = |p: u32| merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect());
+            let job =
+                |p: u32| merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect());
             let work = run.dirs.work.clone();
             let shared = Mutex::new(&mut *m);
             run.per_partition(todo, &job, &mut |p, merged| {
@@ -619,7 +699,14 @@ impl Run<'_> {
             let merged: Vec<_> = m
                 .merged
                 .iter()
-                .map(|x| x.clone().ok_or_else(|| Error::corrupt(Manifest::path(&run.dirs.work), "a partition is missing its merge")))
+                .map(|x| {
+                    x.clone().ok_or_else(|| {
+                        Error::corrupt(
+                            Manifest::path(&run.dirs.work),
+                            "a partition is missing its merge",
+                        )
+                    })
+                })
                 .collect::<Result<_>>()?;
             let mut suffix = Vec::new();
             for x in &merged {
@@ -627,7 +714,9 @@ impl Run<'_> {
                     suffix.push(RunFile::open(&run.dirs.merged.join(f))?);
                 }
             }
-            let todo: Vec<u32> = (0..m.partitions).filter(|&p| m.joined[p as usize].is_none()).collect();
+            let todo: Vec<u32> = (0..m.partitions)
+                .filter(|&p| m.joined[p as usize].is_none())
+                .collect();
             run.progress.phase(Phase::Joining, m.partitions as u64);
             let next_tmp = AtomicU64::new(0);
             let dirs: &Dirs = run.dirs;
@@ -635,7 +724,13 @@ impl Run<'_> {
             let sst = run.dirs.sst.clone();
             let job = |q: u32| -> Result<Joined> {
                 let counts = RunFile::open(&run.dirs.merged.join(&merged[q as usize].counts))?;
-                join_partition(&cfg, q, &counts, suffix.iter().map(|f| (f.clone(), q)).collect(), &sst)
+                join_partition(
+                    &cfg,
+                    q,
+                    &counts,
+                    suffix.iter().map(|f| (f.clone(), q)).collect(),
+                    &sst,
+                )
             };
             let work = run.dirs.work.clone();
             let shared = Mutex::new(&mut *m);
@@ -670,7 +765,13 @@ impl Run<'_> {
                 }
                 let store = &run.dirs.store;
                 let db_new = store.join("db.new");
-                build::create_db(&db_new, m.settings.order, &files, &run.dirs.work.join("staging"), &meta)?;
+                build::create_db(
+                    &db_new,
+                    m.settings.order,
+                    &files,
+                    &run.dirs.work.join("staging"),
+                    &meta,
+                )?;
                 crate::fault::point("build");
                 let db = store::db_dir(store);
                 let old = store.join("db.old");
@@ -745,7 +846,11 @@ fn write_vocab(m: &Manifest, d: &Dirs) -> Result<Option<PathBuf>> {
         sink.put(keys::VOCAB_CF, &id.to_be_bytes(), w.as_bytes())?;
         last = Some((id, w));
     }
-    Ok(sink.finish()?.into_iter().next().map(|(_, name)| d.sst.join(name)))
+    Ok(sink
+        .finish()?
+        .into_iter()
+        .next()
+        .map(|(_, name)| d.sst.join(name)))
 }
 
 fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {
@@ -756,9 +861,9 @@ fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {
     let mut root = ContextStats::default();
     let mut unk_seen = false;
     for j in &m.joined {
-        let j = j
-            .as_ref()
-            .ok_or_else(|| Error::corrupt(Manifest::path(work), "a partition is missing its join"))?;
+        let j = j.as_ref().ok_or_else(|| {
+            Error::corrupt(Manifest::path(work), "a partition is missing its join")
+        })?;
         for k in 0..n {
             ngrams[k] += j.stats.ngrams[k];
             for (r, c) in &j.stats.coc_raw[k] {

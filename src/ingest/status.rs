@@ -4,8 +4,8 @@ use std::path::{Path, PathBuf};
 
 use serde::Serialize;
 
-use super::manifest::{Manifest, Mode};
 use super::lock_path;
+use super::manifest::{Manifest, Mode};
 use crate::error::Result;
 use crate::store::{self, Store};
 
@@ -89,7 +89,11 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
             .runsets
             .iter()
             .flat_map(|r| &r.covers)
-            .map(|s| s.end.min(m.inputs[s.file as usize].size).saturating_sub(s.start))
+            .map(|s| {
+                s.end
+                    .min(m.inputs[s.file as usize].size)
+                    .saturating_sub(s.start)
+            })
             .sum();
         UnfinishedIngest {
             phase: m.phase.name(),

@@ -43,7 +43,10 @@ pub fn join_partition(
     let mut vbuf = Vec::with_capacity(24);
     let bad = |what: String| Error::corrupt(counts.path(), what);
 
-    let close = |sink: &mut SstSet, open: &mut Vec<Option<(Key, ContextStats)>>, from: usize| -> Result<()> {
+    let close = |sink: &mut SstSet,
+                 open: &mut Vec<Option<(Key, ContextStats)>>,
+                 from: usize|
+     -> Result<()> {
         for slot in open.iter_mut().skip(from.max(1)) {
             if let Some((k, st)) = slot.take() {
                 if st.types > 0 {
@@ -61,13 +64,18 @@ pub fn join_partition(
     while let Some((key, vals)) = rows.next_record()? {
         let k = key.order();
         if k > n {
-            return Err(bad(format!("an n-gram of order {k} in a store of order {n}")));
+            return Err(bad(format!(
+                "an n-gram of order {k} in a store of order {n}"
+            )));
         }
         let c = vals[0];
         let mut continuation = 0;
         if let Some((ck, cv)) = &next_cont {
             if *ck < key {
-                return Err(bad(format!("a continuation count for an n-gram that was not counted ({} words)", ck.order())));
+                return Err(bad(format!(
+                    "a continuation count for an n-gram that was not counted ({} words)",
+                    ck.order()
+                )));
             }
             if *ck == key {
                 continuation = cv[0];
@@ -75,7 +83,11 @@ pub fn join_partition(
             }
         }
         let starts_bos = key.ids()[0] == bos;
-        let a = if k == n || starts_bos { c } else { continuation };
+        let a = if k == n || starts_bos {
+            c
+        } else {
+            continuation
+        };
         stats.ngrams[k - 1] += 1;
         if !(k == 1 && starts_bos) {
             *stats.coc_raw[k - 1].entry(c).or_insert(0) += 1;
@@ -106,7 +118,9 @@ pub fn join_partition(
     }
     close(&mut sink, &mut open, 1)?;
     if next_cont.is_some() {
-        return Err(bad("continuation counts left over after the last n-gram".into()));
+        return Err(bad(
+            "continuation counts left over after the last n-gram".into()
+        ));
     }
     Ok(Joined {
         ssts: sink.finish()?,

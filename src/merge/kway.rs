@@ -108,6 +108,9 @@ mod tests {
         while let Some((k, v)) = m.next_record().unwrap() {
             got.push((k.ids().to_vec(), v[0]));
         }
-        assert_eq!(got, vec![(vec![1], 5), (vec![1, 2], 3), (vec![2], 1), (vec![3], 11)]);
+        assert_eq!(
+            got,
+            vec![(vec![1], 5), (vec![1, 2], 3), (vec![2], 1), (vec![3], 11)]
+        );
     }
 }

@@ -31,7 +31,10 @@ pub struct MergeConfig<'a> {
 /// Opens the sections, then deletes the inputs that are temporary round
 /// files of `cfg` (the open readers keep their data until dropped).
 pub(crate) fn open_all(cfg: &MergeConfig, list: &[(RunFile, u32)]) -> Result<Vec<SectionReader>> {
-    let readers = list.iter().map(|(f, p)| f.section(*p)).collect::<Result<Vec<_>>>()?;
+    let readers = list
+        .iter()
+        .map(|(f, p)| f.section(*p))
+        .collect::<Result<Vec<_>>>()?;
     for (f, _) in list {
         if f.path().starts_with(cfg.tmp_dir) {
             let _ = std::fs::remove_file(f.path());
@@ -42,7 +45,10 @@ pub(crate) fn open_all(cfg: &MergeConfig, list: &[(RunFile, u32)]) -> Result<Vec
 
 /// Merges groups of `cfg.fanin` sections into temporary single-partition
 /// files until at most `cfg.fanin` remain.
-pub fn reduce_sources(cfg: &MergeConfig, mut list: Vec<(RunFile, u32)>) -> Result<Vec<(RunFile, u32)>> {
+pub fn reduce_sources(
+    cfg: &MergeConfig,
+    mut list: Vec<(RunFile, u32)>,
+) -> Result<Vec<(RunFile, u32)>> {
     let fanin = cfg.fanin.max(2);
     while list.len() > fanin {
         let mut next = Vec::new();
@@ -70,12 +76,14 @@ pub fn reduce_sources(cfg: &MergeConfig, mut list: Vec<(RunFile, u32)>) -> Resul
 /// Merges partition `p` of the count runs `inputs` (file, section) into
 /// `merged/counts-<p>.run` and continuation runs `merged/suffix-<p>-<i>.run`.
 pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -> Result<Merged> {
+    let records: u64 = inputs.iter().map(|(f, s)| f.records(*s)).sum();
     let inputs = reduce_sources(cfg, inputs)?;
     let mut merge = KWayMerge::new(open_all(cfg, &inputs)?)?;
     let counts = format!("counts-{p:04}.run");
     let mut out = RunWriter::create(&cfg.merged_dir.join(&counts), 1, 1)?;
     let mut suffix_runs = Vec::new();
-    let mut table = (cfg.order > 1).then(|| Table::with_budget(cfg.order - 1, 1, cfg.worker_bytes));
+    let mut table = (cfg.order > 1)
+        .then(|| Table::for_keys(cfg.order - 1, 1, cfg.worker_bytes, records as usize));
     let spill = |t: &mut Table, runs: &mut Vec<String>| -> Result<()> {
         let name = format!("suffix-{p:04}-{:04}.run", runs.len());
         let mut w = RunWriter::create(&cfg.merged_dir.join(&name), cfg.partitions, 1)?;
@@ -104,5 +112,8 @@ pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -
             spill(t, &mut suffix_runs)?;
         }
     }
-    Ok(Merged { counts, suffix_runs })
+    Ok(Merged {
+        counts,
+        suffix_runs,
+    })
 }

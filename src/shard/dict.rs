@@ -32,7 +32,8 @@ impl DictWriter {
         let f = File::create(&tmp).at(&tmp, "create")?;
         let mut out = BufWriter::new(f);
         out.write_all(MAGIC).at(&tmp, "write")?;
-        out.write_all(&RUN_VERSION.to_le_bytes()).at(&tmp, "write")?;
+        out.write_all(&RUN_VERSION.to_le_bytes())
+            .at(&tmp, "write")?;
         let mut enc = zstd::Encoder::new(out, ZSTD_LEVEL).at(&tmp, "compress")?;
         enc.window_log(ZSTD_WINDOW_LOG).at(&tmp, "compress")?;
         let mut hash = Xxh3::new();
@@ -55,7 +56,9 @@ impl DictWriter {
         t.extend_from_slice(&0u32.to_le_bytes());
         t.extend_from_slice(END);
         out.write_all(&t).at(&tmp, "write")?;
-        let f = out.into_inner().map_err(|e| Error::io(&tmp, "write", e.into_error()))?;
+        let f = out
+            .into_inner()
+            .map_err(|e| Error::io(&tmp, "write", e.into_error()))?;
         let bytes = f.metadata().at(&tmp, "stat")?.len();
         f.sync_all().at(&tmp, "fsync")?;
         drop(f);
@@ -83,7 +86,10 @@ impl DictReader {
         let mut f = File::open(path).at(path, "open")?;
         let size = f.metadata().at(path, "stat")?.len();
         if size < 8 + TRAILER {
-            return Err(Error::corrupt(path, format!("{size} bytes is too short for a dictionary")));
+            return Err(Error::corrupt(
+                path,
+                format!("{size} bytes is too short for a dictionary"),
+            ));
         }
         let mut head = [0u8; 8];
         f.read_exact(&mut head).at(path, "read")?;
@@ -106,8 +112,8 @@ impl DictReader {
         }
         let w = |i: usize| u64::from_le_bytes(t[i * 8..i * 8 + 8].try_into().expect("8"));
         f.seek(SeekFrom::Start(8)).at(path, "seek")?;
-        let mut dec =
-            zstd::Decoder::with_buffer(BufReader::new(f.take(size - 8 - TRAILER))).at(path, "decompress")?;
+        let mut dec = zstd::Decoder::with_buffer(BufReader::new(f.take(size - 8 - TRAILER)))
+            .at(path, "decompress")?;
         dec.window_log_max(ZSTD_WINDOW_LOG).at(path, "decompress")?;
         Ok(DictReader {
             path: path.to_path_buf(),
@@ -137,14 +143,19 @@ impl DictReader {
             return Ok(None);
         }
         let mut head = [0u8; 12];
-        self.dec.read_exact(&mut head).map_err(|_| self.bad("cut short"))?;
+        self.dec
+            .read_exact(&mut head)
+            .map_err(|_| self.bad("cut short"))?;
         let id = u64::from_le_bytes(head[..8].try_into().expect("8"));
         let len = u32::from_le_bytes(head[8..].try_into().expect("4")) as u64;
         if self.read + 12 + len > self.ulen || self.prev.is_some_and(|p| p >= id) {
             return Err(self.bad("bad entry"));
         }
         let mut word = Vec::new();
-        (&mut self.dec).take(len).read_to_end(&mut word).map_err(|_| self.bad("cut short"))?;
+        (&mut self.dec)
+            .take(len)
+            .read_to_end(&mut word)
+            .map_err(|_| self.bad("cut short"))?;
         if word.len() as u64 != len {
             return Err(self.bad("cut short"));
         }

@@ -28,7 +28,10 @@ impl RunFile {
         let mut f = File::open(path).at(path, "open")?;
         let size = f.metadata().at(path, "stat")?.len();
         if size < HEADER_LEN + TRAILER_LEN {
-            return Err(Error::corrupt(path, format!("{size} bytes is too short for a run file")));
+            return Err(Error::corrupt(
+                path,
+                format!("{size} bytes is too short for a run file"),
+            ));
         }
         let mut header = [0u8; 16];
         f.read_exact(&mut header).at(path, "read")?;
@@ -55,15 +58,20 @@ impl RunFile {
                 format!("{parts} partitions do not fit in {size} bytes (truncated?)"),
             ));
         }
-        f.seek(SeekFrom::Start(size - TRAILER_LEN - table)).at(path, "seek")?;
+        f.seek(SeekFrom::Start(size - TRAILER_LEN - table))
+            .at(path, "seek")?;
         let mut tail = vec![0u8; (table + TRAILER_LEN) as usize];
         f.read_exact(&mut tail).at(path, "read")?;
         let (ents, trailer) = tail.split_at(table as usize);
-        let word = |b: &[u8], i: usize| u64::from_le_bytes(b[i * 8..i * 8 + 8].try_into().expect("8"));
+        let word =
+            |b: &[u8], i: usize| u64::from_le_bytes(b[i * 8..i * 8 + 8].try_into().expect("8"));
         if &trailer[12..16] != END
             || u32::from_le_bytes(trailer[8..12].try_into().expect("4")) != parts
         {
-            return Err(Error::corrupt(path, "bad trailer (truncated or overwritten)"));
+            return Err(Error::corrupt(
+                path,
+                "bad trailer (truncated or overwritten)",
+            ));
         }
         let mut h = Xxh3::new();
         h.update(&header);
@@ -129,12 +137,11 @@ impl RunFile {
         } else {
             let mut f = File::open(&self.path).at(&self.path, "open")?;
             f.seek(SeekFrom::Start(e.offset)).at(&self.path, "seek")?;
-            let mut dec = zstd::Decoder::with_buffer(BufReader::with_capacity(
-                32 << 10,
-                f.take(e.clen),
-            ))
-            .at(&self.path, "decompress")?;
-            dec.window_log_max(ZSTD_WINDOW_LOG).at(&self.path, "decompress")?;
+            let mut dec =
+                zstd::Decoder::with_buffer(BufReader::with_capacity(32 << 10, f.take(e.clen)))
+                    .at(&self.path, "decompress")?;
+            dec.window_log_max(ZSTD_WINDOW_LOG)
+                .at(&self.path, "decompress")?;
             Some(BufReader::with_capacity(32 << 10, dec))
         };
         Ok(SectionReader {
@@ -170,7 +177,10 @@ impl SectionReader {
         r.read_exact(buf).map_err(|e| {
             Error::corrupt(
                 &self.path,
-                format!("section cut short after {} of {} raw bytes: {e}", self.read, self.entry.ulen),
+                format!(
+                    "section cut short after {} of {} raw bytes: {e}",
+                    self.read, self.entry.ulen
+                ),
             )
         })?;
         self.read += buf.len() as u64;
@@ -197,8 +207,16 @@ impl SectionReader {
         if self.seen == self.entry.records {
             if self.inner.is_some() {
                 let mut extra = [0u8];
-                let more = self.inner.as_mut().expect("open").read(&mut extra).unwrap_or(1);
-                if more != 0 || self.read != self.entry.ulen || self.hash.digest() != self.entry.hash {
+                let more = self
+                    .inner
+                    .as_mut()
+                    .expect("open")
+                    .read(&mut extra)
+                    .unwrap_or(1);
+                if more != 0
+                    || self.read != self.entry.ulen
+                    || self.hash.digest() != self.entry.hash
+                {
                     return Err(Error::corrupt(&self.path, "section checksum mismatch"));
                 }
                 self.inner = None;
@@ -206,13 +224,19 @@ impl SectionReader {
             return Ok(None);
         }
         if self.inner.is_none() {
-            return Err(Error::corrupt(&self.path, "records claimed in an empty section"));
+            return Err(Error::corrupt(
+                &self.path,
+                "records claimed in an empty section",
+            ));
         }
         let mut head = [0u8; 2];
         self.bytes(&mut head)?;
         let (order, shared) = (head[0] as usize, head[1] as usize);
         if order == 0 || order > MAX_ORDER || shared > order || shared > self.prev.order() {
-            return Err(Error::corrupt(&self.path, format!("bad record header {order}/{shared}")));
+            return Err(Error::corrupt(
+                &self.path,
+                format!("bad record header {order}/{shared}"),
+            ));
         }
         let mut ids = [0u64; MAX_ORDER];
         ids[..shared].copy_from_slice(&self.prev.ids()[..shared]);

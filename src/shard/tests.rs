@@ -107,7 +107,11 @@ fn dictionary_round_trip_and_damage() {
         });
         // Reported, or (harmless zstd header flip) exactly the original words.
         if let Ok(v) = read {
-            assert_eq!(v, vec![(3, "drei".to_string()), (9, "neun".to_string())], "flip at {i}");
+            assert_eq!(
+                v,
+                vec![(3, "drei".to_string()), (9, "neun".to_string())],
+                "flip at {i}"
+            );
         }
     }
 }

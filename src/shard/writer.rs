@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 
 use xxhash_rust::xxh3::Xxh3;
 
-use super::{header_bytes, put_varint, Entry, ENTRY_LEN, END, ZSTD_LEVEL, ZSTD_WINDOW_LOG};
+use super::{header_bytes, put_varint, Entry, END, ENTRY_LEN, ZSTD_LEVEL, ZSTD_WINDOW_LOG};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
 use crate::key::Key;

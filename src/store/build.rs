@@ -25,7 +25,7 @@ fn rocks(path: &Path) -> impl Fn(rocksdb::Error) -> Error + '_ {
 
 /// Options for the SST writers; keep alive while writers exist.
 pub fn sst_options() -> Options {
-    cf_options()
+    cf_options(&rocksdb::Cache::new_lru_cache(1 << 20))
 }
 
 /// Writes SST files for several column families, one file per family,
@@ -96,9 +96,11 @@ pub fn create_db(
     let mut opts = Options::default();
     opts.create_if_missing(true);
     opts.create_missing_column_families(true);
+    opts.set_max_open_files(256);
+    let cache = rocksdb::Cache::new_lru_cache(super::DEFAULT_CACHE_BYTES);
     let descs: Vec<_> = all_cfs(order)
         .into_iter()
-        .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options()))
+        .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options(&cache)))
         .collect();
     let db = DB::open_cf_descriptors(&opts, db_path, descs).map_err(rocks(db_path))?;
     let mut by_cf: BTreeMap<&str, Vec<PathBuf>> = BTreeMap::new();
@@ -115,13 +117,15 @@ pub fn create_db(
         let h = db
             .cf_handle(cf)
             .ok_or_else(|| Error::corrupt(db_path, format!("unknown column family {cf}")))?;
-        db.ingest_external_file_cf_opts(h, &ing, paths).map_err(rocks(db_path))?;
+        db.ingest_external_file_cf_opts(h, &ing, paths)
+            .map_err(rocks(db_path))?;
     }
     let meta_cf = db.cf_handle(keys::META_CF).expect("created above");
     let json = serde_json::to_vec(meta).expect("metadata serialises");
     let mut wo = rocksdb::WriteOptions::default();
     wo.set_sync(true);
-    db.put_cf_opt(meta_cf, keys::META_KEY, json, &wo).map_err(rocks(db_path))?;
+    db.put_cf_opt(meta_cf, keys::META_KEY, json, &wo)
+        .map_err(rocks(db_path))?;
     db.flush_cf(meta_cf).map_err(rocks(db_path))?;
     drop(db);
     fsutil::remove_dir(staging)?;

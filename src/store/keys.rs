@@ -81,7 +81,14 @@ impl ContextStats {
 
     /// The stored value.
     pub fn encode(&self, out: &mut Vec<u8>) {
-        for v in [self.count_sum, self.types, self.adjusted_sum, self.n1, self.n2, self.n3plus] {
+        for v in [
+            self.count_sum,
+            self.types,
+            self.adjusted_sum,
+            self.n1,
+            self.n2,
+            self.n3plus,
+        ] {
             put_varint(out, v);
         }
     }

@@ -15,7 +15,9 @@ pub mod keys;
 mod meta;
 
 pub use keys::ContextStats;
-pub use meta::{mkn_discounts, MknDiscounts, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
+pub use meta::{
+    mkn_discounts, MknDiscounts, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION,
+};
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -36,13 +38,22 @@ pub fn work_dir(store: &Path) -> PathBuf {
     store.join("work")
 }
 
-/// RocksDB options shared by writing and reading.
-pub(crate) fn cf_options() -> Options {
+/// Block cache of a store opened by [`Store::open`], in bytes.
+pub const DEFAULT_CACHE_BYTES: usize = 8 << 20;
+
+/// RocksDB options shared by writing and reading. Index and filter blocks
+/// live in the (bounded) block cache, so opening a large store does not
+/// cost memory in proportion to its size.
+pub(crate) fn cf_options(cache: &rocksdb::Cache) -> Options {
     let mut o = Options::default();
     o.set_compression_type(rocksdb::DBCompressionType::Zstd);
+    o.set_write_buffer_size(1 << 20);
+    o.set_max_write_buffer_number(2);
     let mut b = rocksdb::BlockBasedOptions::default();
     b.set_block_size(16 << 10);
     b.set_bloom_filter(10.0, false);
+    b.set_block_cache(cache);
+    b.set_cache_index_and_filter_blocks(true);
     o.set_block_based_table_factory(&b);
     o
 }
@@ -71,7 +82,10 @@ impl Store {
         }
         let path = db_dir(dir);
         if !path.join("CURRENT").exists() {
-            return Err(Error::state(dir, "no store here (run `quern ingest --store DIR INPUT...` first)"));
+            return Err(Error::state(
+                dir,
+                "no store here (run `quern ingest --store DIR INPUT...` first)",
+            ));
         }
         let rocks = |source| Error::Rocks {
             path: path.clone(),
@@ -80,9 +94,10 @@ impl Store {
         let cfs = DB::list_cf(&Options::default(), &path).map_err(rocks)?;
         let mut opts = Options::default();
         opts.set_max_open_files(256);
+        let cache = rocksdb::Cache::new_lru_cache(DEFAULT_CACHE_BYTES);
         let descs: Vec<_> = cfs
             .iter()
-            .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options()))
+            .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options(&cache)))
             .collect();
         let db = DB::open_cf_descriptors_read_only(&opts, &path, descs, false).map_err(rocks)?;
         let meta_cf = db
@@ -137,9 +152,9 @@ impl Store {
     }
 
     fn cf(&self, name: &str) -> Result<&rocksdb::ColumnFamily> {
-        self.db
-            .cf_handle(name)
-            .ok_or_else(|| Error::corrupt(db_dir(&self.dir), format!("missing column family {name}")))
+        self.db.cf_handle(name).ok_or_else(|| {
+            Error::corrupt(db_dir(&self.dir), format!("missing column family {name}"))
+        })
     }
 
     /// The whole vocabulary: id → word (markers included).
@@ -148,7 +163,10 @@ impl Store {
         for (id, w) in [(bos_id(), BOS), (eos_id(), EOS), (unk_id(), UNK)] {
             m.insert(id, w.to_string());
         }
-        for item in self.db.iterator_cf(self.cf(keys::VOCAB_CF)?, IteratorMode::Start) {
+        for item in self
+            .db
+            .iterator_cf(self.cf(keys::VOCAB_CF)?, IteratorMode::Start)
+        {
             let (k, v) = item.map_err(|e| self.rocks(e))?;
             let id = Key::from_be(&k)
                 .filter(|k| k.order() == 1)
@@ -160,31 +178,43 @@ impl Store {
     }
 
     /// Every n-gram of order `k` in key order: `(key, count, continuation)`.
-    pub fn ngrams(&self, k: usize) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + '_> {
+    pub fn ngrams(
+        &self,
+        k: usize,
+    ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + '_> {
         let path = db_dir(&self.dir);
-        let it = self.db.iterator_cf(self.cf(&keys::ngram_cf(k))?, IteratorMode::Start);
+        let it = self
+            .db
+            .iterator_cf(self.cf(&keys::ngram_cf(k))?, IteratorMode::Start);
         Ok(it.map(move |item| {
             let (kb, vb) = item.map_err(|source| Error::Rocks {
                 path: path.clone(),
                 source,
             })?;
             let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-            let (c, cont) = keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
+            let (c, cont) =
+                keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
             Ok((key, c, cont))
         }))
     }
 
     /// Every context of length `k` (1 ≤ k < N) in key order.
-    pub fn contexts(&self, k: usize) -> Result<impl Iterator<Item = Result<(Key, ContextStats)>> + '_> {
+    pub fn contexts(
+        &self,
+        k: usize,
+    ) -> Result<impl Iterator<Item = Result<(Key, ContextStats)>> + '_> {
         let path = db_dir(&self.dir);
-        let it = self.db.iterator_cf(self.cf(&keys::context_cf(k))?, IteratorMode::Start);
+        let it = self
+            .db
+            .iterator_cf(self.cf(&keys::context_cf(k))?, IteratorMode::Start);
         Ok(it.map(move |item| {
             let (kb, vb) = item.map_err(|source| Error::Rocks {
                 path: path.clone(),
                 source,
             })?;
             let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad context key"))?;
-            let st = ContextStats::decode(&vb).ok_or_else(|| Error::corrupt(&path, "bad context value"))?;
+            let st = ContextStats::decode(&vb)
+                .ok_or_else(|| Error::corrupt(&path, "bad context value"))?;
             Ok((key, st))
         }))
     }

@@ -16,7 +16,11 @@ fn words(vocab: &HashMap<WordId, String>, key: &Key, out: &mut String) -> anyhow
         if i > 0 {
             out.push(' ');
         }
-        out.push_str(vocab.get(id).with_context(|| format!("word id {id:#018x} is not in the vocabulary"))?);
+        out.push_str(
+            vocab
+                .get(id)
+                .with_context(|| format!("word id {id:#018x} is not in the vocabulary"))?,
+        );
     }
     Ok(())
 }

@@ -59,7 +59,11 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
             thousands(t.marker_tokens)
         )?;
     }
-    let phases: Vec<String> = s.phase_seconds.iter().map(|(p, x)| format!("{p} {x:.1}")).collect();
+    let phases: Vec<String> = s
+        .phase_seconds
+        .iter()
+        .map(|(p, x)| format!("{p} {x:.1}"))
+        .collect();
     writeln!(out, "  time {:.1} s ({})", s.seconds, phases.join(", "))?;
     writeln!(
         out,

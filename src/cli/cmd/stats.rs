@@ -53,19 +53,39 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
         if m.settings.lowercase { "yes" } else { "no" }
     )?;
     writeln!(out, "sentences  {:>14}", thousands(t.sentences))?;
-    writeln!(out, "tokens     {:>14}   (words and one </s> per sentence)", thousands(t.tokens))?;
-    writeln!(out, "types      {:>14}   (distinct tokens but <s>)", thousands(t.types))?;
+    writeln!(
+        out,
+        "tokens     {:>14}   (words and one </s> per sentence)",
+        thousands(t.tokens)
+    )?;
+    writeln!(
+        out,
+        "types      {:>14}   (distinct tokens but <s>)",
+        thousands(t.types)
+    )?;
     writeln!(
         out,
         "vocabulary {:>14}   (types{})",
         thousands(t.vocabulary),
-        if t.unk_seen { ", <unk> among them" } else { " and <unk>" }
+        if t.unk_seen {
+            ", <unk> among them"
+        } else {
+            " and <unk>"
+        }
     )?;
     writeln!(out)?;
-    writeln!(out, "order {:>14} {:>12} {:>8} {:>8} {:>8}", "n-grams", "singletons", "D1", "D2", "D3+")?;
+    writeln!(
+        out,
+        "order {:>14} {:>12} {:>8} {:>8} {:>8}",
+        "n-grams", "singletons", "D1", "D2", "D3+"
+    )?;
     for o in &m.orders {
         let (d1, d2, d3) = match mkn_discounts(o) {
-            Some(d) => (format!("{:.4}", d.d1), format!("{:.4}", d.d2), format!("{:.4}", d.d3plus)),
+            Some(d) => (
+                format!("{:.4}", d.d1),
+                format!("{:.4}", d.d2),
+                format!("{:.4}", d.d3plus),
+            ),
             None => ("undef".into(), "undef".into(), "undef".into()),
         };
         writeln!(
@@ -77,7 +97,10 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
         )?;
     }
     writeln!(out)?;
-    writeln!(out, "count-of-counts n_r, raw / adjusted (discounts use adjusted):")?;
+    writeln!(
+        out,
+        "count-of-counts n_r, raw / adjusted (discounts use adjusted):"
+    )?;
     write!(out, "{:>5}", "r")?;
     for o in &m.orders {
         write!(out, " {:>21}", format!("order {}", o.order))?;
@@ -86,7 +109,11 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
     for r in 1..=a.rows as u64 {
         write!(out, "{r:>5}")?;
         for o in &m.orders {
-            write!(out, " {:>21}", format!("{} / {}", thousands(o.raw(r)), thousands(o.adjusted(r))))?;
+            write!(
+                out,
+                " {:>21}",
+                format!("{} / {}", thousands(o.raw(r)), thousands(o.adjusted(r)))
+            )?;
         }
         writeln!(out)?;
     }

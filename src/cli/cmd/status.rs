@@ -37,7 +37,10 @@ pub fn run(a: StatusArgs) -> anyhow::Result<()> {
             i.merged, i.partitions, i.joined, i.partitions
         )?;
         if s.state == "interrupted" {
-            writeln!(out, "  no ingest is running: run the same ingest command again to resume")?;
+            writeln!(
+                out,
+                "  no ingest is running: run the same ingest command again to resume"
+            )?;
         }
     }
     if let Some(f) = &s.finished {
