@@ -75,6 +75,10 @@ pub struct DumpArgs {
     /// Print context statistics instead: context, C, T, A, N1, N2, N3+.
     #[arg(long)]
     pub contexts: bool,
+    /// Leave out n-grams (or contexts) whose raw count is below this: rare
+    /// n-grams of crawled text are where personal data hides.
+    #[arg(long, default_value_t = 1)]
+    pub min_count: u64,
 }
 
 #[derive(Args, Debug)]

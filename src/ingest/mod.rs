@@ -755,7 +755,7 @@ impl Run<'_> {
                 run.progress.phase(Phase::Building, 1);
                 let meta = assemble_meta(m, &run.dirs.work)?;
                 let mut files: Vec<(String, PathBuf)> = Vec::new();
-                if let Some(vocab) = write_vocab(m, run.dirs)? {
+                if let Some(vocab) = write_vocab(m, run.dirs, run.plan.fanin)? {
                     files.push((keys::VOCAB_CF.to_string(), vocab));
                 }
                 for j in m.joined.iter().flatten() {
@@ -805,16 +805,12 @@ fn remove_matching(dir: &Path, suffix: &str) -> Result<()> {
     Ok(())
 }
 
-/// Merges every dictionary into the vocabulary SST, checking for
-/// collisions between different words with one id.
-fn write_vocab(m: &Manifest, d: &Dirs) -> Result<Option<PathBuf>> {
-    let mut names: Vec<&String> = m.runsets.iter().map(|r| &r.dict).collect();
-    if let Some(b) = &m.base {
-        names.push(&b.dict);
-    }
-    let mut readers = names
+/// Merges dictionary files by id, calling `emit` once per word, and turns
+/// one id with two different words into [`Error::HashCollision`].
+fn merge_dicts(paths: &[PathBuf], mut emit: impl FnMut(WordId, &str) -> Result<()>) -> Result<()> {
+    let mut readers = paths
         .iter()
-        .map(|n| DictReader::open(&d.runs.join(n)))
+        .map(|p| DictReader::open(p))
         .collect::<Result<Vec<_>>>()?;
     let mut heap = std::collections::BinaryHeap::new();
     for (i, r) in readers.iter_mut().enumerate() {
@@ -822,16 +818,13 @@ fn write_vocab(m: &Manifest, d: &Dirs) -> Result<Option<PathBuf>> {
             heap.push(std::cmp::Reverse((id, w, i)));
         }
     }
-    let _ = std::fs::remove_file(d.sst.join("all-vocab.sst"));
-    let opts = build::sst_options();
-    let mut sink = build::SstSet::new(&opts, &d.sst, "all".into());
     let mut last: Option<(WordId, String)> = None;
     while let Some(std::cmp::Reverse((id, w, i))) = heap.pop() {
         if let Some(next) = readers[i].next_entry()? {
             heap.push(std::cmp::Reverse((next.0, next.1, i)));
         }
-        match &last {
-            Some((lid, lw)) if *lid == id => {
+        if let Some((lid, lw)) = &last {
+            if *lid == id {
                 if *lw != w {
                     return Err(Error::HashCollision {
                         first: lw.clone(),
@@ -841,11 +834,44 @@ fn write_vocab(m: &Manifest, d: &Dirs) -> Result<Option<PathBuf>> {
                 }
                 continue;
             }
-            _ => {}
         }
-        sink.put(keys::VOCAB_CF, &id.to_be_bytes(), w.as_bytes())?;
+        emit(id, &w)?;
         last = Some((id, w));
     }
+    Ok(())
+}
+
+/// Merges every dictionary into the vocabulary SST (in rounds of at most
+/// `fanin` files, to bound the open readers).
+fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Option<PathBuf>> {
+    let mut paths: Vec<PathBuf> = m.runsets.iter().map(|r| d.runs.join(&r.dict)).collect();
+    if let Some(b) = &m.base {
+        paths.push(d.runs.join(&b.dict));
+    }
+    fsutil::create_dir(&d.tmp)?;
+    let mut round = 0;
+    while paths.len() > fanin.max(2) {
+        let mut next = Vec::new();
+        for (i, group) in paths.chunks(fanin.max(2)).enumerate() {
+            let out = d.tmp.join(format!("vocab-{round}-{i}.dict"));
+            let mut w = DictWriter::create(&out)?;
+            merge_dicts(group, |id, word| w.push(id, word))?;
+            w.finish()?;
+            for p in group.iter().filter(|p| p.starts_with(&d.tmp)) {
+                let _ = std::fs::remove_file(p);
+            }
+            next.push(out);
+        }
+        paths = next;
+        round += 1;
+    }
+    let _ = std::fs::remove_file(d.sst.join("all-vocab.sst"));
+    let opts = build::sst_options();
+    let mut sink = build::SstSet::new(&opts, &d.sst, "all".into());
+    merge_dicts(&paths, |id, word| {
+        sink.put(keys::VOCAB_CF, &id.to_be_bytes(), word.as_bytes())
+    })?;
+    fsutil::remove_dir(&d.tmp)?;
     Ok(sink
         .finish()?
         .into_iter()

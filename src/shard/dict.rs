@@ -22,12 +22,20 @@ const MAGIC: &[u8; 4] = b"QDCT";
 const END: &[u8; 4] = b"QDEN";
 const TRAILER: u64 = 32;
 
-/// Writes a dictionary file from entries sorted by id.
-pub struct DictWriter;
+/// Streams entries, sorted by id, into a new dictionary file.
+pub struct DictWriter {
+    path: PathBuf,
+    tmp: PathBuf,
+    enc: zstd::Encoder<'static, BufWriter<File>>,
+    hash: Xxh3,
+    raw: u64,
+    records: u64,
+    buf: Vec<u8>,
+}
 
 impl DictWriter {
-    /// Writes `entries` (sorted by id) to `path` durably and atomically.
-    pub fn write(path: &Path, entries: &[(WordId, Box<str>)]) -> Result<u64> {
+    /// Starts a dictionary file at `path` (written under a temporary name).
+    pub fn create(path: &Path) -> Result<Self> {
         let tmp = fsutil::tmp_name(path);
         let f = File::create(&tmp).at(&tmp, "create")?;
         let mut out = BufWriter::new(f);
@@ -36,23 +44,38 @@ impl DictWriter {
             .at(&tmp, "write")?;
         let mut enc = zstd::Encoder::new(out, ZSTD_LEVEL).at(&tmp, "compress")?;
         enc.window_log(ZSTD_WINDOW_LOG).at(&tmp, "compress")?;
-        let mut hash = Xxh3::new();
-        let mut raw = 0u64;
-        let mut buf = Vec::new();
-        for (id, w) in entries {
-            buf.clear();
-            buf.extend_from_slice(&id.to_le_bytes());
-            buf.extend_from_slice(&(w.len() as u32).to_le_bytes());
-            buf.extend_from_slice(w.as_bytes());
-            hash.update(&buf);
-            raw += buf.len() as u64;
-            enc.write_all(&buf).at(&tmp, "write")?;
-        }
-        let mut out = enc.finish().at(&tmp, "compress")?;
+        Ok(DictWriter {
+            path: path.to_path_buf(),
+            tmp,
+            enc,
+            hash: Xxh3::new(),
+            raw: 0,
+            records: 0,
+            buf: Vec::new(),
+        })
+    }
+
+    /// Appends one entry; ids must increase.
+    pub fn push(&mut self, id: WordId, word: &str) -> Result<()> {
+        self.buf.clear();
+        self.buf.extend_from_slice(&id.to_le_bytes());
+        self.buf
+            .extend_from_slice(&(word.len() as u32).to_le_bytes());
+        self.buf.extend_from_slice(word.as_bytes());
+        self.hash.update(&self.buf);
+        self.raw += self.buf.len() as u64;
+        self.records += 1;
+        self.enc.write_all(&self.buf).at(&self.tmp, "write")
+    }
+
+    /// Writes the trailer, syncs and renames into place; returns the size.
+    pub fn finish(self) -> Result<u64> {
+        let tmp = self.tmp;
+        let mut out = self.enc.finish().at(&tmp, "compress")?;
         let mut t = Vec::with_capacity(32);
-        t.extend_from_slice(&(entries.len() as u64).to_le_bytes());
-        t.extend_from_slice(&raw.to_le_bytes());
-        t.extend_from_slice(&hash.digest().to_le_bytes());
+        t.extend_from_slice(&self.records.to_le_bytes());
+        t.extend_from_slice(&self.raw.to_le_bytes());
+        t.extend_from_slice(&self.hash.digest().to_le_bytes());
         t.extend_from_slice(&0u32.to_le_bytes());
         t.extend_from_slice(END);
         out.write_all(&t).at(&tmp, "write")?;
@@ -62,8 +85,17 @@ impl DictWriter {
         let bytes = f.metadata().at(&tmp, "stat")?.len();
         f.sync_all().at(&tmp, "fsync")?;
         drop(f);
-        fsutil::rename_durable(&tmp, path)?;
+        fsutil::rename_durable(&tmp, &self.path)?;
         Ok(bytes)
+    }
+
+    /// Writes `entries` (sorted by id) to `path` durably and atomically.
+    pub fn write(path: &Path, entries: &[(WordId, Box<str>)]) -> Result<u64> {
+        let mut w = DictWriter::create(path)?;
+        for (id, word) in entries {
+            w.push(*id, word)?;
+        }
+        w.finish()
     }
 }
 

@@ -45,12 +45,15 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let mut w = String::new();
     if a.contexts {
-        if a.order.is_none() {
+        if a.order.is_none() && store.meta().root.count_sum >= a.min_count {
             context_line(&mut out, "", &store.meta().root)?;
         }
         for k in orders.into_iter().filter(|&k| k < n) {
             for item in store.contexts(k)? {
                 let (key, st) = item?;
+                if st.count_sum < a.min_count {
+                    continue;
+                }
                 words(&vocab, &key, &mut w)?;
                 context_line(&mut out, &w, &st)?;
             }
@@ -59,6 +62,9 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
         for k in orders {
             for item in store.ngrams(k)? {
                 let (key, c, cont) = item?;
+                if c < a.min_count {
+                    continue;
+                }
                 words(&vocab, &key, &mut w)?;
                 match cont {
                     Some(x) => writeln!(out, "{w}\t{c}\t{x}")?,
