@@ -13,6 +13,9 @@ use crate::shard::{Values, MAX_VALUES};
 
 /// Load factor at which a table reports itself full.
 pub const MAX_LOAD: f64 = 0.8;
+/// Load factor beyond which a table must be emptied even in the middle of
+/// a sentence (only a sentence of many thousand tokens gets there).
+pub const CRITICAL_LOAD: f64 = 0.95;
 
 /// A fixed-capacity n-gram → sums table.
 pub struct Table {
@@ -24,6 +27,7 @@ pub struct Table {
     lens: Vec<u8>,
     used: usize,
     limit: usize,
+    critical: usize,
 }
 
 impl Table {
@@ -54,6 +58,7 @@ impl Table {
             lens: vec![0; cap],
             used: 0,
             limit: ((cap as f64) * MAX_LOAD) as usize,
+            critical: ((cap as f64) * CRITICAL_LOAD) as usize,
         }
     }
 
@@ -71,6 +76,12 @@ impl Table {
     #[inline]
     pub fn is_full(&self) -> bool {
         self.used >= self.limit
+    }
+
+    /// True once the load factor reached [`CRITICAL_LOAD`].
+    #[inline]
+    pub fn is_critical(&self) -> bool {
+        self.used >= self.critical
     }
 
     #[inline]

@@ -177,9 +177,9 @@ impl<'a> Worker<'a> {
                                 for k in 1..=n.min(ids.len() - i) {
                                     self.table.add(&ids[i..i + k], &[1]);
                                 }
-                                if self.table.is_full() {
-                                    // Mid-sentence: write the table out now,
-                                    // record it with the next line boundary.
+                                if self.table.is_critical() {
+                                    // A huge sentence: write the table out
+                                    // now, record it at the next line end.
                                     let run = self.write_run()?;
                                     self.pending.push(run);
                                 }

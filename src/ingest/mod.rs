@@ -125,6 +125,8 @@ pub struct IngestSummary {
     pub seconds: f64,
     /// Peak resident memory of the process, bytes.
     pub peak_rss_bytes: Option<u64>,
+    /// Damaged intermediate files found and the work redone because of them.
+    pub repaired: Vec<String>,
 }
 
 struct Dirs {
@@ -254,10 +256,39 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
         temp_bytes: 0,
         phase_seconds: BTreeMap::new(),
     };
+    let mut repaired = Vec::new();
+    if resumed {
+        repaired.extend(drop_damaged(&mut m, &dirs)?);
+    }
     cleanup_orphans(&m, &dirs)?;
     let inputs = m.inputs.clone();
-    run.counting(&mut m, &inputs)?;
-    run.merging(&mut m)?;
+    // A count run found damaged while merging is forgotten and its input
+    // ranges counted again (a few times at most; then the error stands).
+    let mut recounts = 0;
+    loop {
+        run.counting(&mut m, &inputs)?;
+        match run.merging(&mut m) {
+            Err(Error::Corrupt { path, detail }) if recounts < 3 => {
+                let name = path.file_name().map(|n| n.to_string_lossy().into_owned());
+                let before = m.runsets.len();
+                m.runsets
+                    .retain(|r| name.as_ref().is_none_or(|n| !r.runs.contains(n)));
+                if m.runsets.len() == before {
+                    return Err(Error::Corrupt { path, detail });
+                }
+                m.phase = Phase::Counting;
+                m.merged.iter_mut().for_each(|x| *x = None);
+                m.save(&dirs.work)?;
+                cleanup_orphans(&m, &dirs)?;
+                recounts += 1;
+                repaired.push(format!(
+                    "{}: {detail}; its input was counted again",
+                    path.display()
+                ));
+            }
+            r => break r?,
+        }
+    }
     run.joining(&mut m)?;
     run.building(&mut m)?;
     let s = Store::open(&opts.store)?;
@@ -274,6 +305,7 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
         phase_seconds: run.phase_seconds,
         seconds: t0.elapsed().as_secs_f64(),
         peak_rss_bytes: peak_rss(),
+        repaired,
     })
 }
 
@@ -449,6 +481,97 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
             bytes: t.input_bytes,
         },
     })
+}
+
+/// Checks the files a resumed manifest names (footers and checksums of the
+/// headers; sections are checked again as they are read) and forgets the
+/// work whose files are damaged or missing, so that it is redone. Damage
+/// that cannot be redone (the inputs of a finished phase are gone) is an
+/// error naming the file.
+fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
+    let run_ok = |dir: &Path, name: &str| RunFile::open(&dir.join(name)).is_ok();
+    let dict_ok = |name: &str| DictReader::open(&d.runs.join(name)).is_ok();
+    let before = m.clone();
+    let mut notes = Vec::new();
+    if matches!(m.phase, Phase::Counting | Phase::Merging) {
+        if let Some(b) = &m.base {
+            if !run_ok(&d.runs, &b.run) || !dict_ok(&b.dict) {
+                return Err(Error::corrupt(
+                    d.runs.join(&b.run),
+                    "the exported counts of the store being appended to are damaged; run the same command with --restart",
+                ));
+            }
+        }
+        let n = m.runsets.len();
+        m.runsets
+            .retain(|r| r.runs.iter().all(|f| run_ok(&d.runs, f)) && dict_ok(&r.dict));
+        if m.runsets.len() != n {
+            notes.push(format!(
+                "{} damaged or missing spill(s) in {}: their input was counted again",
+                n - m.runsets.len(),
+                d.runs.display()
+            ));
+            // The merged partitions hold the lost spill's counts too: recount
+            // it, then merge every partition again.
+            m.phase = Phase::Counting;
+            m.merged.iter_mut().for_each(|x| *x = None);
+        }
+        for x in m.merged.iter_mut() {
+            if let Some(mm) = x {
+                let mm_name = mm.counts.clone();
+                let ok = run_ok(&d.merged, &mm.counts)
+                    && mm.suffix_runs.iter().all(|f| run_ok(&d.merged, f));
+                if !ok {
+                    *x = None;
+                    notes.push(format!(
+                        "a damaged merge of partition {} was redone",
+                        mm_name
+                    ));
+                }
+            }
+        }
+    }
+    if m.phase == Phase::Joining {
+        for x in m.merged.iter().flatten() {
+            for f in std::iter::once(&x.counts).chain(&x.suffix_runs) {
+                RunFile::open(&d.merged.join(f)).map_err(|e| match e {
+                    Error::Corrupt { path, detail } => Error::Corrupt {
+                        path,
+                        detail: format!("{detail}; the runs it was merged from are gone, so run the same command with --restart"),
+                    },
+                    e => e,
+                })?;
+            }
+        }
+    }
+    let sst_ok = |name: &str| std::fs::metadata(d.sst.join(name)).is_ok_and(|md| md.len() > 0);
+    match m.phase {
+        Phase::Joining => {
+            for x in m.joined.iter_mut() {
+                if x.as_ref()
+                    .is_some_and(|j| !j.ssts.iter().all(|(_, f)| sst_ok(f)))
+                {
+                    *x = None;
+                    notes.push("a partition's missing store files were written again".into());
+                }
+            }
+        }
+        Phase::Building => {
+            for j in m.joined.iter().flatten() {
+                if let Some((_, f)) = j.ssts.iter().find(|(_, f)| !sst_ok(f)) {
+                    return Err(Error::corrupt(
+                        d.sst.join(f),
+                        "a store file is missing or empty and the merged counts it came from are gone; run the same command with --restart",
+                    ));
+                }
+            }
+        }
+        _ => {}
+    }
+    if *m != before {
+        m.save(&d.work)?;
+    }
+    Ok(notes)
 }
 
 /// Deletes files of the work folder that the manifest does not name

@@ -66,8 +66,17 @@ pub struct Store {
 }
 
 impl Store {
-    /// Opens the finished store in `dir`.
+    /// Opens the finished store in `dir` with a block cache of
+    /// [`DEFAULT_CACHE_BYTES`].
     pub fn open(dir: &Path) -> Result<Store> {
+        Self::open_with_cache(dir, DEFAULT_CACHE_BYTES)
+    }
+
+    /// Opens the finished store in `dir` with a block cache of `cache_bytes`
+    /// (uncompressed data, index and filter blocks). Queries that read the
+    /// same blocks again run from the cache; size it to the store for the
+    /// fastest repeated queries.
+    pub fn open_with_cache(dir: &Path, cache_bytes: usize) -> Result<Store> {
         if let Some(m) = crate::ingest::Manifest::load(&work_dir(dir)).ok().flatten() {
             return Err(Error::state(
                 dir,
@@ -94,7 +103,7 @@ impl Store {
         let cfs = DB::list_cf(&Options::default(), &path).map_err(rocks)?;
         let mut opts = Options::default();
         opts.set_max_open_files(256);
-        let cache = rocksdb::Cache::new_lru_cache(DEFAULT_CACHE_BYTES);
+        let cache = rocksdb::Cache::new_lru_cache(cache_bytes.max(1 << 20));
         let descs: Vec<_> = cfs
             .iter()
             .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options(&cache)))
@@ -236,6 +245,202 @@ impl Store {
                 .map(Some)
                 .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad n-gram value")),
         }
+    }
+
+    /// The statistics of context `h` over its continuations; the empty
+    /// context's for `h = []`. `None` if `h` has no continuation.
+    pub fn context(&self, h: &[WordId]) -> Result<Option<ContextStats>> {
+        if h.is_empty() {
+            return Ok(Some(self.meta.root));
+        }
+        if h.len() >= self.order() {
+            return Ok(None);
+        }
+        let mut kb = Vec::with_capacity(h.len() * 8);
+        Key::new(h).write_be(&mut kb);
+        let v = self
+            .db
+            .get_pinned_cf(self.cf(&keys::context_cf(h.len()))?, &kb)
+            .map_err(|e| self.rocks(e))?;
+        match v {
+            None => Ok(None),
+            Some(v) => ContextStats::decode(&v)
+                .map(Some)
+                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad context value")),
+        }
+    }
+
+    /// The stored n-grams `h·w` of order `|h| + 1`, in key order (a prefix
+    /// scan): `(key, count, continuation)`. For `h = []`, every unigram.
+    pub fn children<'a>(
+        &'a self,
+        h: &[WordId],
+    ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a> {
+        let k = h.len() + 1;
+        let path = db_dir(&self.dir);
+        let mut prefix = Vec::with_capacity(h.len() * 8);
+        Key::new(h).write_be(&mut prefix);
+        let cf = if k <= self.order() {
+            Some(self.cf(&keys::ngram_cf(k))?)
+        } else {
+            None
+        };
+        let it = cf.map(|cf| {
+            self.db
+                .iterator_cf(cf, IteratorMode::From(&prefix, rocksdb::Direction::Forward))
+        });
+        let p2 = prefix.clone();
+        Ok(it
+            .into_iter()
+            .flatten()
+            .take_while(move |item| item.as_ref().map_or(true, |(kb, _)| kb.starts_with(&p2)))
+            .map(move |item| {
+                let (kb, vb) = item.map_err(|source| Error::Rocks {
+                    path: path.clone(),
+                    source,
+                })?;
+                let key =
+                    Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
+                let (c, cont) = keys::decode_ngram(&vb)
+                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
+                Ok((key, c, cont))
+            }))
+    }
+
+    /// The word with id `id`, if it is in the vocabulary (markers included).
+    pub fn word(&self, id: WordId) -> Result<Option<String>> {
+        for (mid, w) in [(bos_id(), BOS), (eos_id(), EOS), (unk_id(), UNK)] {
+            if id == mid {
+                return Ok(Some(w.to_string()));
+            }
+        }
+        let v = self
+            .db
+            .get_pinned_cf(self.cf(keys::VOCAB_CF)?, id.to_be_bytes())
+            .map_err(|e| self.rocks(e))?;
+        Ok(v.map(|b| String::from_utf8_lossy(&b).into_owned()))
+    }
+
+    /// Counts of many n-grams at once (RocksDB multi-get; all the same
+    /// order or not). `None` for n-grams not stored.
+    pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<(u64, Option<u64>)>>> {
+        let mut out = vec![None; grams.len()];
+        let mut by_order: Vec<Vec<usize>> = vec![Vec::new(); self.order() + 1];
+        for (i, g) in grams.iter().enumerate() {
+            if !g.is_empty() && g.len() <= self.order() {
+                by_order[g.len()].push(i);
+            }
+        }
+        for (k, idx) in by_order.iter().enumerate().skip(1) {
+            if idx.is_empty() {
+                continue;
+            }
+            let cf = self.cf(&keys::ngram_cf(k))?;
+            let keys: Vec<Vec<u8>> = idx
+                .iter()
+                .map(|&i| {
+                    let mut kb = Vec::with_capacity(k * 8);
+                    Key::new(grams[i]).write_be(&mut kb);
+                    kb
+                })
+                .collect();
+            let got = self.db.batched_multi_get_cf(cf, &keys, false);
+            for (&i, r) in idx.iter().zip(got) {
+                if let Some(v) = r.map_err(|e| self.rocks(e))? {
+                    out[i] =
+                        Some(keys::decode_ngram(&v).ok_or_else(|| {
+                            Error::corrupt(db_dir(&self.dir), "bad n-gram value")
+                        })?);
+                }
+            }
+        }
+        Ok(out)
+    }
+
+    /// Statistics of many contexts at once (RocksDB multi-get), in the
+    /// order asked; as [`Store::context`] for each.
+    pub fn contexts_many(&self, hs: &[&[WordId]]) -> Result<Vec<Option<ContextStats>>> {
+        let mut out = vec![None; hs.len()];
+        let mut by_len: Vec<Vec<usize>> = vec![Vec::new(); self.order()];
+        for (i, h) in hs.iter().enumerate() {
+            if h.is_empty() {
+                out[i] = Some(self.meta.root);
+            } else if h.len() < self.order() {
+                by_len[h.len()].push(i);
+            }
+        }
+        for (k, idx) in by_len.iter().enumerate().skip(1) {
+            if idx.is_empty() {
+                continue;
+            }
+            let cf = self.cf(&keys::context_cf(k))?;
+            let keys: Vec<Vec<u8>> = idx
+                .iter()
+                .map(|&i| {
+                    let mut kb = Vec::with_capacity(k * 8);
+                    Key::new(hs[i]).write_be(&mut kb);
+                    kb
+                })
+                .collect();
+            let got = self.db.batched_multi_get_cf(cf, &keys, false);
+            for (&i, r) in idx.iter().zip(got) {
+                if let Some(v) = r.map_err(|e| self.rocks(e))? {
+                    out[i] =
+                        Some(ContextStats::decode(&v).ok_or_else(|| {
+                            Error::corrupt(db_dir(&self.dir), "bad context value")
+                        })?);
+                }
+            }
+        }
+        Ok(out)
+    }
+
+    /// The stored n-grams of order `k` that begin with `prefix`
+    /// (`prefix.len() <= k`), in key order, starting after the n-gram
+    /// `after` if given (for paging): `(key, count, continuation)`.
+    pub fn scan_prefix<'a>(
+        &'a self,
+        k: usize,
+        prefix: &[WordId],
+        after: Option<&[WordId]>,
+    ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a> {
+        let path = db_dir(&self.dir);
+        let mut pb = Vec::with_capacity(prefix.len() * 8);
+        Key::new(prefix).write_be(&mut pb);
+        let mut start = pb.clone();
+        if let Some(a) = after {
+            start.clear();
+            Key::new(a).write_be(&mut start);
+            // The smallest key greater than `after`: `after` followed by a 0 byte.
+            start.push(0);
+            if start < pb {
+                start = pb.clone();
+            }
+        }
+        let cf = if k >= 1 && k <= self.order() && prefix.len() <= k {
+            Some(self.cf(&keys::ngram_cf(k))?)
+        } else {
+            None
+        };
+        let it = cf.map(|cf| {
+            self.db
+                .iterator_cf(cf, IteratorMode::From(&start, rocksdb::Direction::Forward))
+        });
+        Ok(it
+            .into_iter()
+            .flatten()
+            .take_while(move |item| item.as_ref().map_or(true, |(kb, _)| kb.starts_with(&pb)))
+            .map(move |item| {
+                let (kb, vb) = item.map_err(|source| Error::Rocks {
+                    path: path.clone(),
+                    source,
+                })?;
+                let key =
+                    Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
+                let (c, cont) = keys::decode_ngram(&vb)
+                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
+                Ok((key, c, cont))
+            }))
     }
 
     /// Size of the database files on disk, in bytes.

@@ -59,6 +59,9 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
             thousands(t.marker_tokens)
         )?;
     }
+    for r in &s.repaired {
+        writeln!(out, "  repaired: {r}")?;
+    }
     let phases: Vec<String> = s
         .phase_seconds
         .iter()
