@@ -375,3 +375,36 @@ fn stats_json_fields_present() {
     let _: Value = serde_json::from_str(st.stdout.trim())
         .unwrap_or_else(|e| panic!("status --json is not JSON ({e}): {}", st.stdout));
 }
+
+#[test]
+fn one_huge_sentence_overflowing_the_table() {
+    // A single line of 60,000 tokens with 20,000 distinct words makes more
+    // distinct n-grams than a 16 MiB budget's table holds, so the table is
+    // emptied in the middle of the sentence. Source of truth: the
+    // independent reference counter over the contract.
+    let tmp = tempfile::tempdir().unwrap();
+    let input = tmp.path().join("huge.txt");
+    let mut line = String::new();
+    let mut x: u64 = 7;
+    for _ in 0..60_000 {
+        x = x
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        line.push_str(&format!("w{} ", (x >> 33) % 20_000));
+    }
+    line.push_str("\nshort line after it\n");
+    std::fs::write(&input, &line).unwrap();
+    let store = tmp.path().join("store");
+    let args = [
+        "--order",
+        "4",
+        "--memory",
+        "16MiB",
+        "--threads",
+        "1",
+        "--quiet",
+    ];
+    ingest_ok(&store, &args, std::slice::from_ref(&input));
+    let expected = Reference::from_paths(Settings::order(4), std::slice::from_ref(&input)).view();
+    assert_views_eq("huge sentence", &expected, &store_view(&store));
+}
