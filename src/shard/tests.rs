@@ -13,7 +13,9 @@ fn sample(dir: &std::path::Path) -> std::path::PathBuf {
     path
 }
 
-fn read_all(f: &RunFile, p: u32) -> Result<Vec<(Vec<u64>, [u64; 2])>, crate::Error> {
+type Records = Vec<(Vec<u64>, [u64; 2])>;
+
+fn read_all(f: &RunFile, p: u32) -> Result<Records, crate::Error> {
     let mut r = f.section(p)?;
     let mut out = Vec::new();
     while let Some((k, v)) = r.next_record()? {

@@ -58,6 +58,10 @@ pub(crate) fn cf_options(cache: &rocksdb::Cache) -> Options {
     o
 }
 
+/// The stored value of one n-gram: its count and, below the top order, its
+/// continuation count.
+pub type NgramValue = (u64, Option<u64>);
+
 /// A finished store, opened read-only.
 pub struct Store {
     dir: PathBuf,
@@ -323,7 +327,7 @@ impl Store {
 
     /// Counts of many n-grams at once (RocksDB multi-get; all the same
     /// order or not). `None` for n-grams not stored.
-    pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<(u64, Option<u64>)>>> {
+    pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<NgramValue>>> {
         let mut out = vec![None; grams.len()];
         let mut by_order: Vec<Vec<usize>> = vec![Vec::new(); self.order() + 1];
         for (i, g) in grams.iter().enumerate() {
