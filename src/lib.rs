@@ -21,6 +21,9 @@
 //! * [`merge`] merges each partition's runs (k-way), shuffles continuation
 //!   contributions once, and derives every statistic in one ordered pass.
 //! * [`store`] writes and reads the RocksDB store.
+//! * [`query`] turns the store's statistics into smoothed probabilities
+//!   (nine estimators chosen at query time), top-K next words, prefix
+//!   pages, held-out scoring and parameter tuning.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
 //!
@@ -50,6 +53,7 @@ pub mod ingest;
 pub mod key;
 pub mod memory;
 pub mod merge;
+pub mod query;
 pub mod shard;
 pub mod store;
 pub mod tokenize;

@@ -22,6 +22,158 @@ pub enum Command {
     Stats(StatsArgs),
     /// What a store holds, and the progress of an ingest on it.
     Status(StatusArgs),
+    /// The probability of the last word given the words before it (or one
+    /// query a line from standard input).
+    Prob(ProbArgs),
+    /// The most probable next words after a context.
+    Next(NextArgs),
+    /// The stored n-grams that begin with given words, a page at a time.
+    Ngrams(NgramsArgs),
+    /// Score held-out text: predictions, OOVs, log10 probability, perplexity.
+    Score(ScoreArgs),
+    /// Fit the free parameters of add-k or interp on held-out text.
+    Tune(TuneArgs),
+}
+
+/// The store of a query command and its cache.
+#[derive(Args, Debug, Clone)]
+pub struct QueryStoreArgs {
+    /// Store directory.
+    #[arg(long)]
+    pub store: PathBuf,
+    /// Memory for caches: three quarters go to the store's block cache.
+    #[arg(long, default_value = "256MiB")]
+    pub memory: String,
+}
+
+/// A smoothing method's parameters (each method reads only its own).
+#[derive(Args, Debug, Clone, Default)]
+pub struct ParamArgs {
+    /// Parameters from a JSON file written by `quern tune` (flags given
+    /// here override it).
+    #[arg(long)]
+    pub params: Option<PathBuf>,
+    /// add-k: the count added to every n-gram (default 1, Laplace).
+    #[arg(long)]
+    pub k: Option<f64>,
+    /// stupid: the back-off factor (default 0.4).
+    #[arg(long)]
+    pub alpha: Option<f64>,
+    /// interp: the weight of orders 1 to N, comma-separated (default 0.5 each).
+    #[arg(long, value_delimiter = ',')]
+    pub lambdas: Option<Vec<f64>>,
+    /// katz: the largest count that is discounted (default 5).
+    #[arg(long)]
+    pub katz_k: Option<usize>,
+    /// mkn: D1,D2,D3+ (kn, absolute: D) used only where the data leave a
+    /// discount undefined; reported when used.
+    #[arg(long, value_delimiter = ',')]
+    pub fallback_discounts: Option<Vec<f64>>,
+}
+
+#[derive(Args, Debug)]
+pub struct ProbArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
+    #[arg(long)]
+    pub method: String,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// JSON (one object a line) instead of TSV.
+    #[arg(long)]
+    pub json: bool,
+    /// The context and the predicted word; none: read one query a line
+    /// from standard input. `<s>` and `</s>` mean the markers.
+    pub words: Vec<String>,
+}
+
+#[derive(Args, Debug)]
+pub struct NextArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
+    #[arg(long)]
+    pub method: String,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// How many words.
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+    /// JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// The context (may be empty). `<s>` means the sentence start.
+    pub words: Vec<String>,
+}
+
+#[derive(Args, Debug)]
+pub struct NgramsArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// Add the probability of each n-gram's last word under this method.
+    #[arg(long)]
+    pub method: Option<String>,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// The order of the n-grams shown (default: one more than the words given).
+    #[arg(long)]
+    pub order: Option<usize>,
+    /// N-grams per page.
+    #[arg(long, default_value_t = 20)]
+    pub limit: usize,
+    /// Continue after this cursor (printed at the end of the previous page).
+    #[arg(long)]
+    pub after: Option<String>,
+    /// JSON instead of TSV.
+    #[arg(long)]
+    pub json: bool,
+    /// The words the n-grams begin with.
+    pub words: Vec<String>,
+}
+
+#[derive(Args, Debug)]
+pub struct ScoreArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
+    #[arg(long)]
+    pub method: String,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// Add one record per sentence.
+    #[arg(long)]
+    pub per_line: bool,
+    /// JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+    /// Text files, one sentence a line; `-` reads standard input.
+    #[arg(required = true)]
+    pub files: Vec<PathBuf>,
+}
+
+#[derive(Args, Debug)]
+pub struct TuneArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// add-k or interp.
+    #[arg(long)]
+    pub method: String,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// interp: one weight per order and bucket of the context count
+    /// (bucket b: 2^b <= C(h) < 2^(b+1), the last one everything above).
+    #[arg(long)]
+    pub buckets: Option<usize>,
+    /// Write the parameters found to this JSON file (read back with --params).
+    #[arg(long)]
+    pub out: PathBuf,
+    /// JSON report instead of text.
+    #[arg(long)]
+    pub json: bool,
+    /// Held-out text files, one sentence a line.
+    #[arg(required = true)]
+    pub heldout: Vec<PathBuf>,
 }
 
 #[derive(Args, Debug)]

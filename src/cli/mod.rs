@@ -14,5 +14,10 @@ pub fn run() -> anyhow::Result<()> {
         args::Command::Dump(a) => cmd::dump::run(a),
         args::Command::Stats(a) => cmd::stats::run(a),
         args::Command::Status(a) => cmd::status::run(a),
+        args::Command::Prob(a) => cmd::prob::run(a),
+        args::Command::Next(a) => cmd::next::run(a),
+        args::Command::Ngrams(a) => cmd::ngrams::run(a),
+        args::Command::Score(a) => cmd::score::run(a),
+        args::Command::Tune(a) => cmd::tune::run(a),
     }
 }

@@ -53,7 +53,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
 use crate::key::Key;
-use crate::store::{ContextStats, Store};
+use crate::store::{ContextStats, NgramValue, Store};
 use crate::words::{bos_id, eos_id, unk_id, word_id, IdMap, WordId, BOS, EOS, UNK};
 
 pub use next::Next;
@@ -245,6 +245,38 @@ pub(crate) struct Unigrams {
 
 type ChildMap = Rc<IdMap<(u64, u64)>>;
 
+/// A fast hasher for [`Key`]s (multiply-rotate over the ids; the ids are
+/// already hashes).
+#[derive(Default, Clone, Copy)]
+pub(crate) struct KeyHasher(u64);
+
+impl std::hash::Hasher for KeyHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.write_u64(b as u64);
+        }
+    }
+    fn write_u8(&mut self, v: u8) {
+        self.write_u64(v as u64);
+    }
+    fn write_usize(&mut self, v: usize) {
+        self.write_u64(v as u64);
+    }
+    fn write_u64(&mut self, v: u64) {
+        self.0 = (self.0.rotate_left(5) ^ v).wrapping_mul(0x517c_c1b7_2722_0a95);
+    }
+}
+
+/// A `HashMap` keyed by n-gram keys.
+pub(crate) type KeyMap<V> = HashMap<Key, V, std::hash::BuildHasherDefault<KeyHasher>>;
+
+/// N-grams up to this order are kept in the count cache.
+const GRAM_CACHE_MAX_ORDER: usize = 3;
+const GRAM_CACHE_ENTRIES: usize = 1 << 20;
+
 const CTX_CACHE_ENTRIES: usize = 1 << 18;
 const WORD_CACHE_ENTRIES: usize = 1 << 20;
 const CHILD_CACHE_ENTRIES: usize = 4 << 20;
@@ -258,16 +290,16 @@ pub struct Estimator<'s> {
     n: usize,
     v: f64,
     root: ContextStats,
-    unk_seen: bool,
     notes: Vec<String>,
     bos: WordId,
     unk: WordId,
-    ctx_cache: RefCell<HashMap<Key, CtxInfo>>,
+    ctx_cache: RefCell<KeyMap<CtxInfo>>,
+    gram_cache: RefCell<KeyMap<Option<NgramValue>>>,
     word_cache: RefCell<IdMap<bool>>,
     unigrams: OnceCell<Unigrams>,
     ranking: OnceCell<Vec<WordId>>,
-    children: RefCell<(HashMap<Key, ChildMap>, usize)>,
-    katz_ctx: RefCell<HashMap<Key, katz::KatzCtx>>,
+    children: RefCell<(KeyMap<ChildMap>, usize)>,
+    katz_ctx: RefCell<KeyMap<katz::KatzCtx>>,
 }
 
 impl<'s> Estimator<'s> {
@@ -331,16 +363,16 @@ impl<'s> Estimator<'s> {
             n,
             v: meta.totals.vocabulary as f64,
             root: meta.root,
-            unk_seen: meta.totals.unk_seen,
             notes,
             bos: bos_id(),
             unk: unk_id(),
-            ctx_cache: RefCell::new(HashMap::new()),
+            ctx_cache: RefCell::new(KeyMap::default()),
+            gram_cache: RefCell::new(KeyMap::default()),
             word_cache: RefCell::new(IdMap::default()),
             unigrams: OnceCell::new(),
             ranking: OnceCell::new(),
-            children: RefCell::new((HashMap::new(), 0)),
-            katz_ctx: RefCell::new(HashMap::new()),
+            children: RefCell::new((KeyMap::default(), 0)),
+            katz_ctx: RefCell::new(KeyMap::default()),
         })
     }
 
@@ -409,7 +441,10 @@ impl<'s> Estimator<'s> {
         if let Some(u) = self.unigrams.get() {
             let mut wc = self.word_cache.borrow_mut();
             for &id in ids.iter() {
-                wc.insert(id, id == self.bos || id == self.unk || u.map.contains_key(&id));
+                wc.insert(
+                    id,
+                    id == self.bos || id == self.unk || u.map.contains_key(&id),
+                );
             }
             return Ok(());
         }
@@ -583,6 +618,24 @@ impl<'s> Estimator<'s> {
     /// batched multi-gets and caches context statistics; the fast path for
     /// scoring many n-grams.
     pub fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
+        let mut out = Vec::with_capacity(queries.len());
+        self.for_levels(queries, |full, levels, oov| {
+            let p = self.eval(full, levels)?;
+            out.push(self.finish(p, levels, oov, full[full.len() - 1]));
+            Ok(())
+        })?;
+        Ok(out)
+    }
+
+    /// Looks up the levels of many queries (context followed by the word)
+    /// with batched reads and calls `f(full, levels, oov)` for each, in
+    /// order: `full` is the mapped, cut query, `levels[j]` belongs to its
+    /// last j context words.
+    pub(crate) fn for_levels(
+        &self,
+        queries: &[&[WordId]],
+        mut f: impl FnMut(&[WordId], &[Level], bool) -> Result<()>,
+    ) -> Result<()> {
         if queries.iter().any(|q| q.is_empty()) {
             return Err(Error::Config(
                 "a query needs at least the predicted word".into(),
@@ -606,28 +659,72 @@ impl<'s> Estimator<'s> {
             buf.push(if in_v { w } else { self.unk });
             spans.push((s, buf.len(), !in_v));
         }
-        let mut grams: Vec<&[WordId]> = Vec::with_capacity(buf.len());
+        let uni = self.unigrams()?;
+        let mut counts: Vec<Option<NgramValue>> = Vec::with_capacity(buf.len());
+        let mut miss: Vec<usize> = Vec::new();
         let mut ctxs: Vec<&[WordId]> = Vec::with_capacity(buf.len());
-        for &(s, e, _) in &spans {
-            let full = &buf[s..e];
-            let l = full.len() - 1;
-            for j in 0..=l {
-                grams.push(&full[l - j..]);
-                ctxs.push(&full[l - j..l]);
+        {
+            let cache = self.gram_cache.borrow();
+            for &(s, e, _) in &spans {
+                let full = &buf[s..e];
+                let l = full.len() - 1;
+                for j in 0..=l {
+                    let g = &full[l - j..];
+                    ctxs.push(&full[l - j..l]);
+                    if j == 0 {
+                        counts.push(uni.map.get(&g[0]).map(|&(c, _)| (c, None)));
+                    } else if g.len() <= GRAM_CACHE_MAX_ORDER {
+                        match cache.get(&Key::new(g)) {
+                            Some(v) => counts.push(*v),
+                            None => {
+                                miss.push(counts.len());
+                                counts.push(None);
+                            }
+                        }
+                    } else {
+                        miss.push(counts.len());
+                        counts.push(None);
+                    }
+                }
             }
         }
-        let counts = self.store.get_many(&grams)?;
+        if !miss.is_empty() {
+            // The gram of flat index i: recover it from the spans.
+            let mut owner: Vec<(usize, usize)> = Vec::with_capacity(counts.len());
+            for &(s, e, _) in &spans {
+                let l = e - s - 1;
+                for j in 0..=l {
+                    owner.push((s + l - j, e));
+                }
+            }
+            let grams: Vec<&[WordId]> =
+                miss.iter().map(|&i| &buf[owner[i].0..owner[i].1]).collect();
+            let got = self.store.get_many(&grams)?;
+            let mut cache = self.gram_cache.borrow_mut();
+            if cache.len() + grams.len() > GRAM_CACHE_ENTRIES {
+                cache.clear();
+            }
+            for ((&i, g), v) in miss.iter().zip(&grams).zip(got) {
+                if g.len() <= GRAM_CACHE_MAX_ORDER {
+                    cache.insert(Key::new(g), v);
+                }
+                counts[i] = v;
+            }
+        }
         let infos = self.ctx_infos(&ctxs)?;
-        let mut out = Vec::with_capacity(queries.len());
         let mut at = 0;
         let mut levels = [Level::default(); crate::key::MAX_ORDER];
         for &(s, e, oov) in &spans {
             let full = &buf[s..e];
             let nl = full.len();
             for j in 0..nl {
-                let (c, a) = match counts[at + j] {
-                    Some((c, cont)) => (c, self.adjusted(c, cont, full[nl - 1 - j])),
-                    None => (0, 0),
+                let (c, a) = if j == 0 {
+                    uni.map.get(&full[nl - 1]).copied().unwrap_or((0, 0))
+                } else {
+                    match counts[at + j] {
+                        Some((c, cont)) => (c, self.adjusted(c, cont, full[nl - 1 - j])),
+                        None => (0, 0),
+                    }
                 };
                 levels[j] = Level {
                     c,
@@ -637,10 +734,9 @@ impl<'s> Estimator<'s> {
                 };
             }
             at += nl;
-            let p = self.eval(full, &levels[..nl])?;
-            out.push(self.finish(p, &levels[..nl], oov, full[nl - 1]));
+            f(full, &levels[..nl], oov)?;
         }
-        Ok(out)
+        Ok(())
     }
 
     fn finish(&self, p: f64, levels: &[Level], oov: bool, word: WordId) -> Prob {
@@ -693,11 +789,16 @@ impl<'s> Estimator<'s> {
 
     /// The probability of `w` (in V) after the context of `cl`, from the
     /// children lists (no point reads).
-    pub(crate) fn eval_mapped(&self, cl: &ContextLevels, w: WordId, full: &mut Vec<WordId>) -> Result<(f64, usize)> {
+    pub(crate) fn eval_mapped(
+        &self,
+        cl: &ContextLevels,
+        w: WordId,
+        full: &mut Vec<WordId>,
+    ) -> Result<(f64, usize)> {
         let uni = self.unigrams()?;
         let l = cl.ctx.len();
         let mut levels = [Level::default(); crate::key::MAX_ORDER];
-        for j in 0..=l {
+        for (j, level) in levels.iter_mut().enumerate().take(l + 1) {
             let (c, a) = if j == 0 {
                 uni.map.get(&w).copied().unwrap_or((0, 0))
             } else {
@@ -706,7 +807,7 @@ impl<'s> Estimator<'s> {
                     .and_then(|m| m.get(&w).copied())
                     .unwrap_or((0, 0))
             };
-            levels[j] = Level {
+            *level = Level {
                 c,
                 a,
                 ctx: cl.infos[j].stats,
@@ -717,7 +818,10 @@ impl<'s> Estimator<'s> {
         full.extend_from_slice(&cl.ctx);
         full.push(w);
         let p = self.eval(full, &levels[..=l])?;
-        let order = levels[..=l].iter().rposition(|x| x.c > 0).map_or(0, |j| j + 1);
+        let order = levels[..=l]
+            .iter()
+            .rposition(|x| x.c > 0)
+            .map_or(0, |j| j + 1);
         Ok((p, order))
     }
 

@@ -27,3 +27,24 @@ mod python_check;
 // Small end-to-end CLI cases: CRLF, blank lines, literal markers, invalid
 // UTF-8, .gz/.zst inputs, missing input, `dump --order`, `stats --json`.
 mod cli;
+
+// Stores shared by the query tests (five novels at orders 3 and 5).
+mod query_fixtures;
+
+// Every smoothing method sums to 1 over V for contexts of every kind.
+mod query_normalisation;
+
+// `next` equals a brute-force top K; `ngrams` paging; prob batch = single
+// queries; score JSON with infinite perplexity.
+mod query_next;
+
+// Hand-worked estimator cases on a tiny corpus (papers named beside each
+// check), discount formulas, and a textbook add-one example (from memory).
+mod estimators;
+
+// `tune` (add-k search, interp EM with and without buckets) lowers
+// held-out perplexity; its file round-trips through --params.
+mod query_tune;
+
+// Benchmarks of prob throughput and next latency (ignored; run by hand).
+mod query_bench;

@@ -2,8 +2,13 @@
 
 pub mod dump;
 pub mod ingest;
+pub mod next;
+pub mod ngrams;
+pub mod prob;
+pub mod score;
 pub mod stats;
 pub mod status;
+pub mod tune;
 
 /// `12345678` → `12,345,678`.
 pub fn thousands(n: u64) -> String {

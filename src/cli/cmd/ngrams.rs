@@ -1,0 +1,85 @@
+//! `quern ngrams`: the stored n-grams that begin with given words, paged.
+
+use std::io::Write;
+
+use anyhow::{bail, Context};
+use quern::query::{prefix_page, query_ids};
+use quern::words::WordId;
+use serde_json::json;
+
+use super::prob::{estimator, jnum, log, num, open_store, words};
+use crate::cli::args::NgramsArgs;
+
+/// A cursor: the ids of the last n-gram shown, 16 hex digits each.
+fn cursor(ids: &[WordId]) -> String {
+    ids.iter().map(|i| format!("{i:016x}")).collect()
+}
+
+fn parse_cursor(s: &str) -> anyhow::Result<Vec<WordId>> {
+    if s.is_empty() || !s.len().is_multiple_of(16) {
+        bail!("--after {s:?}: not a cursor printed by quern ngrams");
+    }
+    (0..s.len() / 16)
+        .map(|i| {
+            u64::from_str_radix(&s[i * 16..i * 16 + 16], 16)
+                .with_context(|| format!("--after {s:?}: not a cursor printed by quern ngrams"))
+        })
+        .collect()
+}
+
+pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
+    let store = open_store(&a.store)?;
+    let prefix = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
+    let order = a.order.unwrap_or(prefix.len() + 1);
+    let after = a.after.as_deref().map(parse_cursor).transpose()?;
+    if a.limit == 0 {
+        bail!("--limit must be at least 1");
+    }
+    let page = prefix_page(&store, &prefix, order, a.limit, after.as_deref())?;
+    let est = match &a.method {
+        Some(m) => Some(estimator(&store, m, &a.params)?),
+        None => None,
+    };
+    let probs = match &est {
+        Some(e) => {
+            let qs: Vec<&[WordId]> = page.items.iter().map(|x| x.0.ids()).collect();
+            Some(e.prob_batch(&qs)?)
+        }
+        None => None,
+    };
+    let mut out = std::io::stdout().lock();
+    let next = page.next.map(|k| cursor(k.ids()));
+    if a.json {
+        let mut items = Vec::new();
+        for (i, (k, c, cont)) in page.items.iter().enumerate() {
+            let mut v = json!({"words": words(&store, k.ids())?, "count": c, "continuation": cont});
+            if let (Some(ps), Some(e)) = (&probs, &est) {
+                let key = if e.method().is_probability() {
+                    "probability"
+                } else {
+                    "score"
+                };
+                v[key] = jnum(ps[i].p);
+                v["log10"] = jnum(ps[i].log10);
+            }
+            items.push(v);
+        }
+        let v = json!({"order": order, "ngrams": items, "next": next});
+        serde_json::to_writer_pretty(&mut out, &v)?;
+        writeln!(out)?;
+        return Ok(());
+    }
+    for (i, (k, c, cont)) in page.items.iter().enumerate() {
+        let cont = cont.map_or("-".to_string(), |x| x.to_string());
+        write!(out, "{}\t{c}\t{cont}", words(&store, k.ids())?)?;
+        if let Some(ps) = &probs {
+            write!(out, "\t{}\t{}", num(ps[i].p), log(ps[i].log10))?;
+        }
+        writeln!(out)?;
+    }
+    match next {
+        Some(c) => eprintln!("more: --after {c}"),
+        None => eprintln!("(end)"),
+    }
+    Ok(())
+}

@@ -1,0 +1,241 @@
+//! `quern prob`: the probability of the last word given the words before
+//! it; with no words, one query a line from standard input. Also the
+//! helpers the other query commands share.
+
+use std::io::{BufRead, BufWriter, Write};
+
+use anyhow::{bail, Context};
+use quern::memory::parse_size;
+use quern::query::{query_ids, Estimator, Method, Params, Prob};
+use quern::store::Store;
+use quern::words::WordId;
+use serde_json::json;
+
+use crate::cli::args::{ParamArgs, ProbArgs, QueryStoreArgs};
+
+/// Opens the store with a block cache of three quarters of `--memory`.
+pub fn open_store(a: &QueryStoreArgs) -> anyhow::Result<Store> {
+    let mem = parse_size(&a.memory)?;
+    Ok(Store::open_with_cache(&a.store, (mem / 4 * 3) as usize)?)
+}
+
+/// The parameters file written by `quern tune`.
+#[derive(serde::Serialize, serde::Deserialize)]
+pub struct ParamsFile {
+    /// The method the parameters were fitted for.
+    pub method: Method,
+    /// The parameters.
+    pub params: Params,
+}
+
+/// `--params FILE` (if given), then the flags on top.
+pub fn params(method: Method, a: &ParamArgs) -> anyhow::Result<Params> {
+    let mut p = Params::default();
+    if let Some(f) = &a.params {
+        let text =
+            std::fs::read_to_string(f).with_context(|| format!("reading {}", f.display()))?;
+        let pf: ParamsFile = serde_json::from_str(&text)
+            .with_context(|| format!("{}: not a parameters file of quern tune", f.display()))?;
+        if pf.method != method {
+            bail!(
+                "{}: the parameters were fitted for {}, not {method}",
+                f.display(),
+                pf.method
+            );
+        }
+        p = pf.params;
+    }
+    if let Some(k) = a.k {
+        p.k = k;
+    }
+    if let Some(x) = a.alpha {
+        p.alpha = x;
+    }
+    if let Some(l) = &a.lambdas {
+        p.lambdas = Some(l.clone());
+        p.bucket_lambdas = None;
+    }
+    if let Some(k) = a.katz_k {
+        p.katz_k = k;
+    }
+    if let Some(d) = &a.fallback_discounts {
+        p.fallback_discounts = Some(d.clone());
+    }
+    Ok(p)
+}
+
+/// Builds the estimator and prints its notes (fallbacks, Katz's K) to
+/// standard error.
+pub fn estimator<'s>(
+    store: &'s Store,
+    method: &str,
+    a: &ParamArgs,
+) -> anyhow::Result<Estimator<'s>> {
+    let m: Method = method.parse()?;
+    let est = Estimator::new(store, m, params(m, a)?)?;
+    for n in est.notes() {
+        eprintln!("quern: note: {n}");
+    }
+    if m == Method::Stupid {
+        eprintln!(
+            "quern: note: stupid back-off gives scores, not probabilities: they do not sum to 1"
+        );
+    }
+    Ok(est)
+}
+
+/// The words of `ids`, space-separated.
+pub fn words(store: &Store, ids: &[WordId]) -> anyhow::Result<String> {
+    let mut out = String::new();
+    for (i, &id) in ids.iter().enumerate() {
+        if i > 0 {
+            out.push(' ');
+        }
+        match store.word(id)? {
+            Some(w) => out.push_str(&w),
+            None => out.push_str(&format!("#{id:016x}")),
+        }
+    }
+    Ok(out)
+}
+
+/// A number for TSV and tables: `-inf` for −∞.
+pub fn num(x: f64) -> String {
+    if x == f64::NEG_INFINITY {
+        "-inf".into()
+    } else {
+        format!("{x:.6e}")
+    }
+}
+
+/// A log10 for TSV and tables.
+pub fn log(x: f64) -> String {
+    if x == f64::NEG_INFINITY {
+        "-inf".into()
+    } else {
+        format!("{x:.6}")
+    }
+}
+
+/// A finite number as JSON, anything else as `null`.
+pub fn jnum(x: f64) -> serde_json::Value {
+    if x.is_finite() {
+        json!(x)
+    } else {
+        serde_json::Value::Null
+    }
+}
+
+fn write_one(
+    out: &mut impl Write,
+    json_out: bool,
+    method: Method,
+    text: &str,
+    p: &Prob,
+) -> anyhow::Result<()> {
+    if json_out {
+        let key = if method.is_probability() {
+            "probability"
+        } else {
+            "score"
+        };
+        let v = json!({
+            "words": text,
+            key: jnum(p.p),
+            "log10": jnum(p.log10),
+            "order": p.order,
+            "oov": p.oov,
+        });
+        serde_json::to_writer(&mut *out, &v)?;
+        writeln!(out)?;
+    } else {
+        writeln!(out, "{text}\t{}\t{}", num(p.p), log(p.log10))?;
+    }
+    Ok(())
+}
+
+const BATCH: usize = 4096;
+
+pub fn run(a: ProbArgs) -> anyhow::Result<()> {
+    let store = open_store(&a.store)?;
+    let est = estimator(&store, &a.method, &a.params)?;
+    let lc = store.meta().settings.lowercase;
+    let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    if !a.words.is_empty() {
+        let line = a.words.join(" ");
+        let ids = query_ids(&line, lc);
+        if ids.is_empty() {
+            bail!("no words in the query");
+        }
+        let p = est.prob(&ids[..ids.len() - 1], ids[ids.len() - 1])?;
+        let text = line.split_whitespace().collect::<Vec<_>>().join(" ");
+        write_one(&mut out, a.json, est.method(), &text, &p)?;
+        out.flush()?;
+        return Ok(());
+    }
+    let stdin = std::io::stdin();
+    let mut reader = stdin.lock();
+    let mut lines: Vec<String> = Vec::with_capacity(BATCH);
+    let mut buf = Vec::new();
+    loop {
+        buf.clear();
+        let n = reader
+            .read_until(b'\n', &mut buf)
+            .context("reading standard input")?;
+        if n > 0 {
+            let mut l = &buf[..];
+            l = l.strip_suffix(b"\n").unwrap_or(l);
+            l = l.strip_suffix(b"\r").unwrap_or(l);
+            lines.push(String::from_utf8_lossy(l).into_owned());
+        }
+        if lines.len() == BATCH || (n == 0 && !lines.is_empty()) {
+            batch(&est, lc, &lines, a.json, &mut out)?;
+            lines.clear();
+        }
+        if n == 0 {
+            break;
+        }
+    }
+    out.flush()?;
+    Ok(())
+}
+
+fn batch(
+    est: &Estimator<'_>,
+    lc: bool,
+    lines: &[String],
+    json_out: bool,
+    out: &mut impl Write,
+) -> anyhow::Result<()> {
+    let ids: Vec<Vec<WordId>> = lines.iter().map(|l| query_ids(l, lc)).collect();
+    let queries: Vec<&[WordId]> = ids
+        .iter()
+        .filter(|q| !q.is_empty())
+        .map(|q| &q[..])
+        .collect();
+    let probs = est.prob_batch(&queries)?;
+    let mut it = probs.iter();
+    let mut text = String::new();
+    for (line, q) in lines.iter().zip(&ids) {
+        if q.is_empty() {
+            // An empty query keeps its place: an empty line (TSV) or an
+            // error record (JSON).
+            if json_out {
+                writeln!(out, "{}", json!({"words": "", "error": "empty query"}))?;
+            } else {
+                writeln!(out)?;
+            }
+            continue;
+        }
+        text.clear();
+        for (i, t) in line.split_whitespace().enumerate() {
+            if i > 0 {
+                text.push(' ');
+            }
+            text.push_str(t);
+        }
+        let p = it.next().expect("one result per query");
+        write_one(out, json_out, est.method(), &text, p)?;
+    }
+    Ok(())
+}

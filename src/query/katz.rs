@@ -1,0 +1,269 @@
+//! Katz back-off with Good-Turing discounts (`katz`; Katz 1987, with the
+//! Good-Turing estimate of Good 1953), over raw counts at every order.
+//!
+//! For an n-gram seen r times, 0 < r ≤ K (default 5), with n_r the raw
+//! count-of-counts of its order:
+//!
+//! ```text
+//! r* = (r + 1) n_{r+1} / n_r
+//! d_r = (r*/r − (K+1) n_{K+1}/n_1) / (1 − (K+1) n_{K+1}/n_1),   d_r = 1 for r > K
+//! P*(w|h) = d_r · r / C(h)
+//! ```
+//!
+//! A seen word gets P*(w|h). The mass freed at h, F(h) = 1 − Σ P*(v|h)
+//! over the children v of h, goes to the words unseen at h in proportion to
+//! the lower order: P(w|h) = F(h) · P(w|h') / (1 − Σ_{c(hv)>0} P(v|h')).
+//! Where that denominator is at most 1e-12 the next shorter context is used
+//! instead (h'', …, and finally the uniform 1/|V|). Where F(h) ≤ 1e-12 an
+//! unseen word gets 0. An unseen context (C(h) = 0) backs off unchanged.
+//! At the unigram level the freed mass is shared equally by the words of V
+//! with zero count (at least `<unk>` unless the text held `<unk>`; if every
+//! word of V was seen, by all of V).
+//!
+//! Where Good-Turing is undefined at an order (an n_r it divides by is 0,
+//! or the common denominator is 0) or some d_r falls outside (0, 1], K is
+//! lowered for that order to the largest value where every d_r is valid
+//! (K = 0: no discount) and the K used is reported.
+//!
+//! One case the rule above leaves open: a context h after which every word
+//! of V was seen, with F(h) > 0, has no unseen word to give its mass to;
+//! there the mass is added to every word in proportion to the lower order,
+//! P(w|h) = P*(w|h) + F(h) · P(w|h'), which keeps the sum at 1.
+
+use crate::error::Result;
+use crate::key::Key;
+use crate::store::{OrderStats, StoreMeta};
+use crate::words::WordId;
+
+use super::{Estimator, Level};
+
+/// Below this, a freed mass or a denominator counts as zero.
+pub const EPS: f64 = 1e-12;
+
+/// The Good-Turing constants of one order.
+#[derive(Clone, Debug, PartialEq)]
+pub struct KatzOrder {
+    /// The K used (may be below the requested one).
+    pub k: usize,
+    /// `d[r]` for r = 1..=k (`d[0]` is 1, unused).
+    pub d: Vec<f64>,
+    /// Unigram order only: the mass F freed at the empty context.
+    pub root_free: f64,
+}
+
+impl KatzOrder {
+    /// d_r (1 above K).
+    #[inline]
+    pub fn disc(&self, r: u64) -> f64 {
+        if r >= 1 && (r as usize) <= self.k {
+            self.d[r as usize]
+        } else {
+            1.0
+        }
+    }
+}
+
+/// d_1..d_K of one order from its raw count-of-counts, or why Good-Turing is
+/// undefined or out of range at this K.
+pub fn good_turing(o: &OrderStats, k: usize) -> std::result::Result<Vec<f64>, String> {
+    let mut d = vec![1.0];
+    if k == 0 {
+        return Ok(d);
+    }
+    let n = |r: usize| o.raw(r as u64) as f64;
+    for r in 1..=k {
+        if n(r) == 0.0 {
+            return Err(format!("n{r} = 0"));
+        }
+    }
+    let x = (k as f64 + 1.0) * n(k + 1) / n(1);
+    if 1.0 - x == 0.0 {
+        return Err(format!("1 − (K+1) n{}/n1 = 0", k + 1));
+    }
+    for r in 1..=k {
+        let rstar = (r as f64 + 1.0) * n(r + 1) / n(r);
+        let dr = (rstar / r as f64 - x) / (1.0 - x);
+        if !(dr > 0.0 && dr <= 1.0) {
+            return Err(format!("d{r} = {dr:.6} is outside (0, 1]"));
+        }
+        d.push(dr);
+    }
+    Ok(d)
+}
+
+/// The constants of every order with K lowered where needed (each lowering
+/// is added to `notes`).
+pub fn katz_orders(meta: &StoreMeta, k_req: usize, notes: &mut Vec<String>) -> Vec<KatzOrder> {
+    let mut out = Vec::new();
+    for o in &meta.orders {
+        let mut first_err = None;
+        let mut chosen = (0, vec![1.0]);
+        for k in (0..=k_req).rev() {
+            match good_turing(o, k) {
+                Ok(d) => {
+                    chosen = (k, d);
+                    break;
+                }
+                Err(e) => {
+                    first_err.get_or_insert(e);
+                }
+            }
+        }
+        if chosen.0 < k_req {
+            notes.push(format!(
+                "katz: order {}: Good-Turing with K = {k_req} is not usable ({}); K lowered to {}{}",
+                o.order,
+                first_err.unwrap_or_default(),
+                chosen.0,
+                if chosen.0 == 0 { " (no discount)" } else { "" }
+            ));
+        }
+        let mut ko = KatzOrder {
+            k: chosen.0,
+            d: chosen.1,
+            root_free: 0.0,
+        };
+        if o.order == 1 {
+            let mut freed = 0.0;
+            for &(r, nr) in &o.coc_raw {
+                freed += nr as f64 * (1.0 - ko.disc(r)) * r as f64;
+            }
+            ko.root_free = freed / meta.root.count_sum.max(1) as f64;
+        }
+        out.push(ko);
+    }
+    out
+}
+
+/// What Katz needs of one context h (C(h) > 0).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct KatzCtx {
+    /// F(h).
+    f: f64,
+    /// The context length whose distribution the unseen words follow
+    /// (`None`: the uniform distribution).
+    lower: Option<usize>,
+    /// 1 − Σ over the children v of h of P(v | that context).
+    den: f64,
+    /// Every word of V is a child of h: the freed mass is spread.
+    spread: bool,
+}
+
+impl Estimator<'_> {
+    /// Katz's P(w|h) over the levels of one prediction.
+    pub(crate) fn katz(&self, o: &[KatzOrder], full: &[WordId], levels: &[Level]) -> Result<f64> {
+        self.katz_at(o, full, levels, levels.len() - 1)
+    }
+
+    fn katz_unigram(&self, o: &KatzOrder, c: u64) -> f64 {
+        let zeros = self.v - self.root.types as f64;
+        let t = self.root.count_sum as f64;
+        if c > 0 {
+            let pstar = o.disc(c) * c as f64 / t;
+            if zeros > 0.0 {
+                pstar
+            } else {
+                pstar + o.root_free / self.v
+            }
+        } else {
+            o.root_free / zeros.max(1.0)
+        }
+    }
+
+    fn katz_at(&self, o: &[KatzOrder], full: &[WordId], levels: &[Level], j: usize) -> Result<f64> {
+        let l = levels[j];
+        if j == 0 {
+            return Ok(self.katz_unigram(&o[0], l.c));
+        }
+        let s = match l.ctx {
+            Some(s) if s.count_sum > 0 => s,
+            _ => return self.katz_at(o, full, levels, j - 1),
+        };
+        if l.c > 0 {
+            let pstar = o[j].disc(l.c) * l.c as f64 / s.count_sum as f64;
+            if (s.types as f64) < self.v {
+                return Ok(pstar);
+            }
+            let kc = self.katz_context(o, full, levels, j)?;
+            if kc.spread {
+                return Ok(pstar + kc.f * self.katz_at(o, full, levels, j - 1)?);
+            }
+            return Ok(pstar);
+        }
+        let kc = self.katz_context(o, full, levels, j)?;
+        if kc.f <= EPS {
+            return Ok(0.0);
+        }
+        let lower = match kc.lower {
+            Some(i) => self.katz_at(o, full, levels, i)?,
+            None => 1.0 / self.v,
+        };
+        Ok(kc.f * lower / kc.den)
+    }
+
+    /// F(h_j) and where its unseen words get their shares, cached.
+    fn katz_context(
+        &self,
+        o: &[KatzOrder],
+        full: &[WordId],
+        levels: &[Level],
+        j: usize,
+    ) -> Result<KatzCtx> {
+        let nl = full.len();
+        let h = &full[nl - 1 - j..nl - 1];
+        let key = Key::new(h);
+        if let Some(kc) = self.katz_ctx.borrow().get(&key) {
+            return Ok(*kc);
+        }
+        let s = levels[j].ctx.expect("katz_context of a seen context");
+        let kids = self.child_map(h)?;
+        let mut freed = 0.0;
+        for &(c, _) in kids.values() {
+            freed += (1.0 - o[j].disc(c)) * c as f64;
+        }
+        let f = freed / s.count_sum as f64;
+        let mut kc = KatzCtx {
+            f,
+            lower: None,
+            den: 1.0,
+            spread: false,
+        };
+        if f > EPS {
+            if (s.types as f64) < self.v {
+                let mut found = false;
+                let mut buf = Vec::new();
+                for i in (0..j).rev() {
+                    let hi = &h[j - i..];
+                    let cl = self.context_levels(hi)?;
+                    let mut sum = 0.0;
+                    for &v in kids.keys() {
+                        sum += self.eval_mapped(&cl, v, &mut buf)?.0;
+                    }
+                    let den = 1.0 - sum;
+                    if den > EPS {
+                        kc.lower = Some(i);
+                        kc.den = den;
+                        found = true;
+                        break;
+                    }
+                }
+                if !found {
+                    let den = 1.0 - s.types as f64 / self.v;
+                    if den > EPS {
+                        kc.den = den;
+                    } else {
+                        kc.spread = true;
+                    }
+                }
+            } else {
+                kc.spread = true;
+            }
+        }
+        let mut cache = self.katz_ctx.borrow_mut();
+        if cache.len() > 1 << 20 {
+            cache.clear();
+        }
+        cache.insert(key, kc);
+        Ok(kc)
+    }
+}

@@ -1,0 +1,60 @@
+//! Paging through the stored n-grams that begin with given words.
+
+use crate::error::{Error, Result};
+use crate::key::Key;
+use crate::store::Store;
+use crate::words::WordId;
+
+/// One page of n-grams.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Page {
+    /// `(n-gram, count, continuation)` in key order; continuation is `None`
+    /// at the top order.
+    pub items: Vec<(Key, u64, Option<u64>)>,
+    /// The last n-gram of this page if more follow: pass it as `after` for
+    /// the next page.
+    pub next: Option<Key>,
+}
+
+/// Up to `limit` stored n-grams of order `order` that begin with `prefix`,
+/// after the n-gram `after` if given, in key order (the order of the
+/// words' ids, not alphabetical).
+pub fn prefix_page(
+    store: &Store,
+    prefix: &[WordId],
+    order: usize,
+    limit: usize,
+    after: Option<&[WordId]>,
+) -> Result<Page> {
+    if order == 0 || order > store.order() || order < prefix.len() {
+        return Err(Error::Config(format!(
+            "order {order}: n-grams beginning with {} words exist at orders {} to {}",
+            prefix.len(),
+            prefix.len().max(1),
+            store.order()
+        )));
+    }
+    if let Some(a) = after {
+        if a.len() != order || !a.starts_with(prefix) {
+            return Err(Error::Config(
+                "the cursor does not belong to this prefix and order".into(),
+            ));
+        }
+    }
+    let mut items = Vec::with_capacity(limit.min(1 << 16));
+    let mut more = false;
+    for item in store.scan_prefix(order, prefix, after)? {
+        let item = item?;
+        if items.len() == limit {
+            more = true;
+            break;
+        }
+        items.push(item);
+    }
+    let next = if more {
+        items.last().map(|x| x.0)
+    } else {
+        None
+    };
+    Ok(Page { items, next })
+}

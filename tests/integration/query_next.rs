@@ -1,0 +1,146 @@
+//! `next` is exact: its top K equals a brute-force ranking of all of V
+//! (source of truth: the definition of top K, computed by scoring every
+//! word); `ngrams` pages cover a prefix scan exactly once; the `prob`
+//! batch path agrees with single queries; JSON shows infinite as null.
+
+use quern::query::{prefix_page, Estimator, Method, Params};
+use quern::store::Store;
+use quern::words::{bos_id, word_id, WordId};
+
+use crate::common::{run_ok, run_with_stdin};
+use crate::query_fixtures::{heldout_sentences, train3, train5};
+
+fn contexts(n: usize) -> Vec<Vec<WordId>> {
+    let mut out = vec![vec![], vec![bos_id()], vec![word_id(b"qqzzx-unknown")]];
+    let s = heldout_sentences();
+    for (i, sent) in s.iter().enumerate().step_by(s.len() / 12) {
+        let _ = i;
+        let cut = sent.len().min(n);
+        out.push(sent[..cut].to_vec());
+        out.push(sent[..(sent.len() / 2).max(1)].to_vec());
+    }
+    out
+}
+
+fn check(store: &Store, k: usize) {
+    for m in Method::ALL {
+        let est = Estimator::new(store, m, Params::default()).unwrap();
+        for h in contexts(store.order()) {
+            let got = est.next(&h, k).unwrap();
+            let mut all = est.distribution(&h).unwrap();
+            all.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+            assert_eq!(got.items.len(), k.min(all.len()));
+            for (i, (w, p)) in got.items.iter().enumerate() {
+                // Same probability at every rank (ties may differ in word).
+                assert!(
+                    (p - all[i].1).abs() <= 1e-15 + 1e-12 * p,
+                    "{m}: rank {i} after {h:x?}: next gives {p}, brute force {}",
+                    all[i].1
+                );
+                // And the word shown has the probability shown.
+                let q = all.iter().find(|x| x.0 == *w).unwrap().1;
+                assert!((p - q).abs() <= 1e-15 + 1e-12 * p);
+            }
+            if m.is_probability() {
+                let sum: f64 = got.items.iter().map(|x| x.1).sum();
+                assert!((got.rest - (1.0 - sum)).abs() < 1e-12);
+            }
+            // It touched far fewer words than V for seen contexts.
+            assert!(got.scored <= all.len());
+        }
+    }
+}
+
+#[test]
+fn next_equals_brute_force_order3() {
+    check(&Store::open(train3()).unwrap(), 10);
+}
+
+#[test]
+fn next_equals_brute_force_order5() {
+    check(&Store::open(train5()).unwrap(), 5);
+}
+
+#[test]
+fn ngrams_pages_cover_the_prefix_scan_once() {
+    let store = Store::open(train3()).unwrap();
+    let the = word_id(b"the");
+    let all: Vec<_> = store
+        .children(&[the])
+        .unwrap()
+        .map(|x| x.unwrap())
+        .collect();
+    assert!(all.len() > 100);
+    let mut paged = Vec::new();
+    let mut after: Option<Vec<WordId>> = None;
+    loop {
+        let p = prefix_page(&store, &[the], 2, 37, after.as_deref()).unwrap();
+        assert!(p.items.len() <= 37);
+        paged.extend(p.items.iter().copied());
+        match p.next {
+            Some(k) => after = Some(k.ids().to_vec()),
+            None => break,
+        }
+    }
+    assert_eq!(paged, all);
+    // Order 3 under a one-word prefix: every item starts with it.
+    let p = prefix_page(&store, &[the], 3, 50, None).unwrap();
+    assert_eq!(p.items.len(), 50);
+    assert!(p
+        .items
+        .iter()
+        .all(|x| x.0.ids()[0] == the && x.0.order() == 3));
+}
+
+#[test]
+fn prob_batch_from_stdin_equals_single_queries() {
+    let store = train3().display().to_string();
+    let queries = [
+        "<s> It is",
+        "of the",
+        "Anne",
+        "zzqq-unknown word",
+        "<s> </s>",
+        "the Elliot",
+    ];
+    let input = queries.join("\n") + "\n\n";
+    for m in ["mkn", "katz", "stupid"] {
+        let batch = run_with_stdin(
+            &["prob", "--store", &store, "--method", m],
+            input.as_bytes(),
+        );
+        batch.assert_success();
+        let lines: Vec<&str> = batch.stdout.lines().collect();
+        assert_eq!(lines.len(), queries.len() + 1, "{}", batch.describe());
+        assert_eq!(lines[queries.len()], "", "an empty query keeps its place");
+        for (q, l) in queries.iter().zip(&lines) {
+            let mut args = vec!["prob", "--store", &store, "--method", m];
+            args.extend(q.split(' '));
+            let one = run_ok(&args);
+            assert_eq!(one.stdout.trim_end(), *l);
+        }
+    }
+}
+
+#[test]
+fn score_json_reports_infinite_perplexity_as_null() {
+    let store = train3().display().to_string();
+    let held = crate::query_fixtures::heldout_path().display().to_string();
+    let r = run_ok(&[
+        "score", "--store", &store, "--method", "mle", "--json", &held,
+    ]);
+    let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    assert!(v["perplexity"].is_null());
+    assert!(v["zero_probability"].as_u64().unwrap() > 0);
+    let r = run_ok(&[
+        "score", "--store", &store, "--method", "kn", "--json", &held,
+    ]);
+    let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let ppl = v["perplexity"].as_f64().unwrap();
+    assert!(ppl > 1.0 && ppl.is_finite());
+    assert_eq!(v["zero_probability"], 0);
+    assert_eq!(
+        v["sentences"].as_u64().unwrap(),
+        heldout_sentences().len() as u64
+    );
+}
