@@ -325,75 +325,74 @@ impl Store {
         Ok(v.map(|b| String::from_utf8_lossy(&b).into_owned()))
     }
 
-    /// Counts of many n-grams at once (RocksDB multi-get; all the same
-    /// order or not). `None` for n-grams not stored.
-    pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<NgramValue>>> {
-        let mut out = vec![None; grams.len()];
-        let mut by_order: Vec<Vec<usize>> = vec![Vec::new(); self.order() + 1];
-        for (i, g) in grams.iter().enumerate() {
-            if !g.is_empty() && g.len() <= self.order() {
-                by_order[g.len()].push(i);
+    /// One multi-get per key length: for each of `items` whose length is in
+    /// `lens`, the decoded value stored under it in column family
+    /// `cf_of(len)`, or `None`.
+    fn multi_get<T>(
+        &self,
+        items: &[&[WordId]],
+        lens: std::ops::Range<usize>,
+        cf_of: fn(usize) -> String,
+        decode: fn(&[u8]) -> Option<T>,
+        what: &str,
+    ) -> Result<Vec<Option<T>>> {
+        let mut out: Vec<Option<T>> = items.iter().map(|_| None).collect();
+        let mut by_len: Vec<Vec<usize>> = vec![Vec::new(); lens.end];
+        for (i, g) in items.iter().enumerate() {
+            if lens.contains(&g.len()) {
+                by_len[g.len()].push(i);
             }
         }
-        for (k, idx) in by_order.iter().enumerate().skip(1) {
+        for (k, idx) in by_len.iter().enumerate() {
             if idx.is_empty() {
                 continue;
             }
-            let cf = self.cf(&keys::ngram_cf(k))?;
+            let cf = self.cf(&cf_of(k))?;
             let keys: Vec<Vec<u8>> = idx
                 .iter()
                 .map(|&i| {
                     let mut kb = Vec::with_capacity(k * 8);
-                    Key::new(grams[i]).write_be(&mut kb);
+                    Key::new(items[i]).write_be(&mut kb);
                     kb
                 })
                 .collect();
             let got = self.db.batched_multi_get_cf(cf, &keys, false);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    out[i] =
-                        Some(keys::decode_ngram(&v).ok_or_else(|| {
-                            Error::corrupt(db_dir(&self.dir), "bad n-gram value")
-                        })?);
+                    let value = decode(&v)
+                        .ok_or_else(|| Error::corrupt(db_dir(&self.dir), format!("bad {what}")))?;
+                    out[i] = Some(value);
                 }
             }
         }
         Ok(out)
     }
 
+    /// Counts of many n-grams at once (RocksDB multi-get; all the same
+    /// order or not). `None` for n-grams not stored.
+    pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<NgramValue>>> {
+        self.multi_get(
+            grams,
+            1..self.order() + 1,
+            keys::ngram_cf,
+            keys::decode_ngram,
+            "n-gram value",
+        )
+    }
+
     /// Statistics of many contexts at once (RocksDB multi-get), in the
     /// order asked; as [`Store::context`] for each.
     pub fn contexts_many(&self, hs: &[&[WordId]]) -> Result<Vec<Option<ContextStats>>> {
-        let mut out = vec![None; hs.len()];
-        let mut by_len: Vec<Vec<usize>> = vec![Vec::new(); self.order()];
-        for (i, h) in hs.iter().enumerate() {
+        let mut out = self.multi_get(
+            hs,
+            1..self.order(),
+            keys::context_cf,
+            ContextStats::decode,
+            "context value",
+        )?;
+        for (o, h) in out.iter_mut().zip(hs) {
             if h.is_empty() {
-                out[i] = Some(self.meta.root);
-            } else if h.len() < self.order() {
-                by_len[h.len()].push(i);
-            }
-        }
-        for (k, idx) in by_len.iter().enumerate().skip(1) {
-            if idx.is_empty() {
-                continue;
-            }
-            let cf = self.cf(&keys::context_cf(k))?;
-            let keys: Vec<Vec<u8>> = idx
-                .iter()
-                .map(|&i| {
-                    let mut kb = Vec::with_capacity(k * 8);
-                    Key::new(hs[i]).write_be(&mut kb);
-                    kb
-                })
-                .collect();
-            let got = self.db.batched_multi_get_cf(cf, &keys, false);
-            for (&i, r) in idx.iter().zip(got) {
-                if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    out[i] =
-                        Some(ContextStats::decode(&v).ok_or_else(|| {
-                            Error::corrupt(db_dir(&self.dir), "bad context value")
-                        })?);
-                }
+                *o = Some(self.meta.root);
             }
         }
         Ok(out)
