@@ -280,35 +280,7 @@ impl Store {
         &'a self,
         h: &[WordId],
     ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a> {
-        let k = h.len() + 1;
-        let path = db_dir(&self.dir);
-        let mut prefix = Vec::with_capacity(h.len() * 8);
-        Key::new(h).write_be(&mut prefix);
-        let cf = if k <= self.order() {
-            Some(self.cf(&keys::ngram_cf(k))?)
-        } else {
-            None
-        };
-        let it = cf.map(|cf| {
-            self.db
-                .iterator_cf(cf, IteratorMode::From(&prefix, rocksdb::Direction::Forward))
-        });
-        let p2 = prefix.clone();
-        Ok(it
-            .into_iter()
-            .flatten()
-            .take_while(move |item| item.as_ref().map_or(true, |(kb, _)| kb.starts_with(&p2)))
-            .map(move |item| {
-                let (kb, vb) = item.map_err(|source| Error::Rocks {
-                    path: path.clone(),
-                    source,
-                })?;
-                let key =
-                    Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-                let (c, cont) = keys::decode_ngram(&vb)
-                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
-                Ok((key, c, cont))
-            }))
+        self.scan_prefix(h.len() + 1, h, None)
     }
 
     /// The word with id `id`, if it is in the vocabulary (markers included).
