@@ -57,6 +57,7 @@ pub mod query;
 pub mod shard;
 pub mod store;
 pub mod tokenize;
+pub mod varint;
 pub mod words;
 
 pub use error::{Error, Result};

@@ -70,13 +70,5 @@ fn header_bytes(value_width: u8, parts: u32) -> [u8; 16] {
     h
 }
 
-fn put_varint(out: &mut Vec<u8>, mut v: u64) {
-    while v >= 0x80 {
-        out.push((v as u8) | 0x80);
-        v >>= 7;
-    }
-    out.push(v as u8);
-}
-
 #[cfg(test)]
 mod tests;

@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 
 use xxhash_rust::xxh3::Xxh3;
 
-use super::{header_bytes, put_varint, Entry, END, ENTRY_LEN, ZSTD_LEVEL, ZSTD_WINDOW_LOG};
+use super::{header_bytes, Entry, END, ENTRY_LEN, ZSTD_LEVEL, ZSTD_WINDOW_LOG};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
 use crate::key::Key;
@@ -107,7 +107,7 @@ impl RunWriter {
             s.raw.extend_from_slice(&id.to_le_bytes());
         }
         for &v in &values[..self.width] {
-            put_varint(&mut s.raw, v);
+            crate::varint::put(&mut s.raw, v);
         }
         s.records += 1;
         s.prev = Some(*key);

@@ -110,27 +110,7 @@ impl ContextStats {
     }
 }
 
-/// Appends a LEB128 varint.
-pub fn put_varint(out: &mut Vec<u8>, mut v: u64) {
-    while v >= 0x80 {
-        out.push((v as u8) | 0x80);
-        v >>= 7;
-    }
-    out.push(v as u8);
-}
-
-/// Reads a LEB128 varint from the front of `b`.
-pub fn get_varint(b: &mut &[u8]) -> Option<u64> {
-    let mut v = 0u64;
-    for (i, &byte) in b.iter().enumerate().take(10) {
-        v |= ((byte & 0x7f) as u64) << (7 * i);
-        if byte < 0x80 {
-            *b = &b[i + 1..];
-            return Some(v);
-        }
-    }
-    None
-}
+use crate::varint::{get as get_varint, put as put_varint};
 
 /// Encodes an n-gram value: count, and continuation below the top order.
 pub fn encode_ngram(count: u64, continuation: Option<u64>, out: &mut Vec<u8>) {

@@ -195,20 +195,7 @@ impl Store {
         &self,
         k: usize,
     ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + '_> {
-        let path = db_dir(&self.dir);
-        let it = self
-            .db
-            .iterator_cf(self.cf(&keys::ngram_cf(k))?, IteratorMode::Start);
-        Ok(it.map(move |item| {
-            let (kb, vb) = item.map_err(|source| Error::Rocks {
-                path: path.clone(),
-                source,
-            })?;
-            let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-            let (c, cont) =
-                keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
-            Ok((key, c, cont))
-        }))
+        self.scan_prefix(k, &[], None)
     }
 
     /// Every context of length `k` (1 ≤ k < N) in key order.

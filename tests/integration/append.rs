@@ -4,15 +4,7 @@
 use crate::common::{assert_views_eq, gutenberg_files, ingest_args, ingest_ok, run, store_view};
 use crate::reference::{Reference, Settings};
 
-const FLAGS: &[&str] = &[
-    "--order",
-    "5",
-    "--memory",
-    "32MiB",
-    "--threads",
-    "2",
-    "--quiet",
-];
+use crate::common::SMALL_BUDGET as FLAGS;
 
 /// Source: quern's own one-shot ingest of A and B (checked against the
 /// reference in gutenberg.rs), and the reference counter over A and B.

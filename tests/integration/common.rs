@@ -9,6 +9,18 @@ use std::process::{Command, ExitStatus, Stdio};
 
 use serde_json::Value;
 
+/// Ingest flags of the resume and append tests: order 5 with a small
+/// budget, so that the runs spill many times.
+pub const SMALL_BUDGET: &[&str] = &[
+    "--order",
+    "5",
+    "--memory",
+    "32MiB",
+    "--threads",
+    "2",
+    "--quiet",
+];
+
 /// Path of the binary under test (provided by cargo for integration tests).
 pub fn bin() -> &'static str {
     env!("CARGO_BIN_EXE_quern")

@@ -19,16 +19,8 @@ fn small_input() -> Vec<PathBuf> {
     gutenberg_files(2)
 }
 
-/// Flags of every ingest in this module (small budget: many spills).
-const FLAGS: &[&str] = &[
-    "--order",
-    "5",
-    "--memory",
-    "32MiB",
-    "--threads",
-    "2",
-    "--quiet",
-];
+// Flags of every ingest in this module (small budget: many spills).
+use crate::common::SMALL_BUDGET as FLAGS;
 
 static BASELINE: OnceLock<StoreView> = OnceLock::new();
 
@@ -232,23 +224,18 @@ fn concurrent_ingest_is_refused() {
     let first_text = "one two three\nfour five\n";
     let second_text = "six seven\none two\n";
 
-    let mut first = command(
-        &[
-            "ingest",
-            "--store",
-            &store.display().to_string(),
-            "--order",
-            "3",
-            "--quiet",
-            "-",
-        ],
-        &[],
-    )
-    .stdin(Stdio::piped())
-    .stdout(Stdio::piped())
-    .stderr(Stdio::piped())
-    .spawn()
-    .expect("spawn first ingest");
+    let store_arg = store.display().to_string();
+    // The same command twice, so that a refusal of the second can only be
+    // about the store being in use, not about settings or inputs.
+    let args = [
+        "ingest", "--store", &store_arg, "--order", "3", "--quiet", "-",
+    ];
+    let mut first = command(&args, &[])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn first ingest");
     let mut stdin = first.stdin.take().unwrap();
     stdin.write_all(first_text.as_bytes()).unwrap();
     stdin.flush().unwrap();
@@ -275,22 +262,11 @@ fn concurrent_ingest_is_refused() {
 
     // The very same command (stdin empty), so that a refusal can only be
     // about the store being in use, not about different settings or inputs.
-    let mut second = command(
-        &[
-            "ingest",
-            "--store",
-            &store.display().to_string(),
-            "--order",
-            "3",
-            "--quiet",
-            "-",
-        ],
-        &[],
-    )
-    .stdout(Stdio::piped())
-    .stderr(Stdio::piped())
-    .spawn()
-    .expect("spawn second ingest");
+    let mut second = command(&args, &[])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn second ingest");
     let status = wait_timeout(&mut second, 60);
     let second_out = second.wait_with_output().unwrap();
     let second_err = String::from_utf8_lossy(&second_out.stderr).into_owned();

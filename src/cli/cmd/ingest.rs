@@ -28,9 +28,7 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     let s = result.with_context(|| format!("ingest into {} stopped", a.store.display()))?;
     let mut out = std::io::stdout().lock();
     if a.json {
-        serde_json::to_writer_pretty(&mut out, &s)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &s);
     }
     let t = &s.totals;
     let verb = match (s.resumed, s.appended) {

@@ -38,3 +38,10 @@ pub fn bytes(n: u64) -> String {
         format!("{v:.1} {}", units[u])
     }
 }
+
+/// Writes `v` as pretty JSON followed by a newline.
+pub fn print_json(out: &mut impl std::io::Write, v: &impl serde::Serialize) -> anyhow::Result<()> {
+    serde_json::to_writer_pretty(&mut *out, v)?;
+    writeln!(out)?;
+    Ok(())
+}

@@ -35,9 +35,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
             "words_scored": next.scored,
             "seconds": secs,
         });
-        serde_json::to_writer_pretty(&mut out, &v)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &v);
     }
     writeln!(
         out,

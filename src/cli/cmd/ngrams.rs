@@ -65,9 +65,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
             items.push(v);
         }
         let v = json!({"order": order, "ngrams": items, "next": next});
-        serde_json::to_writer_pretty(&mut out, &v)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &v);
     }
     for (i, (k, c, cont)) in page.items.iter().enumerate() {
         let cont = cont.map_or("-".to_string(), |x| x.to_string());

@@ -86,8 +86,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         if a.per_line {
             writeln!(out, "{}", json!({"total": v}))?;
         } else {
-            serde_json::to_writer_pretty(&mut out, &v)?;
-            writeln!(out)?;
+            super::print_json(&mut out, &v)?;
         }
         return Ok(());
     }

@@ -40,9 +40,7 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
             },
             "orders": orders,
         });
-        serde_json::to_writer_pretty(&mut out, &v)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &v);
     }
     let t = &m.totals;
     writeln!(

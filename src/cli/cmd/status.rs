@@ -11,9 +11,7 @@ pub fn run(a: StatusArgs) -> anyhow::Result<()> {
     let s = status(&a.store)?;
     let mut out = std::io::stdout().lock();
     if a.json {
-        serde_json::to_writer_pretty(&mut out, &s)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &s);
     }
     writeln!(out, "{}: {}", s.store.display(), s.state)?;
     if let Some(i) = &s.ingest {

@@ -46,9 +46,7 @@ pub fn run(a: TuneArgs) -> anyhow::Result<()> {
             "written": a.out.display().to_string(),
             "seconds": secs,
         });
-        serde_json::to_writer_pretty(&mut out, &v)?;
-        writeln!(out)?;
-        return Ok(());
+        return super::print_json(&mut out, &v);
     }
     writeln!(
         out,
