@@ -90,6 +90,7 @@ pub enum Error {
     #[error("invalid setting: {0}")]
     Config(String),
     /// RocksDB reported an error.
+    #[cfg(feature = "store")]
     #[error("{path}: key-value store: {source}")]
     Rocks {
         /// The store directory.

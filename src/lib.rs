@@ -45,16 +45,21 @@
 #![deny(unsafe_code)]
 
 pub mod corpus;
+#[cfg(feature = "store")]
 pub mod count;
 pub mod error;
 pub mod fault;
 pub mod fsutil;
+#[cfg(feature = "store")]
 pub mod ingest;
 pub mod key;
 pub mod memory;
+#[cfg(feature = "store")]
 pub mod merge;
+#[cfg(feature = "store")]
 pub mod query;
 pub mod shard;
+#[cfg(feature = "store")]
 pub mod store;
 pub mod tokenize;
 pub mod varint;

@@ -17,6 +17,10 @@ mod gutenberg;
 // refusal to re-ingest a finished store, refusal of a concurrent ingest.
 mod resume;
 
+// Random SIGKILLs of fresh and appending ingests, resumed: same store as an
+// uninterrupted run, no leftovers (QUERN_SOAK_TRIALS, QUERN_SOAK_SEED).
+mod soak;
+
 // `--append` equals ingesting everything at once; append with another order
 // is refused.
 mod append;
