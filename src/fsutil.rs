@@ -23,14 +23,18 @@ pub fn rename_durable(from: &Path, to: &Path) -> Result<()> {
     sync_dir(to.parent().unwrap_or(Path::new(".")))
 }
 
+/// Writes `bytes` to a new file at `path` and fsyncs it.
+pub fn write_synced(path: &Path, bytes: &[u8]) -> Result<()> {
+    use std::io::Write;
+    let mut f = File::create(path).at(path, "create")?;
+    f.write_all(bytes).at(path, "write")?;
+    f.sync_all().at(path, "fsync")
+}
+
 /// Writes `bytes` to `path` atomically: temporary file, fsync, rename.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    use std::io::Write;
     let tmp = tmp_name(path);
-    let mut f = File::create(&tmp).at(&tmp, "create")?;
-    f.write_all(bytes).at(&tmp, "write")?;
-    f.sync_all().at(&tmp, "fsync")?;
-    drop(f);
+    write_synced(&tmp, bytes)?;
     rename_durable(&tmp, path)
 }
 

@@ -191,46 +191,102 @@ impl Manifest {
         work.join("manifest.json")
     }
 
-    /// Reads and verifies the manifest in `work`, if there is one.
+    /// The previous manifest, kept beside the current one.
+    pub fn prev_path(work: &Path) -> PathBuf {
+        work.join("manifest.prev.json")
+    }
+
+    /// Reads and verifies the manifest in `work`, if there is one, falling
+    /// back to the previous one as [`Manifest::load_noted`] does.
     pub fn load(work: &Path) -> Result<Option<Manifest>> {
+        Ok(Self::load_noted(work)?.map(|(m, _)| m))
+    }
+
+    /// Reads and verifies the manifest in `work`. If it is missing (a crash
+    /// between the two renames of [`Manifest::save`]) or damaged (truncated,
+    /// zeroed, a flipped byte), the previous manifest is used instead and a
+    /// note says so: it describes an earlier durable state, and whatever was
+    /// recorded after it is redone. Both damaged: the current one's error.
+    pub fn load_noted(work: &Path) -> Result<Option<(Manifest, Option<String>)>> {
         let path = Self::path(work);
-        let text = match std::fs::read_to_string(&path) {
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-            r => r.at(&path, "read")?,
+        let prev = Self::prev_path(work);
+        let current = match Self::load_file(&path) {
+            Ok(None) => None,
+            Ok(Some(m)) => return Ok(Some((m, None))),
+            Err(e @ Error::Corrupt { .. }) => Some(e),
+            Err(e) => return Err(e),
         };
+        match (current, Self::load_file(&prev)) {
+            (None, Ok(None)) => Ok(None),
+            (None, Ok(Some(m))) => Ok(Some((
+                m,
+                Some(format!(
+                    "{} was missing; resumed from {}",
+                    path.display(),
+                    prev.display()
+                )),
+            ))),
+            (Some(e), Ok(Some(m))) => Ok(Some((
+                m,
+                Some(format!(
+                    "{e}; resumed from the previous manifest {}, and work recorded after it was redone",
+                    prev.display()
+                )),
+            ))),
+            (Some(e), _) => Err(e),
+            (None, Err(e)) => Err(e),
+        }
+    }
+
+    /// Reads and verifies one manifest file.
+    fn load_file(path: &Path) -> Result<Option<Manifest>> {
+        let text = match std::fs::read(path) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+            r => r.at(path, "read")?,
+        };
+        let text = String::from_utf8(text).map_err(|_| Error::corrupt(path, "not UTF-8"))?;
         let (body, sum) = text
             .rsplit_once("\n#xxh3=")
-            .ok_or_else(|| Error::corrupt(&path, "no checksum line (truncated?)"))?;
+            .ok_or_else(|| Error::corrupt(path, "no checksum line (truncated?)"))?;
         let want = format!("{:016x}", xxhash_rust::xxh3::xxh3_64(body.as_bytes()));
         if sum.trim_end() != want {
-            return Err(Error::corrupt(&path, "checksum mismatch"));
+            return Err(Error::corrupt(path, "checksum mismatch"));
         }
         #[derive(Deserialize)]
         struct Probe {
             format_version: u32,
         }
         let probe: Probe =
-            serde_json::from_str(body).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+            serde_json::from_str(body).map_err(|e| Error::corrupt(path, e.to_string()))?;
         if probe.format_version != MANIFEST_VERSION {
             return Err(Error::Version {
-                path,
+                path: path.to_path_buf(),
                 found: probe.format_version,
                 expected: MANIFEST_VERSION,
             });
         }
         serde_json::from_str(body)
             .map(Some)
-            .map_err(|e| Error::corrupt(&path, e.to_string()))
+            .map_err(|e| Error::corrupt(path, e.to_string()))
     }
 
-    /// Writes the manifest atomically and durably.
+    /// Writes the manifest atomically and durably, keeping the one it
+    /// replaces as the previous manifest: temporary file and fsync, then
+    /// current → previous, temporary → current, fsync of the folder.
     pub fn save(&self, work: &Path) -> Result<()> {
         let body = serde_json::to_string_pretty(self).expect("manifest serialises");
         let text = format!(
             "{body}\n#xxh3={:016x}\n",
             xxhash_rust::xxh3::xxh3_64(body.as_bytes())
         );
-        fsutil::write_atomic(&Self::path(work), text.as_bytes())
+        let path = Self::path(work);
+        let tmp = fsutil::tmp_name(&path);
+        fsutil::write_synced(&tmp, text.as_bytes())?;
+        match std::fs::rename(&path, Self::prev_path(work)) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
+            r => r.at(&path, "rename")?,
+        }
+        fsutil::rename_durable(&tmp, &path)
     }
 
     /// Sums the reader totals of the base and every run set.
@@ -346,5 +402,68 @@ mod tests {
             Manifest::load(dir.path()),
             Err(Error::Corrupt { .. })
         ));
+    }
+
+    /// A torn or damaged current manifest falls back to the previous one;
+    /// both damaged is an error naming the current file.
+    #[test]
+    fn damaged_manifest_falls_back_to_the_previous() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut m1 = Manifest {
+            format_version: MANIFEST_VERSION,
+            settings: Settings {
+                order: 2,
+                lowercase: false,
+                max_line_bytes: 10,
+            },
+            mode: Mode::Fresh,
+            inputs: vec![],
+            chunks: vec![],
+            partitions: 1,
+            phase: Phase::Counting,
+            next_id: 0,
+            base: None,
+            runsets: vec![],
+            merged: vec![None],
+            joined: vec![None],
+            started: 0,
+        };
+        m1.save(dir.path()).unwrap();
+        let m2 = Manifest {
+            phase: Phase::Merging,
+            next_id: 7,
+            ..m1.clone()
+        };
+        m2.save(dir.path()).unwrap();
+        let cur = Manifest::path(dir.path());
+        let good = std::fs::read(&cur).unwrap();
+        let damages: Vec<(&str, Vec<u8>)> = vec![
+            ("truncated", good[..good.len() / 2].to_vec()),
+            ("zero-length", vec![]),
+            ("flipped byte", {
+                let mut b = good.clone();
+                b[good.len() / 3] ^= 0x20;
+                b
+            }),
+        ];
+        for (what, bytes) in damages {
+            std::fs::write(&cur, &bytes).unwrap();
+            let (m, note) = Manifest::load_noted(dir.path()).unwrap().unwrap();
+            assert_eq!(m, m1, "{what}: not the previous manifest");
+            assert!(note.unwrap().contains("manifest.json"), "{what}");
+        }
+        std::fs::remove_file(&cur).unwrap();
+        let (m, note) = Manifest::load_noted(dir.path()).unwrap().unwrap();
+        assert_eq!(m, m1);
+        assert!(note.is_some());
+        std::fs::write(&cur, b"{").unwrap();
+        std::fs::write(Manifest::prev_path(dir.path()), b"").unwrap();
+        match Manifest::load_noted(dir.path()) {
+            Err(Error::Corrupt { path, .. }) => assert_eq!(path, cur),
+            other => panic!("both damaged: {other:?}"),
+        }
+        m1.next_id = 3;
+        m1.save(dir.path()).unwrap();
+        assert_eq!(Manifest::load(dir.path()).unwrap(), Some(m1));
     }
 }

@@ -210,7 +210,7 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
         fsutil::remove_dir(&dirs.work)?;
         fsutil::remove_dir(&opts.store.join("db.new"))?;
     }
-    let loaded = Manifest::load(&dirs.work).map_err(|e| match e {
+    let loaded = Manifest::load_noted(&dirs.work).map_err(|e| match e {
         Error::Corrupt { path, detail } => Error::Corrupt {
             path,
             detail: format!(
@@ -220,8 +220,10 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
         e => e,
     })?;
     let inputs = corpus::discover(&opts.inputs)?;
+    let mut repaired = Vec::new();
     let (mut m, resumed) = match loaded {
-        Some(m) => {
+        Some((m, note)) => {
+            repaired.extend(note);
             check_resume(&m, &settings, &inputs, opts)?;
             (m, true)
         }
@@ -256,7 +258,6 @@ pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSum
         temp_bytes: 0,
         phase_seconds: BTreeMap::new(),
     };
-    let mut repaired = Vec::new();
     if resumed {
         repaired.extend(drop_damaged(&mut m, &dirs)?);
     }
@@ -490,7 +491,33 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
 /// error naming the file.
 fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
     let run_ok = |dir: &Path, name: &str| RunFile::open(&dir.join(name)).is_ok();
-    let dict_ok = |name: &str| DictReader::open(&d.runs.join(name)).is_ok();
+    // Merged files are read whole (every section to its checksum): after
+    // the merge the count runs are deleted, so damage found later could not
+    // be redone.
+    let run_intact = |dir: &Path, name: &str| {
+        RunFile::open(&dir.join(name)).is_ok_and(|f| {
+            (0..f.partitions()).all(|p| {
+                f.section(p).is_ok_and(|mut s| loop {
+                    match s.next_record() {
+                        Ok(Some(_)) => {}
+                        Ok(None) => break true,
+                        Err(_) => break false,
+                    }
+                })
+            })
+        })
+    };
+    // Dictionaries are small: read them whole, since they are next read
+    // when the store is built, after the runs that could redo them are gone.
+    let dict_ok = |name: &str| {
+        DictReader::open(&d.runs.join(name)).is_ok_and(|mut r| loop {
+            match r.next_entry() {
+                Ok(Some(_)) => {}
+                Ok(None) => break true,
+                Err(_) => break false,
+            }
+        })
+    };
     let before = m.clone();
     let mut notes = Vec::new();
     if matches!(m.phase, Phase::Counting | Phase::Merging) {
@@ -519,8 +546,8 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
         for x in m.merged.iter_mut() {
             if let Some(mm) = x {
                 let mm_name = mm.counts.clone();
-                let ok = run_ok(&d.merged, &mm.counts)
-                    && mm.suffix_runs.iter().all(|f| run_ok(&d.merged, f));
+                let ok = run_intact(&d.merged, &mm.counts)
+                    && mm.suffix_runs.iter().all(|f| run_intact(&d.merged, f));
                 if !ok {
                     *x = None;
                     notes.push(format!(
@@ -531,16 +558,14 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
             }
         }
     }
-    if m.phase == Phase::Joining {
-        for x in m.merged.iter().flatten() {
-            for f in std::iter::once(&x.counts).chain(&x.suffix_runs) {
-                RunFile::open(&d.merged.join(f)).map_err(|e| match e {
-                    Error::Corrupt { path, detail } => Error::Corrupt {
-                        path,
-                        detail: format!("{detail}; the runs it was merged from are gone, so run the same command with --restart"),
-                    },
-                    e => e,
-                })?;
+    if matches!(m.phase, Phase::Joining | Phase::Building) {
+        let dicts = m.base.iter().map(|b| &b.dict);
+        for name in dicts.chain(m.runsets.iter().map(|r| &r.dict)) {
+            if !dict_ok(name) {
+                return Err(Error::corrupt(
+                    d.runs.join(name),
+                    "a word dictionary is damaged and the counts it came with are merged and gone; run the same command with --restart",
+                ));
             }
         }
     }
@@ -567,6 +592,18 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
             }
         }
         _ => {}
+    }
+    if m.phase == Phase::Joining && m.joined.iter().any(Option::is_none) {
+        for x in m.merged.iter().flatten() {
+            for f in std::iter::once(&x.counts).chain(&x.suffix_runs) {
+                if !run_intact(&d.merged, f) {
+                    return Err(Error::corrupt(
+                        d.merged.join(f),
+                        "a merged partition is missing or damaged and the runs it was merged from are gone; run the same command with --restart",
+                    ));
+                }
+            }
+        }
     }
     if *m != before {
         m.save(&d.work)?;
@@ -819,6 +856,10 @@ impl Run<'_> {
             return Ok(());
         }
         self.timed(Phase::Joining, |run| {
+            if m.joined.iter().all(Option::is_some) {
+                m.phase = Phase::Building;
+                return m.save(&run.dirs.work);
+            }
             let merged: Vec<_> = m
                 .merged
                 .iter()

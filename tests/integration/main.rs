@@ -21,6 +21,10 @@ mod resume;
 // uninterrupted run, no leftovers (QUERN_SOAK_TRIALS, QUERN_SOAK_SEED).
 mod soak;
 
+// Truncated, zeroed and bit-flipped run, dictionary, manifest and merged
+// files: detected at resume or merge, redone or named in the error.
+mod damage;
+
 // `--append` equals ingesting everything at once; append with another order
 // is refused.
 mod append;

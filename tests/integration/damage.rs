@@ -1,0 +1,164 @@
+//! Torn or damaged work files (as after a power loss or a bad disk): a run
+//! file, a dictionary file, the manifest and a merged partition are
+//! truncated, zeroed or get a flipped byte while an ingest is interrupted.
+//! The resume must detect it by checksum, redo the affected work and end
+//! with the uninterrupted run's store, or stop with an error that names the
+//! file; damaged bytes are never read as counts.
+
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+use crate::common::{
+    assert_views_eq, gutenberg_dir, ingest_args, ingest_ok, run, run_env, store_view, StoreView,
+};
+
+const FLAGS: &[&str] = &[
+    "--order",
+    "5",
+    "--memory",
+    "16MiB",
+    "--threads",
+    "2",
+    "--quiet",
+];
+
+fn input() -> Vec<PathBuf> {
+    vec![gutenberg_dir().join("persuasion.txt")]
+}
+
+/// Source: quern's uninterrupted run (checked against the reference counter
+/// in gutenberg.rs).
+fn baseline() -> &'static StoreView {
+    static B: OnceLock<StoreView> = OnceLock::new();
+    B.get_or_init(|| {
+        let tmp = tempfile::tempdir().unwrap();
+        let store = tmp.path().join("store");
+        ingest_ok(&store, FLAGS, &input());
+        store_view(&store)
+    })
+}
+
+#[derive(Clone, Copy, Debug)]
+enum Damage {
+    Truncate,
+    Zero,
+    Flip,
+}
+
+const DAMAGES: [Damage; 3] = [Damage::Truncate, Damage::Zero, Damage::Flip];
+
+fn damage(path: &Path, how: Damage) {
+    let mut b = std::fs::read(path).unwrap();
+    assert!(b.len() > 16, "{} is too small to damage", path.display());
+    match how {
+        Damage::Truncate => b.truncate(b.len() * 2 / 3),
+        Damage::Zero => b.clear(),
+        // A byte in the middle: inside compressed data, not the header.
+        Damage::Flip => {
+            let i = b.len() / 2;
+            b[i] ^= 0x41;
+        }
+    }
+    std::fs::write(path, b).unwrap();
+}
+
+/// Kills an ingest at `point`, then returns the first file (sorted) of
+/// `work/<sub>` whose name ends in `suffix`.
+fn interrupted(store: &Path, point: &str, sub: &str, suffix: &str) -> PathBuf {
+    let r = run_env(
+        &ingest_args(store, FLAGS, &input()),
+        &[("QUERN_KILL_AT", point)],
+    );
+    assert!(
+        !r.status.success(),
+        "QUERN_KILL_AT={point} was never reached\n{}",
+        r.describe()
+    );
+    let dir = store.join("work").join(sub);
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.to_string_lossy().ends_with(suffix))
+        .collect();
+    files.sort();
+    files
+        .into_iter()
+        .next()
+        .unwrap_or_else(|| panic!("no *{suffix} in {} after {point}", dir.display()))
+}
+
+/// Resumes with `--json`, expects success, the baseline store, and a repair
+/// note in the summary.
+fn resume_repairs(what: &str, store: &Path) {
+    let mut flags = FLAGS.to_vec();
+    flags.push("--json");
+    let r = run(&ingest_args(store, &flags, &input()));
+    r.assert_success();
+    let summary: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
+    let repaired = summary["repaired"].as_array().cloned().unwrap_or_default();
+    assert!(
+        !repaired.is_empty(),
+        "{what}: the resume did not report a repair\n{}",
+        r.describe()
+    );
+    assert_views_eq(what, baseline(), &store_view(store));
+}
+
+fn repaired_after(point: &str, sub: &str, suffix: &str) {
+    for how in DAMAGES {
+        let tmp = tempfile::tempdir().unwrap();
+        let store = tmp.path().join("store");
+        let f = interrupted(&store, point, sub, suffix);
+        damage(&f, how);
+        resume_repairs(&format!("{how:?} {} after {point}", f.display()), &store);
+    }
+}
+
+#[test]
+fn damaged_count_run_is_counted_again() {
+    repaired_after("committed:3", "runs", ".run");
+}
+
+#[test]
+fn damaged_dictionary_is_counted_again() {
+    repaired_after("committed:3", "runs", ".dict");
+}
+
+#[test]
+fn damaged_manifest_falls_back_to_the_previous_one() {
+    repaired_after("committed:3", "", "manifest.json");
+}
+
+#[test]
+fn damaged_merged_partition_is_merged_again() {
+    repaired_after("merge:3", "merged", ".run");
+}
+
+/// Once the count runs are deleted (joining), a damaged merged partition
+/// cannot be redone from them: the resume must stop with an error naming
+/// the file and pointing to --restart, and --restart must then succeed.
+#[test]
+fn damaged_merge_after_runs_are_gone_names_the_file() {
+    for how in DAMAGES {
+        let tmp = tempfile::tempdir().unwrap();
+        let store = tmp.path().join("store");
+        let f = interrupted(&store, "join:1", "merged", ".run");
+        damage(&f, how);
+        let r = run(&ingest_args(&store, FLAGS, &input()));
+        r.assert_failure();
+        let name = f.file_name().unwrap().to_string_lossy().into_owned();
+        assert!(
+            r.stderr.contains(&name) && r.stderr.contains("--restart"),
+            "{how:?}: the error does not name {name} and --restart\n{}",
+            r.describe()
+        );
+        let mut flags = FLAGS.to_vec();
+        flags.push("--restart");
+        run(&ingest_args(&store, &flags, &input())).assert_success();
+        assert_views_eq(
+            &format!("{how:?} merged file, then --restart"),
+            baseline(),
+            &store_view(&store),
+        );
+    }
+}
