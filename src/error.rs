@@ -86,6 +86,23 @@ pub enum Error {
         /// The lock file.
         lock: PathBuf,
     },
+    /// The file system ran out of space while an ingest wrote to it.
+    #[error(
+        "no space left on the file system of {} ({detail}): {} free there, the unfinished ingest holds {}, and it needs roughly {} more at its peak (a rough estimate); everything recorded so far is kept: free space there and run the same command again to resume",
+        dir.display(), human_bytes(*free), human_bytes(*used), human_bytes(*needed)
+    )]
+    DiskFull {
+        /// The store directory (its file system is the one that is full).
+        dir: PathBuf,
+        /// The failed operation.
+        detail: String,
+        /// Bytes available to unprivileged users there now.
+        free: u64,
+        /// Bytes the unfinished ingest's work folder holds.
+        used: u64,
+        /// Estimated further bytes the ingest needs at its peak.
+        needed: u64,
+    },
     /// A setting is out of range.
     #[error("invalid setting: {0}")]
     Config(String),
@@ -100,7 +117,40 @@ pub enum Error {
     },
 }
 
+/// `1536` → `1.5 KiB`.
+pub fn human_bytes(b: u64) -> String {
+    const UNITS: [&str; 6] = ["B", "KiB", "MiB", "GiB", "TiB", "PiB"];
+    let mut v = b as f64;
+    let mut u = 0;
+    while v >= 1024.0 && u + 1 < UNITS.len() {
+        v /= 1024.0;
+        u += 1;
+    }
+    if u == 0 {
+        format!("{b} B")
+    } else {
+        format!("{v:.1} {}", UNITS[u])
+    }
+}
+
 impl Error {
+    /// True for an out-of-space error of the file system (ENOSPC, EDQUOT),
+    /// including one RocksDB reports.
+    pub fn is_out_of_space(&self) -> bool {
+        match self {
+            Error::Io { source, .. } => matches!(
+                source.raw_os_error(),
+                Some(libc::ENOSPC) | Some(libc::EDQUOT)
+            ),
+            #[cfg(feature = "store")]
+            Error::Rocks { source, .. } => {
+                let m = source.to_string();
+                m.contains("No space left") || m.contains("ENOSPC")
+            }
+            _ => false,
+        }
+    }
+
     /// Wraps an I/O error with the path and the operation.
     pub fn io(path: impl Into<PathBuf>, op: &'static str, source: std::io::Error) -> Self {
         Error::Io {

@@ -50,3 +50,24 @@ pub fn remove_dir(dir: &Path) -> Result<()> {
         r => r.at(dir, "remove directory"),
     }
 }
+
+/// Bytes available to unprivileged users on the file system holding
+/// `path` (statvfs), or `None` if it cannot be asked.
+pub fn free_space(path: &Path) -> Option<u64> {
+    use std::os::unix::ffi::OsStrExt;
+    let c = std::ffi::CString::new(path.as_os_str().as_bytes()).ok()?;
+    statvfs_avail(&c)
+}
+
+#[allow(unsafe_code)]
+fn statvfs_avail(path: &std::ffi::CStr) -> Option<u64> {
+    // SAFETY: `path` is a valid NUL-terminated string and `st` a zeroed
+    // out-parameter that statvfs fills; nothing is kept past the call.
+    unsafe {
+        let mut st: libc::statvfs = std::mem::zeroed();
+        if libc::statvfs(path.as_ptr(), &mut st) != 0 {
+            return None;
+        }
+        Some(st.f_bavail as u64 * st.f_frsize as u64)
+    }
+}

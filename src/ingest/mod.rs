@@ -11,6 +11,7 @@
 //! joining ([`crate::merge`]), building ([`crate::store::build`]).
 
 pub mod manifest;
+mod space;
 mod status;
 
 pub use manifest::{Manifest, Phase};
@@ -185,6 +186,16 @@ fn now_secs() -> u64 {
 
 /// Runs (or resumes) an ingest.
 pub fn ingest(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSummary> {
+    ingest_inner(opts, progress).map_err(|e| {
+        if e.is_out_of_space() {
+            space::disk_full(&opts.store, e)
+        } else {
+            e
+        }
+    })
+}
+
+fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestSummary> {
     let t0 = Instant::now();
     if opts.order == 0 || opts.order > MAX_ORDER {
         return Err(Error::Config(format!(
@@ -929,6 +940,7 @@ impl Run<'_> {
                 }
                 let store = &run.dirs.store;
                 let db_new = store.join("db.new");
+                crate::fault::full("build").at(&db_new, "create")?;
                 build::create_db(
                     &db_new,
                     m.settings.order,

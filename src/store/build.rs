@@ -54,6 +54,7 @@ impl<'a> SstSet<'a> {
         if !self.open.contains_key(cf) {
             let name = format!("{}-{cf}.sst", self.prefix);
             let path = self.dir.join(&name);
+            crate::fault::full("sst").at(&path, "create")?;
             let w = SstFileWriter::create(self.opts);
             w.open(&path).map_err(rocks(&path))?;
             self.open.insert(cf.to_string(), (w, name));

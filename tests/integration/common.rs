@@ -131,6 +131,7 @@ pub fn command<S: AsRef<OsStr>>(args: &[S], env: &[(&str, &str)]) -> Command {
     let mut cmd = Command::new(bin());
     cmd.args(args);
     cmd.env_remove("QUERN_KILL_AT");
+    cmd.env_remove("QUERN_FULL_AT");
     for (k, v) in env {
         cmd.env(k, v);
     }

@@ -25,6 +25,9 @@ mod soak;
 // files: detected at resume or merge, redone or named in the error.
 mod damage;
 
+// Disk full on a small tmpfs (or injected): a clear error, then resume.
+mod disk_full;
+
 // `--append` equals ingesting everything at once; append with another order
 // is refused.
 mod append;
