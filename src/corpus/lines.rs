@@ -105,6 +105,38 @@ impl LineReader {
     }
 }
 
+/// A checksum of what a [`LineReader`] returned over a range: each line's
+/// kind, its text and the position after it. Recorded with every counted
+/// range and recomputed on resume, it detects any change of the input that
+/// could change the counts of that range (the text of a line too long to be
+/// counted is not part of it: only its length is).
+#[derive(Clone, Default)]
+pub struct CoverDigest(xxhash_rust::xxh3::Xxh3);
+
+impl CoverDigest {
+    /// Adds one result of [`LineReader::next_line`].
+    pub fn add(&mut self, kind: Line, line: &[u8], position: u64) {
+        let tag: u8 = match kind {
+            Line::Text => 1,
+            Line::TooLong => 2,
+            Line::End => return,
+        };
+        self.0.update(&[tag]);
+        if kind == Line::Text {
+            self.0.update(&(line.len() as u64).to_le_bytes());
+            self.0.update(line);
+        }
+        self.0.update(&position.to_le_bytes());
+    }
+
+    /// The checksum so far; starts a new range.
+    pub fn take(&mut self) -> u64 {
+        let d = self.0.digest();
+        self.0.reset();
+        d
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -9,7 +9,7 @@
 
 mod lines;
 
-pub use lines::{Line, LineReader};
+pub use lines::{CoverDigest, Line, LineReader};
 
 use std::fs::File;
 use std::io::{BufRead, BufReader, Read, Seek, SeekFrom};
@@ -235,4 +235,19 @@ pub fn open_at(f: &InputFile, start: u64) -> Result<Box<dyn BufRead + Send>> {
         });
     }
     Ok(r)
+}
+
+/// The [`CoverDigest`] of `[start, end)` of input `f`, read as an ingest
+/// reads it.
+pub fn digest_range(f: &InputFile, start: u64, end: u64, max_line: usize) -> Result<u64> {
+    let mut lines = LineReader::new(open_at(f, start)?, f.path.clone(), start, end, max_line);
+    let mut d = CoverDigest::default();
+    let mut line = Vec::new();
+    loop {
+        let kind = lines.next_line(&mut line)?;
+        if kind == Line::End {
+            return Ok(d.take());
+        }
+        d.add(kind, &line, lines.position());
+    }
 }

@@ -5,7 +5,7 @@ use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Mutex;
 
 use super::Table;
-use crate::corpus::{open_at, InputFile, Line, LineReader};
+use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
 use crate::error::{Error, Result};
 use crate::ingest::manifest::{ReadTotals, Span};
 use crate::key::partition_of;
@@ -47,6 +47,8 @@ pub struct Spill {
     pub dict: String,
     /// Input ranges covered.
     pub covers: Vec<Span>,
+    /// The [`CoverDigest`] of each range.
+    pub hashes: Vec<u64>,
     /// What was read in them.
     pub totals: ReadTotals,
     /// Bytes written.
@@ -100,6 +102,7 @@ struct Worker<'a> {
     dict: Dictionary,
     dict_limit: usize,
     covers: Vec<Span>,
+    hashes: Vec<u64>,
     totals: ReadTotals,
     pending: Vec<(String, u64)>,
 }
@@ -113,6 +116,7 @@ impl<'a> Worker<'a> {
             dict: Dictionary::new(),
             dict_limit: cfg.worker_bytes - table_bytes,
             covers: Vec::new(),
+            hashes: Vec::new(),
             totals: ReadTotals::default(),
             pending: Vec::new(),
         }
@@ -156,6 +160,7 @@ impl<'a> Worker<'a> {
         let mut line = Vec::new();
         let mut ids = Vec::new();
         let mut from = span.start;
+        let mut digest = CoverDigest::default();
         let n = self.cfg.order;
         loop {
             let before = lines.position();
@@ -198,10 +203,11 @@ impl<'a> Worker<'a> {
                         start: from,
                         end: before,
                     });
+                    self.hashes.push(digest.take());
                     return Err(e);
                 }
                 Ok(Line::End) => break,
-                Ok(_) => {}
+                Ok(kind) => digest.add(kind, &line, lines.position()),
             }
             if self.table.is_full() || self.dict.heap_bytes() > self.dict_limit {
                 let end = lines.position();
@@ -210,6 +216,7 @@ impl<'a> Worker<'a> {
                     start: from,
                     end,
                 });
+                self.hashes.push(digest.take());
                 self.spill(commit)?;
                 from = end;
             }
@@ -219,6 +226,7 @@ impl<'a> Worker<'a> {
             start: from,
             end: span.end,
         });
+        self.hashes.push(digest.take());
         Ok(())
     }
 
@@ -251,6 +259,7 @@ impl<'a> Worker<'a> {
             runs: pending.iter().map(|p| p.0.clone()).collect(),
             dict,
             covers: std::mem::take(&mut self.covers),
+            hashes: std::mem::take(&mut self.hashes),
             totals: std::mem::take(&mut self.totals),
             bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes,
         };

@@ -96,6 +96,10 @@ pub struct RunSet {
     pub dict: String,
     /// Input ranges whose counts the runs hold.
     pub covers: Vec<Span>,
+    /// The line checksum of each cover, recomputed on resume (empty in
+    /// manifests written before checksums were kept).
+    #[serde(default)]
+    pub hashes: Vec<u64>,
     /// What the readers saw in those ranges.
     pub totals: ReadTotals,
 }
@@ -384,6 +388,7 @@ mod tests {
             runs: vec![],
             dict: String::new(),
             covers: vec![span(0, 0, 40), span(0, 100, 150), span(1, 0, u64::MAX)],
+            hashes: vec![],
             totals: ReadTotals::default(),
         });
         assert_eq!(

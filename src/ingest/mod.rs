@@ -13,6 +13,7 @@
 pub mod manifest;
 mod space;
 mod status;
+mod verify;
 
 pub use manifest::{Manifest, Phase};
 pub use status::{status, IngestStatus};
@@ -233,9 +234,14 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     let inputs = corpus::discover(&opts.inputs)?;
     let mut repaired = Vec::new();
     let (mut m, resumed) = match loaded {
-        Some((m, note)) => {
+        Some((mut m, note)) => {
             repaired.extend(note);
             check_resume(&m, &settings, &inputs, opts)?;
+            let notes = verify::verify_inputs(&mut m, &inputs, threads)?;
+            if !notes.is_empty() {
+                m.save(&dirs.work)?;
+                repaired.extend(notes);
+            }
             (m, true)
         }
         None => {
@@ -377,15 +383,6 @@ fn check_resume(
                     a.path.display()
                 ),
             ));
-        }
-        if a.size != b.size || a.mtime_ns != b.mtime_ns {
-            return Err(Error::Input {
-                path: b.path.clone(),
-                detail: format!(
-                    "this input changed since the unfinished ingest read it (size {} → {}, modification time changed: {}); counts would mix two versions, so add --restart",
-                    a.size, b.size, a.mtime_ns != b.mtime_ns
-                ),
-            });
         }
     }
     Ok(())
@@ -736,6 +733,7 @@ impl Run<'_> {
                     runs: s.runs,
                     dict: s.dict,
                     covers: s.covers,
+                    hashes: s.hashes,
                     totals: s.totals,
                 });
                 g.0.next_id = next_id.load(Ordering::SeqCst);

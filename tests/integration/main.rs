@@ -28,6 +28,11 @@ mod damage;
 // Disk full on a small tmpfs (or injected): a clear error, then resume.
 mod disk_full;
 
+// Bad input among good input (binary, empty, blank, NUL, CR, invalid UTF-8,
+// markers, a 200 MiB line, truncated .gz/.zst then fixed, a changed input,
+// an unreadable file, a link loop): documented outcome, good input exact.
+mod bad_input;
+
 // `--append` equals ingesting everything at once; append with another order
 // is refused.
 mod append;
