@@ -162,3 +162,42 @@ fn damaged_merge_after_runs_are_gone_names_the_file() {
         );
     }
 }
+
+/// A store whose metadata says another format version: opening it is a
+/// clear error naming the store and both versions (the metadata record is
+/// rewritten here with the rocksdb crate, as a future version would).
+#[test]
+fn store_of_another_format_version_is_refused_on_open() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("store");
+    let text = tmp.path().join("t.txt");
+    std::fs::write(&text, "one two three\n").unwrap();
+    ingest_ok(&store, &["--order", "2", "--quiet"], &[text]);
+    let db_path = store.join("db");
+    {
+        let cfs = rocksdb::DB::list_cf(&rocksdb::Options::default(), &db_path).unwrap();
+        let db = rocksdb::DB::open_cf(&rocksdb::Options::default(), &db_path, &cfs).unwrap();
+        let cf = db.cf_handle(quern::store::keys::META_CF).unwrap();
+        let raw = db
+            .get_cf(cf, quern::store::keys::META_KEY)
+            .unwrap()
+            .unwrap();
+        let mut meta: serde_json::Value = serde_json::from_slice(&raw).unwrap();
+        meta["format_version"] = serde_json::json!(999);
+        db.put_cf(
+            cf,
+            quern::store::keys::META_KEY,
+            serde_json::to_vec(&meta).unwrap(),
+        )
+        .unwrap();
+    }
+    for cmd in ["stats", "dump"] {
+        let r = run(&[cmd, "--store", &store.display().to_string()]);
+        r.assert_failure();
+        assert!(
+            r.stderr.contains("format version 999") && r.stderr.contains("version 1"),
+            "{cmd}: the error does not name both versions\n{}",
+            r.describe()
+        );
+    }
+}
