@@ -24,6 +24,8 @@
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
+//! * [`growth`] records where each word is first seen while counting, and
+//!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
 //!
@@ -49,12 +51,14 @@ pub mod count;
 pub mod error;
 pub mod fault;
 pub mod fsutil;
+pub mod growth;
 pub mod ingest;
 pub mod key;
 pub mod memory;
 pub mod merge;
 pub mod query;
 pub mod shard;
+pub mod stats;
 pub mod store;
 pub mod tokenize;
 pub mod varint;
