@@ -471,16 +471,20 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
     let dict = "base.dict".to_string();
     DictWriter::write(&runs.join(&dict), &words)?;
     let t = s.meta().totals;
-    // The store's corpus comes before the new inputs: all its types (every
-    // word but `<s>`, with `</s>` and `<unk>`) are seen at position 0.
+    // The store's corpus comes before the new inputs: all its types are
+    // seen at position 0.
     let growth = match &s.meta().growth {
         Some(curve) => {
-            let mut all: Vec<(WordId, u32, u64)> = s
-                .vocabulary()?
-                .into_iter()
-                .filter(|(id, _)| *id != crate::words::bos_id())
-                .map(|(id, _)| (id, 0, 0))
-                .collect();
+            // The types are the stored unigrams but `<s>` (the vocabulary
+            // may also name `<unk>` unseen).
+            let mut all: Vec<(WordId, u32, u64)> = Vec::new();
+            for row in s.ngrams(1)? {
+                let (key, count, _) = row?;
+                let id = key.ids()[0];
+                if id != crate::words::bos_id() && count > 0 {
+                    all.push((id, 0, 0));
+                }
+            }
             all.sort_unstable_by_key(|e| e.0);
             let firsts = "base.first".to_string();
             growth::file::write(&runs.join(&firsts), &[t.tokens.max(1)], &all)?;
