@@ -107,7 +107,7 @@ pub fn heaps(curve: &GrowthCurve) -> Option<PowerFit> {
 /// tied words take consecutive ranks.
 pub fn rank_frequency(coc: &[(u64, u64)]) -> Vec<(u64, u64)> {
     let mut desc: Vec<(u64, u64)> = coc.iter().copied().filter(|e| e.1 > 0).collect();
-    desc.sort_unstable_by(|a, b| b.0.cmp(&a.0));
+    desc.sort_unstable_by_key(|b| std::cmp::Reverse(b.0));
     let types: u64 = desc.iter().map(|e| e.1).sum();
     let mut ranks = sample_points(types);
     if types > 0 {
