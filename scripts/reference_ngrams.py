@@ -8,7 +8,7 @@ check values for quern's bounded-memory, on-disk pipeline.
 
     python3 scripts/reference_ngrams.py [--order N] [--lowercase]
         [--max-line-bytes N] [--dump OUT.tsv] [--dump-order K]
-        [--contexts OUT.tsv] [--stats OUT.json] INPUT...
+        [--contexts OUT.tsv] [--stats OUT.json] [--growth OUT.json] INPUT...
     python3 scripts/reference_ngrams.py --self-test
 
 INPUT is a file, a directory (walked recursively, entries sorted), a .gz file
@@ -25,6 +25,11 @@ lines, i.e. code point order, which equals byte order of UTF-8 and so equals
               empty context with an empty first field (like
               `quern dump --contexts`).
   --stats     one JSON object of the same shape as `quern stats --json`.
+  --growth    vocabulary growth in reading order (inputs in the order above,
+              lines in file order): {"tokens": T, "first_positions": [...]}
+              with, for every type (every token but <s>, </s> included), the
+              0-based position of its first occurrence among the tokens read,
+              ascending; types(t) is the number of positions below t.
 
 Standard library only.
 """
@@ -112,6 +117,8 @@ class Model:
         self.marker_tokens = 0  # literal input tokens <s>, </s>, <unk> mapped to <unk>
         self.skipped_lines = 0  # lines longer than max_line_bytes
         self.invalid_utf8_lines = 0  # counted lines that held invalid UTF-8
+        self.first_seen = {}  # type -> position of its first token (<s> excluded)
+        self.tokens_read = 0
 
 
 def tokenize(text, lowercase):
@@ -166,6 +173,10 @@ def count(inputs, order=DEFAULT_ORDER, lowercase=False, max_line_bytes=DEFAULT_M
                         t = UNK
                     sent.append(intern.setdefault(t, t))
                 sent.append(EOS)
+                for t in sent[1:]:
+                    if t not in m.first_seen:
+                        m.first_seen[t] = m.tokens_read
+                    m.tokens_read += 1
                 for k in range(1, order + 1):
                     if k == 1:
                         counts[1].update((t,) for t in sent)
@@ -292,6 +303,11 @@ def mkn_discounts(n):
 # ---------------------------------------------------------------- output
 
 
+def growth(m):
+    """Tokens read and the sorted first positions of every type."""
+    return {"tokens": m.tokens_read, "first_positions": sorted(m.first_seen.values())}
+
+
 def dump_lines(d, only_order=None):
     out = []
     for k in range(1, d.m.order + 1):
@@ -376,6 +392,9 @@ def self_test():
         "b\t2\t1\t2\t0\t1\t0",         # b a: c2 a2
         "b a\t2\t1\t2\t0\t1\t0",       # b a </s>:2
     ], context_lines(d)
+    # Growth, by hand: tokens a b a </s> b a </s>; first sightings of a, b,
+    # </s> at positions 0, 1, 3.
+    assert growth(d.m) == {"tokens": 7, "first_positions": [0, 1, 3]}, growth(d.m)
     st = d.stats()
     assert st["format_version"] == 1
     assert st["settings"] == {"order": 3, "lowercase": False}
@@ -499,6 +518,8 @@ def main(argv=None):
     ap.add_argument("--dump-order", type=int, metavar="K", help="with --dump: only order K")
     ap.add_argument("--contexts", metavar="OUT.tsv", help="write context statistics")
     ap.add_argument("--stats", metavar="OUT.json", help="write totals and count-of-counts as JSON")
+    ap.add_argument("--growth", metavar="OUT.json",
+                    help="write the first position of every type in reading order, as JSON")
     ap.add_argument("--quiet", action="store_true", help="do not report skipped lines")
     ap.add_argument("--self-test", action="store_true", help="run the built-in hand-checked cases")
     args = ap.parse_args(argv)
@@ -523,7 +544,9 @@ def main(argv=None):
         write_text(args.dump, lines_text(dump_lines(d, args.dump_order)))
     if args.contexts:
         write_text(args.contexts, lines_text(context_lines(d)))
-    st = d.stats() if (args.stats or not (args.dump or args.contexts)) else None
+    if args.growth:
+        write_text(args.growth, json.dumps(growth(m)) + "\n")
+    st = d.stats() if (args.stats or not (args.dump or args.contexts or args.growth)) else None
     if args.stats:
         write_text(args.stats, json.dumps(st, ensure_ascii=False) + "\n")
     if st is not None and not args.stats:

@@ -106,6 +106,14 @@ pub enum Error {
     /// A setting is out of range.
     #[error("invalid setting: {0}")]
     Config(String),
+    /// A figure could not be drawn or written.
+    #[error("{path}: cannot draw the figure: {detail}")]
+    Plot {
+        /// The figure file.
+        path: PathBuf,
+        /// What went wrong.
+        detail: String,
+    },
     /// RocksDB reported an error.
     #[cfg(feature = "store")]
     #[error("{path}: key-value store: {source}")]

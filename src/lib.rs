@@ -24,6 +24,8 @@
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
+//! * [`growth`] records where each word is first seen while counting, and
+//!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
 //!
@@ -51,6 +53,8 @@ pub mod error;
 pub mod fault;
 pub mod fsutil;
 #[cfg(feature = "store")]
+pub mod growth;
+#[cfg(feature = "store")]
 pub mod ingest;
 pub mod key;
 pub mod memory;
@@ -59,6 +63,8 @@ pub mod merge;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod shard;
+#[cfg(feature = "store")]
+pub mod stats;
 #[cfg(feature = "store")]
 pub mod store;
 pub mod tokenize;

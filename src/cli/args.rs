@@ -238,12 +238,43 @@ pub struct StatsArgs {
     /// Store directory.
     #[arg(long)]
     pub store: PathBuf,
-    /// JSON instead of a table.
-    #[arg(long)]
+    /// Output format: table (for people), tsv, csv (one header line, stable
+    /// column names) or json. Default: table, or nothing with --plot.
+    #[arg(long, value_enum)]
+    pub format: Option<StatsFormat>,
+    /// The same as --format json.
+    #[arg(long, conflicts_with = "format")]
     pub json: bool,
-    /// Rows of count-of-counts shown per order in the table.
-    #[arg(long, default_value_t = 10)]
-    pub rows: usize,
+    /// Only this order.
+    #[arg(long)]
+    pub order: Option<usize>,
+    /// Count-of-counts rows up to this count r (default: 10 in the table,
+    /// all otherwise).
+    #[arg(long, alias = "rows")]
+    pub max_count: Option<u64>,
+    /// Katz's K: the Good-Turing table has the rows r = 1..=K.
+    #[arg(long, default_value_t = 5)]
+    pub katz_k: usize,
+    /// Draw the figures into FILE (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub plot: Option<PathBuf>,
+    /// Compare with this second store: the differences per order, and both
+    /// stores in the figure.
+    #[arg(long, value_name = "STORE")]
+    pub compare: Option<PathBuf>,
+}
+
+/// Output formats of `stats`.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum StatsFormat {
+    /// Aligned text.
+    Table,
+    /// Tab-separated values.
+    Tsv,
+    /// Comma-separated values (RFC 4180 quoting).
+    Csv,
+    /// JSON.
+    Json,
 }
 
 #[derive(Args, Debug)]

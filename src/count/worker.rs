@@ -7,6 +7,7 @@ use std::sync::Mutex;
 use super::Table;
 use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
 use crate::error::{Error, Result};
+use crate::growth::{self, FirstSeen};
 use crate::ingest::manifest::{ReadTotals, Span};
 use crate::key::partition_of;
 use crate::shard::{DictWriter, RunWriter};
@@ -45,6 +46,8 @@ pub struct Spill {
     pub runs: Vec<String>,
     /// Dictionary file name.
     pub dict: String,
+    /// First-sighting file name ([`crate::growth`]).
+    pub firsts: String,
     /// Input ranges covered.
     pub covers: Vec<Span>,
     /// The [`CoverDigest`] of each range.
@@ -100,6 +103,7 @@ struct Worker<'a> {
     cfg: &'a CountConfig<'a>,
     table: Table,
     dict: Dictionary,
+    first: FirstSeen,
     dict_limit: usize,
     covers: Vec<Span>,
     hashes: Vec<u64>,
@@ -114,6 +118,7 @@ impl<'a> Worker<'a> {
             cfg,
             table: Table::with_budget(cfg.order, 1, table_bytes),
             dict: Dictionary::new(),
+            first: FirstSeen::new(),
             dict_limit: cfg.worker_bytes - table_bytes,
             covers: Vec::new(),
             hashes: Vec::new(),
@@ -173,7 +178,15 @@ impl<'a> Worker<'a> {
                     Line::End => {}
                     Line::TooLong => self.totals.skipped_lines += 1,
                     Line::Text => {
+                        let words = self.dict.len();
                         let r = tok.sentence(&line, &mut self.dict, &mut ids)?;
+                        // Only a sentence that added a word to the
+                        // dictionary (or holds a marker) can hold a first
+                        // sighting; `</s>` is looked for until seen.
+                        let scan = self.dict.len() != words
+                            || r.marker_tokens > 0
+                            || !self.first.contains(crate::words::eos_id());
+                        self.first.sentence(&ids, scan);
                         self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
                         self.totals.marker_tokens += r.marker_tokens;
                         if !ids.is_empty() {
@@ -204,12 +217,15 @@ impl<'a> Worker<'a> {
                         end: before,
                     });
                     self.hashes.push(digest.take());
+                    self.first.end_cover();
                     return Err(e);
                 }
                 Ok(Line::End) => break,
                 Ok(kind) => digest.add(kind, &line, lines.position()),
             }
-            if self.table.is_full() || self.dict.heap_bytes() > self.dict_limit {
+            if self.table.is_full()
+                || self.dict.heap_bytes() + self.first.heap_bytes() > self.dict_limit
+            {
                 let end = lines.position();
                 self.covers.push(Span {
                     file: span.file,
@@ -217,6 +233,7 @@ impl<'a> Worker<'a> {
                     end,
                 });
                 self.hashes.push(digest.take());
+                self.first.end_cover();
                 self.spill(commit)?;
                 from = end;
             }
@@ -227,6 +244,7 @@ impl<'a> Worker<'a> {
             end: span.end,
         });
         self.hashes.push(digest.take());
+        self.first.end_cover();
         Ok(())
     }
 
@@ -252,16 +270,20 @@ impl<'a> Worker<'a> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
         let dict = format!("count-{id:06}.dict");
         let dict_bytes = DictWriter::write(&self.cfg.dir.join(&dict), &self.dict.drain_sorted())?;
+        let firsts = format!("count-{id:06}.first");
+        let (covers, entries) = self.first.drain();
+        let first_bytes = growth::file::write(&self.cfg.dir.join(&firsts), &covers, &entries)?;
         crate::fault::point("spill");
         let pending = std::mem::take(&mut self.pending);
         let spill = Spill {
             id,
             runs: pending.iter().map(|p| p.0.clone()).collect(),
             dict,
+            firsts,
             covers: std::mem::take(&mut self.covers),
             hashes: std::mem::take(&mut self.hashes),
             totals: std::mem::take(&mut self.totals),
-            bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes,
+            bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes + first_bytes,
         };
         commit(spill)?;
         crate::fault::point("committed");

@@ -14,7 +14,7 @@ use serde::{Deserialize, Serialize};
 use crate::corpus::{Chunk, InputFile};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
-use crate::store::{ContextStats, Settings};
+use crate::store::{ContextStats, GrowthCurve, Settings};
 
 /// Format version of the manifest.
 pub const MANIFEST_VERSION: u32 = 1;
@@ -94,6 +94,10 @@ pub struct RunSet {
     pub runs: Vec<String>,
     /// Dictionary file name (in `work/runs`).
     pub dict: String,
+    /// First-sighting file name (in `work/runs`; see [`crate::growth`]);
+    /// absent in manifests written before growth curves were kept.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub firsts: Option<String>,
     /// Input ranges whose counts the runs hold.
     pub covers: Vec<Span>,
     /// The line checksum of each cover, recomputed on resume (empty in
@@ -146,6 +150,21 @@ pub struct Base {
     pub dict: String,
     /// The store's reader totals.
     pub totals: ReadTotals,
+    /// The store's words as a first-sighting file (in `work/runs`), its
+    /// token count and its growth curve; absent if the store had no curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub growth: Option<BaseGrowth>,
+}
+
+/// The growth curve of the store being appended to.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct BaseGrowth {
+    /// First-sighting file of its words, all at position 0.
+    pub firsts: String,
+    /// Its tokens T.
+    pub tokens: u64,
+    /// Its curve.
+    pub curve: GrowthCurve,
 }
 
 /// Whether this ingest builds a new store or extends a finished one.
@@ -387,6 +406,7 @@ mod tests {
             id: 0,
             runs: vec![],
             dict: String::new(),
+            firsts: None,
             covers: vec![span(0, 0, 40), span(0, 100, 150), span(1, 0, u64::MAX)],
             hashes: vec![],
             totals: ReadTotals::default(),

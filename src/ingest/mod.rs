@@ -30,6 +30,7 @@ use crate::corpus::{self, InputFile};
 use crate::count::{count_spans, CountConfig, Spill};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
+use crate::growth;
 use crate::key::{Key, MAX_ORDER};
 use crate::memory::{peak_rss, Plan};
 use crate::merge::{join_partition, merge_partition, KWayMerge, MergeConfig, RecordSource};
@@ -479,9 +480,35 @@ fn export_base(store_dir: &Path, runs: &Path, settings: &Settings, parts: u32) -
     let dict = "base.dict".to_string();
     DictWriter::write(&runs.join(&dict), &words)?;
     let t = s.meta().totals;
+    // The store's corpus comes before the new inputs: all its types are
+    // seen at position 0.
+    let growth = match &s.meta().growth {
+        Some(curve) => {
+            // The types are the stored unigrams but `<s>` (the vocabulary
+            // may also name `<unk>` unseen).
+            let mut all: Vec<(WordId, u32, u64)> = Vec::new();
+            for row in s.ngrams(1)? {
+                let (key, count, _) = row?;
+                let id = key.ids()[0];
+                if id != crate::words::bos_id() && count > 0 {
+                    all.push((id, 0, 0));
+                }
+            }
+            all.sort_unstable_by_key(|e| e.0);
+            let firsts = "base.first".to_string();
+            growth::file::write(&runs.join(&firsts), &[t.tokens.max(1)], &all)?;
+            Some(manifest::BaseGrowth {
+                firsts,
+                tokens: t.tokens,
+                curve: curve.clone(),
+            })
+        }
+        None => None,
+    };
     Ok(Base {
         run,
         dict,
+        growth,
         totals: manifest::ReadTotals {
             sentences: t.sentences,
             skipped_lines: t.skipped_lines,
@@ -530,7 +557,11 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
     let mut notes = Vec::new();
     if matches!(m.phase, Phase::Counting | Phase::Merging) {
         if let Some(b) = &m.base {
-            if !run_ok(&d.runs, &b.run) || !dict_ok(&b.dict) {
+            let firsts_ok = b
+                .growth
+                .as_ref()
+                .is_none_or(|g| growth::file::check(&d.runs.join(&g.firsts)).is_ok());
+            if !run_ok(&d.runs, &b.run) || !dict_ok(&b.dict) || !firsts_ok {
                 return Err(Error::corrupt(
                     d.runs.join(&b.run),
                     "the exported counts of the store being appended to are damaged; run the same command with --restart",
@@ -538,8 +569,14 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
             }
         }
         let n = m.runsets.len();
-        m.runsets
-            .retain(|r| r.runs.iter().all(|f| run_ok(&d.runs, f)) && dict_ok(&r.dict));
+        let firsts_ok = |r: &RunSet| {
+            r.firsts
+                .as_ref()
+                .is_none_or(|f| growth::file::check(&d.runs.join(f)).is_ok())
+        };
+        m.runsets.retain(|r| {
+            r.runs.iter().all(|f| run_ok(&d.runs, f)) && dict_ok(&r.dict) && firsts_ok(r)
+        });
         if m.runsets.len() != n {
             notes.push(format!(
                 "{} damaged or missing spill(s) in {}: their input was counted again",
@@ -629,9 +666,13 @@ fn cleanup_orphans(m: &Manifest, d: &Dirs) -> Result<()> {
         keep.insert(b.run.clone());
         keep.insert(b.dict.clone());
     }
+    if let Some(g) = m.base.as_ref().and_then(|b| b.growth.as_ref()) {
+        keep.insert(g.firsts.clone());
+    }
     for r in &m.runsets {
         keep.extend(r.runs.iter().cloned());
         keep.insert(r.dict.clone());
+        keep.extend(r.firsts.iter().cloned());
     }
     for x in m.merged.iter().flatten() {
         keep.insert(x.counts.clone());
@@ -732,6 +773,7 @@ impl Run<'_> {
                     id: s.id,
                     runs: s.runs,
                     dict: s.dict,
+                    firsts: Some(s.firsts),
                     covers: s.covers,
                     hashes: s.hashes,
                     totals: s.totals,
@@ -926,7 +968,8 @@ impl Run<'_> {
         if m.phase == Phase::Building {
             self.timed(Phase::Building, |run| {
                 run.progress.phase(Phase::Building, 1);
-                let meta = assemble_meta(m, &run.dirs.work)?;
+                let mut meta = assemble_meta(m, &run.dirs.work)?;
+                meta.growth = growth_curve(m, run.dirs, run.plan.fanin)?;
                 let mut files: Vec<(String, PathBuf)> = Vec::new();
                 if let Some(vocab) = write_vocab(m, run.dirs, run.plan.fanin)? {
                     files.push((keys::VOCAB_CF.to_string(), vocab));
@@ -1102,5 +1145,33 @@ fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {
         totals,
         orders,
         root,
+        growth: None,
     })
+}
+
+/// The vocabulary growth curve from the spills' first-sighting files, or
+/// `None` where one is missing (a manifest or a store from before curves).
+fn growth_curve(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Option<store::GrowthCurve>> {
+    let before = match &m.base {
+        None => None,
+        Some(b) => match &b.growth {
+            None => return Ok(None),
+            Some(g) => Some(growth::curve::Before {
+                path: d.runs.join(&g.firsts),
+                tokens: g.tokens,
+                points: g.curve.points.clone(),
+            }),
+        },
+    };
+    let mut spills = Vec::new();
+    for r in &m.runsets {
+        let Some(f) = &r.firsts else { return Ok(None) };
+        spills.push(growth::curve::SpillFirsts {
+            path: d.runs.join(f),
+            starts: r.covers.iter().map(|s| (s.file, s.start)).collect(),
+        });
+    }
+    fsutil::create_dir(&d.tmp)?;
+    let curve = growth::growth_curve(before.as_ref(), &spills, &d.tmp, fanin)?;
+    Ok(Some(curve))
 }

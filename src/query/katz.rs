@@ -91,24 +91,29 @@ pub fn good_turing(o: &OrderStats, k: usize) -> std::result::Result<Vec<f64>, St
     Ok(d)
 }
 
+/// The largest K ≤ `k_req` at which every d_r of one order is valid, its
+/// d_r (as [`good_turing`]), and why `k_req` itself was not usable (`None`
+/// if it was).
+pub fn usable_k(o: &OrderStats, k_req: usize) -> (usize, Vec<f64>, Option<String>) {
+    let mut first_err = None;
+    for k in (0..=k_req).rev() {
+        match good_turing(o, k) {
+            Ok(d) => return (k, d, first_err),
+            Err(e) => {
+                first_err.get_or_insert(e);
+            }
+        }
+    }
+    (0, vec![1.0], first_err)
+}
+
 /// The constants of every order with K lowered where needed (each lowering
 /// is added to `notes`).
 pub fn katz_orders(meta: &StoreMeta, k_req: usize, notes: &mut Vec<String>) -> Vec<KatzOrder> {
     let mut out = Vec::new();
     for o in &meta.orders {
-        let mut first_err = None;
-        let mut chosen = (0, vec![1.0]);
-        for k in (0..=k_req).rev() {
-            match good_turing(o, k) {
-                Ok(d) => {
-                    chosen = (k, d);
-                    break;
-                }
-                Err(e) => {
-                    first_err.get_or_insert(e);
-                }
-            }
-        }
+        let (k, d, first_err) = usable_k(o, k_req);
+        let chosen = (k, d);
         if chosen.0 < k_req {
             notes.push(format!(
                 "katz: order {}: Good-Turing with K = {k_req} is not usable ({}); K lowered to {}{}",

@@ -158,17 +158,9 @@ pub fn single_discounts_checked(
     }
     let mut out = Vec::new();
     for o in &meta.orders {
-        let (n1, n2) = if raw {
-            (o.raw(1), o.raw(2))
-        } else {
-            (o.adjusted(1), o.adjusted(2))
-        };
-        let kind = if raw { "raw" } else { "adjusted" };
-        if n1 == 0 || n2 == 0 {
-            let why = format!(
-                "the discount is undefined: the {kind} count-of-counts are n1 = {n1}, n2 = {n2}"
-            );
-            match fb {
+        match single_discount(o, raw) {
+            Ok(d) => out.push(d),
+            Err(why) => match fb {
                 Some(f) => {
                     notes.push(format!(
                         "{name}: order {}: {why}; using the fallback D = {f}",
@@ -182,12 +174,28 @@ pub fn single_discounts_checked(
                         o.order
                     )))
                 }
-            }
-        } else {
-            out.push(n1 as f64 / (n1 as f64 + 2.0 * n2 as f64));
+            },
         }
     }
     Ok(out)
+}
+
+/// The single discount D = n1/(n1 + 2 n2) of one order from its adjusted
+/// (`raw` false) or raw count-of-counts, or why it is undefined.
+pub fn single_discount(o: &OrderStats, raw: bool) -> std::result::Result<f64, String> {
+    let (n1, n2) = if raw {
+        (o.raw(1), o.raw(2))
+    } else {
+        (o.adjusted(1), o.adjusted(2))
+    };
+    let kind = if raw { "raw" } else { "adjusted" };
+    if n1 == 0 || n2 == 0 {
+        Err(format!(
+            "the discount is undefined: the {kind} count-of-counts are n1 = {n1}, n2 = {n2}"
+        ))
+    } else {
+        Ok(n1 as f64 / (n1 as f64 + 2.0 * n2 as f64))
+    }
 }
 
 /// `mkn` over the levels of one prediction.

@@ -83,6 +83,19 @@ pub struct StoreMeta {
     pub orders: Vec<OrderStats>,
     /// Statistics of the empty context (its children: all unigrams but `<s>`).
     pub root: ContextStats,
+    /// Vocabulary growth, sampled during ingest (see [`crate::growth`]);
+    /// `None` for a store built before curves were kept.
+    #[serde(default)]
+    pub growth: Option<GrowthCurve>,
+}
+
+/// Types seen against tokens read, in corpus order.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct GrowthCurve {
+    /// `(tokens read, distinct types among them)`, tokens ascending: every
+    /// sample point below T (20 per decade, see [`crate::growth`]) and then
+    /// (T, types).
+    pub points: Vec<(u64, u64)>,
 }
 
 /// Modified Kneser-Ney discounts of one order.

@@ -16,7 +16,8 @@ mod meta;
 
 pub use keys::ContextStats;
 pub use meta::{
-    mkn_discounts, MknDiscounts, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION,
+    mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
+    STORE_VERSION,
 };
 
 use std::collections::HashMap;

@@ -44,6 +44,11 @@ mod python_check;
 // UTF-8, .gz/.zst inputs, missing input, `dump --order`, `stats --json`.
 mod cli;
 
+// `stats`: growth curve vs Python at every sample point (budgets, resume,
+// append), exports vs general-purpose parsers, tables vs the reference and
+// the published formulas, figures, fits in published ranges, compare.
+mod stats;
+
 // Stores shared by the query tests (five novels at orders 3 and 5).
 mod query_fixtures;
 

@@ -1,0 +1,167 @@
+//! Statistics of a store for people choosing discounts and pruning
+//! thresholds, comparing corpora and spotting a broken crawl: per order the
+//! count-of-counts spectra, the Good-Turing table with Katz's d_r and the
+//! Kneser-Ney discounts (each with why the data leave it undefined);
+//! corpus-wide the totals, the type-token ratio, the vocabulary growth curve
+//! with Heaps' law fitted to it, and the rank-frequency curve with Zipf's
+//! law fitted to it.
+//!
+//! Everything is computed from the store's metadata alone ([`report`] is a
+//! pure function of [`StoreMeta`]): the rank-frequency curve of the unigrams
+//! is their raw count-of-counts read from the highest count down, so no scan
+//! of the n-grams is needed.
+//!
+//! One job per file: [`tables`] (per-order tables), [`fits`] (least-squares
+//! fits), [`compare`] (differences between two stores), [`plot`] (figures).
+
+pub mod compare;
+pub mod fits;
+pub mod plot;
+pub mod tables;
+
+use serde::Serialize;
+
+use crate::store::StoreMeta;
+pub use fits::PowerFit;
+pub use tables::{order_report, OrderReport};
+
+/// Version of the report's JSON schema (README.md, "Statistics").
+pub const REPORT_SCHEMA: u32 = 1;
+
+/// Settings the store was built with.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportSettings {
+    /// Highest order N.
+    pub order: usize,
+    /// Tokens were lowercased.
+    pub lowercase: bool,
+}
+
+/// Corpus-wide totals.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportTotals {
+    /// Sentences.
+    pub sentences: u64,
+    /// Tokens T (words and one `</s>` per sentence).
+    pub tokens: u64,
+    /// |V| (types, and `<unk>` if it was not seen).
+    pub vocabulary: u64,
+    /// Distinct tokens but `<s>`.
+    pub types: u64,
+    /// types / tokens.
+    pub type_token_ratio: Option<f64>,
+    /// Literal marker tokens counted as `<unk>`.
+    pub marker_tokens: u64,
+    /// Lines skipped for their length.
+    pub skipped_lines: u64,
+    /// Lines with invalid UTF-8.
+    pub invalid_utf8_lines: u64,
+}
+
+/// Vocabulary growth and Heaps' law.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Growth {
+    /// `(tokens read, types seen)`.
+    pub points: Vec<(u64, u64)>,
+    /// V(n) = K n^β: `scale` is K, `exponent` β.
+    pub heaps: Option<PowerFit>,
+}
+
+/// The rank-frequency curve of the unigrams and Zipf's law.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct RankFrequency {
+    /// `(rank, frequency)` at the sample ranks and the last rank.
+    pub points: Vec<(u64, u64)>,
+    /// f(r) = C r^(−s): `scale` is C, `exponent` s.
+    pub zipf: Option<PowerFit>,
+}
+
+/// The whole report (the JSON of `quern stats --format json`).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Report {
+    /// [`REPORT_SCHEMA`].
+    pub schema: u32,
+    /// The store's format version.
+    pub format_version: u32,
+    /// Settings.
+    pub settings: ReportSettings,
+    /// Totals.
+    pub totals: ReportTotals,
+    /// Per order.
+    pub orders: Vec<OrderReport>,
+    /// `None` for a store built before growth curves were kept.
+    pub growth: Option<Growth>,
+    /// Rank-frequency of the unigrams (without `<s>`).
+    pub rank_frequency: RankFrequency,
+}
+
+/// What to compute.
+#[derive(Clone, Copy, Debug)]
+pub struct ReportOptions {
+    /// Katz's K: the Good-Turing table has rows r = 1..=K.
+    pub katz_k: usize,
+    /// Keep only r ≤ this in the spectra.
+    pub max_count: Option<u64>,
+    /// Keep only this order.
+    pub order: Option<usize>,
+}
+
+impl Default for ReportOptions {
+    fn default() -> Self {
+        ReportOptions {
+            katz_k: 5,
+            max_count: None,
+            order: None,
+        }
+    }
+}
+
+/// The report of a store's metadata.
+pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
+    let t = &meta.totals;
+    let orders = meta
+        .orders
+        .iter()
+        .filter(|o| opts.order.is_none_or(|k| o.order == k))
+        .map(|o| {
+            let mut r = order_report(o, opts.katz_k);
+            if let Some(m) = opts.max_count {
+                r.count_of_counts.raw.retain(|e| e.0 <= m);
+                r.count_of_counts.adjusted.retain(|e| e.0 <= m);
+            }
+            r
+        })
+        .collect();
+    let rf = meta
+        .orders
+        .first()
+        .map(|o| fits::rank_frequency(&o.coc_raw))
+        .unwrap_or_default();
+    Report {
+        schema: REPORT_SCHEMA,
+        format_version: meta.format_version,
+        settings: ReportSettings {
+            order: meta.settings.order,
+            lowercase: meta.settings.lowercase,
+        },
+        totals: ReportTotals {
+            sentences: t.sentences,
+            tokens: t.tokens,
+            vocabulary: t.vocabulary,
+            types: t.types,
+            type_token_ratio: (t.tokens > 0).then(|| t.types as f64 / t.tokens as f64),
+            marker_tokens: t.marker_tokens,
+            skipped_lines: t.skipped_lines,
+            invalid_utf8_lines: t.invalid_utf8_lines,
+        },
+        orders,
+        growth: meta.growth.as_ref().map(|g| Growth {
+            points: g.points.clone(),
+            heaps: fits::heaps(g),
+        }),
+        rank_frequency: RankFrequency {
+            zipf: fits::zipf(&rf),
+            points: rf,
+        },
+    }
+}
