@@ -26,6 +26,8 @@
 //!   pages, held-out scoring and parameter tuning.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
+//! * [`stage`] runs the same stages as separate, idempotent tasks over a
+//!   shared directory, for a cluster scheduler (`scripts/spark_ingest.py`).
 //!
 //! # Example
 //!
@@ -55,6 +57,7 @@ pub mod memory;
 pub mod merge;
 pub mod query;
 pub mod shard;
+pub mod stage;
 pub mod store;
 pub mod tokenize;
 pub mod varint;
