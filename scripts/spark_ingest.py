@@ -203,9 +203,7 @@ def main(argv):
     def run_stage(name, tasks, make_args):
         tasks = list(tasks)
         desc = f"quern {name}: {len(tasks)} task(s)"
-        sc.setJobDescription(desc)
-        sc.setLocalProperty("callSite.short", f"quern {name}")
-        sc.setLocalProperty("callSite.long", desc)
+        sc.setJobDescription(desc)  # the job's name in Spark's UI
         log.info(f"{desc} starting")
         t0 = time.time()
         rdd = sc.parallelize([(t, make_args(t)) for t in tasks], max(1, len(tasks)))

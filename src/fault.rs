@@ -3,7 +3,9 @@
 //! With `QUERN_KILL_AT=<point>:<n>` in the environment, the process sends
 //! itself SIGKILL the n-th time (1-based) it reaches `point`. Without the
 //! variable a point costs one relaxed atomic load. Points: `spill`,
-//! `committed`, `merge`, `join`, `build` (see DEVELOPERS.md).
+//! `committed`, `merge`, `join`, `build` of the ingest, and
+//! `stage-written`, `stage-done` of a `quern stage` task (see
+//! DEVELOPERS.md).
 
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::OnceLock;

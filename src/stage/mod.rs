@@ -520,3 +520,74 @@ pub fn clean(dir: &Path) -> Result<()> {
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The packing covers every chunk exactly once, in line-aligned spans,
+    /// and no task exceeds the mean by more than the largest chunk (the
+    /// bound of greedy largest-first packing, common practice).
+    #[test]
+    fn plan_packs_chunks_into_even_tasks() {
+        let tmp = tempfile::tempdir().unwrap();
+        let mut paths = Vec::new();
+        for (i, lines) in [30_000usize, 9_000, 4_000, 700, 50].iter().enumerate() {
+            let p = tmp.path().join(format!("in{i}.txt"));
+            let text: String = (0..*lines)
+                .map(|n| format!("line {n} of file {i} with some words\n"))
+                .collect();
+            std::fs::write(&p, text).unwrap();
+            paths.push(p);
+        }
+        let o = PlanOptions {
+            dir: tmp.path().join("job"),
+            inputs: paths,
+            settings: Settings {
+                order: 3,
+                lowercase: false,
+                max_line_bytes: 1 << 20,
+            },
+            partitions: 5,
+            map_tasks: 3,
+        };
+        let (job, outcome) = plan(&o).unwrap();
+        assert_eq!(outcome, Outcome::Written);
+        assert_eq!(plan(&o).unwrap(), (job.clone(), Outcome::Skipped));
+        let total: u64 = job.inputs.iter().map(|f| f.size).sum();
+        let bytes: Vec<u64> = (0..job.map_tasks.len())
+            .map(|t| job.task_bytes(t))
+            .collect();
+        assert_eq!(bytes.iter().sum::<u64>(), total);
+        let largest = job
+            .map_tasks
+            .iter()
+            .flatten()
+            .map(|s| span_bytes(s, &job.inputs))
+            .max()
+            .unwrap();
+        let mean = total / job.map_tasks.len() as u64;
+        assert!(
+            bytes.iter().all(|&b| b <= mean + largest),
+            "{bytes:?}, mean {mean}, largest chunk {largest}"
+        );
+        // Spans of one file tile it: sorted, contiguous, from 0 to the end.
+        for (i, f) in job.inputs.iter().enumerate() {
+            let mut spans: Vec<Span> = job
+                .map_tasks
+                .iter()
+                .flatten()
+                .filter(|s| s.file as usize == i)
+                .copied()
+                .collect();
+            spans.sort_by_key(|s| s.start);
+            assert_eq!(spans[0].start, 0);
+            assert_eq!(spans.last().unwrap().end, u64::MAX);
+            for w in spans.windows(2) {
+                assert_eq!(w[0].end, w[1].start);
+                let text = std::fs::read(&f.path).unwrap();
+                assert_eq!(text[w[1].start as usize - 1], b'\n', "cut inside a line");
+            }
+        }
+    }
+}
