@@ -9,7 +9,7 @@
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
-use std::sync::OnceLock;
+use std::sync::{Mutex, OnceLock};
 use std::time::Instant;
 
 use serde_json::Value;
@@ -42,6 +42,10 @@ fn spark_submit() -> Option<PathBuf> {
 
 static BASELINE: OnceLock<RawView> = OnceLock::new();
 
+/// One Spark job at a time: each runs a JVM and two task slots, and the
+/// test machine has two cores shared with the other tests.
+static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+
 /// The single-machine ingest of fixtures/gutenberg at order 5 (built once).
 fn baseline() -> &'static RawView {
     BASELINE.get_or_init(|| {
@@ -69,6 +73,7 @@ fn spark(submit: &Path, work: &Path, args: &[String]) -> SparkRun {
             .unwrap()
             .as_nanos()
     ));
+    let _one = ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner());
     let t0 = Instant::now();
     let out = Command::new(submit)
         .args(["--master", "local[2,4]", "--conf", "spark.ui.enabled=false"])
