@@ -71,3 +71,52 @@ fn statvfs_avail(path: &std::ffi::CStr) -> Option<u64> {
         Some(st.f_bavail as u64 * st.f_frsize as u64)
     }
 }
+
+/// Writes `value` as pretty JSON followed by a line `#xxh3=<hex>` (the
+/// checksum of the JSON text), atomically, as the ingest manifest is written.
+pub fn write_checked_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+    let body = serde_json::to_string_pretty(value).expect("value serialises");
+    let text = format!(
+        "{body}\n#xxh3={:016x}\n",
+        xxhash_rust::xxh3::xxh3_64(body.as_bytes())
+    );
+    write_atomic(path, text.as_bytes())
+}
+
+/// Reads a file written by [`write_checked_json`]: `Ok(None)` if it does
+/// not exist, [`crate::Error::Corrupt`] if its checksum line is missing or
+/// wrong or the JSON does not parse.
+pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Option<T>> {
+    let text = match std::fs::read_to_string(path) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        r => r.at(path, "read")?,
+    };
+    let (body, sum) = text
+        .rsplit_once("\n#xxh3=")
+        .ok_or_else(|| crate::Error::corrupt(path, "no checksum line (truncated?)"))?;
+    let want = format!("{:016x}", xxhash_rust::xxh3::xxh3_64(body.as_bytes()));
+    if sum.trim_end() != want {
+        return Err(crate::Error::corrupt(path, "checksum mismatch"));
+    }
+    serde_json::from_str(body)
+        .map(Some)
+        .map_err(|e| crate::Error::corrupt(path, e.to_string()))
+}
+
+/// The xxh3-64 of a file's bytes and its length, read in a stream.
+pub fn file_xxh3(path: &Path) -> Result<(u64, u64)> {
+    use std::io::Read;
+    let mut f = File::open(path).at(path, "open")?;
+    let mut h = xxhash_rust::xxh3::Xxh3::new();
+    let mut buf = vec![0u8; 1 << 20];
+    let mut len = 0u64;
+    loop {
+        let n = f.read(&mut buf).at(path, "read")?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+        len += n as u64;
+    }
+    Ok((h.digest(), len))
+}

@@ -28,6 +28,8 @@
 //!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
+//! * [`stage`] runs the same stages as separate, idempotent tasks over a
+//!   shared directory, for a cluster scheduler (`scripts/spark_ingest.py`).
 //!
 //! # Example
 //!
@@ -63,6 +65,8 @@ pub mod merge;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod shard;
+#[cfg(feature = "store")]
+pub mod stage;
 #[cfg(feature = "store")]
 pub mod stats;
 #[cfg(feature = "store")]

@@ -33,6 +33,103 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Run one stage of an ingest as a task over a shared directory (for a
+    /// cluster; see scripts/spark_ingest.py).
+    #[command(subcommand)]
+    Stage(StageCommand),
+}
+
+/// The stages of a staged ingest. Each prints one JSON line describing
+/// what it did; each is safe to run again or twice at once.
+#[derive(Subcommand, Debug)]
+pub enum StageCommand {
+    /// Plan: list the inputs, fix the partitions, pack the inputs into map
+    /// tasks of about equal bytes; writes DIR/job.json.
+    Plan(StagePlanArgs),
+    /// Count one map task's inputs into partitioned runs and dictionaries.
+    Map(StageMapArgs),
+    /// Merge one partition across every map output.
+    Reduce(StagePartArgs),
+    /// Join one partition's merged counts with its continuation counts.
+    Join(StagePartArgs),
+    /// Build the store from every partition's output.
+    Assemble(StageAssembleArgs),
+    /// Remove the intermediate outputs (when the store is built and no task runs).
+    Clean(StageDirArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct StageDirArgs {
+    /// The shared directory of the job.
+    #[arg(long)]
+    pub dir: PathBuf,
+}
+
+#[derive(Args, Debug)]
+pub struct StagePlanArgs {
+    /// The shared directory of the job (created if missing).
+    #[arg(long)]
+    pub dir: PathBuf,
+    /// Highest n-gram order N.
+    #[arg(long, default_value_t = 5)]
+    pub order: usize,
+    /// Lowercase every token (Unicode lowercasing).
+    #[arg(long)]
+    pub lowercase: bool,
+    /// Skip (and report) lines longer than this many bytes.
+    #[arg(long, default_value_t = 1 << 20)]
+    pub max_line_bytes: usize,
+    /// Number of partitions: one reduce and one join task each.
+    #[arg(long)]
+    pub partitions: u32,
+    /// Number of map tasks (fewer if the inputs have fewer chunks).
+    #[arg(long)]
+    pub map_tasks: usize,
+    /// Files or directories (walked recursively, sorted), on the shared storage.
+    #[arg(required = true)]
+    pub inputs: Vec<PathBuf>,
+}
+
+#[derive(Args, Debug)]
+pub struct StageMapArgs {
+    /// The shared directory of the job.
+    #[arg(long)]
+    pub dir: PathBuf,
+    /// The map task's number in the plan.
+    #[arg(long)]
+    pub task: u32,
+    /// Memory budget of this task, e.g. 2GiB.
+    #[arg(long, default_value = "1GiB")]
+    pub memory: String,
+    /// Counting threads (more than one: same counts, not byte-identical runs).
+    #[arg(long, default_value_t = 1)]
+    pub threads: usize,
+}
+
+#[derive(Args, Debug)]
+pub struct StagePartArgs {
+    /// The shared directory of the job.
+    #[arg(long)]
+    pub dir: PathBuf,
+    /// The partition.
+    #[arg(long)]
+    pub partition: u32,
+    /// Memory budget of this task.
+    #[arg(long, default_value = "1GiB")]
+    pub memory: String,
+}
+
+#[derive(Args, Debug)]
+pub struct StageAssembleArgs {
+    /// The shared directory of the job.
+    #[arg(long)]
+    pub dir: PathBuf,
+    /// Store directory to build (created if missing).
+    #[arg(long)]
+    pub store: PathBuf,
+    /// Memory budget of this task.
+    #[arg(long, default_value = "1GiB")]
+    pub memory: String,
 }
 
 /// The store of a query command and its cache.

@@ -35,9 +35,7 @@ use crate::key::{Key, MAX_ORDER};
 use crate::memory::{peak_rss, Plan};
 use crate::merge::{join_partition, merge_partition, KWayMerge, MergeConfig, RecordSource};
 use crate::shard::{DictReader, DictWriter, RunFile, RunWriter, Values};
-use crate::store::{
-    self, build, keys, ContextStats, OrderStats, Settings, Store, StoreMeta, Totals,
-};
+use crate::store::{self, build, keys, Settings, Store, StoreMeta, Totals};
 use crate::words::WordId;
 use manifest::{Base, Joined, Mode, RunSet};
 
@@ -613,6 +611,15 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
                 ));
             }
         }
+        let base_firsts = m.base.iter().filter_map(|b| b.growth.as_ref().map(|g| &g.firsts));
+        for name in base_firsts.chain(m.runsets.iter().filter_map(|r| r.firsts.as_ref())) {
+            if let Err(e) = growth::file::check(&d.runs.join(name)) {
+                return Err(Error::corrupt(
+                    d.runs.join(name),
+                    format!("{e}; the counts it came with are merged and gone, so run the same command with --restart"),
+                ));
+            }
+        }
     }
     let sst_ok = |name: &str| std::fs::metadata(d.sst.join(name)).is_ok_and(|md| md.len() > 0);
     match m.phase {
@@ -1022,42 +1029,6 @@ fn remove_matching(dir: &Path, suffix: &str) -> Result<()> {
     Ok(())
 }
 
-/// Merges dictionary files by id, calling `emit` once per word, and turns
-/// one id with two different words into [`Error::HashCollision`].
-fn merge_dicts(paths: &[PathBuf], mut emit: impl FnMut(WordId, &str) -> Result<()>) -> Result<()> {
-    let mut readers = paths
-        .iter()
-        .map(|p| DictReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut heap = std::collections::BinaryHeap::new();
-    for (i, r) in readers.iter_mut().enumerate() {
-        if let Some((id, w)) = r.next_entry()? {
-            heap.push(std::cmp::Reverse((id, w, i)));
-        }
-    }
-    let mut last: Option<(WordId, String)> = None;
-    while let Some(std::cmp::Reverse((id, w, i))) = heap.pop() {
-        if let Some(next) = readers[i].next_entry()? {
-            heap.push(std::cmp::Reverse((next.0, next.1, i)));
-        }
-        if let Some((lid, lw)) = &last {
-            if *lid == id {
-                if *lw != w {
-                    return Err(Error::HashCollision {
-                        first: lw.clone(),
-                        second: w,
-                        id,
-                    });
-                }
-                continue;
-            }
-        }
-        emit(id, &w)?;
-        last = Some((id, w));
-    }
-    Ok(())
-}
-
 /// Merges every dictionary into the vocabulary SST (in rounds of at most
 /// `fanin` files, to bound the open readers).
 fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Option<PathBuf>> {
@@ -1065,88 +1036,20 @@ fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Option<PathBuf>> 
     if let Some(b) = &m.base {
         paths.push(d.runs.join(&b.dict));
     }
-    fsutil::create_dir(&d.tmp)?;
-    let mut round = 0;
-    while paths.len() > fanin.max(2) {
-        let mut next = Vec::new();
-        for (i, group) in paths.chunks(fanin.max(2)).enumerate() {
-            let out = d.tmp.join(format!("vocab-{round}-{i}.dict"));
-            let mut w = DictWriter::create(&out)?;
-            merge_dicts(group, |id, word| w.push(id, word))?;
-            w.finish()?;
-            for p in group.iter().filter(|p| p.starts_with(&d.tmp)) {
-                let _ = std::fs::remove_file(p);
-            }
-            next.push(out);
-        }
-        paths = next;
-        round += 1;
-    }
-    let _ = std::fs::remove_file(d.sst.join("all-vocab.sst"));
-    let opts = build::sst_options();
-    let mut sink = build::SstSet::new(&opts, &d.sst, "all".into());
-    merge_dicts(&paths, |id, word| {
-        sink.put(keys::VOCAB_CF, &id.to_be_bytes(), word.as_bytes())
-    })?;
-    fsutil::remove_dir(&d.tmp)?;
-    Ok(sink
-        .finish()?
-        .into_iter()
-        .next()
-        .map(|(_, name)| d.sst.join(name)))
+    crate::stage::merge_vocabulary(paths, &d.tmp, &d.sst, fanin)
 }
 
 fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {
-    let n = m.settings.order;
-    let mut ngrams = vec![0u64; n];
-    let mut raw = vec![BTreeMap::<u64, u64>::new(); n];
-    let mut adj = vec![BTreeMap::<u64, u64>::new(); n];
-    let mut root = ContextStats::default();
-    let mut unk_seen = false;
-    for j in &m.joined {
-        let j = j.as_ref().ok_or_else(|| {
-            Error::corrupt(Manifest::path(work), "a partition is missing its join")
-        })?;
-        for k in 0..n {
-            ngrams[k] += j.stats.ngrams[k];
-            for (r, c) in &j.stats.coc_raw[k] {
-                *raw[k].entry(*r).or_insert(0) += c;
-            }
-            for (r, c) in &j.stats.coc_adjusted[k] {
-                *adj[k].entry(*r).or_insert(0) += c;
-            }
-        }
-        root.merge(&j.stats.root);
-        unk_seen |= j.stats.unk_seen;
-    }
-    let rt = m.read_totals();
-    let totals = Totals {
-        sentences: rt.sentences,
-        tokens: root.count_sum,
-        types: root.types,
-        vocabulary: root.types + u64::from(!unk_seen),
-        unk_seen,
-        skipped_lines: rt.skipped_lines,
-        invalid_utf8_lines: rt.invalid_utf8_lines,
-        marker_tokens: rt.marker_tokens,
-        input_bytes: rt.bytes,
-    };
-    let orders = (0..n)
-        .map(|k| OrderStats {
-            order: k + 1,
-            ngrams: ngrams[k],
-            coc_raw: raw[k].iter().map(|(a, b)| (*a, *b)).collect(),
-            coc_adjusted: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
+    let stats = m
+        .joined
+        .iter()
+        .map(|j| {
+            j.as_ref().map(|j| &j.stats).ok_or_else(|| {
+                Error::corrupt(Manifest::path(work), "a partition is missing its join")
+            })
         })
-        .collect();
-    Ok(StoreMeta {
-        format_version: store::STORE_VERSION,
-        settings: m.settings,
-        totals,
-        orders,
-        root,
-        growth: None,
-    })
+        .collect::<Result<Vec<_>>>()?;
+    Ok(crate::stage::store_meta(m.settings, stats, m.read_totals()))
 }
 
 /// The vocabulary growth curve from the spills' first-sighting files, or

@@ -69,3 +69,11 @@ mod query_tune;
 
 // Benchmarks of prob throughput and next latency (ignored; run by hand).
 mod query_bench;
+
+// `quern stage` tasks by hand: equal to ingest, rerun skipped, two copies at
+// once, killed before/after commit, damaged output, missing inputs.
+mod stage;
+
+// scripts/spark_ingest.py under Spark local mode: equal to ingest byte for
+// byte; killed and doubled tasks; a missing input fails the job.
+mod spark;

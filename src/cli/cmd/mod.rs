@@ -6,6 +6,7 @@ pub mod next;
 pub mod ngrams;
 pub mod prob;
 pub mod score;
+pub mod stage;
 pub mod stats;
 pub mod status;
 pub mod tune;

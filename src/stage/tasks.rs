@@ -1,0 +1,308 @@
+//! The map, reduce and join tasks.
+
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicU64;
+use std::sync::Mutex;
+use std::time::Instant;
+
+use serde::{Deserialize, Serialize};
+
+use super::{
+    commit, finished, join_dir, map_dir, need_done, reduce_dir, temp_dir_for, Job, Outcome,
+    TaskReport,
+};
+use crate::count::{count_spans, CountConfig, Spill};
+use crate::error::{Error, Result};
+use crate::fsutil;
+use crate::ingest::manifest::{Joined, Merged, ReadTotals};
+use crate::memory::Plan;
+use crate::merge::{join_partition, merge_partition, MergeConfig};
+use crate::shard::RunFile;
+
+/// What a map task produced.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct MapResult {
+    /// Count run files, one section per partition.
+    pub runs: Vec<String>,
+    /// Dictionary files of the words in them.
+    pub dicts: Vec<String>,
+    /// What the readers saw.
+    pub totals: ReadTotals,
+    /// First-sighting files ([`crate::growth`]), each with where its covers
+    /// start (file index, offset), for the vocabulary growth curve.
+    #[serde(default)]
+    pub firsts: Vec<(String, Vec<(u32, u64)>)>,
+}
+
+fn report(
+    stage: &'static str,
+    task: u32,
+    outcome: Outcome,
+    output: PathBuf,
+    work: u64,
+    output_bytes: u64,
+    t0: Instant,
+) -> TaskReport {
+    TaskReport {
+        stage,
+        task,
+        outcome,
+        output,
+        work,
+        output_bytes,
+        seconds: t0.elapsed().as_secs_f64(),
+    }
+}
+
+fn skipped_bytes<T>(d: &super::Done<T>) -> u64 {
+    d.files.iter().map(|f| f.bytes).sum()
+}
+
+/// Map task `task` of the plan in `dir`: counts its spans into
+/// `DIR/map/m<task>/` with `threads` workers sharing `memory` bytes.
+pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<TaskReport> {
+    let t0 = Instant::now();
+    let job = Job::load(dir)?;
+    let id = job.id();
+    let spans = job.map_tasks.get(task as usize).cloned().ok_or_else(|| {
+        Error::Config(format!(
+            "map task {task} is not in the plan {} (it has tasks 0 to {})",
+            dir.join(super::JOB_FILE).display(),
+            job.map_tasks.len().saturating_sub(1)
+        ))
+    })?;
+    let out = map_dir(dir, task);
+    if let Some(d) = finished::<MapResult>(&out, "map", task, &id) {
+        let w = d.result.totals.bytes;
+        return Ok(report(
+            "map",
+            task,
+            Outcome::Skipped,
+            out,
+            w,
+            skipped_bytes(&d),
+            t0,
+        ));
+    }
+    // Every input of this task must be there and unchanged since planned.
+    let mut used: Vec<u32> = spans.iter().map(|s| s.file).collect();
+    used.dedup();
+    for i in used {
+        let f = &job.inputs[i as usize];
+        let meta = std::fs::metadata(&f.path).map_err(|e| Error::Input {
+            path: f.path.clone(),
+            detail: format!("an input of map task {task} cannot be read: {e}"),
+        })?;
+        let mtime_ns = meta
+            .modified()
+            .ok()
+            .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+            .map_or(0, |d| d.as_nanos() as u64);
+        if meta.len() != f.size || mtime_ns != f.mtime_ns {
+            return Err(Error::Input {
+                path: f.path.clone(),
+                detail: format!(
+                    "an input of map task {task} changed since it was planned (size {} → {}); plan again in a new --dir",
+                    f.size,
+                    meta.len()
+                ),
+            });
+        }
+    }
+    let threads = threads.max(1);
+    let plan = Plan::new(memory, threads)?;
+    let tmp = temp_dir_for(&out)?;
+    let r = (|| {
+        let next_id = AtomicU64::new(0);
+        let read = AtomicU64::new(0);
+        let cfg = CountConfig {
+            inputs: &job.inputs,
+            order: job.settings.order,
+            lowercase: job.settings.lowercase,
+            max_line_bytes: job.settings.max_line_bytes,
+            partitions: job.partitions,
+            threads,
+            worker_bytes: plan.count_worker,
+            dir: &tmp,
+            next_id: &next_id,
+            progress: &read,
+        };
+        let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
+        let keep = |s: Spill| -> Result<()> {
+            spills.lock().unwrap_or_else(|e| e.into_inner()).push(s);
+            Ok(())
+        };
+        count_spans(&cfg, spans, &keep)?;
+        let mut spills = spills.into_inner().unwrap_or_else(|e| e.into_inner());
+        spills.sort_by_key(|s| s.id);
+        let mut r = MapResult {
+            runs: vec![],
+            dicts: vec![],
+            totals: ReadTotals::default(),
+            firsts: vec![],
+        };
+        for s in spills {
+            r.runs.extend(s.runs);
+            r.dicts.push(s.dict);
+            r.totals.add(&s.totals);
+            let starts = s.covers.iter().map(|c| (c.file, c.start)).collect();
+            r.firsts.push((s.firsts, starts));
+        }
+        let work = r.totals.bytes;
+        let firsts = r.firsts.iter().map(|f| &f.0);
+        let names = r
+            .runs
+            .iter()
+            .chain(&r.dicts)
+            .chain(firsts)
+            .cloned()
+            .collect();
+        commit(&tmp, &out, "map", task, &id, names, r).map(|(o, b)| (o, b, work))
+    })();
+    finish_temp(&tmp, r).map(|(o, b, w)| report("map", task, o, out, w, b, t0))
+}
+
+/// Reduce task of partition `p`: merges section `p` of every map output
+/// into `DIR/reduce/p<p>/` (merged counts, and the continuation
+/// contributions of its n-grams for every partition).
+pub fn run_reduce(dir: &Path, p: u32, memory: u64) -> Result<TaskReport> {
+    let t0 = Instant::now();
+    let job = Job::load(dir)?;
+    let id = job.id();
+    check_partition(&job, p, dir)?;
+    let out = reduce_dir(dir, p);
+    if let Some(d) = finished::<Merged>(&out, "reduce", p, &id) {
+        return Ok(report(
+            "reduce",
+            p,
+            Outcome::Skipped,
+            out,
+            0,
+            skipped_bytes(&d),
+            t0,
+        ));
+    }
+    let mut files = Vec::new();
+    for t in 0..job.map_tasks.len() as u32 {
+        let m = map_dir(dir, t);
+        let d = need_done::<MapResult>(&m, "map", t, &id)?;
+        for r in &d.result.runs {
+            let f = RunFile::open(&m.join(r))?;
+            if f.partitions() != job.partitions || f.value_width() != 1 {
+                return Err(Error::corrupt(
+                    f.path(),
+                    "run file of another plan (partitions or width differ)",
+                ));
+            }
+            files.push(f);
+        }
+    }
+    let plan = Plan::new(memory, 1)?;
+    let records: u64 = files.iter().map(|f| f.records(p)).sum();
+    let tmp = temp_dir_for(&out)?;
+    let r = (|| {
+        let rounds = tmp.join("rounds");
+        fsutil::create_dir(&rounds)?;
+        let next_tmp = AtomicU64::new(0);
+        let cfg = MergeConfig {
+            order: job.settings.order,
+            partitions: job.partitions,
+            fanin: plan.fanin,
+            worker_bytes: plan.merge_worker,
+            merged_dir: &tmp,
+            tmp_dir: &rounds,
+            next_tmp: &next_tmp,
+        };
+        let merged = merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect())?;
+        fsutil::remove_dir(&rounds)?;
+        let names = std::iter::once(merged.counts.clone())
+            .chain(merged.suffix_runs.iter().cloned())
+            .collect();
+        commit(&tmp, &out, "reduce", p, &id, names, merged)
+    })();
+    finish_temp(&tmp, r).map(|(o, b)| report("reduce", p, o, out, records, b, t0))
+}
+
+/// Join task of partition `q`: joins `q`'s merged counts with section `q`
+/// of every reduce output's continuation runs into `DIR/join/p<q>/` (SST
+/// files, and the partition's statistics in `done.json`).
+pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
+    let t0 = Instant::now();
+    let job = Job::load(dir)?;
+    let id = job.id();
+    check_partition(&job, q, dir)?;
+    let out = join_dir(dir, q);
+    if let Some(d) = finished::<Joined>(&out, "join", q, &id) {
+        let w = d.result.stats.ngrams.iter().sum();
+        return Ok(report(
+            "join",
+            q,
+            Outcome::Skipped,
+            out,
+            w,
+            skipped_bytes(&d),
+            t0,
+        ));
+    }
+    let mut suffix = Vec::new();
+    let mut counts = None;
+    for p in 0..job.partitions {
+        let r = reduce_dir(dir, p);
+        let d = need_done::<Merged>(&r, "reduce", p, &id)?;
+        for f in &d.result.suffix_runs {
+            suffix.push(RunFile::open(&r.join(f))?);
+        }
+        if p == q {
+            counts = Some(RunFile::open(&r.join(&d.result.counts))?);
+        }
+    }
+    let counts = counts.expect("q < partitions");
+    let plan = Plan::new(memory, 1)?;
+    let tmp = temp_dir_for(&out)?;
+    let r = (|| {
+        let rounds = tmp.join("rounds");
+        fsutil::create_dir(&rounds)?;
+        let next_tmp = AtomicU64::new(0);
+        let cfg = MergeConfig {
+            order: job.settings.order,
+            partitions: job.partitions,
+            fanin: plan.fanin,
+            worker_bytes: plan.merge_worker,
+            merged_dir: &tmp,
+            tmp_dir: &rounds,
+            next_tmp: &next_tmp,
+        };
+        let joined = join_partition(
+            &cfg,
+            q,
+            &counts,
+            suffix.iter().map(|f| (f.clone(), q)).collect(),
+            &tmp,
+        )?;
+        fsutil::remove_dir(&rounds)?;
+        let n: u64 = joined.stats.ngrams.iter().sum();
+        let names = joined.ssts.iter().map(|(_, f)| f.clone()).collect();
+        commit(&tmp, &out, "join", q, &id, names, joined).map(|(o, b)| (o, b, n))
+    })();
+    finish_temp(&tmp, r).map(|(o, b, n)| report("join", q, o, out, n, b, t0))
+}
+
+fn check_partition(job: &Job, p: u32, dir: &Path) -> Result<()> {
+    if p >= job.partitions {
+        return Err(Error::Config(format!(
+            "partition {p} is not in the plan {} (it has partitions 0 to {})",
+            dir.join(super::JOB_FILE).display(),
+            job.partitions - 1
+        )));
+    }
+    Ok(())
+}
+
+/// Removes a task's temporary folder when the task failed (after a
+/// successful commit it is gone already).
+fn finish_temp<T>(tmp: &Path, r: Result<T>) -> Result<T> {
+    if r.is_err() {
+        let _ = fsutil::remove_dir(tmp);
+    }
+    r
+}

@@ -1,0 +1,259 @@
+//! scripts/spark_ingest.py under Spark in local mode (pyspark from the
+//! Python package index, installed by scripts/setup): the store it builds
+//! from fixtures/gutenberg at order 5 equals, byte for byte in `dump`,
+//! `dump --contexts` and `stats --json`, a single-machine `quern ingest` of
+//! the same files (which gutenberg.rs checks against the reference counter).
+//!
+//! These tests fail when Spark is missing: CI must run them. A developer
+//! without Spark may set `QUERN_SKIP_SPARK=1` to skip them locally.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::{Mutex, OnceLock};
+use std::time::Instant;
+
+use serde_json::Value;
+
+use crate::common::{bin, gutenberg_dir, ingest_ok, manifest_dir};
+use crate::stage::{assert_raw_eq, raw_view, RawView};
+
+/// `spark-submit` of the installed pyspark, or `None` when skipping.
+fn spark_submit() -> Option<PathBuf> {
+    if std::env::var_os("QUERN_SKIP_SPARK").is_some_and(|v| v == "1") {
+        eprintln!("QUERN_SKIP_SPARK=1: Spark tests skipped");
+        return None;
+    }
+    let out = Command::new("python3")
+        .args([
+            "-c",
+            "import os, pyspark; print(os.path.join(os.path.dirname(pyspark.__file__), 'bin', 'spark-submit'))",
+        ])
+        .output()
+        .expect("python3 runs");
+    assert!(
+        out.status.success(),
+        "pyspark is not installed for python3 (run scripts/setup, or set QUERN_SKIP_SPARK=1 to skip the Spark tests locally): {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let p = PathBuf::from(String::from_utf8(out.stdout).unwrap().trim());
+    assert!(p.is_file(), "{} is missing", p.display());
+    Some(p)
+}
+
+static BASELINE: OnceLock<RawView> = OnceLock::new();
+
+/// One Spark job at a time: each runs a JVM and two task slots, and the
+/// test machine has two cores shared with the other tests.
+static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+
+/// The single-machine ingest of fixtures/gutenberg at order 5 (built once).
+fn baseline() -> &'static RawView {
+    BASELINE.get_or_init(|| {
+        let tmp = tempfile::tempdir().unwrap();
+        let store = tmp.path().join("single");
+        ingest_ok(&store, &["--order", "5", "--quiet"], &[gutenberg_dir()]);
+        raw_view(&store)
+    })
+}
+
+struct SparkRun {
+    ok: bool,
+    output: String,
+    report: Option<Value>,
+    seconds: f64,
+}
+
+/// Runs the driver with a local[2] master (up to 4 attempts per task) and
+/// `args` after the script.
+fn spark(submit: &Path, work: &Path, args: &[String]) -> SparkRun {
+    let report = work.join(format!(
+        "report-{}.json",
+        std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .unwrap()
+            .as_nanos()
+    ));
+    let _one = ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner());
+    let t0 = Instant::now();
+    let out = Command::new(submit)
+        .args(["--master", "local[2,4]", "--conf", "spark.ui.enabled=false"])
+        .args(["--driver-memory", "1g"])
+        .arg(manifest_dir().join("scripts/spark_ingest.py"))
+        .args(["--quern", bin(), "--task-memory", "256MiB", "--report"])
+        .arg(&report)
+        .args(args)
+        .env("PYSPARK_PYTHON", "python3")
+        .env("SPARK_LOCAL_IP", "127.0.0.1")
+        .env_remove("QUERN_KILL_AT")
+        .stdin(std::process::Stdio::null())
+        .output()
+        .expect("spark-submit starts");
+    let seconds = t0.elapsed().as_secs_f64();
+    let output = format!(
+        "{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let report = std::fs::read_to_string(&report)
+        .ok()
+        .map(|t| serde_json::from_str(&t).expect("report is JSON"));
+    SparkRun {
+        ok: out.status.success(),
+        output,
+        report,
+        seconds,
+    }
+}
+
+fn job_args(dir: &Path, store: &Path, partitions: u32, map_tasks: u32) -> Vec<String> {
+    vec![
+        "--dir".into(),
+        dir.display().to_string(),
+        "--store".into(),
+        store.display().to_string(),
+        "--order".into(),
+        "5".into(),
+        "--partitions".into(),
+        partitions.to_string(),
+        "--map-tasks".into(),
+        map_tasks.to_string(),
+    ]
+}
+
+fn tail(s: &str) -> String {
+    let lines: Vec<&str> = s
+        .lines()
+        .filter(|l| !l.trim_start().starts_with("at "))
+        .collect();
+    lines[lines.len().saturating_sub(60)..].join("\n")
+}
+
+/// The task results of one stage in the driver's report.
+fn stage_results<'a>(report: &'a Value, stage: &str) -> &'a Vec<Value> {
+    report["results"][stage].as_array().unwrap()
+}
+
+fn outcomes(task: &Value) -> Vec<String> {
+    task["reports"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["outcome"].as_str().unwrap().to_string())
+        .collect()
+}
+
+/// Five map tasks, seven partitions (seven reduce and seven join tasks).
+#[test]
+fn spark_store_equals_single_machine_ingest() {
+    let Some(submit) = spark_submit() else { return };
+    let tmp = tempfile::tempdir().unwrap();
+    let (dir, store) = (tmp.path().join("shared"), tmp.path().join("store"));
+    let mut args = job_args(&dir, &store, 7, 5);
+    args.push(gutenberg_dir().display().to_string());
+    let r = spark(&submit, tmp.path(), &args);
+    assert!(r.ok, "spark job failed:\n{}", tail(&r.output));
+    let report = r.report.expect("report written");
+    assert_eq!(report["tasks"]["map"], 5, "{}", report["tasks"]);
+    assert_eq!(report["tasks"]["reduce"], 7);
+    assert_eq!(report["tasks"]["join"], 7);
+    assert_raw_eq(
+        "spark, 5 map tasks, 7 partitions",
+        baseline(),
+        &raw_view(&store),
+    );
+    eprintln!(
+        "spark local[2]: fixtures/gutenberg, 5 map + 7 reduce + 7 join tasks: {:.1} s wall (spark-submit), stages {}",
+        r.seconds, report["stage_seconds"]
+    );
+}
+
+/// One map task killed before its commit and one reduce task killed just
+/// after it (first attempts only; Spark retries them), one map and one join
+/// task run as two copies at once: the store is unchanged. Then the whole
+/// job run again on the same directory skips every task.
+#[test]
+fn spark_killed_and_doubled_tasks_leave_the_store_unchanged() {
+    let Some(submit) = spark_submit() else { return };
+    let tmp = tempfile::tempdir().unwrap();
+    let (dir, store) = (tmp.path().join("shared"), tmp.path().join("store"));
+    let mut args = job_args(&dir, &store, 4, 3);
+    for (flag, v) in [
+        ("--fault-kill", "map:1:stage-written"),
+        ("--fault-kill", "reduce:2:stage-done"),
+        ("--fault-twice", "map:0"),
+        ("--fault-twice", "join:3"),
+    ] {
+        args.extend([flag.to_string(), v.to_string()]);
+    }
+    args.push(gutenberg_dir().display().to_string());
+    let r = spark(&submit, tmp.path(), &args);
+    assert!(r.ok, "spark job failed:\n{}", tail(&r.output));
+    let report = r.report.expect("report written");
+    assert!(
+        r.output.contains("killed by signal 9"),
+        "no attempt was killed:\n{}",
+        tail(&r.output)
+    );
+    // The killed tasks succeeded on their second attempt: the map task wrote
+    // its output again, the reduce task found its committed output.
+    let m1 = &stage_results(&report, "map")[1];
+    assert_eq!(
+        (m1["attempt"].as_u64(), outcomes(m1)),
+        (Some(1), vec!["written".into()])
+    );
+    let r2 = &stage_results(&report, "reduce")[2];
+    assert_eq!(
+        (r2["attempt"].as_u64(), outcomes(r2)),
+        (Some(1), vec!["skipped".into()])
+    );
+    for (stage, t) in [("map", 0), ("join", 3)] {
+        let mut o = outcomes(&stage_results(&report, stage)[t]);
+        o.sort();
+        assert!(
+            o == ["raced", "written"] || o == ["skipped", "written"],
+            "{stage} task {t} run twice: {o:?}"
+        );
+    }
+    assert_raw_eq("spark with faults", baseline(), &raw_view(&store));
+
+    let mut plain = job_args(&dir, &store, 4, 3);
+    plain.push(gutenberg_dir().display().to_string());
+    let again = spark(&submit, tmp.path(), &plain);
+    assert!(
+        again.ok,
+        "second spark job failed:\n{}",
+        tail(&again.output)
+    );
+    let report = again.report.unwrap();
+    for stage in ["plan", "map", "reduce", "join", "assemble"] {
+        for t in stage_results(&report, stage) {
+            assert_eq!(outcomes(t), ["skipped"], "{stage}: {t}");
+        }
+    }
+    assert_raw_eq("spark run again", baseline(), &raw_view(&store));
+}
+
+/// An input that does not exist fails the job with a message naming it,
+/// and no store is built.
+#[test]
+fn spark_job_with_a_missing_input_fails_naming_it() {
+    let Some(submit) = spark_submit() else { return };
+    let tmp = tempfile::tempdir().unwrap();
+    let (dir, store) = (tmp.path().join("shared"), tmp.path().join("store"));
+    let missing = tmp.path().join("no-such-novel.txt");
+    let mut args = job_args(&dir, &store, 2, 2);
+    args.push(gutenberg_dir().join("emma.txt").display().to_string());
+    args.push(missing.display().to_string());
+    let r = spark(&submit, tmp.path(), &args);
+    assert!(!r.ok, "the job succeeded with a missing input");
+    let line = r
+        .output
+        .lines()
+        .find(|l| l.starts_with("spark_ingest: error: "))
+        .unwrap_or_else(|| panic!("no error line:\n{}", tail(&r.output)));
+    assert!(
+        line.contains("the plan stage failed") && line.contains(&missing.display().to_string()),
+        "{line}"
+    );
+    assert!(!store.exists(), "a store was created");
+}

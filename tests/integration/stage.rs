@@ -1,0 +1,296 @@
+//! `quern stage`: the ingest as separate tasks over a shared directory,
+//! run here by hand (spark.rs runs them through Spark). The source of truth
+//! of every equality is a single-machine `quern ingest` of the same inputs,
+//! which gutenberg.rs checks against the independent reference counter.
+
+use std::path::{Path, PathBuf};
+
+use serde_json::Value;
+
+use crate::common::{command, gutenberg_files, ingest_ok, run, run_env, run_ok};
+
+/// The three outputs that describe a whole store, as printed: `dump`,
+/// `dump --contexts` and `stats --json` (compared byte for byte).
+#[derive(PartialEq, Eq)]
+pub struct RawView {
+    pub dump: String,
+    pub contexts: String,
+    pub stats: String,
+}
+
+impl std::fmt::Debug for RawView {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "RawView {{ dump: {} lines, contexts: {} lines, stats: {} }}",
+            self.dump.lines().count(),
+            self.contexts.lines().count(),
+            self.stats
+        )
+    }
+}
+
+pub fn raw_view(store: &Path) -> RawView {
+    let s = store.display().to_string();
+    RawView {
+        dump: run_ok(&["dump", "--store", &s]).stdout,
+        contexts: run_ok(&["dump", "--store", &s, "--contexts"]).stdout,
+        stats: run_ok(&["stats", "--store", &s, "--json"]).stdout,
+    }
+}
+
+/// Asserts equality byte for byte, naming the first differing line.
+pub fn assert_raw_eq(what: &str, expected: &RawView, actual: &RawView) {
+    for (name, e, a) in [
+        ("dump", &expected.dump, &actual.dump),
+        ("dump --contexts", &expected.contexts, &actual.contexts),
+        ("stats --json", &expected.stats, &actual.stats),
+    ] {
+        if e != a {
+            let first = e
+                .lines()
+                .zip(a.lines())
+                .enumerate()
+                .find(|(_, (x, y))| x != y)
+                .map(|(i, (x, y))| format!("line {}: expected {x:?}, got {y:?}", i + 1))
+                .unwrap_or_else(|| format!("{} vs {} lines", e.lines().count(), a.lines().count()));
+            panic!("{what}: {name} differs from the single-machine ingest ({first})");
+        }
+    }
+    assert!(
+        expected.dump.lines().count() > 1000,
+        "{what}: the baseline store is suspiciously small"
+    );
+}
+
+fn s(p: &Path) -> String {
+    p.display().to_string()
+}
+
+/// Runs `quern stage ARGS` and returns its JSON report.
+fn stage_ok(args: &[String]) -> Value {
+    let mut a = vec!["stage".to_string()];
+    a.extend(args.iter().cloned());
+    let r = run_ok(&a);
+    serde_json::from_str(r.stdout.trim()).unwrap_or_else(|e| panic!("report {e}: {}", r.stdout))
+}
+
+fn plan(dir: &Path, partitions: u32, tasks: usize, inputs: &[PathBuf]) -> Value {
+    let mut a = vec![
+        "plan".to_string(),
+        "--dir".into(),
+        s(dir),
+        "--order".into(),
+        "5".into(),
+        "--partitions".into(),
+        partitions.to_string(),
+        "--map-tasks".into(),
+        tasks.to_string(),
+    ];
+    a.extend(inputs.iter().map(|p| s(p)));
+    stage_ok(&a)
+}
+
+fn task_args(stage: &str, dir: &Path, n: u64) -> Vec<String> {
+    let flag = if stage == "map" {
+        "--task"
+    } else {
+        "--partition"
+    };
+    vec![
+        stage.to_string(),
+        "--dir".into(),
+        s(dir),
+        flag.into(),
+        n.to_string(),
+        "--memory".into(),
+        "64MiB".into(),
+    ]
+}
+
+/// Runs every task of a planned job in order.
+fn run_all(dir: &Path, store: &Path, plan: &Value) -> Vec<Value> {
+    let mut reports = Vec::new();
+    for t in 0..plan["map_tasks"].as_u64().unwrap() {
+        reports.push(stage_ok(&task_args("map", dir, t)));
+    }
+    for st in ["reduce", "join"] {
+        for p in 0..plan["partitions"].as_u64().unwrap() {
+            reports.push(stage_ok(&task_args(st, dir, p)));
+        }
+    }
+    reports.push(stage_ok(&[
+        "assemble".into(),
+        "--dir".into(),
+        s(dir),
+        "--store".into(),
+        s(store),
+    ]));
+    reports
+}
+
+fn outcome(v: &Value) -> &str {
+    v["outcome"].as_str().unwrap()
+}
+
+/// Two novels through the stages, with several partitions and map tasks,
+/// equal the single-machine ingest; running every task again skips them all
+/// and leaves the store as it was.
+#[test]
+fn stages_by_hand_equal_the_single_machine_ingest_and_rerun_is_skipped() {
+    let inputs = gutenberg_files(2);
+    let tmp = tempfile::tempdir().unwrap();
+    let single = tmp.path().join("single");
+    ingest_ok(&single, &["--order", "5", "--quiet"], &inputs);
+    let expected = raw_view(&single);
+
+    let dir = tmp.path().join("shared");
+    let store = tmp.path().join("store");
+    let p = plan(&dir, 3, 3, &inputs);
+    assert_eq!(
+        p["map_tasks"], 2,
+        "two files under 1 MiB are two chunks: {p}"
+    );
+    let first = run_all(&dir, &store, &p);
+    assert!(first.iter().all(|r| outcome(r) == "written"), "{first:?}");
+    assert_raw_eq("stages, 3 partitions", &expected, &raw_view(&store));
+
+    assert_eq!(outcome(&plan(&dir, 3, 3, &inputs)), "skipped");
+    let again = run_all(&dir, &store, &p);
+    assert!(again.iter().all(|r| outcome(r) == "skipped"), "{again:?}");
+    assert_raw_eq("stages run twice", &expected, &raw_view(&store));
+
+    // One partition only: the same store (partition count does not matter).
+    let dir1 = tmp.path().join("shared1");
+    let store1 = tmp.path().join("store1");
+    let p1 = plan(&dir1, 1, 1, &inputs);
+    run_all(&dir1, &store1, &p1);
+    assert_raw_eq("stages, 1 partition", &expected, &raw_view(&store1));
+}
+
+/// Two copies of one task at once: exactly one writes the output, the other
+/// finds it finished (skipped) or loses the race (raced); a task killed
+/// before or after its commit is redone or skipped by the next attempt; a
+/// damaged output is moved aside and written again.
+#[test]
+fn stage_tasks_twice_at_once_killed_or_damaged() {
+    let inputs = gutenberg_files(1);
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("shared");
+    plan(&dir, 2, 1, &inputs);
+    let mut a = vec!["stage".to_string()];
+    a.extend(task_args("map", &dir, 0));
+    let children: Vec<_> = (0..2)
+        .map(|_| {
+            command(&a, &[])
+                .stdout(std::process::Stdio::piped())
+                .spawn()
+                .unwrap()
+        })
+        .collect();
+    let mut outcomes: Vec<String> = children
+        .into_iter()
+        .map(|c| {
+            let o = c.wait_with_output().unwrap();
+            assert!(o.status.success());
+            let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+            outcome(&v).to_string()
+        })
+        .collect();
+    outcomes.sort();
+    assert!(
+        outcomes == ["raced", "written"] || outcomes == ["skipped", "written"],
+        "{outcomes:?}"
+    );
+    let leftovers: Vec<_> = std::fs::read_dir(dir.join("map"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(leftovers, ["m000000"], "the losing copy removes its folder");
+
+    // Killed after writing, before the commit: the next attempt writes.
+    let r = run_env(
+        &[&["stage".to_string()][..], &task_args("reduce", &dir, 0)].concat(),
+        &[("QUERN_KILL_AT", "stage-written:1")],
+    );
+    assert_eq!(r.signal(), Some(9), "{}", r.describe());
+    assert_eq!(outcome(&stage_ok(&task_args("reduce", &dir, 0))), "written");
+    // Killed just after the commit: the next attempt skips.
+    let r = run_env(
+        &[&["stage".to_string()][..], &task_args("reduce", &dir, 1)].concat(),
+        &[("QUERN_KILL_AT", "stage-done:1")],
+    );
+    assert_eq!(r.signal(), Some(9), "{}", r.describe());
+    assert_eq!(outcome(&stage_ok(&task_args("reduce", &dir, 1))), "skipped");
+
+    // A flipped byte in a finished output's file: recognised, written again.
+    let run_file = std::fs::read_dir(dir.join("map/m000000"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .find(|p| p.extension().is_some_and(|x| x == "run"))
+        .unwrap();
+    let mut bytes = std::fs::read(&run_file).unwrap();
+    bytes[20] ^= 0x40;
+    std::fs::write(&run_file, bytes).unwrap();
+    assert_eq!(outcome(&stage_ok(&task_args("map", &dir, 0))), "repaired");
+    assert_eq!(outcome(&stage_ok(&task_args("map", &dir, 0))), "skipped");
+}
+
+/// Missing inputs: a map task whose input vanished after planning fails
+/// naming the file; a reduce before its maps names the map task to run; a
+/// plan given a missing file names it.
+#[test]
+fn stage_missing_inputs_fail_with_the_file_named() {
+    let tmp = tempfile::tempdir().unwrap();
+    let copy = tmp.path().join("novel.txt");
+    std::fs::copy(&gutenberg_files(1)[0], &copy).unwrap();
+    let dir = tmp.path().join("shared");
+    plan(&dir, 2, 1, std::slice::from_ref(&copy));
+
+    let r = run(&[&["stage".to_string()][..], &task_args("reduce", &dir, 0)].concat());
+    r.assert_failure();
+    assert!(
+        r.stderr.contains("map task 0 has no finished output"),
+        "{}",
+        r.describe()
+    );
+
+    std::fs::remove_file(&copy).unwrap();
+    let r = run(&[&["stage".to_string()][..], &task_args("map", &dir, 0)].concat());
+    r.assert_failure();
+    assert!(
+        r.stderr.contains(&s(&copy)) && r.stderr.contains("an input of map task 0"),
+        "{}",
+        r.describe()
+    );
+
+    let missing = tmp.path().join("not-there.txt");
+    let r = run(&[
+        "stage",
+        "plan",
+        "--dir",
+        &s(&tmp.path().join("other")),
+        "--partitions",
+        "2",
+        "--map-tasks",
+        "2",
+        &s(&missing),
+    ]);
+    r.assert_failure();
+    assert!(r.stderr.contains(&s(&missing)), "{}", r.describe());
+}
+
+/// Another plan in the same directory is refused.
+#[test]
+fn stage_plan_refuses_another_plan_in_the_same_dir() {
+    let inputs = gutenberg_files(1);
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("shared");
+    plan(&dir, 2, 1, &inputs);
+    let mut a = vec!["stage".to_string(), "plan".into(), "--dir".into(), s(&dir)];
+    a.extend(["--partitions", "3", "--map-tasks", "1"].map(String::from));
+    a.push(s(&inputs[0]));
+    let r = run(&a);
+    r.assert_failure();
+    assert!(r.stderr.contains("holds another plan"), "{}", r.describe());
+}
