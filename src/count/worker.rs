@@ -109,7 +109,7 @@ impl<'a> Worker<'a> {
         let table_bytes = cfg.worker_bytes / 100 * 85;
         Worker {
             cfg,
-            table: Table::with_budget(cfg.order, 1, table_bytes),
+            table: Table::growable(cfg.order, 1, table_bytes),
             dict: Dictionary::new(),
             dict_limit: cfg.worker_bytes - table_bytes,
             covers: Vec::new(),

@@ -281,7 +281,7 @@ struct Checkpoint {
 fn main() {
     let a = args();
     let src = Source::load(&a.source);
-    let mut rng = Rng(a.seed ^ 0x5EED_0F_C0FFEE);
+    let mut rng = Rng(a.seed ^ 0x5EED_0FC0_FFEE);
     let mut out: Box<dyn Write> = if a.out.as_os_str() == "-" {
         Box::new(std::io::stdout().lock())
     } else {
