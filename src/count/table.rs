@@ -131,6 +131,15 @@ impl Table {
         home(hash_of(key), self.cap)
     }
 
+    /// Starts loading the slot `key` hashes to: a read whose value is
+    /// not needed, so the processor goes on while the cache line comes
+    /// (the crate has no `unsafe` for a prefetch instruction).
+    #[inline]
+    pub fn prefetch(&self, key: &[u64]) {
+        let i = self.slot_of(key) * self.stride;
+        std::hint::black_box(self.slots[i]);
+    }
+
     /// Adds `add` to the sums of `key`. The caller checks [`Table::is_full`]
     /// between insertions; a table is never filled beyond its capacity.
     #[inline]

@@ -174,6 +174,14 @@ impl<'a> Worker<'a> {
                         if !ids.is_empty() {
                             self.totals.sentences += 1;
                             for i in 0..ids.len() {
+                                // Ask for the next position's slots now:
+                                // each is a likely cache miss, and they
+                                // load while this position's are updated.
+                                if i + 1 < ids.len() {
+                                    for k in 1..=n.min(ids.len() - i - 1) {
+                                        self.table.prefetch(&ids[i + 1..i + 1 + k]);
+                                    }
+                                }
                                 for k in 1..=n.min(ids.len() - i) {
                                     self.table.add(&ids[i..i + k], &[1]);
                                 }
