@@ -1,12 +1,22 @@
 //! The bounded in-memory table that counting and merging accumulate into.
 //!
-//! Open addressing with linear probing over flat arrays: `width` ids per
-//! slot (shorter keys are padded), `values` sums per slot and one length
-//! byte (0 = empty). Capacity is fixed at creation from a byte budget, so
-//! the table never reallocates: its memory is `capacity × slot_bytes`, and
-//! the pages of a fresh table are only touched when used. When the load
-//! reaches [`MAX_LOAD`] the owner spills it (sorted, via [`Table::sorted`])
-//! and clears it.
+//! Open addressing with linear probing over one flat array of records:
+//! each slot is `width` ids (shorter keys are padded with zeros), `values`
+//! sums and the key's length (0 = empty), so a probe touches one cache
+//! line. Capacity is fixed at creation from a byte budget, so the table
+//! never reallocates: its memory is `capacity × slot_bytes`, and the pages
+//! of a fresh table are only touched when used. When the load reaches
+//! [`MAX_LOAD`] the owner spills it (sorted, via [`Table::sorted`]) and
+//! clears it.
+//!
+//! Spilling sorts the records in place: they are first packed to the front
+//! of the array, then sorted as fixed-size arrays, comparing the padded ids
+//! and then the length (which is the lexicographic order with a prefix
+//! before its extensions). Sorting the records themselves instead of an
+//! index into them keeps every comparison in the data being sorted; the
+//! index sort it replaced spent most of its time waiting for memory.
+
+use std::cmp::Ordering;
 
 use crate::key::{Key, MAX_ORDER};
 use crate::shard::{Values, MAX_VALUES};
@@ -17,23 +27,31 @@ pub const MAX_LOAD: f64 = 0.8;
 /// a sentence (only a sentence of many thousand tokens gets there).
 pub const CRITICAL_LOAD: f64 = 0.95;
 
-/// A fixed-capacity n-gram → sums table.
+/// Slots a [`Table::growable`] table starts with.
+const INITIAL_SLOTS: usize = 1 << 18;
+
+/// A bounded n-gram → sums table.
 pub struct Table {
     width: usize,
     values: usize,
+    /// `width + values + 1`: u64s per slot.
+    stride: usize,
     cap: usize,
-    ids: Vec<u64>,
-    sums: Vec<u64>,
-    lens: Vec<u8>,
+    /// Largest capacity the budget allows (the table grows up to it).
+    max_cap: usize,
+    slots: Vec<u64>,
     used: usize,
     limit: usize,
     critical: usize,
+    /// The first `used` slots hold the records in key order (after
+    /// [`Table::sorted`], until [`Table::clear`]).
+    packed: bool,
 }
 
 impl Table {
-    /// Bytes one slot costs, including the sort index used when spilling.
+    /// Bytes one slot costs.
     pub fn slot_bytes(width: usize, values: usize) -> usize {
-        width * 8 + values * 8 + 1 + 4
+        (width + values + 1) * 8
     }
 
     /// A table for keys of up to `width` ids and `values` sums, sized to
@@ -49,17 +67,41 @@ impl Table {
         assert!((1..=MAX_ORDER).contains(&width) && values <= MAX_VALUES);
         let need = ((keys as f64 / MAX_LOAD) as usize).saturating_add(64);
         let cap = (budget / Self::slot_bytes(width, values)).min(need).max(64);
+        let stride = width + values + 1;
         Table {
             width,
             values,
+            stride,
             cap,
-            ids: vec![0; cap * width],
-            sums: vec![0; cap * values],
-            lens: vec![0; cap],
+            max_cap: cap,
+            slots: vec![0; cap * stride],
             used: 0,
             limit: ((cap as f64) * MAX_LOAD) as usize,
             critical: ((cap as f64) * CRITICAL_LOAD) as usize,
+            packed: false,
         }
+    }
+
+    /// Like [`Table::with_budget`], but starting small and doubling (in
+    /// place) while it fills, up to the budget: a small input then touches
+    /// only the memory it needs. Growing re-sorts the records by hash, so
+    /// it costs about as much as a spill; it happens at most
+    /// log2(budget / 14 MiB) times.
+    pub fn growable(width: usize, values: usize, budget: usize) -> Table {
+        let max_cap = (budget / Self::slot_bytes(width, values)).max(64);
+        let mut t = Self::for_keys(
+            width,
+            values,
+            budget,
+            (INITIAL_SLOTS as f64 * MAX_LOAD) as usize,
+        );
+        t.max_cap = max_cap.max(t.cap);
+        t
+    }
+
+    /// Slots the table has now.
+    pub fn capacity(&self) -> usize {
+        self.cap
     }
 
     /// Number of distinct keys held.
@@ -86,33 +128,42 @@ impl Table {
 
     #[inline]
     fn slot_of(&self, key: &[u64]) -> usize {
-        let mut h = key.len() as u64;
-        for &w in key {
-            h = (h.rotate_left(23) ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15);
-        }
-        h ^= h >> 29;
-        ((h as u128 * self.cap as u128) >> 64) as usize
+        home(hash_of(key), self.cap)
+    }
+
+    /// Starts loading the slot `key` hashes to: a read whose value is
+    /// not needed, so the processor goes on while the cache line comes
+    /// (the crate has no `unsafe` for a prefetch instruction).
+    #[inline]
+    pub fn prefetch(&self, key: &[u64]) {
+        let i = self.slot_of(key) * self.stride;
+        std::hint::black_box(self.slots[i]);
     }
 
     /// Adds `add` to the sums of `key`. The caller checks [`Table::is_full`]
     /// between insertions; a table is never filled beyond its capacity.
     #[inline]
     pub fn add(&mut self, key: &[u64], add: &[u64]) {
-        debug_assert!(key.len() <= self.width && !key.is_empty());
-        let w = self.width;
+        debug_assert!(key.len() <= self.width && !key.is_empty() && !self.packed);
+        let (w, st) = (self.width, self.stride);
+        let lenpos = w + self.values;
         let mut i = self.slot_of(key);
         loop {
-            let len = self.lens[i] as usize;
+            let rec = &mut self.slots[i * st..(i + 1) * st];
+            let len = rec[lenpos] as usize;
             if len == 0 {
-                self.lens[i] = key.len() as u8;
-                self.ids[i * w..i * w + key.len()].copy_from_slice(key);
-                self.sums[i * self.values..i * self.values + add.len()].copy_from_slice(add);
+                rec[lenpos] = key.len() as u64;
+                rec[..key.len()].copy_from_slice(key);
+                rec[w..w + add.len()].copy_from_slice(add);
                 self.used += 1;
                 assert!(self.used < self.cap, "table filled beyond capacity");
+                if self.used >= self.limit && self.cap < self.max_cap {
+                    self.grow();
+                }
                 return;
             }
-            if len == key.len() && &self.ids[i * w..i * w + len] == key {
-                for (s, a) in self.sums[i * self.values..].iter_mut().zip(add) {
+            if len == key.len() && &rec[..len] == key {
+                for (s, a) in rec[w..].iter_mut().zip(add) {
                     *s += a;
                 }
                 return;
@@ -124,30 +175,173 @@ impl Table {
         }
     }
 
-    fn key_at(&self, i: usize) -> &[u64] {
-        &self.ids[i * self.width..i * self.width + self.lens[i] as usize]
+    /// Moves the records to the front of the array, in slot order.
+    fn pack(&mut self) {
+        let (st, lenpos) = (self.stride, self.width + self.values);
+        let mut j = 0;
+        for i in 0..self.cap {
+            if self.slots[i * st + lenpos] != 0 {
+                if i != j {
+                    self.slots.copy_within(i * st..(i + 1) * st, j * st);
+                    // Zero it whole: a shorter key stored here later is
+                    // padded with zeros, which the sort relies on.
+                    self.slots[i * st..(i + 1) * st].fill(0);
+                }
+                j += 1;
+            }
+        }
+        debug_assert_eq!(j, self.used);
     }
 
-    /// The entries in key order; the table is emptied afterwards by
-    /// [`Table::clear`].
-    pub fn sorted(&self) -> impl Iterator<Item = (Key, Values)> + '_ {
-        let mut idx: Vec<u32> = (0..self.cap as u32)
-            .filter(|&i| self.lens[i as usize] != 0)
-            .collect();
-        idx.sort_unstable_by(|&a, &b| self.key_at(a as usize).cmp(self.key_at(b as usize)));
-        idx.into_iter().map(move |i| {
-            let i = i as usize;
-            let mut v = [0u64; MAX_VALUES];
-            v[..self.values].copy_from_slice(&self.sums[i * self.values..(i + 1) * self.values]);
-            (Key::new(self.key_at(i)), v)
-        })
+    /// Packs the records to the front of the array and sorts them.
+    fn pack_and_sort(&mut self) {
+        self.pack();
+        let st = self.stride;
+        let recs = &mut self.slots[..self.used * st];
+        let w = self.width;
+        macro_rules! sort_as {
+            ($($n:literal)*) => {
+                match st {
+                    $($n => sort_records::<$n>(recs, w),)*
+                    _ => unreachable!("stride {st} out of range"),
+                }
+            };
+        }
+        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
+        self.packed = true;
+    }
+
+    /// Doubles the capacity (at most to `max_cap`) without a second array:
+    /// the records are packed and sorted by hash, the array is extended,
+    /// and each record moves (last first) to the slot linear probing gives
+    /// it in the larger table. Homes are monotone in the hash, so the
+    /// sorted records land in increasing slots, each at or after its
+    /// current index; the few that would run past the end are inserted
+    /// again at the start, as linear probing wraps.
+    fn grow(&mut self) {
+        let new_cap = (self.cap * 2).min(self.max_cap);
+        let (st, lenpos) = (self.stride, self.width + self.values);
+        self.pack();
+        let n = self.used;
+        let recs = &mut self.slots[..n * st];
+        macro_rules! sort_as {
+            ($($n:literal)*) => {
+                match st {
+                    $($n => sort_by_hash::<$n>(recs, lenpos),)*
+                    _ => unreachable!("stride {st} out of range"),
+                }
+            };
+        }
+        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
+        self.slots.resize(new_cap * st, 0);
+        self.cap = new_cap;
+        self.limit = ((new_cap as f64) * MAX_LOAD) as usize;
+        self.critical = ((new_cap as f64) * CRITICAL_LOAD) as usize;
+        // Pass 1: each record's new slot, kept above its length.
+        const OVERFLOW: u64 = u64::MAX >> 8;
+        let mut next = 0usize;
+        for r in 0..n {
+            let rec = &mut self.slots[r * st..(r + 1) * st];
+            let len = rec[lenpos] as usize;
+            let pos = home(hash_of(&rec[..len]), new_cap).max(next);
+            let mark = if pos < new_cap {
+                next = pos + 1;
+                pos as u64
+            } else {
+                OVERFLOW
+            };
+            rec[lenpos] = (mark << 8) | len as u64;
+        }
+        // Pass 2: move, last first (every target is free by then).
+        let mut overflow = Vec::new();
+        for r in (0..n).rev() {
+            let field = self.slots[r * st + lenpos];
+            let len = field & 0xFF;
+            let mark = field >> 8;
+            self.slots[r * st + lenpos] = len;
+            if mark == OVERFLOW {
+                overflow.extend_from_slice(&self.slots[r * st..(r + 1) * st]);
+                self.slots[r * st..(r + 1) * st].fill(0);
+                continue;
+            }
+            let pos = mark as usize;
+            if pos != r {
+                self.slots.copy_within(r * st..(r + 1) * st, pos * st);
+                self.slots[r * st..(r + 1) * st].fill(0);
+            }
+        }
+        for rec in overflow.chunks_exact(st) {
+            let key = &rec[..rec[lenpos] as usize];
+            let mut i = self.slot_of(key);
+            while self.slots[i * st + lenpos] != 0 {
+                i = if i + 1 == self.cap { 0 } else { i + 1 };
+            }
+            self.slots[i * st..(i + 1) * st].copy_from_slice(rec);
+        }
+    }
+
+    /// The entries in key order. The table is no longer usable for
+    /// [`Table::add`] until it is emptied by [`Table::clear`].
+    pub fn sorted(&mut self) -> impl Iterator<Item = (Key, Values)> + '_ {
+        if !self.packed {
+            self.pack_and_sort();
+        }
+        let (w, v) = (self.width, self.values);
+        self.slots[..self.used * self.stride]
+            .chunks_exact(self.stride)
+            .map(move |rec| {
+                let mut vals = [0u64; MAX_VALUES];
+                vals[..v].copy_from_slice(&rec[w..w + v]);
+                (Key::new(&rec[..rec[w + v] as usize]), vals)
+            })
     }
 
     /// Empties the table, keeping its memory.
     pub fn clear(&mut self) {
-        self.lens.fill(0);
+        if self.packed {
+            // Only the packed prefix holds records.
+            self.slots[..self.used * self.stride].fill(0);
+        } else {
+            self.slots.fill(0);
+        }
         self.used = 0;
+        self.packed = false;
     }
+}
+
+/// The hash of a key; its slot in a table of `cap` slots is
+/// [`home`]`(hash, cap)`, monotone in the hash.
+#[inline]
+fn hash_of(key: &[u64]) -> u64 {
+    let mut h = key.len() as u64;
+    for &w in key {
+        h = (h.rotate_left(23) ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15);
+    }
+    h ^ (h >> 29)
+}
+
+#[inline]
+fn home(hash: u64, cap: usize) -> usize {
+    ((hash as u128 * cap as u128) >> 64) as usize
+}
+
+/// Sorts records of `N` u64s by the hash of their key (length at
+/// `lenpos`).
+fn sort_by_hash<const N: usize>(flat: &mut [u64], lenpos: usize) {
+    let (recs, _) = flat.as_chunks_mut::<N>();
+    recs.sort_unstable_by_key(|r| hash_of(&r[..r[lenpos] as usize]));
+}
+
+/// Sorts records of `N` u64s whose first `width` are padded ids and whose
+/// last is the key length.
+fn sort_records<const N: usize>(flat: &mut [u64], width: usize) {
+    let (recs, rest) = flat.as_chunks_mut::<N>();
+    debug_assert!(rest.is_empty());
+    recs.sort_unstable_by(|a, b| -> Ordering {
+        a[..width]
+            .cmp(&b[..width])
+            .then_with(|| a[N - 1].cmp(&b[N - 1]))
+    });
 }
 
 #[cfg(test)]
@@ -158,6 +352,7 @@ mod tests {
     #[test]
     fn capacity_follows_budget_and_key_bound() {
         let slot = Table::slot_bytes(5, 1);
+        assert_eq!(slot, 56);
         assert_eq!(Table::with_budget(5, 1, 1000 * slot).cap, 1000);
         assert_eq!(Table::for_keys(5, 1, 1000 * slot, 80).cap, 164);
         assert_eq!(Table::for_keys(5, 1, 1000 * slot, usize::MAX).cap, 1000);
@@ -180,6 +375,64 @@ mod tests {
             t.add(&key, &[1]);
             *m.entry(key).or_insert(0u64) += 1;
         }
+        let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
+        let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
+        assert_eq!(got, want);
+    }
+
+    #[test]
+    fn refills_after_a_sorted_spill() {
+        // Two fill-sort-clear rounds with different keys (and ids of 0,
+        // which are also the padding): the second round must see none of
+        // the first round's records. Checked against a BTreeMap.
+        let mut t = Table::with_budget(4, 2, 1 << 15);
+        let mut x = 99u64;
+        for round in 0..2u64 {
+            let mut m = BTreeMap::new();
+            while !t.is_full() {
+                x = x
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let len = 1 + (x >> 61) as usize % 4;
+                let key: Vec<u64> = (0..len).map(|j| (x >> (j * 5)) % 7 + round).collect();
+                t.add(&key, &[1, round + 1]);
+                let e = m.entry(key).or_insert([0u64; 2]);
+                e[0] += 1;
+                e[1] += round + 1;
+            }
+            let got: Vec<(Vec<u64>, [u64; 2])> = t
+                .sorted()
+                .map(|(k, v)| (k.ids().to_vec(), [v[0], v[1]]))
+                .collect();
+            let want: Vec<(Vec<u64>, [u64; 2])> = m.into_iter().collect();
+            assert_eq!(got, want, "round {round}");
+            t.clear();
+            assert!(t.is_empty());
+        }
+    }
+
+    #[test]
+    fn grows_in_place_and_keeps_every_sum() {
+        // A growable table with a budget for 2^20 slots, fed many more
+        // distinct keys than its first capacity: it must grow, and what it
+        // holds must equal a BTreeMap fed the same keys.
+        let budget = Table::slot_bytes(3, 1) << 20;
+        let mut t = Table::growable(3, 1, budget);
+        let first = t.capacity();
+        assert!(first < 1 << 20);
+        let mut m = BTreeMap::new();
+        let mut x = 7u64;
+        while !t.is_full() {
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let len = 1 + (x >> 62) as usize % 3;
+            let key: Vec<u64> = (0..len).map(|j| (x >> (j * 11)) % 5000).collect();
+            t.add(&key, &[2]);
+            *m.entry(key).or_insert(0u64) += 2;
+        }
+        assert_eq!(t.capacity(), 1 << 20);
+        assert_eq!(t.len(), m.len());
         let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
         let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
         assert_eq!(got, want);

@@ -116,7 +116,7 @@ impl<'a> Worker<'a> {
         let table_bytes = cfg.worker_bytes / 100 * 85;
         Worker {
             cfg,
-            table: Table::with_budget(cfg.order, 1, table_bytes),
+            table: Table::growable(cfg.order, 1, table_bytes),
             dict: Dictionary::new(),
             first: FirstSeen::new(),
             dict_limit: cfg.worker_bytes - table_bytes,
@@ -192,6 +192,14 @@ impl<'a> Worker<'a> {
                         if !ids.is_empty() {
                             self.totals.sentences += 1;
                             for i in 0..ids.len() {
+                                // Ask for the next position's slots now:
+                                // each is a likely cache miss, and they
+                                // load while this position's are updated.
+                                if i + 1 < ids.len() {
+                                    for k in 1..=n.min(ids.len() - i - 1) {
+                                        self.table.prefetch(&ids[i + 1..i + 1 + k]);
+                                    }
+                                }
                                 for k in 1..=n.min(ids.len() - i) {
                                     self.table.add(&ids[i..i + k], &[1]);
                                 }
