@@ -611,7 +611,10 @@ fn drop_damaged(m: &mut Manifest, d: &Dirs) -> Result<Vec<String>> {
                 ));
             }
         }
-        let base_firsts = m.base.iter().filter_map(|b| b.growth.as_ref().map(|g| &g.firsts));
+        let base_firsts = m
+            .base
+            .iter()
+            .filter_map(|b| b.growth.as_ref().map(|g| &g.firsts));
         for name in base_firsts.chain(m.runsets.iter().filter_map(|r| r.firsts.as_ref())) {
             if let Err(e) = growth::file::check(&d.runs.join(name)) {
                 return Err(Error::corrupt(
