@@ -321,6 +321,29 @@ impl Manifest {
         t
     }
 
+    /// Input bytes, as sizes on disk, that the run sets cover: a plain file
+    /// by its covered ranges; a compressed file, whose offsets count the
+    /// decompressed stream, in full once it is covered to its end, not
+    /// before.
+    pub fn counted_bytes(&self) -> u64 {
+        self.runsets
+            .iter()
+            .flat_map(|r| &r.covers)
+            .map(|s| {
+                let f = &self.inputs[s.file as usize];
+                if f.compression != crate::corpus::Compression::None {
+                    if s.end == u64::MAX {
+                        f.size
+                    } else {
+                        0
+                    }
+                } else {
+                    s.end.min(f.size).saturating_sub(s.start)
+                }
+            })
+            .sum()
+    }
+
     /// The parts of every chunk that no run set covers yet.
     pub fn uncovered(&self) -> Vec<Span> {
         let mut covered: BTreeMap<u32, Vec<(u64, u64)>> = BTreeMap::new();
@@ -490,5 +513,57 @@ mod tests {
         m1.next_id = 3;
         m1.save(dir.path()).unwrap();
         assert_eq!(Manifest::load(dir.path()).unwrap(), Some(m1));
+    }
+
+    /// Plain files count their covered bytes; a compressed file counts only
+    /// once covered to its end (its offsets are in the decompressed stream).
+    #[test]
+    fn counted_bytes_of_plain_and_compressed_inputs() {
+        use crate::corpus::{Compression, InputFile};
+        let input = |name: &str, compression, size| InputFile {
+            path: name.into(),
+            compression,
+            size,
+            mtime_ns: 0,
+        };
+        let span = |file, start, end| Span { file, start, end };
+        let runset = |covers: Vec<Span>| RunSet {
+            id: 0,
+            runs: vec![],
+            dict: String::new(),
+            firsts: None,
+            covers,
+            hashes: vec![],
+            totals: ReadTotals::default(),
+        };
+        let mut m = Manifest {
+            format_version: MANIFEST_VERSION,
+            settings: Settings {
+                order: 2,
+                lowercase: false,
+                max_line_bytes: 10,
+            },
+            mode: Mode::Fresh,
+            inputs: vec![
+                input("a.txt", Compression::None, 1000),
+                input("b.gz", Compression::Gzip, 300),
+            ],
+            chunks: vec![],
+            partitions: 1,
+            phase: Phase::Counting,
+            next_id: 0,
+            base: None,
+            runsets: vec![runset(vec![span(0, 0, 400), span(1, 0, 2000)])],
+            merged: vec![None],
+            joined: vec![None],
+            started: 0,
+        };
+        // 2000 decompressed bytes of a 300-byte .gz file: not known to be done.
+        assert_eq!(m.counted_bytes(), 400);
+        m.runsets.push(runset(vec![
+            span(0, 400, u64::MAX),
+            span(1, 2000, u64::MAX),
+        ]));
+        assert_eq!(m.counted_bytes(), 1300);
     }
 }

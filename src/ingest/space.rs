@@ -47,15 +47,7 @@ pub fn disk_full(store: &Path, e: Error) -> Error {
 /// runs now take `run_bytes`.
 pub fn estimate_peak(m: &Manifest, run_bytes: u64) -> u64 {
     let input: u64 = m.inputs.iter().map(|f| f.size).sum();
-    let counted: u64 = m
-        .runsets
-        .iter()
-        .flat_map(|r| &r.covers)
-        .map(|s| {
-            let size = m.inputs[s.file as usize].size;
-            s.end.min(size).saturating_sub(s.start)
-        })
-        .sum();
+    let counted = m.counted_bytes();
     match m.phase {
         Phase::Counting if counted > 0 && run_bytes > 0 => {
             let per_input = run_bytes as f64 / counted as f64;

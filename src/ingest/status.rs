@@ -85,16 +85,7 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
     let manifest = Manifest::load(&store::work_dir(dir))?;
     let ingest = manifest.map(|m| {
         let input_bytes: u64 = m.inputs.iter().map(|f| f.size).sum();
-        let counted_bytes = m
-            .runsets
-            .iter()
-            .flat_map(|r| &r.covers)
-            .map(|s| {
-                s.end
-                    .min(m.inputs[s.file as usize].size)
-                    .saturating_sub(s.start)
-            })
-            .sum();
+        let counted_bytes = m.counted_bytes();
         UnfinishedIngest {
             phase: m.phase.name(),
             mode: match m.mode {
