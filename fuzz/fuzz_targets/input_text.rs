@@ -5,27 +5,14 @@
 #![no_main]
 
 use std::io::Write;
-use std::path::PathBuf;
-use std::sync::OnceLock;
 
 use libfuzzer_sys::fuzz_target;
+
+#[path = "scratch.rs"]
+mod scratch;
 use quern::corpus::{open_at, Compression, InputFile, Line, LineReader};
 use quern::tokenize::Tokenizer;
 use quern::words::{bos_id, eos_id, Dictionary};
-
-fn scratch() -> &'static PathBuf {
-    static DIR: OnceLock<PathBuf> = OnceLock::new();
-    DIR.get_or_init(|| {
-        let base = if std::path::Path::new("/dev/shm").is_dir() {
-            PathBuf::from("/dev/shm")
-        } else {
-            std::env::temp_dir()
-        };
-        let d = base.join(format!("quern-fuzz-input-{}", std::process::id()));
-        std::fs::create_dir_all(&d).unwrap();
-        d
-    })
-}
 
 fuzz_target!(|data: &[u8]| {
     let Some((&mode, body)) = data.split_first() else {
@@ -49,7 +36,7 @@ fuzz_target!(|data: &[u8]| {
         (Compression::Zstd, true) => zstd::encode_all(body, 1).unwrap(),
         _ => body.to_vec(),
     };
-    let path = scratch().join("input");
+    let path = scratch::dir().join("input");
     std::fs::write(&path, &bytes).unwrap();
     let f = InputFile {
         path: path.clone(),

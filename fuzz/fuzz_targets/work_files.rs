@@ -9,31 +9,17 @@
 //! `src/shard/mod.rs`): that drives the record parser itself.
 #![no_main]
 
-use std::path::PathBuf;
-use std::sync::OnceLock;
-
 use libfuzzer_sys::fuzz_target;
-use quern::shard::{DictReader, RunFile};
 
-fn scratch() -> &'static PathBuf {
-    static DIR: OnceLock<PathBuf> = OnceLock::new();
-    DIR.get_or_init(|| {
-        let base = if std::path::Path::new("/dev/shm").is_dir() {
-            PathBuf::from("/dev/shm")
-        } else {
-            std::env::temp_dir()
-        };
-        let d = base.join(format!("quern-fuzz-work-{}", std::process::id()));
-        std::fs::create_dir_all(&d).unwrap();
-        d
-    })
-}
+#[path = "scratch.rs"]
+mod scratch;
+use quern::shard::{DictReader, RunFile};
 
 fuzz_target!(|data: &[u8]| {
     let Some((&mode, body)) = data.split_first() else {
         return;
     };
-    let path = scratch().join("file");
+    let path = scratch::dir().join("file");
     let sealed;
     let body = if mode & 3 == 2 {
         sealed = seal_run(body, mode);

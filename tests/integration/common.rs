@@ -21,6 +21,24 @@ pub const SMALL_BUDGET: &[&str] = &[
     "--quiet",
 ];
 
+/// Ingest flags of the fault tests (soak, damage, disk full): order 5 with
+/// 16 MiB, so that one short novel spills a dozen times.
+pub const TINY_BUDGET: &[&str] = &[
+    "--order",
+    "5",
+    "--memory",
+    "16MiB",
+    "--threads",
+    "2",
+    "--quiet",
+];
+
+/// Input of the fault tests: fixtures/gutenberg/persuasion.txt, the
+/// shortest novel but one.
+pub fn fault_input() -> Vec<PathBuf> {
+    vec![gutenberg_dir().join("persuasion.txt")]
+}
+
 /// Path of the binary under test (provided by cargo for integration tests).
 pub fn bin() -> &'static str {
     env!("CARGO_BIN_EXE_quern")

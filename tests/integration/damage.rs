@@ -8,23 +8,11 @@
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
-use crate::common::{
-    assert_views_eq, gutenberg_dir, ingest_args, ingest_ok, run, run_env, store_view, StoreView,
-};
+use crate::common::{assert_views_eq, ingest_args, ingest_ok, run, run_env, store_view, StoreView};
 
-const FLAGS: &[&str] = &[
-    "--order",
-    "5",
-    "--memory",
-    "16MiB",
-    "--threads",
-    "2",
-    "--quiet",
-];
+use crate::common::TINY_BUDGET as FLAGS;
 
-fn input() -> Vec<PathBuf> {
-    vec![gutenberg_dir().join("persuasion.txt")]
-}
+use crate::common::fault_input as input;
 
 /// Source: quern's uninterrupted run (checked against the reference counter
 /// in gutenberg.rs).

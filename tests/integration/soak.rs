@@ -19,16 +19,7 @@ use crate::common::{
     StoreView,
 };
 
-/// Small budget and order 5, so a short novel spills many times.
-const FLAGS: &[&str] = &[
-    "--order",
-    "5",
-    "--memory",
-    "16MiB",
-    "--threads",
-    "2",
-    "--quiet",
-];
+use crate::common::TINY_BUDGET as FLAGS;
 
 /// splitmix64 (Steele, Lea & Flood, "Fast splittable pseudorandom number
 /// generators", OOPSLA 2014): a small, well-known seeded generator.
