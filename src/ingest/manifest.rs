@@ -452,12 +452,9 @@ mod tests {
         ));
     }
 
-    /// A torn or damaged current manifest falls back to the previous one;
-    /// both damaged is an error naming the current file.
-    #[test]
-    fn damaged_manifest_falls_back_to_the_previous() {
-        let dir = tempfile::tempdir().unwrap();
-        let mut m1 = Manifest {
+    /// A manifest of order 2 with one partition and nothing done yet.
+    fn empty() -> Manifest {
+        Manifest {
             format_version: MANIFEST_VERSION,
             settings: Settings {
                 order: 2,
@@ -475,7 +472,15 @@ mod tests {
             merged: vec![None],
             joined: vec![None],
             started: 0,
-        };
+        }
+    }
+
+    /// A torn or damaged current manifest falls back to the previous one;
+    /// both damaged is an error naming the current file.
+    #[test]
+    fn damaged_manifest_falls_back_to_the_previous() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut m1 = empty();
         m1.save(dir.path()).unwrap();
         let m2 = Manifest {
             phase: Phase::Merging,
@@ -537,26 +542,12 @@ mod tests {
             totals: ReadTotals::default(),
         };
         let mut m = Manifest {
-            format_version: MANIFEST_VERSION,
-            settings: Settings {
-                order: 2,
-                lowercase: false,
-                max_line_bytes: 10,
-            },
-            mode: Mode::Fresh,
             inputs: vec![
                 input("a.txt", Compression::None, 1000),
                 input("b.gz", Compression::Gzip, 300),
             ],
-            chunks: vec![],
-            partitions: 1,
-            phase: Phase::Counting,
-            next_id: 0,
-            base: None,
             runsets: vec![runset(vec![span(0, 0, 400), span(1, 0, 2000)])],
-            merged: vec![None],
-            joined: vec![None],
-            started: 0,
+            ..empty()
         };
         // 2000 decompressed bytes of a 300-byte .gz file: not known to be done.
         assert_eq!(m.counted_bytes(), 400);

@@ -24,21 +24,9 @@ pub fn thousands(n: u64) -> String {
     out
 }
 
-/// Bytes in binary units, e.g. `1.5 GiB`.
-pub fn bytes(n: u64) -> String {
-    let units = ["B", "KiB", "MiB", "GiB", "TiB"];
-    let mut v = n as f64;
-    let mut u = 0;
-    while v >= 1024.0 && u + 1 < units.len() {
-        v /= 1024.0;
-        u += 1;
-    }
-    if u == 0 {
-        format!("{n} B")
-    } else {
-        format!("{v:.1} {}", units[u])
-    }
-}
+/// Bytes in binary units, e.g. `1.5 GiB` (the library's formatting, so
+/// that errors and summaries agree).
+pub use quern::error::human_bytes as bytes;
 
 /// Writes `v` as pretty JSON followed by a newline.
 pub fn print_json(out: &mut impl std::io::Write, v: &impl serde::Serialize) -> anyhow::Result<()> {
