@@ -35,7 +35,7 @@ use crate::key::{Key, MAX_ORDER};
 use crate::memory::{peak_rss, Plan};
 use crate::merge::{join_partition, merge_partition, KWayMerge, MergeConfig, RecordSource};
 use crate::shard::{DictReader, DictWriter, RunFile, RunWriter, Values};
-use crate::store::{self, build, keys, Settings, Store, StoreMeta, Totals};
+use crate::store::{self, build, Ranks, Settings, Store, StoreMeta, Totals};
 use crate::words::WordId;
 use manifest::{Base, Joined, Mode, RunSet};
 
@@ -947,6 +947,7 @@ impl Run<'_> {
             let dirs: &Dirs = run.dirs;
             let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
             let sst = run.dirs.sst.clone();
+            let ranks = Ranks::from_dicts(&dictionaries(m, run.dirs))?;
             let job = |q: u32| -> Result<Joined> {
                 let counts = RunFile::open(&run.dirs.merged.join(&merged[q as usize].counts))?;
                 join_partition(
@@ -954,6 +955,7 @@ impl Run<'_> {
                     q,
                     &counts,
                     suffix.iter().map(|f| (f.clone(), q)).collect(),
+                    &ranks,
                     &sst,
                 )
             };
@@ -981,9 +983,7 @@ impl Run<'_> {
                 let mut meta = assemble_meta(m, &run.dirs.work)?;
                 meta.growth = growth_curve(m, run.dirs, run.plan.fanin)?;
                 let mut files: Vec<(String, PathBuf)> = Vec::new();
-                if let Some(vocab) = write_vocab(m, run.dirs, run.plan.fanin)? {
-                    files.push((keys::VOCAB_CF.to_string(), vocab));
-                }
+                files.extend(write_vocab(m, run.dirs, run.plan.fanin)?);
                 for j in m.joined.iter().flatten() {
                     for (cf, f) in &j.ssts {
                         files.push((cf.clone(), run.dirs.sst.join(f)));
@@ -1034,12 +1034,19 @@ fn remove_matching(dir: &Path, suffix: &str) -> Result<()> {
 
 /// Merges every dictionary into the vocabulary SST (in rounds of at most
 /// `fanin` files, to bound the open readers).
-fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Option<PathBuf>> {
+/// Every dictionary of the ingest: the spills' and the appended store's.
+fn dictionaries(m: &Manifest, d: &Dirs) -> Vec<PathBuf> {
     let mut paths: Vec<PathBuf> = m.runsets.iter().map(|r| d.runs.join(&r.dict)).collect();
     if let Some(b) = &m.base {
         paths.push(d.runs.join(&b.dict));
     }
-    crate::stage::merge_vocabulary(paths, &d.tmp, &d.sst, fanin)
+    paths
+}
+
+fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Vec<(String, PathBuf)>> {
+    let paths = dictionaries(m, d);
+    let ranks = Ranks::from_dicts(&paths)?;
+    crate::stage::merge_vocabulary(paths, &ranks, &d.tmp, &d.sst, fanin)
 }
 
 fn assemble_meta(m: &Manifest, work: &Path) -> Result<StoreMeta> {

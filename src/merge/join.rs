@@ -7,20 +7,34 @@ use super::kway::{KWayMerge, RecordSource};
 use super::partition::{open_all, reduce_sources, MergeConfig};
 use crate::error::{Error, Result};
 use crate::ingest::manifest::{Joined, PartitionStats};
-use crate::key::Key;
 use crate::shard::RunFile;
 use crate::store::build::{sst_options, SstSet};
-use crate::store::keys::{context_cf, encode_ngram, ngram_cf};
-use crate::store::ContextStats;
+use crate::store::keys::{encode_ngram, ngram_cf};
+use crate::store::ranks::KeyWriter;
+use crate::store::{ContextStats, Ranks};
 use crate::words::{bos_id, unk_id};
 
+/// An n-gram below the top order whose children are still coming: its
+/// record is written when the last child has been seen, with its context
+/// statistics in its value.
+#[derive(Clone, Default)]
+struct OpenContext {
+    active: bool,
+    key: Vec<u8>,
+    count: u64,
+    continuation: u64,
+    stats: ContextStats,
+}
+
 /// Joins partition `q`'s merged counts with its continuation contributions
-/// (`suffixes`: file, section) and writes its SST files to `sst_dir`.
+/// (`suffixes`: file, section) and writes its SST files to `sst_dir`, with
+/// keys of word ranks from `ranks` (every word of the input must be there).
 pub fn join_partition(
     cfg: &MergeConfig,
     q: u32,
     counts: &RunFile,
     suffixes: Vec<(RunFile, u32)>,
+    ranks: &Ranks,
     sst_dir: &Path,
 ) -> Result<Joined> {
     let n = cfg.order;
@@ -37,25 +51,22 @@ pub fn join_partition(
         coc_adjusted: vec![BTreeMap::new(); n],
         ..Default::default()
     };
-    // open[j]: the context of length j (1 ≤ j < N) whose children come next.
-    let mut open: Vec<Option<(Key, ContextStats)>> = vec![None; n];
+    // open[j]: the n-gram of order j (1 ≤ j < N) whose children come next.
+    let mut open: Vec<OpenContext> = vec![OpenContext::default(); n];
+    let mut keys = KeyWriter::default();
     let mut kbuf = Vec::with_capacity(8 * n);
-    let mut vbuf = Vec::with_capacity(24);
+    let mut vbuf = Vec::with_capacity(32);
     let bad = |what: String| Error::corrupt(counts.path(), what);
+    let cf: Vec<String> = (0..=n).map(ngram_cf).collect();
 
-    let close = |sink: &mut SstSet,
-                 open: &mut Vec<Option<(Key, ContextStats)>>,
-                 from: usize|
-     -> Result<()> {
-        for slot in open.iter_mut().skip(from.max(1)) {
-            if let Some((k, st)) = slot.take() {
-                if st.types > 0 {
-                    let mut kb = Vec::with_capacity(8 * k.order());
-                    k.write_be(&mut kb);
-                    let mut vb = Vec::with_capacity(24);
-                    st.encode(&mut vb);
-                    sink.put(&context_cf(k.order()), &kb, &vb)?;
-                }
+    let close = |sink: &mut SstSet, open: &mut [OpenContext], from: usize| -> Result<()> {
+        let mut vb = Vec::with_capacity(32);
+        for (j, o) in open.iter_mut().enumerate().skip(from.max(1)) {
+            if o.active {
+                o.active = false;
+                vb.clear();
+                encode_ngram(o.count, Some(o.continuation), Some(&o.stats), &mut vb);
+                sink.put(&cf[j], &o.key, &vb)?;
             }
         }
         Ok(())
@@ -96,25 +107,34 @@ pub fn join_partition(
         if k == 1 && key.ids()[0] == unk {
             stats.unk_seen = true;
         }
+        keys.write(ranks, &key, &mut kbuf).ok_or_else(|| {
+            bad("an n-gram with a word that is in no dictionary of the ingest".into())
+        })?;
         close(&mut sink, &mut open, k)?;
         if k == 1 {
             if !starts_bos {
                 stats.root.add_child(c, a);
             }
         } else {
-            match open[k - 1].as_mut() {
-                Some((h, st)) if h.ids() == &key.ids()[..k - 1] => st.add_child(c, a),
-                _ => return Err(bad("an n-gram whose prefix was not counted".into())),
+            let parent = &mut open[k - 1];
+            if !parent.active || !kbuf.starts_with(&parent.key) {
+                return Err(bad("an n-gram whose prefix was not counted".into()));
             }
+            parent.stats.add_child(c, a);
         }
         if k < n {
-            open[k] = Some((key, ContextStats::default()));
+            let o = &mut open[k];
+            o.active = true;
+            o.key.clear();
+            o.key.extend_from_slice(&kbuf);
+            o.count = c;
+            o.continuation = continuation;
+            o.stats = ContextStats::default();
+        } else {
+            vbuf.clear();
+            encode_ngram(c, None, None, &mut vbuf);
+            sink.put(&cf[k], &kbuf, &vbuf)?;
         }
-        kbuf.clear();
-        key.write_be(&mut kbuf);
-        vbuf.clear();
-        encode_ngram(c, (k < n).then_some(continuation), &mut vbuf);
-        sink.put(&ngram_cf(k), &kbuf, &vbuf)?;
     }
     close(&mut sink, &mut open, 1)?;
     if next_cont.is_some() {

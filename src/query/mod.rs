@@ -491,22 +491,19 @@ impl<'s> Estimator<'s> {
             let mut uniq: Vec<&[WordId]> = miss.iter().map(|&i| hs[i]).collect();
             uniq.sort_unstable();
             uniq.dedup();
-            let stats = self.store.contexts_many(&uniq)?;
-            let hcs = if self.method == Method::Stupid {
-                self.store
-                    .get_many(&uniq)?
-                    .into_iter()
-                    .map(|g| g.map_or(0, |g| g.0))
-                    .collect()
-            } else {
-                vec![0; uniq.len()]
-            };
+            // A context's statistics ride in its own n-gram record, so one
+            // multi-get gives both them and its count (for `stupid`).
+            let recs = self.store.records_many(&uniq)?;
             let mut cache = self.ctx_cache.borrow_mut();
             if cache.len() + uniq.len() > CTX_CACHE_ENTRIES {
                 cache.clear();
             }
-            for ((h, s), hc) in uniq.iter().zip(stats).zip(hcs) {
-                cache.insert(Key::new(h), CtxInfo { stats: s, hc });
+            for (h, r) in uniq.iter().zip(recs) {
+                let info = CtxInfo {
+                    stats: r.and_then(|r| r.context),
+                    hc: r.map_or(0, |r| r.count),
+                };
+                cache.insert(Key::new(h), info);
             }
             for i in miss {
                 out[i] = cache.get(&Key::new(hs[i])).copied();

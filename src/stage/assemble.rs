@@ -13,7 +13,7 @@ use crate::ingest::manifest::{Joined, PartitionStats, ReadTotals};
 use crate::memory::Plan;
 use crate::shard::{DictReader, DictWriter};
 use crate::store::{
-    self, build, keys, ContextStats, OrderStats, Settings, Store, StoreMeta, Totals,
+    self, build, keys, ContextStats, OrderStats, Ranks, Settings, Store, StoreMeta, Totals,
 };
 use crate::words::WordId;
 
@@ -56,16 +56,18 @@ pub fn merge_dicts(
     Ok(())
 }
 
-/// Merges the dictionaries `paths` into the vocabulary SST file
-/// `sst_dir/all-vocab.sst` (in rounds of at most `fanin` files through
-/// `tmp`, which is created and removed, to bound the open readers).
-/// Returns its path, or `None` when there are no words.
+/// Merges the dictionaries `paths` into the store's word list: SST files
+/// `sst_dir/all-vocab.sst` (rank → word) and `sst_dir/all-ids.sst` (the
+/// sorted ids of `ranks`, which must hold every word of the dictionaries),
+/// in rounds of at most `fanin` files through `tmp` (created and removed),
+/// to bound the open readers. Returns `(column family, path)` pairs.
 pub fn merge_vocabulary(
     mut paths: Vec<PathBuf>,
+    ranks: &Ranks,
     tmp: &Path,
     sst_dir: &Path,
     fanin: usize,
-) -> Result<Option<PathBuf>> {
+) -> Result<Vec<(String, PathBuf)>> {
     fsutil::create_dir(tmp)?;
     let mut round = 0;
     while paths.len() > fanin.max(2) {
@@ -83,18 +85,37 @@ pub fn merge_vocabulary(
         paths = next;
         round += 1;
     }
-    let _ = std::fs::remove_file(sst_dir.join("all-vocab.sst"));
+    for cf in [keys::VOCAB_CF, keys::IDS_CF] {
+        let _ = std::fs::remove_file(sst_dir.join(format!("all-{cf}.sst")));
+    }
     let opts = build::sst_options();
     let mut sink = build::SstSet::new(&opts, sst_dir, "all".into());
+    let mut kb = Vec::with_capacity(4);
     merge_dicts(&paths, |id, word| {
-        sink.put(keys::VOCAB_CF, &id.to_be_bytes(), word.as_bytes())
+        let r = ranks.rank(id).ok_or_else(|| {
+            Error::corrupt(
+                sst_dir,
+                format!("the word {word:?} is missing from the store's word list"),
+            )
+        })?;
+        kb.clear();
+        ranks.write_rank(r, &mut kb);
+        sink.put(keys::VOCAB_CF, &kb, word.as_bytes())
     })?;
+    let mut chunk = Vec::with_capacity(keys::IDS_PER_CHUNK * 8);
+    for (i, ids) in ranks.ids().chunks(keys::IDS_PER_CHUNK).enumerate() {
+        chunk.clear();
+        for id in ids {
+            chunk.extend_from_slice(&id.to_le_bytes());
+        }
+        sink.put(keys::IDS_CF, &(i as u32).to_be_bytes(), &chunk)?;
+    }
     fsutil::remove_dir(tmp)?;
     Ok(sink
         .finish()?
         .into_iter()
-        .next()
-        .map(|(_, name)| sst_dir.join(name)))
+        .map(|(cf, name)| (cf, sst_dir.join(name)))
+        .collect())
 }
 
 /// The store's metadata from every partition's statistics and the readers'
@@ -213,10 +234,8 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
     let db_new = store_dir.join(format!(".db.{u}.tmp"));
     let r = (|| {
         fsutil::create_dir(&work)?;
-        let mut files: Vec<(String, PathBuf)> = Vec::new();
-        if let Some(v) = merge_vocabulary(dicts, &work.join("rounds"), &work, plan.fanin)? {
-            files.push((keys::VOCAB_CF.to_string(), v));
-        }
+        let ranks = Ranks::from_dicts(&dicts)?;
+        let mut files = merge_vocabulary(dicts, &ranks, &work.join("rounds"), &work, plan.fanin)?;
         for (j, d) in &joined {
             for (cf, f) in &d.ssts {
                 files.push((cf.clone(), j.join(f)));

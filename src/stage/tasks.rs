@@ -18,6 +18,7 @@ use crate::ingest::manifest::{Joined, Merged, ReadTotals};
 use crate::memory::Plan;
 use crate::merge::{join_partition, merge_partition, MergeConfig};
 use crate::shard::RunFile;
+use crate::store::Ranks;
 
 /// What a map task produced.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -257,6 +258,15 @@ pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
         }
     }
     let counts = counts.expect("q < partitions");
+    // Every join task reads every map task's dictionaries for the word
+    // ranks of the keys: the same list everywhere, by construction.
+    let mut dicts = Vec::new();
+    for t in 0..job.map_tasks.len() as u32 {
+        let m = map_dir(dir, t);
+        let d = need_done::<MapResult>(&m, "map", t, &id)?;
+        dicts.extend(d.result.dicts.iter().map(|f| m.join(f)));
+    }
+    let ranks = Ranks::from_dicts(&dicts)?;
     let plan = Plan::new(memory, 1)?;
     let tmp = temp_dir_for(&out)?;
     let r = (|| {
@@ -277,6 +287,7 @@ pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
             q,
             &counts,
             suffix.iter().map(|f| (f.clone(), q)).collect(),
+            &ranks,
             &tmp,
         )?;
         fsutil::remove_dir(&rounds)?;

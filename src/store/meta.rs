@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 use super::keys::ContextStats;
 
 /// Format version of the store; checked on open.
-pub const STORE_VERSION: u32 = 1;
+pub const STORE_VERSION: u32 = 2;
 
 /// Settings that change what is counted.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]

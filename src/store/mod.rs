@@ -13,12 +13,14 @@
 pub mod build;
 pub mod keys;
 mod meta;
+pub mod ranks;
 
-pub use keys::ContextStats;
+pub use keys::{ContextStats, NgramRecord};
 pub use meta::{
     mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
     STORE_VERSION,
 };
+pub use ranks::Ranks;
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -68,6 +70,7 @@ pub struct Store {
     dir: PathBuf,
     db: DB,
     meta: StoreMeta,
+    ranks: Ranks,
 }
 
 impl Store {
@@ -136,11 +139,18 @@ impl Store {
         }
         let meta: StoreMeta =
             serde_json::from_slice(&raw).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+        let ranks = read_ranks(&db, &path)?;
         Ok(Store {
             dir: dir.to_path_buf(),
             db,
             meta,
+            ranks,
         })
+    }
+
+    /// The store's words in key order (see [`ranks`]).
+    pub fn ranks(&self) -> &Ranks {
+        &self.ranks
     }
 
     /// The store directory.
@@ -182,7 +192,9 @@ impl Store {
             .iterator_cf(self.cf(keys::VOCAB_CF)?, IteratorMode::Start)
         {
             let (k, v) = item.map_err(|e| self.rocks(e))?;
-            let id = Key::from_be(&k)
+            let id = self
+                .ranks
+                .read_key(&k)
                 .filter(|k| k.order() == 1)
                 .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad vocabulary key"))?
                 .ids()[0];
@@ -199,44 +211,49 @@ impl Store {
         self.scan_prefix(k, &[], None)
     }
 
-    /// Every context of length `k` (1 ≤ k < N) in key order.
+    /// Every context of length `k` (1 ≤ k < N) in key order: the n-grams
+    /// of order `k` that have a continuation, with their statistics.
     pub fn contexts(
         &self,
         k: usize,
     ) -> Result<impl Iterator<Item = Result<(Key, ContextStats)>> + '_> {
-        let path = db_dir(&self.dir);
-        let it = self
-            .db
-            .iterator_cf(self.cf(&keys::context_cf(k))?, IteratorMode::Start);
-        Ok(it.map(move |item| {
-            let (kb, vb) = item.map_err(|source| Error::Rocks {
-                path: path.clone(),
-                source,
-            })?;
-            let key = Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad context key"))?;
-            let st = ContextStats::decode(&vb)
-                .ok_or_else(|| Error::corrupt(&path, "bad context value"))?;
-            Ok((key, st))
+        let k = if k < self.order() { k } else { 0 };
+        Ok(self.scan_records(k, &[], None)?.filter_map(|r| match r {
+            Ok((key, rec)) => rec.context.map(|st| Ok((key, st))),
+            Err(e) => Some(Err(e)),
         }))
     }
 
-    /// The count and continuation count of one n-gram, if stored.
-    pub fn get(&self, ids: &[WordId]) -> Result<Option<(u64, Option<u64>)>> {
+    /// The key of `ids` in the store's encoding, or `None` if a word of it
+    /// is not in the store (so neither is the n-gram).
+    fn key_of(&self, ids: &[WordId]) -> Option<Vec<u8>> {
+        let mut kb = Vec::with_capacity(ids.len() * self.ranks.width());
+        self.ranks.write_key(ids, &mut kb).then_some(kb)
+    }
+
+    /// The stored record of one n-gram (count, continuation count and, for
+    /// a context, its statistics).
+    pub fn record(&self, ids: &[WordId]) -> Result<Option<NgramRecord>> {
         if ids.is_empty() || ids.len() > self.order() {
             return Ok(None);
         }
-        let mut kb = Vec::with_capacity(ids.len() * 8);
-        Key::new(ids).write_be(&mut kb);
+        let Some(kb) = self.key_of(ids) else {
+            return Ok(None);
+        };
         let v = self
             .db
             .get_pinned_cf(self.cf(&keys::ngram_cf(ids.len()))?, &kb)
             .map_err(|e| self.rocks(e))?;
-        match v {
-            None => Ok(None),
-            Some(v) => keys::decode_ngram(&v)
-                .map(Some)
-                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad n-gram value")),
-        }
+        v.map(|v| {
+            keys::decode_ngram(&v)
+                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad n-gram value"))
+        })
+        .transpose()
+    }
+
+    /// The count and continuation count of one n-gram, if stored.
+    pub fn get(&self, ids: &[WordId]) -> Result<Option<(u64, Option<u64>)>> {
+        Ok(self.record(ids)?.map(|r| (r.count, r.continuation)))
     }
 
     /// The statistics of context `h` over its continuations; the empty
@@ -248,18 +265,7 @@ impl Store {
         if h.len() >= self.order() {
             return Ok(None);
         }
-        let mut kb = Vec::with_capacity(h.len() * 8);
-        Key::new(h).write_be(&mut kb);
-        let v = self
-            .db
-            .get_pinned_cf(self.cf(&keys::context_cf(h.len()))?, &kb)
-            .map_err(|e| self.rocks(e))?;
-        match v {
-            None => Ok(None),
-            Some(v) => ContextStats::decode(&v)
-                .map(Some)
-                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad context value")),
-        }
+        Ok(self.record(h)?.and_then(|r| r.context))
     }
 
     /// The stored n-grams `h·w` of order `|h| + 1`, in key order (a prefix
@@ -278,50 +284,42 @@ impl Store {
                 return Ok(Some(w.to_string()));
             }
         }
+        let Some(kb) = self.key_of(&[id]) else {
+            return Ok(None);
+        };
         let v = self
             .db
-            .get_pinned_cf(self.cf(keys::VOCAB_CF)?, id.to_be_bytes())
+            .get_pinned_cf(self.cf(keys::VOCAB_CF)?, kb)
             .map_err(|e| self.rocks(e))?;
         Ok(v.map(|b| String::from_utf8_lossy(&b).into_owned()))
     }
 
-    /// One multi-get per key length: for each of `items` whose length is in
-    /// `lens`, the decoded value stored under it in column family
-    /// `cf_of(len)`, or `None`.
-    fn multi_get<T>(
-        &self,
-        items: &[&[WordId]],
-        lens: std::ops::Range<usize>,
-        cf_of: fn(usize) -> String,
-        decode: fn(&[u8]) -> Option<T>,
-        what: &str,
-    ) -> Result<Vec<Option<T>>> {
-        let mut out: Vec<Option<T>> = items.iter().map(|_| None).collect();
-        let mut by_len: Vec<Vec<usize>> = vec![Vec::new(); lens.end];
+    /// One multi-get per key length: the records of `items` (n-grams of
+    /// orders 1..=N; `None` for any other length or an n-gram not stored).
+    pub fn records_many(&self, items: &[&[WordId]]) -> Result<Vec<Option<NgramRecord>>> {
+        let n = self.order();
+        let mut out: Vec<Option<NgramRecord>> = vec![None; items.len()];
+        let mut by_len: Vec<(Vec<usize>, Vec<Vec<u8>>)> = vec![Default::default(); n + 1];
         for (i, g) in items.iter().enumerate() {
-            if lens.contains(&g.len()) {
-                by_len[g.len()].push(i);
+            if (1..=n).contains(&g.len()) {
+                if let Some(kb) = self.key_of(g) {
+                    by_len[g.len()].0.push(i);
+                    by_len[g.len()].1.push(kb);
+                }
             }
         }
-        for (k, idx) in by_len.iter().enumerate() {
+        for (k, (idx, keys)) in by_len.iter().enumerate() {
             if idx.is_empty() {
                 continue;
             }
-            let cf = self.cf(&cf_of(k))?;
-            let keys: Vec<Vec<u8>> = idx
-                .iter()
-                .map(|&i| {
-                    let mut kb = Vec::with_capacity(k * 8);
-                    Key::new(items[i]).write_be(&mut kb);
-                    kb
-                })
-                .collect();
-            let got = self.db.batched_multi_get_cf(cf, &keys, false);
+            let cf = self.cf(&keys::ngram_cf(k))?;
+            let got = self.db.batched_multi_get_cf(cf, keys, false);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    let value = decode(&v)
-                        .ok_or_else(|| Error::corrupt(db_dir(&self.dir), format!("bad {what}")))?;
-                    out[i] = Some(value);
+                    out[i] =
+                        Some(keys::decode_ngram(&v).ok_or_else(|| {
+                            Error::corrupt(db_dir(&self.dir), "bad n-gram value")
+                        })?);
                 }
             }
         }
@@ -331,25 +329,26 @@ impl Store {
     /// Counts of many n-grams at once (RocksDB multi-get; all the same
     /// order or not). `None` for n-grams not stored.
     pub fn get_many(&self, grams: &[&[WordId]]) -> Result<Vec<Option<NgramValue>>> {
-        self.multi_get(
-            grams,
-            1..self.order() + 1,
-            keys::ngram_cf,
-            keys::decode_ngram,
-            "n-gram value",
-        )
+        Ok(self
+            .records_many(grams)?
+            .into_iter()
+            .map(|r| r.map(|r| (r.count, r.continuation)))
+            .collect())
     }
 
     /// Statistics of many contexts at once (RocksDB multi-get), in the
     /// order asked; as [`Store::context`] for each.
     pub fn contexts_many(&self, hs: &[&[WordId]]) -> Result<Vec<Option<ContextStats>>> {
-        let mut out = self.multi_get(
-            hs,
-            1..self.order(),
-            keys::context_cf,
-            ContextStats::decode,
-            "context value",
-        )?;
+        let n = self.order();
+        let asked: Vec<&[WordId]> = hs
+            .iter()
+            .map(|h| if h.len() < n { *h } else { &[] })
+            .collect();
+        let mut out: Vec<Option<ContextStats>> = self
+            .records_many(&asked)?
+            .into_iter()
+            .map(|r| r.and_then(|r| r.context))
+            .collect();
         for (o, h) in out.iter_mut().zip(hs) {
             if h.is_empty() {
                 *o = Some(self.meta.root);
@@ -367,24 +366,39 @@ impl Store {
         prefix: &[WordId],
         after: Option<&[WordId]>,
     ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a> {
+        Ok(self
+            .scan_records(k, prefix, after)?
+            .map(|r| r.map(|(key, rec)| (key, rec.count, rec.continuation))))
+    }
+
+    /// As [`Store::scan_prefix`], with whole records. Empty when `k` is not
+    /// an order of the store or a word of `prefix` is not in it.
+    pub fn scan_records<'a>(
+        &'a self,
+        k: usize,
+        prefix: &[WordId],
+        after: Option<&[WordId]>,
+    ) -> Result<impl Iterator<Item = Result<(Key, NgramRecord)>> + 'a> {
         let path = db_dir(&self.dir);
-        let mut pb = Vec::with_capacity(prefix.len() * 8);
-        Key::new(prefix).write_be(&mut pb);
-        let mut start = pb.clone();
+        let pb = self.key_of(prefix);
+        let mut start = pb.clone().unwrap_or_default();
         if let Some(a) = after {
-            start.clear();
-            Key::new(a).write_be(&mut start);
-            // The smallest key greater than `after`: `after` followed by a 0 byte.
-            start.push(0);
-            if start < pb {
-                start = pb.clone();
+            // The smallest key greater than `after`: `after` followed by a
+            // 0 byte. A word of `after` not in the store (never returned by
+            // a scan) starts at the prefix.
+            if let Some(mut ab) = self.key_of(a) {
+                ab.push(0);
+                if ab > start {
+                    start = ab;
+                }
             }
         }
-        let cf = if k >= 1 && k <= self.order() && prefix.len() <= k {
+        let cf = if k >= 1 && k <= self.order() && prefix.len() <= k && pb.is_some() {
             Some(self.cf(&keys::ngram_cf(k))?)
         } else {
             None
         };
+        let pb = pb.unwrap_or_default();
         let it = cf.map(|cf| {
             self.db
                 .iterator_cf(cf, IteratorMode::From(&start, rocksdb::Direction::Forward))
@@ -398,11 +412,13 @@ impl Store {
                     path: path.clone(),
                     source,
                 })?;
-                let key =
-                    Key::from_be(&kb).ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-                let (c, cont) = keys::decode_ngram(&vb)
+                let key = self
+                    .ranks
+                    .read_key(&kb)
+                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
+                let rec = keys::decode_ngram(&vb)
                     .ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
-                Ok((key, c, cont))
+                Ok((key, rec))
             }))
     }
 
@@ -410,6 +426,32 @@ impl Store {
     pub fn disk_bytes(&self) -> u64 {
         dir_bytes(&db_dir(&self.dir))
     }
+}
+
+/// Reads the sorted word ids of the `ids` column family.
+fn read_ranks(db: &DB, path: &Path) -> Result<Ranks> {
+    let bad = |what: &str| Error::corrupt(path, format!("word id list: {what}"));
+    let cf = db
+        .cf_handle(keys::IDS_CF)
+        .ok_or_else(|| bad("no column family"))?;
+    let mut ids: Vec<WordId> = Vec::new();
+    for (i, item) in db.iterator_cf(cf, IteratorMode::Start).enumerate() {
+        let (k, v) = item.map_err(|source| Error::Rocks {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        if *k != (i as u32).to_be_bytes() || v.is_empty() || v.len() % 8 != 0 {
+            return Err(bad("a chunk is missing or malformed"));
+        }
+        for c in v.chunks_exact(8) {
+            let id = u64::from_le_bytes(c.try_into().expect("8 bytes"));
+            if ids.last().is_some_and(|&p| p >= id) {
+                return Err(bad("not increasing"));
+            }
+            ids.push(id);
+        }
+    }
+    Ok(Ranks::from_sorted(ids))
 }
 
 /// Total size of the files below `dir`.
