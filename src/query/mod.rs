@@ -53,7 +53,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
 use crate::key::Key;
-use crate::store::{ContextStats, NgramValue, Store};
+use crate::store::{ContextStats, NgramRecord, Store};
 use crate::words::{bos_id, eos_id, unk_id, word_id, IdMap, WordId, BOS, EOS, UNK};
 
 pub use next::Next;
@@ -273,11 +273,9 @@ impl std::hash::Hasher for KeyHasher {
 /// A `HashMap` keyed by n-gram keys.
 pub(crate) type KeyMap<V> = HashMap<Key, V, std::hash::BuildHasherDefault<KeyHasher>>;
 
-/// N-grams up to this order are kept in the count cache.
-const GRAM_CACHE_MAX_ORDER: usize = 3;
-const GRAM_CACHE_ENTRIES: usize = 1 << 20;
-
-const CTX_CACHE_ENTRIES: usize = 1 << 18;
+/// Records of n-grams up to this order are kept in the record cache.
+const REC_CACHE_MAX_ORDER: usize = 3;
+const REC_CACHE_ENTRIES: usize = 1 << 20;
 const WORD_CACHE_ENTRIES: usize = 1 << 20;
 const CHILD_CACHE_ENTRIES: usize = 4 << 20;
 
@@ -293,8 +291,7 @@ pub struct Estimator<'s> {
     notes: Vec<String>,
     bos: WordId,
     unk: WordId,
-    ctx_cache: RefCell<KeyMap<CtxInfo>>,
-    gram_cache: RefCell<KeyMap<Option<NgramValue>>>,
+    rec_cache: RefCell<KeyMap<Option<NgramRecord>>>,
     word_cache: RefCell<IdMap<bool>>,
     unigrams: OnceCell<Unigrams>,
     ranking: OnceCell<Vec<WordId>>,
@@ -366,8 +363,7 @@ impl<'s> Estimator<'s> {
             notes,
             bos: bos_id(),
             unk: unk_id(),
-            ctx_cache: RefCell::new(KeyMap::default()),
-            gram_cache: RefCell::new(KeyMap::default()),
+            rec_cache: RefCell::new(KeyMap::default()),
             word_cache: RefCell::new(IdMap::default()),
             unigrams: OnceCell::new(),
             ranking: OnceCell::new(),
@@ -465,53 +461,76 @@ impl<'s> Estimator<'s> {
         self.word_cache.borrow().get(&id).copied().unwrap_or(false)
     }
 
-    /// Statistics (and, for `stupid`, n-gram counts) of many contexts,
-    /// through the cache.
-    fn ctx_infos(&self, hs: &[&[WordId]]) -> Result<Vec<CtxInfo>> {
-        let mut out: Vec<Option<CtxInfo>> = Vec::with_capacity(hs.len());
-        let mut miss: Vec<usize> = Vec::new();
+    /// The stored records of many n-grams (`None` for lengths outside
+    /// 1..=N and for n-grams not stored): short ones from the cache, the
+    /// rest in one batched read, sorted and without repeats (in running
+    /// text the context of one prediction is the n-gram of the one before,
+    /// so a batch asks for most keys twice).
+    fn records(&self, keys: &[&[WordId]]) -> Result<Vec<Option<NgramRecord>>> {
+        let mut out: Vec<Option<NgramRecord>> = vec![None; keys.len()];
+        let mut todo: Vec<usize> = Vec::new();
         {
-            let cache = self.ctx_cache.borrow();
-            for (i, h) in hs.iter().enumerate() {
-                if h.is_empty() {
-                    out.push(Some(CtxInfo {
-                        stats: Some(self.root),
-                        hc: self.root.count_sum,
-                    }));
+            let cache = self.rec_cache.borrow();
+            for (i, k) in keys.iter().enumerate() {
+                if k.is_empty() || k.len() > self.n {
                     continue;
                 }
-                let c = cache.get(&Key::new(h)).copied();
-                if c.is_none() {
-                    miss.push(i);
+                if k.len() <= REC_CACHE_MAX_ORDER {
+                    if let Some(r) = cache.get(&Key::new(k)) {
+                        out[i] = *r;
+                        continue;
+                    }
                 }
-                out.push(c);
+                todo.push(i);
             }
         }
-        if !miss.is_empty() {
-            let mut uniq: Vec<&[WordId]> = miss.iter().map(|&i| hs[i]).collect();
-            uniq.sort_unstable();
-            uniq.dedup();
-            // A context's statistics ride in its own n-gram record, so one
-            // multi-get gives both them and its count (for `stupid`).
-            let recs = self.store.records_many(&uniq)?;
-            let mut cache = self.ctx_cache.borrow_mut();
-            if cache.len() + uniq.len() > CTX_CACHE_ENTRIES {
-                cache.clear();
+        if todo.is_empty() {
+            return Ok(out);
+        }
+        todo.sort_unstable_by(|&a, &b| keys[a].cmp(keys[b]));
+        let mut uniq: Vec<&[WordId]> = Vec::with_capacity(todo.len());
+        let mut slot: Vec<usize> = Vec::with_capacity(todo.len());
+        for &i in &todo {
+            if uniq.last() != Some(&keys[i]) {
+                uniq.push(keys[i]);
             }
-            for (h, r) in uniq.iter().zip(recs) {
-                let info = CtxInfo {
-                    stats: r.and_then(|r| r.context),
-                    hc: r.map_or(0, |r| r.count),
-                };
-                cache.insert(Key::new(h), info);
-            }
-            for i in miss {
-                out[i] = cache.get(&Key::new(hs[i])).copied();
+            slot.push(uniq.len() - 1);
+        }
+        let got = self.store.records_many(&uniq)?;
+        for (&i, &u) in todo.iter().zip(&slot) {
+            out[i] = got[u];
+        }
+        let mut cache = self.rec_cache.borrow_mut();
+        if cache.len() + uniq.len() > REC_CACHE_ENTRIES {
+            cache.clear();
+        }
+        for (k, r) in uniq.iter().zip(&got) {
+            if k.len() <= REC_CACHE_MAX_ORDER {
+                cache.insert(Key::new(k), *r);
             }
         }
-        Ok(out
-            .into_iter()
-            .map(|c| c.expect("every context was looked up"))
+        Ok(out)
+    }
+
+    /// Statistics and n-gram counts (for `stupid`) of many contexts.
+    fn ctx_infos(&self, hs: &[&[WordId]]) -> Result<Vec<CtxInfo>> {
+        let recs = self.records(hs)?;
+        Ok(hs
+            .iter()
+            .zip(recs)
+            .map(|(h, r)| {
+                if h.is_empty() {
+                    CtxInfo {
+                        stats: Some(self.root),
+                        hc: self.root.count_sum,
+                    }
+                } else {
+                    CtxInfo {
+                        stats: r.and_then(|r| r.context),
+                        hc: r.map_or(0, |r| r.count),
+                    }
+                }
+            })
             .collect())
     }
 
@@ -657,80 +676,54 @@ impl<'s> Estimator<'s> {
             spans.push((s, buf.len(), !in_v));
         }
         let uni = self.unigrams()?;
-        let mut counts: Vec<Option<NgramValue>> = Vec::with_capacity(buf.len());
-        let mut miss: Vec<usize> = Vec::new();
-        let mut ctxs: Vec<&[WordId]> = Vec::with_capacity(buf.len());
-        {
-            let cache = self.gram_cache.borrow();
-            for &(s, e, _) in &spans {
-                let full = &buf[s..e];
-                let l = full.len() - 1;
-                for j in 0..=l {
-                    let g = &full[l - j..];
-                    ctxs.push(&full[l - j..l]);
-                    if j == 0 {
-                        counts.push(uni.map.get(&g[0]).map(|&(c, _)| (c, None)));
-                    } else if g.len() <= GRAM_CACHE_MAX_ORDER {
-                        match cache.get(&Key::new(g)) {
-                            Some(v) => counts.push(*v),
-                            None => {
-                                miss.push(counts.len());
-                                counts.push(None);
-                            }
-                        }
-                    } else {
-                        miss.push(counts.len());
-                        counts.push(None);
-                    }
-                }
+        // Per prediction and context length j ≥ 1: the n-gram h_j·w, then
+        // the context h_j (a stored n-gram too); level 0 comes from the
+        // unigram table and the empty context.
+        let mut keys: Vec<&[WordId]> = Vec::with_capacity(buf.len() * 2);
+        for &(s, e, _) in &spans {
+            let full = &buf[s..e];
+            let l = full.len() - 1;
+            for j in 1..=l {
+                keys.push(&full[l - j..]);
+                keys.push(&full[l - j..l]);
             }
         }
-        if !miss.is_empty() {
-            // The gram of flat index i: recover it from the spans.
-            let mut owner: Vec<(usize, usize)> = Vec::with_capacity(counts.len());
-            for &(s, e, _) in &spans {
-                let l = e - s - 1;
-                for j in 0..=l {
-                    owner.push((s + l - j, e));
-                }
-            }
-            let grams: Vec<&[WordId]> =
-                miss.iter().map(|&i| &buf[owner[i].0..owner[i].1]).collect();
-            let got = self.store.get_many(&grams)?;
-            let mut cache = self.gram_cache.borrow_mut();
-            if cache.len() + grams.len() > GRAM_CACHE_ENTRIES {
-                cache.clear();
-            }
-            for ((&i, g), v) in miss.iter().zip(&grams).zip(got) {
-                if g.len() <= GRAM_CACHE_MAX_ORDER {
-                    cache.insert(Key::new(g), v);
-                }
-                counts[i] = v;
-            }
-        }
-        let infos = self.ctx_infos(&ctxs)?;
+        let recs = self.records(&keys)?;
         let mut at = 0;
         let mut levels = [Level::default(); crate::key::MAX_ORDER];
+        let root = CtxInfo {
+            stats: Some(self.root),
+            hc: self.root.count_sum,
+        };
         for &(s, e, oov) in &spans {
             let full = &buf[s..e];
             let nl = full.len();
             for j in 0..nl {
-                let (c, a) = if j == 0 {
-                    uni.map.get(&full[nl - 1]).copied().unwrap_or((0, 0))
+                let ((c, a), info) = if j == 0 {
+                    (uni.map.get(&full[nl - 1]).copied().unwrap_or((0, 0)), root)
                 } else {
-                    match counts[at + j] {
-                        Some((c, cont)) => (c, self.adjusted(c, cont, full[nl - 1 - j])),
-                        None => (0, 0),
-                    }
+                    let g = recs[at + 2 * (j - 1)];
+                    let h = recs[at + 2 * (j - 1) + 1];
+                    let ca = g.map_or((0, 0), |r| {
+                        (
+                            r.count,
+                            self.adjusted(r.count, r.continuation, full[nl - 1 - j]),
+                        )
+                    });
+                    let info = CtxInfo {
+                        stats: h.and_then(|r| r.context),
+                        hc: h.map_or(0, |r| r.count),
+                    };
+                    (ca, info)
                 };
                 levels[j] = Level {
                     c,
                     a,
-                    ctx: infos[at + j].stats,
-                    hc: infos[at + j].hc,
+                    ctx: info.stats,
+                    hc: info.hc,
                 };
             }
-            at += nl;
+            at += 2 * (nl - 1);
             f(full, &levels[..nl], oov)?;
         }
         Ok(())

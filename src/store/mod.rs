@@ -313,7 +313,8 @@ impl Store {
                 continue;
             }
             let cf = self.cf(&keys::ngram_cf(k))?;
-            let got = self.db.batched_multi_get_cf(cf, keys, false);
+            let sorted = keys.windows(2).all(|w| w[0] < w[1]);
+            let got = self.db.batched_multi_get_cf(cf, keys, sorted);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
                     out[i] =
