@@ -241,14 +241,17 @@ fn invented(i: u64, out: &mut String) {
         // the name's own index.
         0..=3 => {
             let mut n = j * 4 + kind + 1;
-            let mut parts = Vec::new();
+            // 24^14 > 2^64: at most 14 syllables.
+            let mut parts = [""; 14];
+            let mut len = 0;
             while n > 0 {
                 n -= 1;
-                parts.push(SYLLABLES[(n % 24) as usize]);
+                parts[len] = SYLLABLES[(n % 24) as usize];
+                len += 1;
                 n /= 24;
             }
             let mut first = true;
-            for p in parts.iter().rev() {
+            for p in parts[..len].iter().rev() {
                 if first {
                     let mut c = p.chars();
                     out.push(c.next().unwrap().to_ascii_uppercase());
@@ -294,8 +297,14 @@ fn main() {
     let mut used = vec![false; src.words.len()];
     let (mut bytes, mut sentences, mut tokens) = (0u64, 0u64, 0u64);
     let (mut source_types, mut invented_types, mut invented_next) = (0u64, 0u64, 0u64);
-    let heaps =
-        |n: f64| a.heaps_k * ((n + a.heaps_n0).powf(a.heaps_beta) - a.heaps_n0.powf(a.heaps_beta));
+    // The token count at which the Heaps curve K((n + n0)^β − n0^β) reaches
+    // `v` invented types (its inverse, so no power per token).
+    let due_at = |v: u64| {
+        let n = (v as f64 / a.heaps_k + a.heaps_n0.powf(a.heaps_beta)).powf(1.0 / a.heaps_beta)
+            - a.heaps_n0;
+        n.max(0.0).ceil() as u64
+    };
+    let mut next_due = due_at(1);
     let mut checkpoints = Vec::new();
     let mut next_mark: u64 = 1 << 20;
     let mut word = String::new();
@@ -307,10 +316,10 @@ fn main() {
             if step > 0 {
                 buf.push(b' ');
             }
-            let due = heaps(tokens as f64) as u64;
-            if invented_next < due {
+            if tokens >= next_due {
                 invented(invented_next, &mut word);
                 invented_next += 1;
+                next_due = due_at(invented_next + 1);
                 if !src.lookup.contains_key(&word) {
                     invented_types += 1;
                 }
