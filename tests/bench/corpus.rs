@@ -6,7 +6,7 @@
 //! ```
 //!
 //! The text is one sentence a line, built from a source corpus (default
-//! `fixtures/gutenberg/`) in three ways at once:
+//! `fixtures/gutenberg/`) in four ways at once:
 //!
 //! - **Sentence structure from the source.** The source is read as one
 //!   token stream and cut into sentences after tokens that end in `.`, `!`
@@ -20,6 +20,25 @@
 //!   reaches a sentence end (or after 200 tokens). Lengths therefore vary
 //!   like the source's, word frequencies keep its Zipf-like shape, and
 //!   short phrases recur like real ones.
+//! - **Class-based substitution, so that longer n-grams stay new.** The
+//!   walk alone only ever emits the source's own bigrams and copies its
+//!   longer runs, so text many times the size of the source repeats every
+//!   source n-gram about size / source-size times, and n-grams of order 2
+//!   to 5 pile up at counts of 3 to 8 instead of staying singletons. So
+//!   the source types are grouped into classes of the same shape (case or
+//!   leading punctuation of the first character, trailing punctuation,
+//!   whether the word ends a sentence) and similar source frequency (counts
+//!   within a factor `BAND_RATIO` = 1.5 of each other), and each source
+//!   token the walk emits is, with probability `--substitute` (default
+//!   0.5), replaced by a member of its class drawn uniformly. Uniform
+//!   within a class of similar frequencies keeps every type's expected
+//!   frequency about what it was. Types seen `COMMON` = 1000 times or more
+//!   in the source (function words: `the`, `of`, `her`, `was`, …) are
+//!   never substituted: their n-grams are the frequent ones in real text
+//!   too, and substituting them made orders 4 and 5 more singleton-heavy
+//!   at 32 MiB than the source itself. The constants and the default rate
+//!   were chosen by measuring the count-of-counts shape at 32 and 256 MiB
+//!   (DEVELOPERS.md), not derived.
 //! - **A vocabulary that keeps growing (Heaps' law).** After `n` tokens the
 //!   generator has introduced `K ((n + n0)^β − n0^β)` invented types
 //!   (defaults `K` = 30, `β` = 0.6, `n0` = 10^7; about 2.4 million new
@@ -28,10 +47,17 @@
 //!   between 0.4 and 0.6 for English text is common practice (from
 //!   memory); the offset n0 keeps the rate of new types at the start to
 //!   about 3 % of tokens instead of nearly all of them.
-//! - **A long tail that recurs.** With probability `--reuse` (default
-//!   0.02) a token is replaced by an invented type seen before, drawn
-//!   log-uniformly by index (so P(index i) ∝ 1/i: a Zipf tail among the
-//!   invented types).
+//! - **A long tail that recurs, in the rare words' slots.** A token whose
+//!   source type occurs at most `RARE` = 8 times in the source (about 9 %
+//!   of the source's tokens) is, with probability `--reuse` (default 0.5),
+//!   replaced by an invented type seen before, drawn log-uniformly by
+//!   index (so P(index i) ∝ 1/i: a Zipf tail among the invented types).
+//!   The rare words' classes are thereby open-ended: the pool they draw
+//!   from grows with the output, as a crawl's rare words do, where a
+//!   closed class of source words would saturate (the bigrams of a
+//!   frequent word and a rare-class member would recur more often the
+//!   longer the output). It also makes invented types recur often enough
+//!   that the unigram singleton share stays below the bigram one.
 //!
 //! Invented types are numbers, capitalised names and junk tokens, spelled
 //! from their index so that they are distinct by construction (never from a
@@ -56,6 +82,7 @@ struct Args {
     growth: Option<PathBuf>,
     source: PathBuf,
     jump: f64,
+    substitute: f64,
     reuse: f64,
     heaps_k: f64,
     heaps_beta: f64,
@@ -79,7 +106,8 @@ fn args() -> Args {
         growth: None,
         source: PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/fixtures/gutenberg")),
         jump: 0.5,
-        reuse: 0.02,
+        substitute: 0.5,
+        reuse: 0.5,
         heaps_k: 30.0,
         heaps_beta: 0.6,
         heaps_n0: 1e7,
@@ -101,6 +129,7 @@ fn args() -> Args {
             "--growth" => a.growth = Some(PathBuf::from(val())),
             "--source" => a.source = PathBuf::from(val()),
             "--jump" => a.jump = num(val()),
+            "--substitute" => a.substitute = num(val()),
             "--reuse" => a.reuse = num(val()),
             "--heaps-k" => a.heaps_k = num(val()),
             "--heaps-beta" => a.heaps_beta = num(val()),
@@ -144,6 +173,10 @@ struct Source {
     /// Occurrences of each type (positions into `stream`).
     occ: Vec<Vec<u32>>,
     lookup: HashMap<String, u32>,
+    /// Substitution classes: types of the same shape and similar frequency.
+    classes: Vec<Vec<u32>>,
+    /// The class of each type.
+    class_of: Vec<u32>,
 }
 
 fn files_under(dir: &Path, out: &mut Vec<PathBuf>) {
@@ -178,6 +211,8 @@ impl Source {
             starts: Vec::new(),
             occ: Vec::new(),
             lookup: HashMap::new(),
+            classes: Vec::new(),
+            class_of: Vec::new(),
         };
         for f in files {
             let text = std::fs::read(&f).unwrap_or_else(|e| die(&format!("{}: {e}", f.display())));
@@ -219,8 +254,71 @@ impl Source {
         if s.stream.is_empty() {
             die(&format!("no text in {}", path.display()));
         }
+        s.classify();
         s
     }
+
+    /// Groups the types into substitution classes by `class_key`, in type
+    /// order (so the classes do not depend on hash order). A type seen
+    /// `COMMON` times or more is a class of its own.
+    fn classify(&mut self) {
+        let mut index: HashMap<ClassKey, u32> = HashMap::new();
+        for (id, w) in self.words.iter().enumerate() {
+            let count = self.occ[id].len();
+            let new = self.classes.len() as u32;
+            let c = if count >= COMMON {
+                new
+            } else {
+                *index.entry(class_key(w, count)).or_insert(new)
+            };
+            if c == new {
+                self.classes.push(Vec::new());
+            }
+            self.classes[c as usize].push(id as u32);
+            self.class_of.push(c);
+        }
+    }
+}
+
+/// Frequency band, first-character kind, last-character kind, sentence end.
+type ClassKey = (u32, char, char, bool);
+
+/// A source type seen at most this often is rare: its slots may take an
+/// invented type instead (`--reuse`).
+const RARE: usize = 8;
+
+/// A source type seen this often or more (function words) is never
+/// substituted, nor substituted for.
+const COMMON: usize = 1000;
+
+/// Width of a frequency band: types whose source counts are within a factor
+/// of this of each other share a band.
+const BAND_RATIO: f64 = 1.5;
+
+/// The substitution class of a word seen `count` times in the source: the
+/// same frequency band (`BAND_RATIO`), the same case or leading punctuation,
+/// the same trailing punctuation and the same sentence-end status, so that a
+/// substitute fills the slot like the original (`said,` for `replied,`,
+/// `Bath.` for `London.`) and the walk's sentence ends stay where they were.
+fn class_key(word: &str, count: usize) -> ClassKey {
+    let band = ((count as f64).ln() / BAND_RATIO.ln() + 1e-9) as u32;
+    let kind = |c: char| {
+        if c.is_uppercase() {
+            'A'
+        } else if c.is_lowercase() {
+            'a'
+        } else if c.is_numeric() {
+            '0'
+        } else {
+            c
+        }
+    };
+    let first = word.chars().next().map_or(' ', kind);
+    let last = word.chars().next_back().map_or(' ', |c| match kind(c) {
+        'A' => 'a',
+        k => k,
+    });
+    (band, first, last, ends_sentence(word))
 }
 
 /// Two letters each, so a spelling splits into syllables one way only.
@@ -241,14 +339,17 @@ fn invented(i: u64, out: &mut String) {
         // the name's own index.
         0..=3 => {
             let mut n = j * 4 + kind + 1;
-            let mut parts = Vec::new();
+            // 24^14 > 2^64: at most 14 syllables.
+            let mut parts = [""; 14];
+            let mut len = 0;
             while n > 0 {
                 n -= 1;
-                parts.push(SYLLABLES[(n % 24) as usize]);
+                parts[len] = SYLLABLES[(n % 24) as usize];
+                len += 1;
                 n /= 24;
             }
             let mut first = true;
-            for p in parts.iter().rev() {
+            for p in parts[..len].iter().rev() {
                 if first {
                     let mut c = p.chars();
                     out.push(c.next().unwrap().to_ascii_uppercase());
@@ -294,8 +395,14 @@ fn main() {
     let mut used = vec![false; src.words.len()];
     let (mut bytes, mut sentences, mut tokens) = (0u64, 0u64, 0u64);
     let (mut source_types, mut invented_types, mut invented_next) = (0u64, 0u64, 0u64);
-    let heaps =
-        |n: f64| a.heaps_k * ((n + a.heaps_n0).powf(a.heaps_beta) - a.heaps_n0.powf(a.heaps_beta));
+    // The token count at which the Heaps curve K((n + n0)^β − n0^β) reaches
+    // `v` invented types (its inverse, so no power per token).
+    let due_at = |v: u64| {
+        let n = (v as f64 / a.heaps_k + a.heaps_n0.powf(a.heaps_beta)).powf(1.0 / a.heaps_beta)
+            - a.heaps_n0;
+        n.max(0.0).ceil() as u64
+    };
+    let mut next_due = due_at(1);
     let mut checkpoints = Vec::new();
     let mut next_mark: u64 = 1 << 20;
     let mut word = String::new();
@@ -307,21 +414,28 @@ fn main() {
             if step > 0 {
                 buf.push(b' ');
             }
-            let due = heaps(tokens as f64) as u64;
-            if invented_next < due {
+            if tokens >= next_due {
                 invented(invented_next, &mut word);
                 invented_next += 1;
+                next_due = due_at(invented_next + 1);
                 if !src.lookup.contains_key(&word) {
                     invented_types += 1;
                 }
                 buf.extend_from_slice(word.as_bytes());
-            } else if invented_next > 0 && rng.unit() < a.reuse {
+            } else if invented_next > 0
+                && src.occ[src.stream[p] as usize].len() <= RARE
+                && rng.unit() < a.reuse
+            {
                 // Log-uniform index: P(i) ∝ 1/(i+1).
                 let i = ((invented_next as f64).powf(rng.unit()) as u64).saturating_sub(1);
                 invented(i.min(invented_next - 1), &mut word);
                 buf.extend_from_slice(word.as_bytes());
             } else {
-                let id = src.stream[p] as usize;
+                let mut id = src.stream[p] as usize;
+                let class = &src.classes[src.class_of[id] as usize];
+                if class.len() > 1 && rng.unit() < a.substitute {
+                    id = class[rng.below(class.len())] as usize;
+                }
                 if !used[id] {
                     used[id] = true;
                     source_types += 1;
@@ -371,6 +485,7 @@ fn main() {
             "size": a.size,
             "source": a.source,
             "jump": a.jump,
+            "substitute": a.substitute,
             "reuse": a.reuse,
             "heaps": {"k": a.heaps_k, "beta": a.heaps_beta, "n0": a.heaps_n0},
             "checkpoints": checkpoints,
