@@ -243,7 +243,17 @@ pub(crate) struct Unigrams {
     pub vocab: Vec<WordId>,
 }
 
-type ChildMap = Rc<IdMap<(u64, u64)>>;
+/// The children w of one context h: `map` for lookups, and `list` (key
+/// order) with each child's counts and its unigram counts side by side,
+/// so that scoring every child reads memory in order, not at random.
+pub(crate) struct Children {
+    /// w → (c(h·w), a(h·w)).
+    pub map: IdMap<(u64, u64)>,
+    /// (w, (c(h·w), a(h·w)), (c(w), a(w))).
+    pub list: Vec<(WordId, (u64, u64), (u64, u64))>,
+}
+
+type ChildMap = Rc<Children>;
 
 /// A fast hasher for [`Key`]s (multiply-rotate over the ids; the ids are
 /// already hashes).
@@ -591,19 +601,23 @@ impl<'s> Estimator<'s> {
         if let Some(m) = self.children.borrow().0.get(&key) {
             return Ok(m.clone());
         }
-        let mut m = IdMap::default();
+        let uni = self.unigrams()?;
+        let mut map = IdMap::default();
+        let mut list = Vec::new();
         for item in self.store.children(h)? {
             let (k, c, cont) = item?;
             let w = k.ids()[h.len()];
-            m.insert(w, (c, self.adjusted(c, cont, h[0])));
+            let ca = (c, self.adjusted(c, cont, h[0]));
+            map.insert(w, ca);
+            list.push((w, ca, uni.map.get(&w).copied().unwrap_or((0, 0))));
         }
-        let m = Rc::new(m);
+        let m = Rc::new(Children { map, list });
         let mut cache = self.children.borrow_mut();
-        if cache.1 + m.len() > CHILD_CACHE_ENTRIES {
+        if cache.1 + 2 * m.list.len() > CHILD_CACHE_ENTRIES {
             cache.0.clear();
             cache.1 = 0;
         }
-        cache.1 += m.len();
+        cache.1 += 2 * m.list.len();
         cache.0.insert(key, m.clone());
         Ok(m)
     }
@@ -785,17 +799,34 @@ impl<'s> Estimator<'s> {
         w: WordId,
         full: &mut Vec<WordId>,
     ) -> Result<(f64, usize)> {
-        let uni = self.unigrams()?;
+        let uni = self.unigrams()?.map.get(&w).copied().unwrap_or((0, 0));
+        self.eval_child(cl, w, cl.ctx.len(), None, uni, full)
+    }
+
+    /// As [`Estimator::eval_mapped`], for a word that is no child of the
+    /// suffixes longer than `from`, with its counts after the suffix of
+    /// length `from` (`at`, looked up if `None`) and its unigram counts
+    /// (`uni`) known: lookups only for the suffixes in between.
+    pub(crate) fn eval_child(
+        &self,
+        cl: &ContextLevels,
+        w: WordId,
+        from: usize,
+        at: Option<(u64, u64)>,
+        uni: (u64, u64),
+        full: &mut Vec<WordId>,
+    ) -> Result<(f64, usize)> {
         let l = cl.ctx.len();
         let mut levels = [Level::default(); crate::key::MAX_ORDER];
         for (j, level) in levels.iter_mut().enumerate().take(l + 1) {
-            let (c, a) = if j == 0 {
-                uni.map.get(&w).copied().unwrap_or((0, 0))
-            } else {
-                cl.maps[j]
+            let (c, a) = match (j, at) {
+                (0, _) => uni,
+                (j, _) if j > from => (0, 0),
+                (j, Some(x)) if j == from => x,
+                _ => cl.maps[j]
                     .as_ref()
-                    .and_then(|m| m.get(&w).copied())
-                    .unwrap_or((0, 0))
+                    .and_then(|m| m.map.get(&w).copied())
+                    .unwrap_or((0, 0)),
             };
             *level = Level {
                 c,

@@ -12,8 +12,6 @@
 //! suffixes plus the first K non-children of the ranking, each scored
 //! exactly, and the best K of them are the true top K of V.
 
-use std::collections::HashSet;
-
 use crate::error::Result;
 use crate::words::WordId;
 
@@ -53,32 +51,51 @@ impl Estimator<'_> {
 
     /// The `k` most probable words after `context` (raw ids; cut to N − 1,
     /// OOV words as `<unk>`), exact.
+    ///
+    /// Each child of a suffix is scored once, where it is met in the
+    /// longest suffix that has it, walking that suffix's children list in
+    /// order with the counts stored beside each child: the long lists (the
+    /// children of a one-word suffix) are read in memory order, and only
+    /// the short lists of longer suffixes are looked up in.
     pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
         let ctx = self.map_context_ids(context)?;
         let cl = self.context_levels(&ctx)?;
-        let mut cand: HashSet<WordId> = HashSet::new();
-        for m in cl.maps.iter().flatten() {
-            cand.extend(m.keys().copied());
-        }
+        let l = ctx.len();
+        let child_of = |from: usize, w: &WordId| {
+            cl.maps[from..]
+                .iter()
+                .flatten()
+                .any(|m| m.map.contains_key(w))
+        };
         let mut buf = Vec::new();
-        let mut scored: Vec<(f64, WordId)> = Vec::with_capacity(cand.len() + k);
-        for &w in &cand {
-            scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
+        let mut scored: Vec<(f64, WordId)> = Vec::new();
+        for j in (1..=l).rev() {
+            let Some(m) = &cl.maps[j] else { continue };
+            for &(w, at, uni) in &m.list {
+                if j < l && child_of(j + 1, &w) {
+                    continue;
+                }
+                scored.push((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w));
+            }
         }
         let mut taken = 0;
         for &w in self.unigram_ranking()? {
             if taken == k {
                 break;
             }
-            if cand.contains(&w) {
+            if child_of(1, &w) {
                 continue;
             }
             scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
             taken += 1;
         }
         let n_scored = scored.len();
-        scored.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        let best = |a: &(f64, WordId), b: &(f64, WordId)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
+        if scored.len() > k && k > 0 {
+            scored.select_nth_unstable_by(k - 1, best);
+        }
         scored.truncate(k);
+        scored.sort_unstable_by(best);
         let sum: f64 = scored.iter().map(|x| x.0).sum();
         Ok(Next {
             context: ctx,
