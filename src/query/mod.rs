@@ -249,9 +249,12 @@ pub(crate) struct Unigrams {
 pub(crate) struct Children {
     /// w → (c(h·w), a(h·w)).
     pub map: IdMap<(u64, u64)>,
-    /// (w, (c(h·w), a(h·w)), (c(w), a(w))).
-    pub list: Vec<(WordId, (u64, u64), (u64, u64))>,
+    /// The children in key order.
+    pub list: Vec<ChildEntry>,
 }
+
+/// One child w of a context h: (w, (c(h·w), a(h·w)), (c(w), a(w))).
+pub(crate) type ChildEntry = (WordId, (u64, u64), (u64, u64));
 
 type ChildMap = Rc<Children>;
 
