@@ -223,7 +223,7 @@ impl Estimator<'_> {
         let s = levels[j].ctx.expect("katz_context of a seen context");
         let kids = self.child_map(h)?;
         let mut freed = 0.0;
-        for &(c, _) in kids.map.values() {
+        for &(c, _) in kids.list.iter().map(|e| &e.1) {
             freed += (1.0 - o[j].disc(c)) * c as f64;
         }
         let f = freed / s.count_sum as f64;
@@ -241,7 +241,7 @@ impl Estimator<'_> {
                     let hi = &h[j - i..];
                     let cl = self.context_levels(hi)?;
                     let mut sum = 0.0;
-                    for &v in kids.map.keys() {
+                    for &v in kids.list.iter().map(|e| &e.0) {
                         sum += self.eval_mapped(&cl, v, &mut buf)?.0;
                     }
                     let den = 1.0 - sum;

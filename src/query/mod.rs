@@ -241,16 +241,58 @@ struct CtxInfo {
 pub(crate) struct Unigrams {
     pub map: IdMap<(u64, u64)>,
     pub vocab: Vec<WordId>,
+    /// `counts[i]`: raw and adjusted count of `vocab[i]` ((0, 0) for an
+    /// unseen `<unk>`).
+    pub counts: Vec<(u64, u64)>,
 }
 
-/// The children w of one context h: `map` for lookups, and `list` (key
-/// order) with each child's counts and its unigram counts side by side,
-/// so that scoring every child reads memory in order, not at random.
+impl Unigrams {
+    /// The counts of `w`, searched from `vocab[*from..]` and leaving
+    /// `*from` at `w`'s place: for ids asked in increasing order, a short
+    /// gallop through memory in order instead of a random probe.
+    fn counts_from(&self, w: WordId, from: &mut usize) -> (u64, u64) {
+        let v = &self.vocab;
+        if *from > v.len() || (*from > 0 && v[*from - 1] >= w) {
+            *from = 0;
+        }
+        let mut step = 1;
+        let mut hi = *from;
+        while hi < v.len() && v[hi] < w {
+            *from = hi;
+            hi += step;
+            step *= 2;
+        }
+        let hi = hi.min(v.len());
+        let i = *from + v[*from..hi].partition_point(|&x| x < w);
+        *from = i;
+        match v.get(i) {
+            Some(&x) if x == w => self.counts[i],
+            _ => (0, 0),
+        }
+    }
+}
+
+/// The children w of one context h in key order (which is id order), each
+/// with its counts and its unigram counts side by side, so that scoring
+/// every child reads memory in order, not at random.
 pub(crate) struct Children {
-    /// w → (c(h·w), a(h·w)).
-    pub map: IdMap<(u64, u64)>,
-    /// The children in key order.
+    /// The children, ids increasing.
     pub list: Vec<ChildEntry>,
+}
+
+impl Children {
+    /// (c(h·w), a(h·w)), if w is a child.
+    pub fn get(&self, w: WordId) -> Option<(u64, u64)> {
+        self.list
+            .binary_search_by_key(&w, |e| e.0)
+            .ok()
+            .map(|i| self.list[i].1)
+    }
+
+    /// w is a child.
+    pub fn contains(&self, w: WordId) -> bool {
+        self.get(w).is_some()
+    }
 }
 
 /// One child w of a context h: (w, (c(h·w), a(h·w)), (c(w), a(w))).
@@ -290,7 +332,8 @@ pub(crate) type KeyMap<V> = HashMap<Key, V, std::hash::BuildHasherDefault<KeyHas
 const REC_CACHE_MAX_ORDER: usize = 3;
 const REC_CACHE_ENTRIES: usize = 1 << 20;
 const WORD_CACHE_ENTRIES: usize = 1 << 20;
-const CHILD_CACHE_ENTRIES: usize = 4 << 20;
+/// Children kept in the children cache (40 bytes each).
+const CHILD_CACHE_ENTRIES: usize = 8 << 20;
 
 /// A smoothing method over an open store.
 pub struct Estimator<'s> {
@@ -588,7 +631,11 @@ impl<'s> Estimator<'s> {
                 ),
             ));
         }
-        let _ = self.unigrams.set(Unigrams { map, vocab });
+        let counts = vocab
+            .iter()
+            .map(|w| map.get(w).copied().unwrap_or((0, 0)))
+            .collect();
+        let _ = self.unigrams.set(Unigrams { map, vocab, counts });
         Ok(self.unigrams.get().expect("just set"))
     }
 
@@ -605,22 +652,24 @@ impl<'s> Estimator<'s> {
             return Ok(m.clone());
         }
         let uni = self.unigrams()?;
-        let mut map = IdMap::default();
         let mut list = Vec::new();
+        let mut at = 0;
         for item in self.store.children(h)? {
             let (k, c, cont) = item?;
             let w = k.ids()[h.len()];
             let ca = (c, self.adjusted(c, cont, h[0]));
-            map.insert(w, ca);
-            list.push((w, ca, uni.map.get(&w).copied().unwrap_or((0, 0))));
+            list.push((w, ca, uni.counts_from(w, &mut at)));
         }
-        let m = Rc::new(Children { map, list });
+        if !list.windows(2).all(|p| p[0].0 < p[1].0) {
+            list.sort_unstable_by_key(|e| e.0);
+        }
+        let m = Rc::new(Children { list });
         let mut cache = self.children.borrow_mut();
-        if cache.1 + 2 * m.list.len() > CHILD_CACHE_ENTRIES {
+        if cache.1 + m.list.len() > CHILD_CACHE_ENTRIES {
             cache.0.clear();
             cache.1 = 0;
         }
-        cache.1 += 2 * m.list.len();
+        cache.1 += m.list.len();
         cache.0.insert(key, m.clone());
         Ok(m)
     }
@@ -826,10 +875,7 @@ impl<'s> Estimator<'s> {
                 (0, _) => uni,
                 (j, _) if j > from => (0, 0),
                 (j, Some(x)) if j == from => x,
-                _ => cl.maps[j]
-                    .as_ref()
-                    .and_then(|m| m.map.get(&w).copied())
-                    .unwrap_or((0, 0)),
+                _ => cl.maps[j].as_ref().and_then(|m| m.get(w)).unwrap_or((0, 0)),
             };
             *level = Level {
                 c,

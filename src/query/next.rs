@@ -61,12 +61,8 @@ impl Estimator<'_> {
         let ctx = self.map_context_ids(context)?;
         let cl = self.context_levels(&ctx)?;
         let l = ctx.len();
-        let child_of = |from: usize, w: &WordId| {
-            cl.maps[from..]
-                .iter()
-                .flatten()
-                .any(|m| m.map.contains_key(w))
-        };
+        let child_of =
+            |from: usize, w: &WordId| cl.maps[from..].iter().flatten().any(|m| m.contains(*w));
         let mut buf = Vec::new();
         let mut scored: Vec<(f64, WordId)> = Vec::new();
         for j in (1..=l).rev() {
