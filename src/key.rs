@@ -2,10 +2,11 @@
 //!
 //! The order of keys everywhere in quern (tables after sorting, run files,
 //! merges, the store) is the lexicographic order of the id sequences, a
-//! prefix before its extensions. Written as big-endian bytes, that is the
-//! byte order RocksDB compares with, so all n-grams that share a prefix are
-//! contiguous. Partitions are ranges of the first word's id, so partition
-//! order agrees with key order.
+//! prefix before its extensions. The store writes each id as its rank
+//! among the store's ids, big-endian ([`crate::store::Ranks`]), which keeps
+//! that order as the byte order RocksDB compares with, so all n-grams that
+//! share a prefix are contiguous. Partitions are ranges of the first word's
+//! id, so partition order agrees with key order.
 
 use std::cmp::Ordering;
 
@@ -44,28 +45,6 @@ impl Key {
     pub fn order(&self) -> usize {
         self.len as usize
     }
-
-    /// Appends the big-endian bytes of the ids to `out`.
-    pub fn write_be(&self, out: &mut Vec<u8>) {
-        for id in self.ids() {
-            out.extend_from_slice(&id.to_be_bytes());
-        }
-    }
-
-    /// Parses big-endian bytes (a multiple of 8, at most `MAX_ORDER` words).
-    pub fn from_be(bytes: &[u8]) -> Option<Key> {
-        if !bytes.len().is_multiple_of(8) || bytes.len() / 8 > MAX_ORDER {
-            return None;
-        }
-        let mut k = Key {
-            len: (bytes.len() / 8) as u8,
-            ids: [0; MAX_ORDER],
-        };
-        for (i, c) in bytes.chunks_exact(8).enumerate() {
-            k.ids[i] = u64::from_be_bytes(c.try_into().expect("chunk of 8"));
-        }
-        Some(k)
-    }
 }
 
 impl Ord for Key {
@@ -101,7 +80,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn prefix_sorts_first_and_bytes_agree() {
+    fn prefix_sorts_first() {
         let a = Key::new(&[5, 1]);
         let b = Key::new(&[5]);
         let c = Key::new(&[5, 1, 0]);
@@ -109,18 +88,6 @@ mod tests {
         let mut v = vec![d, c, a, b];
         v.sort();
         assert_eq!(v, vec![b, a, c, d]);
-        let bytes: Vec<Vec<u8>> = v
-            .iter()
-            .map(|k| {
-                let mut o = Vec::new();
-                k.write_be(&mut o);
-                o
-            })
-            .collect();
-        let mut sorted = bytes.clone();
-        sorted.sort();
-        assert_eq!(bytes, sorted);
-        assert_eq!(Key::from_be(&bytes[2]), Some(c));
     }
 
     #[test]
