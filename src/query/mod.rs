@@ -278,6 +278,10 @@ impl Unigrams {
 pub(crate) struct Children {
     /// The children, ids increasing.
     pub list: Vec<ChildEntry>,
+    /// For a one-word context: the children ordered by their probability
+    /// after that word alone, most probable first (ties by id), made on
+    /// first use by [`Estimator::ranked_children`].
+    pub ranked: OnceCell<Vec<ChildEntry>>,
 }
 
 impl Children {
@@ -663,7 +667,10 @@ impl<'s> Estimator<'s> {
         if !list.windows(2).all(|p| p[0].0 < p[1].0) {
             list.sort_unstable_by_key(|e| e.0);
         }
-        let m = Rc::new(Children { list });
+        let m = Rc::new(Children {
+            list,
+            ranked: OnceCell::new(),
+        });
         let mut cache = self.children.borrow_mut();
         if cache.1 + m.list.len() > CHILD_CACHE_ENTRIES {
             cache.0.clear();
@@ -672,6 +679,30 @@ impl<'s> Estimator<'s> {
         cache.1 += m.list.len();
         cache.0.insert(key, m.clone());
         Ok(m)
+    }
+
+    /// The children of the one-word context `[h]` ordered by P(w | h),
+    /// most probable first (ties by id): computed once per word and kept
+    /// with its children list. `None` if `h` has no children.
+    pub(crate) fn ranked_children(&self, h: WordId) -> Result<Option<ChildMap>> {
+        let cl = self.context_levels(&[h])?;
+        let Some(m) = cl.maps[1].clone() else {
+            return Ok(None);
+        };
+        if m.ranked.get().is_none() {
+            let mut buf = Vec::new();
+            let mut scored = Vec::with_capacity(m.list.len());
+            for (i, &(w, at, uni)) in m.list.iter().enumerate() {
+                scored.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, i));
+            }
+            scored.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+            let _ = m
+                .ranked
+                .set(scored.into_iter().map(|(_, i)| m.list[i]).collect());
+            let mut cache = self.children.borrow_mut();
+            cache.1 += m.list.len();
+        }
+        Ok(Some(m))
     }
 
     /// Maps raw context ids for prediction: cut to the last N − 1, every id

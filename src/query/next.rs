@@ -15,7 +15,7 @@
 use crate::error::Result;
 use crate::words::WordId;
 
-use super::Estimator;
+use super::{Estimator, Method};
 
 /// The K most probable next words.
 #[derive(Clone, Debug, PartialEq)]
@@ -52,11 +52,21 @@ impl Estimator<'_> {
     /// The `k` most probable words after `context` (raw ids; cut to N − 1,
     /// OOV words as `<unk>`), exact.
     ///
-    /// Each child of a suffix is scored once, where it is met in the
-    /// longest suffix that has it, walking that suffix's children list in
-    /// order with the counts stored beside each child: the long lists (the
-    /// children of a one-word suffix) are read in memory order, and only
-    /// the short lists of longer suffixes are looked up in.
+    /// The candidates, each scored exactly and once:
+    /// - every child of a suffix of two words or more, from the longest
+    ///   suffix that has it (these lists are short);
+    /// - the first `k` children of the last word alone that are children of
+    ///   no longer suffix, in the order of P(w | last word) (computed once
+    ///   per word and cached: [`Estimator::ranked_children`]). For such a
+    ///   word, every longer level has count 0 and contributes only its
+    ///   back-off factor, the same for all of them (or, for `add-k` and
+    ///   `mle`, the same value), so its probability is a non-decreasing
+    ///   function of P(w | last word), as for the unigram ranking above,
+    ///   and these `k` hold the `k` best probabilities of that group
+    ///   (`katz` scores the whole group: it may back off past the last
+    ///   word's level);
+    /// - the first `k` words of the unigram ranking that are children of no
+    ///   suffix.
     pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
         let ctx = self.map_context_ids(context)?;
         let cl = self.context_levels(&ctx)?;
@@ -65,13 +75,32 @@ impl Estimator<'_> {
             |from: usize, w: &WordId| cl.maps[from..].iter().flatten().any(|m| m.contains(*w));
         let mut buf = Vec::new();
         let mut scored: Vec<(f64, WordId)> = Vec::new();
-        for j in (1..=l).rev() {
+        // Katz backs off past a level whose denominator vanishes, so there
+        // the order of P(w | last word) does not carry over: it scores
+        // every child of the last word.
+        let lowest = if self.method == Method::Katz { 1 } else { 2 };
+        for j in (lowest..=l).rev() {
             let Some(m) = &cl.maps[j] else { continue };
             for &(w, at, uni) in &m.list {
                 if j < l && child_of(j + 1, &w) {
                     continue;
                 }
                 scored.push((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w));
+            }
+        }
+        if lowest == 2 && l >= 1 && cl.maps[1].is_some() {
+            if let Some(m) = self.ranked_children(ctx[l - 1])? {
+                let mut taken = 0;
+                for &(w, at, uni) in m.ranked.get().expect("ranked by ranked_children") {
+                    if taken == k {
+                        break;
+                    }
+                    if child_of(2, &w) {
+                        continue;
+                    }
+                    scored.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w));
+                    taken += 1;
+                }
             }
         }
         let mut taken = 0;
