@@ -183,7 +183,9 @@ fn store_of_another_format_version_is_refused_on_open() {
         let r = run(&[cmd, "--store", &store.display().to_string()]);
         r.assert_failure();
         assert!(
-            r.stderr.contains("format version 999") && r.stderr.contains("version 1"),
+            r.stderr.contains("format version 999")
+                && r.stderr
+                    .contains(&format!("version {}", quern::store::STORE_VERSION)),
             "{cmd}: the error does not name both versions\n{}",
             r.describe()
         );
