@@ -1032,8 +1032,6 @@ fn remove_matching(dir: &Path, suffix: &str) -> Result<()> {
     Ok(())
 }
 
-/// Merges every dictionary into the vocabulary SST (in rounds of at most
-/// `fanin` files, to bound the open readers).
 /// Every dictionary of the ingest: the spills' and the appended store's.
 fn dictionaries(m: &Manifest, d: &Dirs) -> Vec<PathBuf> {
     let mut paths: Vec<PathBuf> = m.runsets.iter().map(|r| d.runs.join(&r.dict)).collect();
@@ -1043,6 +1041,8 @@ fn dictionaries(m: &Manifest, d: &Dirs) -> Vec<PathBuf> {
     paths
 }
 
+/// Merges every dictionary into the vocabulary and word-id SSTs (in rounds
+/// of at most `fanin` files, to bound the open readers).
 fn write_vocab(m: &Manifest, d: &Dirs, fanin: usize) -> Result<Vec<(String, PathBuf)>> {
     let paths = dictionaries(m, d);
     let ranks = Ranks::from_dicts(&paths)?;

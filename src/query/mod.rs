@@ -236,6 +236,16 @@ struct CtxInfo {
     hc: u64,
 }
 
+impl CtxInfo {
+    /// A non-empty context's facts from its own n-gram record.
+    fn of(r: Option<NgramRecord>) -> CtxInfo {
+        CtxInfo {
+            stats: r.and_then(|r| r.context),
+            hc: r.map_or(0, |r| r.count),
+        }
+    }
+}
+
 /// The unigram table: every stored unigram but `<s>`, with raw and
 /// adjusted count, and V in id order.
 pub(crate) struct Unigrams {
@@ -580,18 +590,20 @@ impl<'s> Estimator<'s> {
             .zip(recs)
             .map(|(h, r)| {
                 if h.is_empty() {
-                    CtxInfo {
-                        stats: Some(self.root),
-                        hc: self.root.count_sum,
-                    }
+                    self.root_info()
                 } else {
-                    CtxInfo {
-                        stats: r.and_then(|r| r.context),
-                        hc: r.map_or(0, |r| r.count),
-                    }
+                    CtxInfo::of(r)
                 }
             })
             .collect())
+    }
+
+    /// The empty context's facts.
+    fn root_info(&self) -> CtxInfo {
+        CtxInfo {
+            stats: Some(self.root),
+            hc: self.root.count_sum,
+        }
     }
 
     /// The adjusted count of an n-gram from its raw count and stored
@@ -788,10 +800,7 @@ impl<'s> Estimator<'s> {
         let recs = self.records(&keys)?;
         let mut at = 0;
         let mut levels = [Level::default(); crate::key::MAX_ORDER];
-        let root = CtxInfo {
-            stats: Some(self.root),
-            hc: self.root.count_sum,
-        };
+        let root = self.root_info();
         for &(s, e, oov) in &spans {
             let full = &buf[s..e];
             let nl = full.len();
@@ -807,11 +816,7 @@ impl<'s> Estimator<'s> {
                             self.adjusted(r.count, r.continuation, full[nl - 1 - j]),
                         )
                     });
-                    let info = CtxInfo {
-                        stats: h.and_then(|r| r.context),
-                        hc: h.map_or(0, |r| r.count),
-                    };
-                    (ca, info)
+                    (ca, CtxInfo::of(h))
                 };
                 levels[j] = Level {
                     c,

@@ -148,11 +148,6 @@ impl Store {
         })
     }
 
-    /// The store's words in key order (see [`ranks`]).
-    pub fn ranks(&self) -> &Ranks {
-        &self.ranks
-    }
-
     /// The store directory.
     pub fn dir(&self) -> &Path {
         &self.dir
@@ -335,27 +330,6 @@ impl Store {
             .into_iter()
             .map(|r| r.map(|r| (r.count, r.continuation)))
             .collect())
-    }
-
-    /// Statistics of many contexts at once (RocksDB multi-get), in the
-    /// order asked; as [`Store::context`] for each.
-    pub fn contexts_many(&self, hs: &[&[WordId]]) -> Result<Vec<Option<ContextStats>>> {
-        let n = self.order();
-        let asked: Vec<&[WordId]> = hs
-            .iter()
-            .map(|h| if h.len() < n { *h } else { &[] })
-            .collect();
-        let mut out: Vec<Option<ContextStats>> = self
-            .records_many(&asked)?
-            .into_iter()
-            .map(|r| r.and_then(|r| r.context))
-            .collect();
-        for (o, h) in out.iter_mut().zip(hs) {
-            if h.is_empty() {
-                *o = Some(self.meta.root);
-            }
-        }
-        Ok(out)
     }
 
     /// The stored n-grams of order `k` that begin with `prefix`
