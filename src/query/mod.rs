@@ -639,7 +639,7 @@ impl<'s> Estimator<'s> {
         vocab.sort_unstable();
         if vocab.len() as u64 != self.store.meta().totals.vocabulary {
             return Err(Error::corrupt(
-                crate::store::db_dir(self.store.dir()),
+                crate::layout::db(self.store.dir()),
                 format!(
                     "the unigrams give a vocabulary of {} words, the metadata {}",
                     vocab.len(),
