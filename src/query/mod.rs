@@ -38,6 +38,7 @@ pub mod katz;
 pub mod kneser_ney;
 pub mod next;
 pub mod ngrams;
+pub mod params;
 pub mod score;
 pub mod simple;
 pub mod tune;
@@ -58,6 +59,7 @@ use crate::words::{bos_id, eos_id, unk_id, word_id, IdMap, WordId, BOS, EOS, UNK
 
 pub use next::Next;
 pub use ngrams::{prefix_page, Page};
+pub use params::{DiscountPolicy, Params, ParamsFile};
 pub use score::{ScoreReport, Scorer, SentenceScore};
 
 /// The estimators quern computes.
@@ -65,10 +67,10 @@ pub use score::{ScoreReport, Scorer, SentenceScore};
 #[serde(rename_all = "kebab-case")]
 pub enum Method {
     /// Interpolated modified Kneser-Ney (Chen & Goodman 1998): three
-    /// discounts per order over adjusted counts.
+    /// discounts per order over left-type counts.
     Mkn,
     /// Interpolated Kneser-Ney with one discount per order (Ney, Essen &
-    /// Kneser 1994) over adjusted counts.
+    /// Kneser 1994) over left-type counts.
     Kn,
     /// Interpolated absolute discounting (Ney, Essen & Kneser 1994) over raw
     /// counts.
@@ -146,43 +148,6 @@ impl FromStr for Method {
     }
 }
 
-/// The free parameters of the methods. Each method reads only its own;
-/// `Params::default()` gives the documented defaults.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-#[serde(default, deny_unknown_fields)]
-pub struct Params {
-    /// `add-k`: the added count k (> 0). Default 1 (Laplace).
-    pub k: f64,
-    /// `stupid`: the back-off factor α. Default 0.4 (Brants et al. 2007).
-    pub alpha: f64,
-    /// `interp`: the weight λ of orders 1..N, each in [0, 1]. Default 0.5
-    /// for every order (the starting point of `tune`).
-    pub lambdas: Option<Vec<f64>>,
-    /// `interp`, conditional: weights per order (outer, 1..N) and per bucket
-    /// of the context's count C(h) (inner): bucket b holds C(h) in
-    /// [2^b, 2^(b+1)), the last bucket everything above. Overrides `lambdas`.
-    pub bucket_lambdas: Option<Vec<Vec<f64>>>,
-    /// `katz`: the largest count that is discounted, K. Default 5; lowered
-    /// per order where Good-Turing is undefined or out of range.
-    pub katz_k: usize,
-    /// `mkn` (D1, D2, D3+), `kn` and `absolute` (the first value): discounts
-    /// used only where the data leave one undefined or out of range.
-    pub fallback_discounts: Option<Vec<f64>>,
-}
-
-impl Default for Params {
-    fn default() -> Self {
-        Params {
-            k: 1.0,
-            alpha: 0.4,
-            lambdas: None,
-            bucket_lambdas: None,
-            katz_k: 5,
-            fallback_discounts: None,
-        }
-    }
-}
-
 /// The per-order constants of the chosen method, derived when the
 /// estimator is built.
 #[derive(Clone, Debug)]
@@ -221,7 +186,7 @@ pub struct Prob {
 pub(crate) struct Level {
     /// Raw count c(h_j w).
     pub c: u64,
-    /// Adjusted count a(h_j w).
+    /// Left-type count a(h_j w).
     pub a: u64,
     /// Statistics of h_j (`None`: h_j has no children).
     pub ctx: Option<ContextStats>,
@@ -247,11 +212,11 @@ impl CtxInfo {
 }
 
 /// The unigram table: every stored unigram but `<s>`, with raw and
-/// adjusted count, and V in id order.
+/// left-type count, and V in id order.
 pub(crate) struct Unigrams {
     pub map: IdMap<(u64, u64)>,
     pub vocab: Vec<WordId>,
-    /// `counts[i]`: raw and adjusted count of `vocab[i]` ((0, 0) for an
+    /// `counts[i]`: raw and left-type count of `vocab[i]` ((0, 0) for an
     /// unseen `<unk>`).
     pub counts: Vec<(u64, u64)>,
 }
@@ -373,7 +338,7 @@ impl<'s> Estimator<'s> {
     /// Builds `method` with `params` over `store`: derives and checks the
     /// per-order constants. Fails with a message naming the order where the
     /// data leave a discount undefined (`mkn`, `kn`, `absolute`) and no
-    /// fallback was given, or where a parameter is out of range.
+    /// discount policy replaces them, or where a parameter is out of range.
     pub fn new(store: &'s Store, method: Method, params: Params) -> Result<Estimator<'s>> {
         let meta = store.meta();
         let n = meta.settings.order;
@@ -382,21 +347,21 @@ impl<'s> Estimator<'s> {
         }
         let mut notes = Vec::new();
         let model = match method {
-            Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts_checked(
+            Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts(
                 meta,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
-            Method::Kn => Model::Kn(kneser_ney::single_discounts_checked(
+            Method::Kn => Model::Kn(kneser_ney::single_discounts(
                 meta,
                 false,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
-            Method::Absolute => Model::Absolute(kneser_ney::single_discounts_checked(
+            Method::Absolute => Model::Absolute(kneser_ney::single_discounts(
                 meta,
                 true,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
             Method::WittenBell => Model::WittenBell,
@@ -458,7 +423,7 @@ impl<'s> Estimator<'s> {
     }
 
     /// What was decided when the estimator was built and should be shown to
-    /// the user: fallback discounts used, Katz's K lowered at an order.
+    /// the user: discounts that took the place of unusable ones, Katz's K lowered at an order.
     pub fn notes(&self) -> &[String] {
         &self.notes
     }
@@ -606,11 +571,11 @@ impl<'s> Estimator<'s> {
         }
     }
 
-    /// The adjusted count of an n-gram from its raw count and stored
+    /// The left-type count of an n-gram from its raw count and stored
     /// continuation (`None` at the top order): the raw count at the top
     /// order and for n-grams that start with `<s>`, else the continuation.
     #[inline]
-    fn adjusted(&self, c: u64, cont: Option<u64>, first: WordId) -> u64 {
+    fn left_type(&self, c: u64, cont: Option<u64>, first: WordId) -> u64 {
         match cont {
             Some(x) if first != self.bos => x,
             _ => c,
@@ -630,7 +595,7 @@ impl<'s> Estimator<'s> {
             if id == self.bos {
                 continue;
             }
-            map.insert(id, (c, self.adjusted(c, cont, id)));
+            map.insert(id, (c, self.left_type(c, cont, id)));
             vocab.push(id);
         }
         if !map.contains_key(&self.unk) {
@@ -660,7 +625,7 @@ impl<'s> Estimator<'s> {
         Ok(&self.unigrams()?.vocab)
     }
 
-    /// The stored children w of context `h` (|h| ≥ 1) with raw and adjusted
+    /// The stored children w of context `h` (|h| ≥ 1) with raw and left-type
     /// count of h·w, through a bounded cache.
     pub(crate) fn child_map(&self, h: &[WordId]) -> Result<ChildMap> {
         let key = Key::new(h);
@@ -673,7 +638,7 @@ impl<'s> Estimator<'s> {
         for item in self.store.children(h)? {
             let (k, c, cont) = item?;
             let w = k.ids()[h.len()];
-            let ca = (c, self.adjusted(c, cont, h[0]));
+            let ca = (c, self.left_type(c, cont, h[0]));
             list.push((w, ca, uni.counts_from(w, &mut at)));
         }
         if !list.windows(2).all(|p| p[0].0 < p[1].0) {
@@ -813,7 +778,7 @@ impl<'s> Estimator<'s> {
                     let ca = g.map_or((0, 0), |r| {
                         (
                             r.count,
-                            self.adjusted(r.count, r.continuation, full[nl - 1 - j]),
+                            self.left_type(r.count, r.continuation, full[nl - 1 - j]),
                         )
                     });
                     (ca, CtxInfo::of(h))

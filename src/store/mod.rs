@@ -16,10 +16,7 @@ mod meta;
 pub mod ranks;
 
 pub use keys::{ContextStats, NgramRecord};
-pub use meta::{
-    mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
-    STORE_VERSION,
-};
+pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
 pub use ranks::Ranks;
 
 use std::collections::HashMap;
