@@ -64,7 +64,7 @@ mod query_next;
 mod estimators;
 
 // `tune` (add-k search, interp EM with and without buckets) lowers
-// held-out perplexity; its file round-trips through --params.
+// held-out perplexity; its file round-trips through --tuned.
 mod query_tune;
 
 // Benchmarks of prob throughput and next latency (ignored; run by hand).
