@@ -21,6 +21,8 @@
 //! * [`merge`] merges each partition's runs (k-way), shuffles continuation
 //!   contributions once, and derives every statistic in one ordered pass.
 //! * [`store`] writes and reads the RocksDB store.
+//! * [`model`] freezes a method into a memory-mapped back-off model file
+//!   (and ARPA text) and answers queries from it.
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
@@ -62,6 +64,8 @@ pub mod key;
 pub mod memory;
 #[cfg(feature = "store")]
 pub mod merge;
+#[cfg(feature = "store")]
+pub mod model;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod shard;

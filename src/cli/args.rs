@@ -33,6 +33,9 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Write a method over a store as a read-only back-off model file (and
+    /// ARPA text); or check a model file with --verify.
+    Freeze(FreezeArgs),
     /// Run one stage of an ingest as a task over a shared directory (for a
     /// cluster; see scripts/spark_ingest.py).
     #[command(subcommand)]
@@ -380,6 +383,41 @@ pub struct StatusArgs {
     #[arg(long)]
     pub store: PathBuf,
     /// JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct FreezeArgs {
+    /// Store directory.
+    #[arg(long, required_unless_present = "verify")]
+    pub store: Option<PathBuf>,
+    /// Memory budget: three quarters go to the store's block cache.
+    #[arg(long, default_value = "256MiB")]
+    pub memory: String,
+    /// mkn, kn, absolute, witten-bell, katz, interp or stupid.
+    #[arg(long, required_unless_present = "verify")]
+    pub method: Option<String>,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// The model file to write.
+    #[arg(long, required_unless_present_any = ["verify", "arpa"])]
+    pub out: Option<PathBuf>,
+    /// Also (or only) write the model as ARPA text; a name ending in .gz
+    /// is compressed.
+    #[arg(long)]
+    pub arpa: Option<PathBuf>,
+    /// Keep an n-gram of order k only if its raw count is at least the
+    /// k-th value (comma-separated, orders 1..N; the first must be 1).
+    #[arg(long, value_delimiter = ',')]
+    pub min_counts: Option<Vec<u64>>,
+    /// Held-out text: report its perplexity under the store and the model.
+    #[arg(long)]
+    pub heldout: Vec<PathBuf>,
+    /// Check every checksum and invariant of this model file, and nothing else.
+    #[arg(long, conflicts_with_all = ["store", "out", "arpa"])]
+    pub verify: Option<PathBuf>,
+    /// The summary as JSON.
     #[arg(long)]
     pub json: bool,
 }

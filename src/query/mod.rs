@@ -33,6 +33,7 @@
 //! An estimator keeps small caches (context statistics, words, children
 //! lists) behind `RefCell`s: use one estimator per thread.
 
+pub mod backoff;
 pub mod jelinek_mercer;
 pub mod katz;
 pub mod kneser_ney;
