@@ -332,3 +332,47 @@ impl Model {
         })
     }
 }
+
+impl crate::query::Predictor for Model {
+    fn method(&self) -> crate::query::Method {
+        Model::method(self)
+    }
+    fn order(&self) -> usize {
+        Model::order(self)
+    }
+    fn vocabulary_size(&self) -> u64 {
+        Model::vocabulary_size(self)
+    }
+    fn lowercase(&self) -> bool {
+        Model::lowercase(self)
+    }
+    fn notes(&self) -> &[String] {
+        Model::notes(self)
+    }
+    fn constants(&self) -> serde_json::Value {
+        Model::constants(self)
+    }
+    fn word(&self, id: WordId) -> Result<Option<String>> {
+        Ok(Model::word(self, id))
+    }
+    fn prob(&self, context: &[WordId], word: WordId) -> Result<Prob> {
+        Model::prob(self, context, word)
+    }
+    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
+        Model::prob_batch(self, queries)
+    }
+    fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
+        Model::next(self, context, k)
+    }
+    fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
+        Model::distribution(self, context)
+    }
+}
+
+/// A model is shared by threads: every query takes `&self` and the map is
+/// read-only.
+#[allow(dead_code)]
+fn assert_send_sync() {
+    fn is<T: Send + Sync>() {}
+    is::<Model>();
+}

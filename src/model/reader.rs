@@ -248,12 +248,12 @@ impl Model {
             bos: 0,
             unk: 0,
         };
-        let need = |id: WordId, what: &str| {
+        let need = |m: &Model, id: WordId, what: &str| {
             m.index_of(id)
                 .ok_or_else(|| bad(format!("the vocabulary has no {what}")))
         };
-        m.bos = need(bos_id(), "<s>")?;
-        m.unk = need(unk_id(), "<unk>")?;
+        m.bos = need(&m, bos_id(), "<s>")?;
+        m.unk = need(&m, unk_id(), "<unk>")?;
         Ok(m)
     }
 

@@ -39,6 +39,7 @@ pub mod katz;
 pub mod kneser_ney;
 pub mod next;
 pub mod ngrams;
+pub mod predictor;
 pub mod score;
 pub mod simple;
 pub mod tune;
@@ -59,6 +60,7 @@ use crate::words::{bos_id, eos_id, unk_id, word_id, IdMap, WordId, BOS, EOS, UNK
 
 pub use next::Next;
 pub use ngrams::{prefix_page, Page};
+pub use predictor::Predictor;
 pub use score::{ScoreReport, Scorer, SentenceScore};
 
 /// The estimators quern computes.
