@@ -146,6 +146,22 @@ pub struct QueryStoreArgs {
     pub memory: String,
 }
 
+/// Where `prob`, `next` and `score` get their answers: a method over a
+/// store, or a frozen model file.
+#[derive(Args, Debug, Clone)]
+pub struct QuerySourceArgs {
+    /// Store directory.
+    #[arg(long, required_unless_present = "model", conflicts_with = "model")]
+    pub store: Option<PathBuf>,
+    /// A model file written by `quern freeze`, in place of --store (its
+    /// method and parameters are the ones it was frozen with).
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Memory for caches: three quarters go to the store's block cache.
+    #[arg(long, default_value = "256MiB")]
+    pub memory: String,
+}
+
 /// A smoothing method's parameters (each method reads only its own).
 #[derive(Args, Debug, Clone, Default)]
 pub struct ParamArgs {
@@ -174,10 +190,11 @@ pub struct ParamArgs {
 #[derive(Args, Debug)]
 pub struct ProbArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    pub store: QuerySourceArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid
+    /// (with --model: the model's, if given).
+    #[arg(long, required_unless_present = "model")]
+    pub method: Option<String>,
     #[command(flatten)]
     pub params: ParamArgs,
     /// JSON (one object a line) instead of TSV.
@@ -191,10 +208,11 @@ pub struct ProbArgs {
 #[derive(Args, Debug)]
 pub struct NextArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    pub store: QuerySourceArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid
+    /// (with --model: the model's, if given).
+    #[arg(long, required_unless_present = "model")]
+    pub method: Option<String>,
     #[command(flatten)]
     pub params: ParamArgs,
     /// How many words.
@@ -235,10 +253,11 @@ pub struct NgramsArgs {
 #[derive(Args, Debug)]
 pub struct ScoreArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    pub store: QuerySourceArgs,
+    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid
+    /// (with --model: the model's, if given).
+    #[arg(long, required_unless_present = "model")]
+    pub method: Option<String>,
     #[command(flatten)]
     pub params: ParamArgs,
     /// Add one record per sentence.

@@ -49,6 +49,11 @@ pub enum SectionKind {
     /// Per order k < N: where every kept n-gram's children start among the
     /// n-grams of order k + 1 (u32), plus one entry for the end.
     Children = 19,
+    /// Per order k < N, `katz` only, and only where some context needs
+    /// it: how many words (u8) a context drops when it backs off (1: to
+    /// h'; Katz passes a context's mass further down where its children
+    /// take all of h''s probability).
+    Skips = 20,
 }
 
 impl SectionKind {
@@ -64,6 +69,7 @@ impl SectionKind {
             17 => SectionKind::Probs,
             18 => SectionKind::Weights,
             19 => SectionKind::Children,
+            20 => SectionKind::Skips,
             _ => return None,
         })
     }
@@ -80,6 +86,7 @@ impl SectionKind {
             SectionKind::Probs => "probabilities",
             SectionKind::Weights => "back-off weights",
             SectionKind::Children => "children index",
+            SectionKind::Skips => "back-off skips",
         }
     }
 }

@@ -209,6 +209,10 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     }
     let mut q_paths = vec![q_file.close()?];
     let mut q64_prev = q64_file.close()?;
+    // The exact q of every finished order (index k − 1), for Katz's
+    // contexts that back off past their next shorter context.
+    let mut q64_maps: Vec<Bytes> = vec![map(&q64_prev)?];
+    let mut skip_paths: Vec<Option<PathBuf>> = Vec::new();
     let mut word_paths: Vec<Option<PathBuf>> = vec![None];
     let mut weight_paths: Vec<PathBuf> = Vec::new();
     let mut child_paths: Vec<PathBuf> = Vec::new();
@@ -231,12 +235,14 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     };
     for k in 2..=n {
         let lower_q = map(&q64_prev)?;
+        let mut any_skip = false;
         let mut w_file = ArrayFile::create(tpath(format!("w{k}")))?;
         let mut q_file = ArrayFile::create(tpath(format!("q{k}")))?;
         let mut q64_file = ArrayFile::create(tpath(format!("q64-{k}")))?;
         let mut ctx_out = ContextOut {
             b: ArrayFile::create(tpath(format!("b{}", k - 1)))?,
             f: ArrayFile::create(tpath(format!("f{}", k - 1)))?,
+            s: ArrayFile::create(tpath(format!("s{}", k - 1)))?,
             next_p: 0,
             default_beta,
             k,
@@ -254,9 +260,10 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         let mut written: u64 = 0;
         let mut xs: Vec<u32> = Vec::with_capacity(k);
         let mut store_n: u64 = 0;
-        let beta_of = |rec: &NgramRecord, acc: &Acc, unrep: &mut u64| -> f64 {
+        // β of a finished context; `None`: Katz must look past h'.
+        let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
             let j = k - 1;
-            match kind {
+            Some(match kind {
                 BackoffKind::Stupid(a) => a,
                 _ if acc.kept == 0 => 1.0,
                 BackoffKind::Interpolated if !acc.pruned => {
@@ -273,8 +280,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                     } else if den > EPS {
                         f / den
                     } else {
-                        *unrep += 1;
-                        0.0
+                        return None;
                     }
                 }
                 _ => {
@@ -286,7 +292,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                         num / den
                     }
                 }
-            }
+            })
         };
         let kept_of = |pk: &Key, parents: &mut ParentStream| -> Option<u32> {
             if k - 1 == 1 {
@@ -302,9 +308,21 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             let h = &gi[..k - 1];
             // Move to the parent h, finishing the ones passed.
             while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
-                if let Some((_, prec, Some(p))) = &cur {
-                    let beta = beta_of(prec, &acc, &mut katz_unrepresentable);
-                    ctx_out.put(*p, written - acc.kept, beta)?;
+                if let Some((pk, prec, Some(p))) = &cur {
+                    let (beta, skip) = match beta_of(prec, &acc) {
+                        Some(b) => (b, 1),
+                        None => katz_deep(
+                            est,
+                            pk.ids(),
+                            prec,
+                            &mut built,
+                            &q64_maps,
+                            &index,
+                            &mut katz_unrepresentable,
+                        )?,
+                    };
+                    any_skip |= skip > 1;
+                    ctx_out.put(*p, written - acc.kept, beta, skip)?;
                 }
                 acc = Acc::default();
                 let Some(p) = parents.it.next() else {
@@ -407,9 +425,21 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             acc.sum_q += q;
             acc.sum_lower += lower;
         }
-        if let Some((_, prec, Some(p))) = &cur {
-            let beta = beta_of(prec, &acc, &mut katz_unrepresentable);
-            ctx_out.put(*p, written - acc.kept, beta)?;
+        if let Some((pk, prec, Some(p))) = &cur {
+            let (beta, skip) = match beta_of(prec, &acc) {
+                Some(b) => (b, 1),
+                None => katz_deep(
+                    est,
+                    pk.ids(),
+                    prec,
+                    &mut built,
+                    &q64_maps,
+                    &index,
+                    &mut katz_unrepresentable,
+                )?,
+            };
+            any_skip |= skip > 1;
+            ctx_out.put(*p, written - acc.kept, beta, skip)?;
         }
         // Every later context has no kept child.
         let n_prev = kept_counts[k - 2];
@@ -421,7 +451,10 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         q_paths.push(q_file.close()?);
         weight_paths.push(ctx_out.b.close()?);
         child_paths.push(ctx_out.f.close()?);
+        let sp = ctx_out.s.close()?;
+        skip_paths.push(any_skip.then_some(sp));
         q64_prev = q64_file.close()?;
+        q64_maps.push(map(&q64_prev)?);
         kept_prev = kept_now;
         built
             .words
@@ -432,7 +465,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     }
     if katz_unrepresentable > 0 {
         notes.push(format!(
-            "katz: {katz_unrepresentable} contexts pass their freed mass past the next shorter context (their children take all of its probability); the back-off form cannot say so, and their unseen words get 0"
+            "katz: {katz_unrepresentable} contexts give their freed mass to the uniform distribution (their children take all the probability of every shorter context); the model gives their unseen words 0"
         ));
     }
 
@@ -494,6 +527,9 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         if k < n {
             copy(&mut w, SectionKind::Weights, k, &weight_paths[k - 1])?;
             copy(&mut w, SectionKind::Children, k, &child_paths[k - 1])?;
+            if let Some(p) = &skip_paths[k - 1] {
+                copy(&mut w, SectionKind::Skips, k, p)?;
+            }
         }
     }
     drop(built);
@@ -551,6 +587,7 @@ impl ParentStream<'_> {
 struct ContextOut {
     b: ArrayFile,
     f: ArrayFile,
+    s: ArrayFile,
     next_p: u32,
     default_beta: f64,
     k: usize,
@@ -562,17 +599,81 @@ impl ContextOut {
             self.f
                 .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
             self.b.f32(self.default_beta as f32)?;
+            self.s.put(&[1])?;
             self.next_p += 1;
         }
         Ok(())
     }
 
-    fn put(&mut self, p: u32, start: u64, beta: f64) -> Result<()> {
+    fn put(&mut self, p: u32, start: u64, beta: f64, skip: u8) -> Result<()> {
         self.fill_to(p, start)?;
         self.f
             .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
         self.b.f32(beta as f32)?;
+        self.s.put(&[skip])?;
         self.next_p = p + 1;
         Ok(())
     }
+}
+
+/// Katz's back-off weight for a context h whose children take all the
+/// probability of h' (1 − Σ P(v | h') ≤ 1e-12): like the estimator, it
+/// looks at ever shorter contexts h_i for one where the denominator
+/// 1 − Σ_{v child of h} P(v | h_i) is positive, and returns β = F(h)/that
+/// denominator with the number of words dropped. Where there is none, the
+/// estimator spreads F(h) uniformly, which a back-off model cannot say:
+/// counted in `unrep`, β = 0.
+fn katz_deep(
+    est: &Estimator<'_>,
+    h: &[WordId],
+    rec: &NgramRecord,
+    built: &mut Built,
+    q64: &[Bytes],
+    index: &dyn Fn(WordId) -> Option<u32>,
+    unrep: &mut u64,
+) -> Result<(f64, u8)> {
+    let j = h.len();
+    let s = rec.context.unwrap_or_default();
+    let store = est.store();
+    let mut kids: Vec<(u32, u64)> = Vec::new();
+    for c in store.children(h)? {
+        let (key, count, _) = c?;
+        let v = index(key.ids()[j]).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))?;
+        kids.push((v, count));
+    }
+    let freed: f64 = kids.iter().map(|&(_, c)| est.katz_freed(j, c)).sum();
+    let f = freed / s.count_sum.max(1) as f64;
+    let hx: Vec<u32> = h
+        .iter()
+        .map(|&id| index(id).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram")))
+        .collect::<Result<_>>()?;
+    let mut xs: Vec<u32> = Vec::with_capacity(j + 1);
+    for i in (0..j.saturating_sub(1)).rev() {
+        let mut sum = 0.0;
+        for &(v, _) in &kids {
+            xs.clear();
+            xs.extend_from_slice(&hx[j - i..]);
+            xs.push(v);
+            let e = if i == 0 {
+                Some(v)
+            } else {
+                built.lookup(&xs)
+            };
+            let Some(e) = e else {
+                return Err(Error::corrupt(
+                    store.dir(),
+                    "the suffix of a stored n-gram is not stored",
+                ));
+            };
+            let b = &q64[i];
+            let at = 8 * e as usize;
+            sum += f64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"));
+        }
+        let den = 1.0 - sum;
+        if den > EPS {
+            return Ok((f / den, (j - i) as u8));
+        }
+    }
+    *unrep += 1;
+    Ok((0.0, 1))
 }

@@ -158,12 +158,30 @@ impl Model {
                 None => break,
             }
         }
-        let mut p = q;
-        for j in matched + 1..=st.m {
-            p *= self.beta(j, st.nodes[j - 1]);
-        }
-        if st.len > st.m && self.meta.default_backoff != 1.0 {
-            p *= self.meta.default_backoff.powi((st.len - st.m) as i32);
+        let mut p = if st.len > st.m && self.meta.default_backoff != 1.0 {
+            self.meta.default_backoff.powi((st.len - st.m) as i32)
+        } else {
+            1.0
+        };
+        if self.has_skips() {
+            // Back off level by level from the longest kept context,
+            // dropping as many words as each context says, until a level
+            // where the word is kept.
+            let mut j = st.m;
+            while j > matched {
+                p *= self.beta(j, st.nodes[j - 1]);
+                j = j.saturating_sub(self.skip(j, st.nodes[j - 1]));
+            }
+            p *= if j == 0 {
+                self.q(1, x)
+            } else {
+                self.q(j + 1, next.nodes[j])
+            };
+        } else {
+            p *= q;
+            for j in matched + 1..=st.m {
+                p *= self.beta(j, st.nodes[j - 1]);
+            }
         }
         next.m = (matched + 1).min(self.n - 1);
         // The next context: the last N − 1 of the context and the word.
@@ -222,35 +240,48 @@ impl Model {
         Ok(out)
     }
 
-    /// The product of the back-off weights above level `j` for the context
-    /// of `st`: what a word whose longest kept n-gram ends at level j is
-    /// multiplied by.
-    fn factors(&self, st: &State) -> Vec<f64> {
-        let mut f = vec![1.0; st.m + 1];
-        let mut acc = if st.len > st.m {
+    /// The levels a word backs off through after the context of `st`,
+    /// longest first, each with the product of the back-off weights passed
+    /// before reaching it: a word whose longest kept n-gram ends at level j
+    /// gets q at the first of these levels that is at most j, times its
+    /// factor. Without skips these are all levels M, …, 0.
+    fn walk(&self, st: &State) -> Vec<(usize, f64)> {
+        let mut f = if st.len > st.m {
             self.meta.default_backoff.powi((st.len - st.m) as i32)
         } else {
             1.0
         };
-        for j in (0..=st.m).rev() {
-            f[j] = acc;
-            if j >= 1 {
-                acc *= self.beta(j, st.nodes[j - 1]);
+        let mut out = Vec::with_capacity(st.m + 1);
+        let mut j = st.m;
+        loop {
+            out.push((j, f));
+            if j == 0 {
+                break;
             }
+            f *= self.beta(j, st.nodes[j - 1]);
+            j = j.saturating_sub(self.skip(j, st.nodes[j - 1]));
         }
-        f
+        out
     }
 
     /// The whole distribution P(· | context) over V, in id order.
     pub fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
         let st = self.state(context);
-        let f = self.factors(&st);
-        let mut p: Vec<f64> = (0..self.nw as u32).map(|x| self.q(1, x) * f[0]).collect();
-        for j in 1..=st.m {
-            for e in self.children(j, st.nodes[j - 1]) {
-                let x = self.word_of(j + 1, e) as usize;
-                if let Some(slot) = p.get_mut(x) {
-                    *slot = self.q(j + 1, e as u32) * f[j];
+        let walk = self.walk(&st);
+        let mut p: Vec<f64> = vec![0.0; self.nw];
+        // Shortest level first: a word takes its value from the longest
+        // walked level it is kept at.
+        for &(j, f) in walk.iter().rev() {
+            if j == 0 {
+                for (x, slot) in p.iter_mut().enumerate() {
+                    *slot = self.q(1, x as u32) * f;
+                }
+            } else {
+                for e in self.children(j, st.nodes[j - 1]) {
+                    let x = self.word_of(j + 1, e) as usize;
+                    if let Some(slot) = p.get_mut(x) {
+                        *slot = self.q(j + 1, e as u32) * f;
+                    }
                 }
             }
         }
@@ -261,55 +292,62 @@ impl Model {
     }
 
     /// The `k` most probable words after `context` (cut to N − 1, words
-    /// outside V as `<unk>`), exact: every child of the context's kept
-    /// suffixes of two words or more, the best `k` children of its last
-    /// word that no longer suffix has, and the first `k` words of the
-    /// unigram ranking that are children of no suffix. A word whose longest
-    /// kept n-gram ends at level j gets q × the same factor as every other
-    /// such word, so within a level the order of q is the order of P.
+    /// outside V as `<unk>`), exact. Along the levels a word backs off
+    /// through ([`Model::walk`]), every word whose value comes from level j
+    /// is multiplied by the same factor, so within a level the order of q
+    /// is the order of P. The candidates: every child of the walked
+    /// contexts of two words or more (short lists), the best `k` children
+    /// of the last word that no longer walked context has, and the first
+    /// `k` words of the unigram ranking that no walked context has as a
+    /// child.
     pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
         let st = self.state(context);
-        let f = self.factors(&st);
+        let walk = self.walk(&st);
         let mut longer: std::collections::HashSet<u32> = Default::default();
         let mut scored: Vec<(f64, u32)> = Vec::new();
-        for j in (2..=st.m).rev() {
-            for e in self.children(j, st.nodes[j - 1]) {
-                let x = self.word_of(j + 1, e);
-                if longer.insert(x) {
-                    scored.push((self.q(j + 1, e as u32) * f[j], x));
-                }
-            }
-        }
-        let mut n_scored = scored.len();
+        let mut n_scored = 0;
         let best = |a: &(f64, u32), b: &(f64, u32)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
-        if st.m >= 1 {
-            let mut level: Vec<(f64, u32)> = Vec::new();
-            for e in self.children(1, st.nodes[0]) {
-                let x = self.word_of(2, e);
-                if !longer.contains(&x) {
-                    level.push((self.q(2, e as u32) * f[1], x));
+        let mut one = None;
+        for &(j, f) in &walk {
+            if j >= 2 {
+                for e in self.children(j, st.nodes[j - 1]) {
+                    let x = self.word_of(j + 1, e);
+                    if longer.insert(x) {
+                        scored.push((self.q(j + 1, e as u32) * f, x));
+                        n_scored += 1;
+                    }
+                }
+            } else if j == 1 {
+                one = Some(st.nodes[0]);
+                let mut level: Vec<(f64, u32)> = Vec::new();
+                for e in self.children(1, st.nodes[0]) {
+                    let x = self.word_of(2, e);
+                    if !longer.contains(&x) {
+                        level.push((self.q(2, e as u32) * f, x));
+                    }
+                }
+                n_scored += level.len();
+                if level.len() > k && k > 0 {
+                    level.select_nth_unstable_by(k - 1, best);
+                }
+                level.truncate(k);
+                scored.extend(level);
+            } else {
+                let rk = &self.map[self.ranking.clone()];
+                let mut taken = 0;
+                for i in 0..self.meta.vocabulary as usize {
+                    if taken == k {
+                        break;
+                    }
+                    let x = u32_at(rk, i);
+                    if longer.contains(&x) || one.is_some_and(|e| self.child(1, e, x).is_some()) {
+                        continue;
+                    }
+                    scored.push((self.q(1, x) * f, x));
+                    n_scored += 1;
+                    taken += 1;
                 }
             }
-            n_scored += level.len();
-            if level.len() > k && k > 0 {
-                level.select_nth_unstable_by(k - 1, best);
-            }
-            level.truncate(k);
-            scored.extend(level);
-        }
-        let rk = &self.map[self.ranking.clone()];
-        let mut taken = 0;
-        for i in 0..self.meta.vocabulary as usize {
-            if taken == k {
-                break;
-            }
-            let x = u32_at(rk, i);
-            if longer.contains(&x) || (st.m >= 1 && self.child(1, st.nodes[0], x).is_some()) {
-                continue;
-            }
-            scored.push((self.q(1, x) * f[0], x));
-            n_scored += 1;
-            taken += 1;
         }
         if scored.len() > k && k > 0 {
             scored.select_nth_unstable_by(k - 1, best);

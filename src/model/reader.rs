@@ -82,6 +82,8 @@ pub(crate) struct OrderSections {
     pub weights: Range<usize>,
     /// Child starts, len + 1 of them (empty at the top order).
     pub children: Range<usize>,
+    /// Words dropped on backing off, one byte each (empty: 1 for all).
+    pub skips: Range<usize>,
 }
 
 /// A frozen model, memory-mapped and read-only. `Send + Sync`: one model
@@ -230,6 +232,10 @@ impl Model {
                 want(&o.weights, len * 4, "back-off weights")?;
                 o.children = find(SectionKind::Children, k)?;
                 want(&o.children, (len + 1) * 4, "children index")?;
+                if let Ok(r) = find(SectionKind::Skips, k) {
+                    want(&r, len, "back-off skips")?;
+                    o.skips = r;
+                }
             }
             orders.push(o);
         }
@@ -328,6 +334,12 @@ impl Model {
                         return Err(bad(format!("order {k}: back-off weight {x} of n-gram {i}")));
                     }
                 }
+                for i in 0..if o.skips.is_empty() { 0 } else { o.len } {
+                    let sk = b[o.skips.start + i] as usize;
+                    if sk == 0 || sk > k {
+                        return Err(bad(format!("order {k}: back-off skip {sk} of n-gram {i}")));
+                    }
+                }
                 let c = &b[o.children.clone()];
                 let next = &self.orders[k];
                 let words = &b[next.words.clone()];
@@ -424,6 +436,23 @@ impl Model {
     #[inline]
     pub(crate) fn beta(&self, k: usize, e: u32) -> f64 {
         f32_at(&self.map[self.orders[k - 1].weights.clone()], e as usize) as f64
+    }
+
+    /// How many words entry `e` of order `k` (k < N) drops when it backs
+    /// off (1 unless the order has a skips section).
+    #[inline]
+    pub(crate) fn skip(&self, k: usize, e: u32) -> usize {
+        let r = &self.orders[k - 1].skips;
+        if r.is_empty() {
+            1
+        } else {
+            self.map[r.clone()].get(e as usize).map_or(1, |&s| s.max(1) as usize)
+        }
+    }
+
+    /// Whether some context backs off past its next shorter context.
+    pub(crate) fn has_skips(&self) -> bool {
+        self.orders.iter().any(|o| !o.skips.is_empty())
     }
 
     /// The children of entry `e` of order `k` (k < N): a range of entries

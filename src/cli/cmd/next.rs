@@ -5,24 +5,25 @@ use std::io::Write;
 use quern::query::query_ids;
 use serde_json::json;
 
-use super::prob::{estimator, jnum, log, num, open_store, words};
+use super::prob::{jnum, log, num, open_source, predictor, words};
 use crate::cli::args::NextArgs;
 
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
-    let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method, &a.params)?;
-    let ids = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
+    let src = open_source(&a.store)?;
+    let pred = predictor(&src, a.method.as_deref(), &a.params)?;
+    let est = pred.get();
+    let ids = query_ids(&a.words.join(" "), est.lowercase());
     let t = std::time::Instant::now();
     let next = est.next(&ids, a.top)?;
     let secs = t.elapsed().as_secs_f64();
     let prob = est.method().is_probability();
     let mut out = std::io::stdout().lock();
-    let context = words(&store, &next.context)?;
+    let context = words(est, &next.context)?;
     if a.json {
         let mut items = Vec::new();
         for (w, p) in &next.items {
             items.push(json!({
-                "word": words(&store, &[*w])?,
+                "word": words(est, &[*w])?,
                 if prob { "probability" } else { "score" }: jnum(*p),
                 "log10": jnum(p.log10()),
             }));
@@ -55,7 +56,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
             out,
             "{:>4}  {:<20} {:>14} {:>10}",
             i + 1,
-            words(&store, &[*w])?,
+            words(est, &[*w])?,
             num(*p),
             log(p.log10())
         )?;

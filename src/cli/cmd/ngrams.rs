@@ -7,7 +7,7 @@ use quern::query::{prefix_page, query_ids};
 use quern::words::WordId;
 use serde_json::json;
 
-use super::prob::{estimator, jnum, log, num, open_store, words};
+use super::prob::{estimator, jnum, log, num, open_store, store_words};
 use crate::cli::args::NgramsArgs;
 
 /// A cursor: the ids of the last n-gram shown, 16 hex digits each.
@@ -52,7 +52,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     if a.json {
         let mut items = Vec::new();
         for (i, (k, c, cont)) in page.items.iter().enumerate() {
-            let mut v = json!({"words": words(&store, k.ids())?, "count": c, "continuation": cont});
+            let mut v = json!({"words": store_words(&store, k.ids())?, "count": c, "continuation": cont});
             if let (Some(ps), Some(e)) = (&probs, &est) {
                 let key = if e.method().is_probability() {
                     "probability"
@@ -69,7 +69,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     }
     for (i, (k, c, cont)) in page.items.iter().enumerate() {
         let cont = cont.map_or("-".to_string(), |x| x.to_string());
-        write!(out, "{}\t{c}\t{cont}", words(&store, k.ids())?)?;
+        write!(out, "{}\t{c}\t{cont}", store_words(&store, k.ids())?)?;
         if let Some(ps) = &probs {
             write!(out, "\t{}\t{}", num(ps[i].p), log(ps[i].log10))?;
         }

@@ -6,7 +6,7 @@ use anyhow::Context;
 use quern::query::{ScoreReport, Scorer, SentenceScore};
 use serde_json::json;
 
-use super::prob::{estimator, jnum, open_store};
+use super::prob::{jnum, open_source, predictor};
 use super::thousands;
 use crate::cli::args::ScoreArgs;
 
@@ -43,14 +43,15 @@ fn sentence_json(s: &SentenceScore, probability: bool) -> serde_json::Value {
 }
 
 pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
-    let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method, &a.params)?;
+    let src = open_source(&a.store)?;
+    let pred = predictor(&src, a.method.as_deref(), &a.params)?;
+    let est = pred.get();
     let probability = est.method().is_probability();
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
     let t = std::time::Instant::now();
     let mut total = ScoreReport::default();
     for f in &a.files {
-        let mut scorer = Scorer::new(&est, a.per_line);
+        let mut scorer = Scorer::new(est, a.per_line);
         let reader: Box<dyn BufRead> = if f.as_os_str() == "-" {
             Box::new(std::io::stdin().lock())
         } else {
