@@ -78,7 +78,11 @@ pub fn write_arpa(model: &Model, out: &mut impl Write) -> std::io::Result<()> {
         m.method,
         n,
         m.vocabulary,
-        if m.lowercase { " built with --lowercase" } else { "" }
+        if m.lowercase {
+            " built with --lowercase"
+        } else {
+            ""
+        }
     )?;
     if !m.probabilities {
         writeln!(
@@ -92,7 +96,35 @@ pub fn write_arpa(model: &Model, out: &mut impl Write) -> std::io::Result<()> {
     for k in 1..=n {
         writeln!(out, "ngram {k}={}", model.orders[k - 1].len)?;
     }
-    // The words' bytes, by index.
+    for k in 1..=n {
+        writeln!(out)?;
+        writeln!(out, "\\{k}-grams:")?;
+        for_each_ngram(model, k, |e, words| {
+            write!(out, "{}\t", log10(model.q(k, e as u32)))?;
+            for (i, w) in words.iter().enumerate() {
+                if i > 0 {
+                    out.write_all(b" ")?;
+                }
+                out.write_all(w)?;
+            }
+            if k < n {
+                write!(out, "\t{}", log10(model.beta(k, e as u32)))?;
+            }
+            writeln!(out)
+        })?;
+    }
+    writeln!(out)?;
+    writeln!(out, "\\end\\")?;
+    Ok(())
+}
+
+/// Calls `f(entry, words)` for every kept n-gram of order `k`, in entry
+/// order, with its words' bytes.
+fn for_each_ngram(
+    model: &Model,
+    k: usize,
+    mut f: impl FnMut(usize, &[&[u8]]) -> std::io::Result<()>,
+) -> std::io::Result<()> {
     let offs = &model.map[model.offsets.clone()];
     let text = &model.map[model.text.clone()];
     let word = |x: u32| -> &[u8] {
@@ -100,37 +132,44 @@ pub fn write_arpa(model: &Model, out: &mut impl Write) -> std::io::Result<()> {
         let z = (u64_at(offs, x as usize + 1) as usize).clamp(a, text.len());
         &text[a..z]
     };
-    for k in 1..=n {
-        writeln!(out)?;
-        writeln!(out, "\\{k}-grams:")?;
-        // anc[t]: the entry of order t that is the current n-gram's prefix
-        // of length t (t < k); all move forward only.
-        let mut anc = vec![0usize; k];
-        for e in 0..model.orders[k - 1].len {
-            if k > 1 {
-                let mut child = e;
-                for t in (1..k).rev() {
-                    while anc[t] < model.orders[t - 1].len
-                        && model.children(t, anc[t] as u32).end <= child
-                    {
-                        anc[t] += 1;
-                    }
-                    child = anc[t];
-                }
+    // anc[t]: the entry of order t that is the current n-gram's prefix of
+    // length t (t < k); all move forward only.
+    let mut anc = vec![0usize; k];
+    let mut words: Vec<&[u8]> = Vec::with_capacity(k);
+    for e in 0..model.orders[k - 1].len {
+        let mut child = e;
+        for t in (1..k).rev() {
+            while anc[t] < model.orders[t - 1].len && model.children(t, anc[t] as u32).end <= child
+            {
+                anc[t] += 1;
             }
-            write!(out, "{}\t", log10(model.q(k, e as u32)))?;
-            for t in 1..k {
-                out.write_all(word(model.word_of(t, anc[t])))?;
-                out.write_all(b" ")?;
-            }
-            out.write_all(word(model.word_of(k, e)))?;
-            if k < n {
-                write!(out, "\t{}", log10(model.beta(k, e as u32)))?;
-            }
-            writeln!(out)?;
+            child = anc[t];
         }
+        words.clear();
+        for t in 1..k {
+            words.push(word(model.word_of(t, anc[t])));
+        }
+        words.push(word(model.word_of(k, e)));
+        f(e, &words)?;
     }
-    writeln!(out)?;
-    writeln!(out, "\\end\\")?;
     Ok(())
+}
+
+/// The contexts (words, space-separated) that back off past their next
+/// shorter context (`katz`): where ARPA text is not the method.
+pub fn skipping_contexts(model: &Model) -> Vec<String> {
+    let mut out = Vec::new();
+    for k in 1..model.order() {
+        let _ = for_each_ngram(model, k, |e, words| {
+            if model.skip(k, e as u32) > 1 {
+                let w: Vec<String> = words
+                    .iter()
+                    .map(|b| String::from_utf8_lossy(b).into_owned())
+                    .collect();
+                out.push(w.join(" "));
+            }
+            Ok(())
+        });
+    }
+    out
 }

@@ -179,7 +179,9 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         let mut recs = store.scan_records(1, &[], None)?.peekable();
         for (x, &id) in ids.iter().enumerate() {
             let rec: Option<NgramRecord> = match recs.peek() {
-                Some(Ok((k, _))) if k.ids()[0] == id => recs.next().map(|r| r.map(|r| r.1)).transpose()?,
+                Some(Ok((k, _))) if k.ids()[0] == id => {
+                    recs.next().map(|r| r.map(|r| r.1)).transpose()?
+                }
                 Some(Err(_)) => return Err(recs.next().expect("peeked").unwrap_err()),
                 _ => None,
             };
@@ -227,6 +229,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     // Which store n-grams of the previous order were kept (by position).
     let mut kept_prev: Vec<u64> = Vec::new();
     let mut katz_unrepresentable = 0u64;
+    let mut katz_skips = 0u64;
 
     // ---- orders 2..N ----------------------------------------------------------
     let default_beta = match kind {
@@ -286,6 +289,9 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 _ => {
                     let num = 1.0 - acc.sum_q;
                     let den = 1.0 - acc.sum_lower;
+                    if kind == BackoffKind::Katz && num > EPS && den <= EPS {
+                        return None;
+                    }
                     if num <= 0.0 || den <= EPS {
                         0.0
                     } else {
@@ -319,9 +325,11 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                             &q64_maps,
                             &index,
                             &mut katz_unrepresentable,
+                            (acc.pruned, 1.0 - acc.sum_q, min(k)),
                         )?,
                     };
                     any_skip |= skip > 1;
+                    katz_skips += u64::from(skip > 1);
                     ctx_out.put(*p, written - acc.kept, beta, skip)?;
                 }
                 acc = Acc::default();
@@ -436,15 +444,19 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                     &q64_maps,
                     &index,
                     &mut katz_unrepresentable,
+                    (acc.pruned, 1.0 - acc.sum_q, min(k)),
                 )?,
             };
             any_skip |= skip > 1;
+            katz_skips += u64::from(skip > 1);
             ctx_out.put(*p, written - acc.kept, beta, skip)?;
         }
         // Every later context has no kept child.
         let n_prev = kept_counts[k - 2];
         ctx_out.fill_to(n_prev as u32, written)?;
-        ctx_out.f.u32(u32::try_from(written).map_err(|_| too_many(k))?)?;
+        ctx_out
+            .f
+            .u32(u32::try_from(written).map_err(|_| too_many(k))?)?;
         kept_counts.push(written);
         store_counts.push(store_n);
         word_paths.push(Some(w_file.close()?));
@@ -463,6 +475,11 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         built.path_x.clear();
         built.path_e.clear();
     }
+    if katz_skips > 0 {
+        notes.push(format!(
+            "katz: {katz_skips} contexts pass their freed mass past their next shorter context (their children take all of its probability): the model records how far; ARPA text cannot, so there the ARPA file gives their unseen words almost nothing"
+        ));
+    }
     if katz_unrepresentable > 0 {
         notes.push(format!(
             "katz: {katz_unrepresentable} contexts give their freed mass to the uniform distribution (their children take all the probability of every shorter context); the model gives their unseen words 0"
@@ -478,7 +495,10 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     offsets.extend_from_slice(&0u64.to_le_bytes());
     for id in &ids {
         let w = words.get(id).ok_or_else(|| {
-            Error::corrupt(store.dir(), format!("the word with id {id:#018x} has no text"))
+            Error::corrupt(
+                store.dir(),
+                format!("the word with id {id:#018x} has no text"),
+            )
         })?;
         text.extend_from_slice(w.as_bytes());
         offsets.extend_from_slice(&(text.len() as u64).to_le_bytes());
@@ -622,7 +642,9 @@ impl ContextOut {
 /// 1 − Σ_{v child of h} P(v | h_i) is positive, and returns β = F(h)/that
 /// denominator with the number of words dropped. Where there is none, the
 /// estimator spreads F(h) uniformly, which a back-off model cannot say:
-/// counted in `unrep`, β = 0.
+/// counted in `unrep`, β = 0. `pruned`: (some child of h was pruned, the
+/// mass 1 − Σ q(h·v) of its kept children, the count threshold of their
+/// order): then the numerator is that mass and only kept children count.
 fn katz_deep(
     est: &Estimator<'_>,
     h: &[WordId],
@@ -631,6 +653,7 @@ fn katz_deep(
     q64: &[Bytes],
     index: &dyn Fn(WordId) -> Option<u32>,
     unrep: &mut u64,
+    pruned: (bool, f64, u64),
 ) -> Result<(f64, u8)> {
     let j = h.len();
     let s = rec.context.unwrap_or_default();
@@ -638,31 +661,43 @@ fn katz_deep(
     let mut kids: Vec<(u32, u64)> = Vec::new();
     for c in store.children(h)? {
         let (key, count, _) = c?;
-        let v = index(key.ids()[j]).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))?;
+        let v = index(key.ids()[j])
+            .ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))?;
         kids.push((v, count));
     }
     let freed: f64 = kids.iter().map(|&(_, c)| est.katz_freed(j, c)).sum();
-    let f = freed / s.count_sum.max(1) as f64;
     let hx: Vec<u32> = h
         .iter()
-        .map(|&id| index(id).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram")))
+        .map(|&id| {
+            index(id).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))
+        })
         .collect::<Result<_>>()?;
     let mut xs: Vec<u32> = Vec::with_capacity(j + 1);
+    let f = if pruned.0 {
+        // Only the kept children: count at the threshold and h'·v kept.
+        kids.retain(|&(v, c)| {
+            c >= pruned.2 && {
+                xs.clear();
+                xs.extend_from_slice(&hx[1..]);
+                xs.push(v);
+                xs.len() == 1 || built.lookup(&xs).is_some()
+            }
+        });
+        pruned.1
+    } else {
+        freed / s.count_sum.max(1) as f64
+    };
     for i in (0..j.saturating_sub(1)).rev() {
         let mut sum = 0.0;
         for &(v, _) in &kids {
             xs.clear();
             xs.extend_from_slice(&hx[j - i..]);
             xs.push(v);
-            let e = if i == 0 {
-                Some(v)
-            } else {
-                built.lookup(&xs)
-            };
+            let e = if i == 0 { Some(v) } else { built.lookup(&xs) };
             let Some(e) = e else {
                 return Err(Error::corrupt(
                     store.dir(),
-                    "the suffix of a stored n-gram is not stored",
+                    "the suffix of a kept n-gram is not kept",
                 ));
             };
             let b = &q64[i];

@@ -21,7 +21,7 @@ use crate::error::{Error, IoContext, Result};
 use crate::words::{bos_id, unk_id, WordId};
 
 use super::format::{
-    Entry, ModelMeta, SectionKind, ENTRY_BYTES, END_MAGIC, HEADER_BYTES, MAGIC, MODEL_VERSION,
+    Entry, ModelMeta, SectionKind, END_MAGIC, ENTRY_BYTES, HEADER_BYTES, MAGIC, MODEL_VERSION,
     TRAILER_BYTES,
 };
 
@@ -314,7 +314,9 @@ impl Model {
         for i in 0..self.meta.vocabulary as usize {
             let x = u32_at(rk, i) as usize;
             if x >= self.nw || x == self.bos as usize || std::mem::replace(&mut seen[x], true) {
-                return Err(bad(format!("the unigram ranking is not a permutation of V at {i}")));
+                return Err(bad(format!(
+                    "the unigram ranking is not a permutation of V at {i}"
+                )));
             }
         }
         for k in 1..=self.n {
@@ -347,12 +349,15 @@ impl Model {
                 for i in 0..=o.len {
                     let s = u32_at(c, i);
                     if s < prev || (i == 0 && s != 0) || (i == o.len && s as usize != next.len) {
-                        return Err(bad(format!("order {k}: the children index is broken at {i}")));
+                        return Err(bad(format!(
+                            "order {k}: the children index is broken at {i}"
+                        )));
                     }
                     if i > 0 {
                         for e in prev as usize..s as usize {
                             let x = u32_at(words, e);
-                            if x as usize >= self.nw || (e > prev as usize && u32_at(words, e - 1) >= x)
+                            if x as usize >= self.nw
+                                || (e > prev as usize && u32_at(words, e - 1) >= x)
                             {
                                 return Err(bad(format!(
                                     "order {}: the words of the children of n-gram {} are not increasing",
@@ -446,8 +451,20 @@ impl Model {
         if r.is_empty() {
             1
         } else {
-            self.map[r.clone()].get(e as usize).map_or(1, |&s| s.max(1) as usize)
+            self.map[r.clone()]
+                .get(e as usize)
+                .map_or(1, |&s| s.max(1) as usize)
         }
+    }
+
+    /// How many contexts back off past their next shorter context (`katz`
+    /// only): the ARPA text cannot say so, and there it is not the method.
+    pub fn skipping_contexts(&self) -> u64 {
+        let mut n = 0;
+        for o in &self.orders {
+            n += self.map[o.skips.clone()].iter().filter(|&&s| s > 1).count() as u64;
+        }
+        n
     }
 
     /// Whether some context backs off past its next shorter context.

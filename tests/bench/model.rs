@@ -45,7 +45,11 @@ fn main() {
     let open_ms = t.elapsed().as_secs_f64() * 1e3;
     let store = Store::open_with_cache(&store.expect("--store"), cache).expect("open store");
     let m: Method = method.parse().expect("method");
-    assert_eq!(model.method(), m, "the model was frozen with another method");
+    assert_eq!(
+        model.method(),
+        m,
+        "the model was frozen with another method"
+    );
     let est = Estimator::new(&store, m, Params::default()).expect("estimator");
     let n = store.order();
     let s = quern::query::score::read_sentences(&[text.expect("--text")], false).expect("text");
@@ -60,13 +64,21 @@ fn main() {
         let t = Instant::now();
         for c in queries.chunks(4096) {
             let r = est.prob_batch(c).expect("prob");
-            check.0 += r.iter().map(|p| p.log10).filter(|x| x.is_finite()).sum::<f64>();
+            check.0 += r
+                .iter()
+                .map(|p| p.log10)
+                .filter(|x| x.is_finite())
+                .sum::<f64>();
         }
         store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
         let t = Instant::now();
         for c in queries.chunks(4096) {
             let r = model.prob_batch(c).expect("prob");
-            check.1 += r.iter().map(|p| p.log10).filter(|x| x.is_finite()).sum::<f64>();
+            check.1 += r
+                .iter()
+                .map(|p| p.log10)
+                .filter(|x| x.is_finite())
+                .sum::<f64>();
         }
         model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
     }

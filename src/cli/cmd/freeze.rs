@@ -7,8 +7,8 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use quern::memory::parse_size;
 use quern::model::{arpa, freeze, FreezeOptions, Model};
-use quern::query::score::read_sentences;
 use quern::query::prediction;
+use quern::query::score::read_sentences;
 use quern::store::Store;
 use quern::words::WordId;
 use serde_json::json;
@@ -107,8 +107,12 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         (None, None) => unreachable!("clap requires --out or --arpa"),
     };
     let t = std::time::Instant::now();
-    let report = freeze(&est, &out, &opts).with_context(|| format!("freezing into {}", out.display()))?;
+    let report =
+        freeze(&est, &out, &opts).with_context(|| format!("freezing into {}", out.display()))?;
     let freeze_secs = t.elapsed().as_secs_f64();
+    for n in &report.notes[est.notes().len()..] {
+        eprintln!("quern: note: {n}");
+    }
     let model = Model::open(&out)?;
     let mut arpa_bytes = None;
     if let Some(p) = &a.arpa {
@@ -125,7 +129,11 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     };
     let total_secs = t.elapsed().as_secs_f64();
     let kept: u64 = report.ngrams.iter().sum();
-    let file_bytes = if temporary { None } else { Some(report.file_bytes) };
+    let file_bytes = if temporary {
+        None
+    } else {
+        Some(report.file_bytes)
+    };
     drop(model);
     if temporary {
         std::fs::remove_file(&out).with_context(|| format!("removing {}", out.display()))?;

@@ -52,7 +52,8 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     if a.json {
         let mut items = Vec::new();
         for (i, (k, c, cont)) in page.items.iter().enumerate() {
-            let mut v = json!({"words": store_words(&store, k.ids())?, "count": c, "continuation": cont});
+            let mut v =
+                json!({"words": store_words(&store, k.ids())?, "count": c, "continuation": cont});
             if let (Some(ps), Some(e)) = (&probs, &est) {
                 let key = if e.method().is_probability() {
                     "probability"
