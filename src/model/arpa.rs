@@ -146,8 +146,8 @@ fn for_each_ngram(
             child = anc[t];
         }
         words.clear();
-        for t in 1..k {
-            words.push(word(model.word_of(t, anc[t])));
+        for (t, &a) in anc.iter().enumerate().skip(1) {
+            words.push(word(model.word_of(t, a)));
         }
         words.push(word(model.word_of(k, e)));
         f(e, &words)?;

@@ -645,6 +645,7 @@ impl ContextOut {
 /// counted in `unrep`, β = 0. `pruned`: (some child of h was pruned, the
 /// mass 1 − Σ q(h·v) of its kept children, the count threshold of their
 /// order): then the numerator is that mass and only kept children count.
+#[allow(clippy::too_many_arguments)]
 fn katz_deep(
     est: &Estimator<'_>,
     h: &[WordId],

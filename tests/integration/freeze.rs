@@ -277,10 +277,7 @@ fn queries(store: &Store, est: &Estimator<'_>, path: &Path) -> Vec<f64> {
 /// sums to 1, and its back-off probabilities equal the estimator's.
 #[test]
 fn arpa_read_by_python() {
-    for (store_dir, methods) in [
-        (train3(), &FREEZABLE[..6]),
-        (train5(), &[Method::Mkn][..]),
-    ] {
+    for (store_dir, methods) in [(train3(), &FREEZABLE[..6]), (train5(), &[Method::Mkn][..])] {
         let store = Store::open(store_dir).unwrap();
         let n = store.order();
         let dir = scratch(&format!("arpa{n}"));

@@ -46,7 +46,7 @@ pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
 /// model itself.
 pub enum Pred<'s> {
     /// A method over a store.
-    Est(Estimator<'s>),
+    Est(Box<Estimator<'s>>),
     /// A frozen model.
     Model(&'s Model),
 }
@@ -55,7 +55,7 @@ impl Pred<'_> {
     /// As a [`Predictor`].
     pub fn get(&self) -> &dyn Predictor {
         match self {
-            Pred::Est(e) => e,
+            Pred::Est(e) => e.as_ref(),
             Pred::Model(m) => *m,
         }
     }
@@ -69,11 +69,11 @@ pub fn predictor<'s>(
     a: &ParamArgs,
 ) -> anyhow::Result<Pred<'s>> {
     match src {
-        Source::Store(store) => Ok(Pred::Est(estimator(
+        Source::Store(store) => Ok(Pred::Est(Box::new(estimator(
             store,
             method.expect("clap requires --method with --store"),
             a,
-        )?)),
+        )?))),
         Source::Model(m) => {
             if let Some(name) = method {
                 let want: Method = name.parse()?;
