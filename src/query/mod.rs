@@ -33,6 +33,7 @@
 //! An estimator keeps small caches (context statistics, words, children
 //! lists) behind `RefCell`s: use one estimator per thread.
 
+pub mod backoff;
 mod cache;
 mod estimator;
 pub mod jelinek_mercer;
@@ -43,6 +44,7 @@ pub mod next;
 pub mod ngrams;
 pub mod params;
 mod probability;
+pub mod predictor;
 pub mod score;
 pub mod simple;
 pub mod tune;
@@ -56,6 +58,7 @@ pub use ngrams::{prefix_page, Page};
 pub use params::{DiscountPolicy, Params, ParamsFile};
 pub(crate) use probability::Level;
 pub use probability::Prob;
+pub use predictor::Predictor;
 pub use score::{ScoreReport, Scorer, SentenceScore};
 
 use crate::words::WordId;

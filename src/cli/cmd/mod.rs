@@ -1,6 +1,7 @@
 //! One file per subcommand.
 
 pub mod dump;
+pub mod freeze;
 pub mod ingest;
 pub mod next;
 pub mod ngrams;
