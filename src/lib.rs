@@ -70,9 +70,9 @@ pub mod layout;
 pub mod memory;
 #[cfg(feature = "store")]
 pub mod merge;
-pub mod pool;
 #[cfg(feature = "store")]
 pub mod model;
+pub mod pool;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;

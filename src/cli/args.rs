@@ -157,7 +157,12 @@ pub struct QueryStoreArgs {
 #[derive(Args, Debug, Clone)]
 pub struct QuerySourceArgs {
     /// Store directory.
-    #[arg(long, value_name = "DIR", required_unless_present = "model", conflicts_with = "model")]
+    #[arg(
+        long,
+        value_name = "DIR",
+        required_unless_present = "model",
+        conflicts_with = "model"
+    )]
     pub store: Option<PathBuf>,
     /// A model file written by `quern freeze`, in place of --store (its
     /// method and parameters are the ones it was frozen with).
