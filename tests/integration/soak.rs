@@ -165,6 +165,12 @@ fn scenario(
 fn random_kills_then_resume_equal_an_uninterrupted_run() {
     let trials = env_u64("QUERN_SOAK_TRIALS", 25);
     let seed = env_u64("QUERN_SOAK_SEED", 1);
+    // Too few trials cannot reach several phases: that is no soak, and a
+    // soak left out must show as left out (`--skip soak::`), not pass.
+    assert!(
+        trials >= MIN_TRIALS,
+        "QUERN_SOAK_TRIALS={trials}: the soak needs at least {MIN_TRIALS} trials; to leave it out, filter it out (cargo test -- --skip soak::)"
+    );
     eprintln!("soak: {trials} trials, QUERN_SOAK_SEED={seed}");
     let mut rng = Rng(seed);
     let dir = gutenberg_dir();
@@ -262,4 +268,23 @@ fn random_kills_then_resume_equal_an_uninterrupted_run() {
         2 * kills >= trials,
         "only {kills} kills landed in {trials} trials: the soak tested little"
     );
+    // The kills hit several phases of the ingest (the manifest's phase at
+    // the kill), in the fresh and in the appending scenario.
+    let phases = |scenario: &str| -> Vec<String> {
+        hits.keys()
+            .filter_map(|k| k.strip_prefix(scenario))
+            .map(|p| p.trim().to_string())
+            .filter(|p| p != "none" && p != "unreadable")
+            .collect()
+    };
+    for scenario in ["fresh", "append"] {
+        let seen = phases(scenario);
+        assert!(
+            seen.len() >= 2,
+            "the kills of the {scenario} ingests landed in phases {seen:?} only ({hits:?}): the soak missed most of the ingest"
+        );
+    }
 }
+
+/// The fewest trials that reach several phases of both scenarios.
+const MIN_TRIALS: u64 = 6;
