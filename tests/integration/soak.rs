@@ -234,6 +234,23 @@ fn random_kills_then_resume_equal_an_uninterrupted_run() {
                 break;
             }
             kills += 1;
+            // A kill that lands after the store was put in place and the
+            // work folder removed, but before the process exited, leaves a
+            // finished store: running the same command again would be
+            // refused (fresh) or append twice. (An append killed before it
+            // started also leaves no work folder, but the old store, which
+            // differs from the expected one.)
+            if !store.join("work").exists()
+                && store.join("db").join("CURRENT").exists()
+                && store_view(&store) == s.expected
+            {
+                story.push(format!("killed at {at:?} after it finished"));
+                *hits
+                    .entry(format!("{} after finishing", s.name))
+                    .or_default() += 1;
+                finished = true;
+                break;
+            }
             let phase = phase_of(&store);
             story.push(format!("killed at {at:?} in {phase}"));
             *hits.entry(format!("{} {phase}", s.name)).or_default() += 1;
