@@ -106,6 +106,16 @@ pub enum Error {
     /// A setting is out of range.
     #[error("invalid setting: {0}")]
     Config(String),
+    /// The store has an unfinished ingest (a `work/` folder), so it cannot
+    /// be read. The store does not read the ingest's manifest; the command
+    /// line fills in `phase` from [`crate::ingest::status`].
+    #[error("{path}: this store is unfinished: {}; run the same ingest command again to resume it (or `quern status` to see its progress)", unfinished_phase(phase.as_deref()))]
+    Unfinished {
+        /// The store directory.
+        path: PathBuf,
+        /// The ingest's phase, where known.
+        phase: Option<String>,
+    },
     /// A figure could not be drawn or written.
     #[error("{path}: cannot draw the figure: {detail}")]
     Plot {
@@ -123,6 +133,13 @@ pub enum Error {
         /// The underlying error.
         source: rocksdb::Error,
     },
+}
+
+fn unfinished_phase(phase: Option<&str>) -> String {
+    match phase {
+        Some(p) => format!("an ingest is in its {p} phase"),
+        None => "an ingest has started".to_string(),
+    }
 }
 
 /// `1536` → `1.5 KiB`.

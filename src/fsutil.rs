@@ -72,25 +72,30 @@ fn statvfs_avail(path: &std::ffi::CStr) -> Option<u64> {
     }
 }
 
-/// Writes `value` as pretty JSON followed by a line `#xxh3=<hex>` (the
-/// checksum of the JSON text), atomically, as the ingest manifest is written.
-pub fn write_checked_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+/// The text of a checked JSON file: pretty JSON followed by a line
+/// `#xxh3=<hex>`, the checksum of the JSON text.
+pub fn checked_json_text<T: serde::Serialize>(value: &T) -> String {
     let body = serde_json::to_string_pretty(value).expect("value serialises");
-    let text = format!(
+    format!(
         "{body}\n#xxh3={:016x}\n",
         xxhash_rust::xxh3::xxh3_64(body.as_bytes())
-    );
-    write_atomic(path, text.as_bytes())
+    )
 }
 
-/// Reads a file written by [`write_checked_json`]: `Ok(None)` if it does
-/// not exist, [`crate::Error::Corrupt`] if its checksum line is missing or
-/// wrong or the JSON does not parse.
-pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Option<T>> {
-    let text = match std::fs::read_to_string(path) {
+/// Writes `value` as [`checked_json_text`], atomically.
+pub fn write_checked_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+    write_atomic(path, checked_json_text(value).as_bytes())
+}
+
+/// The JSON body of a checked JSON file, verified against its checksum
+/// line: `Ok(None)` if the file does not exist, [`crate::Error::Corrupt`]
+/// if it is not UTF-8 or its checksum line is missing or wrong.
+fn read_checked_body(path: &Path) -> Result<Option<String>> {
+    let text = match std::fs::read(path) {
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
         r => r.at(path, "read")?,
     };
+    let mut text = String::from_utf8(text).map_err(|_| crate::Error::corrupt(path, "not UTF-8"))?;
     let (body, sum) = text
         .rsplit_once("\n#xxh3=")
         .ok_or_else(|| crate::Error::corrupt(path, "no checksum line (truncated?)"))?;
@@ -98,9 +103,58 @@ pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<
     if sum.trim_end() != want {
         return Err(crate::Error::corrupt(path, "checksum mismatch"));
     }
-    serde_json::from_str(body)
-        .map(Some)
-        .map_err(|e| crate::Error::corrupt(path, e.to_string()))
+    text.truncate(body.len());
+    Ok(Some(text))
+}
+
+/// Reads a file written by [`write_checked_json`]: `Ok(None)` if it does
+/// not exist, [`crate::Error::Corrupt`] if its checksum line is missing or
+/// wrong or the JSON does not parse.
+pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Option<T>> {
+    match read_checked_body(path)? {
+        None => Ok(None),
+        Some(body) => serde_json::from_str(&body)
+            .map(Some)
+            .map_err(|e| crate::Error::corrupt(path, e.to_string())),
+    }
+}
+
+/// [`read_checked_json`] of a record with a top-level `format_version`,
+/// which must be `expected`: checked before the rest is parsed, so that a
+/// file of another version is [`crate::Error::Version`], not damage.
+pub fn read_checked_json_versioned<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    expected: u32,
+) -> Result<Option<T>> {
+    match read_checked_body(path)? {
+        None => Ok(None),
+        Some(body) => parse_versioned(path, body.as_bytes(), expected).map(Some),
+    }
+}
+
+/// Parses JSON `bytes` (read from `path`) of a record with a top-level
+/// `format_version`, checking the version first: the one version check of
+/// quern's JSON records (manifest, cluster plan and outputs, store
+/// metadata).
+pub fn parse_versioned<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    bytes: &[u8],
+    expected: u32,
+) -> Result<T> {
+    #[derive(serde::Deserialize)]
+    struct Probe {
+        format_version: u32,
+    }
+    let corrupt = |e: serde_json::Error| crate::Error::corrupt(path, e.to_string());
+    let probe: Probe = serde_json::from_slice(bytes).map_err(corrupt)?;
+    if probe.format_version != expected {
+        return Err(crate::Error::Version {
+            path: path.to_path_buf(),
+            found: probe.format_version,
+            expected,
+        });
+    }
+    serde_json::from_slice(bytes).map_err(corrupt)
 }
 
 /// The xxh3-64 of a file's bytes and its length, read in a stream.

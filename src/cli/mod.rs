@@ -9,7 +9,26 @@ use clap::Parser;
 /// Parses the command line and runs the subcommand.
 pub fn run() -> anyhow::Result<()> {
     let cli = args::Cli::parse();
-    match cli.command {
+    dispatch(cli.command).map_err(with_ingest_phase)
+}
+
+/// The store reports an unfinished store without reading the ingest's
+/// manifest (it knows nothing of ingests); the phase is added here.
+fn with_ingest_phase(e: anyhow::Error) -> anyhow::Error {
+    let Some(quern::Error::Unfinished { path, phase: None }) = e.downcast_ref::<quern::Error>()
+    else {
+        return e;
+    };
+    let phase = quern::ingest::Manifest::load(&quern::layout::work(path))
+        .ok()
+        .flatten()
+        .map(|m| m.phase.name().to_string());
+    let path = path.clone();
+    quern::Error::Unfinished { path, phase }.into()
+}
+
+fn dispatch(command: args::Command) -> anyhow::Result<()> {
+    match command {
         args::Command::Ingest(a) => cmd::ingest::run(a),
         args::Command::Dump(a) => cmd::dump::run(a),
         args::Command::Stats(a) => cmd::stats::run(a),

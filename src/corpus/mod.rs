@@ -52,7 +52,7 @@ impl InputFile {
 
 /// A byte range `[start, end)` of one input's stream, covering whole lines.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub struct Chunk {
+pub struct Span {
     /// Index into the input list.
     pub file: u32,
     /// First byte.
@@ -146,12 +146,12 @@ fn describe(p: &Path, meta: &std::fs::Metadata) -> Result<InputFile> {
 }
 
 /// Cuts the inputs into chunks of about `chunk_bytes`, at line boundaries.
-pub fn plan_chunks(files: &[InputFile], chunk_bytes: u64) -> Result<Vec<Chunk>> {
+pub fn plan_chunks(files: &[InputFile], chunk_bytes: u64) -> Result<Vec<Span>> {
     let mut chunks = Vec::new();
     for (i, f) in files.iter().enumerate() {
         let file = i as u32;
         if f.compression != Compression::None || f.is_stdin() || f.size <= chunk_bytes {
-            chunks.push(Chunk {
+            chunks.push(Span {
                 file,
                 start: 0,
                 end: u64::MAX,
@@ -187,7 +187,7 @@ pub fn plan_chunks(files: &[InputFile], chunk_bytes: u64) -> Result<Vec<Chunk>> 
                     e
                 }
             };
-            chunks.push(Chunk { file, start, end });
+            chunks.push(Span { file, start, end });
             if end == u64::MAX {
                 break;
             }

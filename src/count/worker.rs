@@ -5,11 +5,12 @@ use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Mutex;
 
 use super::Table;
+use crate::corpus::Span;
 use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::growth::{self, FirstSeen};
-use crate::ingest::manifest::{ReadTotals, Span};
 use crate::key::partition_of;
+use crate::records::ReadTotals;
 use crate::shard::{DictWriter, RunWriter};
 use crate::tokenize::Tokenizer;
 use crate::words::Dictionary;
@@ -74,29 +75,17 @@ pub fn count_spans(
     }
     drop(tx);
     let stop = AtomicBool::new(false);
-    let first_error: Mutex<Option<Error>> = Mutex::new(None);
     let commit_lock = Mutex::new(());
-    std::thread::scope(|scope| {
-        for _ in 0..cfg.threads.max(1) {
-            let rx = rx.clone();
-            let (stop, first_error, commit_lock) = (&stop, &first_error, &commit_lock);
-            scope.spawn(move || {
-                let guarded = |s: Spill| {
-                    let _g = commit_lock.lock().unwrap_or_else(|e| e.into_inner());
-                    commit(s)
-                };
-                if let Err(e) = Worker::new(cfg).run(&rx, stop, &guarded) {
-                    stop.store(true, Ordering::SeqCst);
-                    let mut slot = first_error.lock().unwrap_or_else(|e| e.into_inner());
-                    slot.get_or_insert(e);
-                }
-            });
-        }
-    });
-    match first_error.into_inner().unwrap_or_else(|e| e.into_inner()) {
-        Some(e) => Err(e),
-        None => Ok(()),
-    }
+    let guarded = |s: Spill| {
+        let _g = commit_lock.lock().unwrap_or_else(|e| e.into_inner());
+        commit(s)
+    };
+    crate::pool::on_each_thread(cfg.threads, || {
+        Worker::new(cfg).run(&rx, &stop, &guarded).inspect_err(|_| {
+            // The other workers spill what they have and stop.
+            stop.store(true, Ordering::SeqCst);
+        })
+    })
 }
 
 struct Worker<'a> {

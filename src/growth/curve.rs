@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use super::file::{self, Reader};
 use super::sample_points;
 use crate::error::{Error, Result};
-use crate::store::GrowthCurve;
+use crate::records::GrowthCurve;
 use crate::words::WordId;
 
 /// One spill's side file and where each of its covers starts in corpus

@@ -11,10 +11,10 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use crate::corpus::{Chunk, InputFile};
+use crate::corpus::{InputFile, Span};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
-use crate::store::{ContextStats, GrowthCurve, Settings};
+use crate::records::{GrowthCurve, Joined, Merged, ReadTotals, Settings};
 
 /// Format version of the manifest.
 pub const MANIFEST_VERSION: u32 = 1;
@@ -48,43 +48,6 @@ impl Phase {
     }
 }
 
-/// Counters of what the readers saw.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
-pub struct ReadTotals {
-    /// Sentences (lines with at least one token).
-    pub sentences: u64,
-    /// Lines skipped for exceeding the line limit.
-    pub skipped_lines: u64,
-    /// Lines that held invalid UTF-8 (decoded lossily).
-    pub invalid_utf8_lines: u64,
-    /// Literal tokens spelled like a marker (counted as `<unk>`).
-    pub marker_tokens: u64,
-    /// Input bytes read (decompressed).
-    pub bytes: u64,
-}
-
-impl ReadTotals {
-    /// Adds `o` into `self`.
-    pub fn add(&mut self, o: &ReadTotals) {
-        self.sentences += o.sentences;
-        self.skipped_lines += o.skipped_lines;
-        self.invalid_utf8_lines += o.invalid_utf8_lines;
-        self.marker_tokens += o.marker_tokens;
-        self.bytes += o.bytes;
-    }
-}
-
-/// A byte range of one input that a run set covers.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub struct Span {
-    /// Input index.
-    pub file: u32,
-    /// First byte.
-    pub start: u64,
-    /// One past the last byte (`u64::MAX`: to the end of the stream).
-    pub end: u64,
-}
-
 /// One durable spill of a counting worker.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub struct RunSet {
@@ -106,39 +69,6 @@ pub struct RunSet {
     pub hashes: Vec<u64>,
     /// What the readers saw in those ranges.
     pub totals: ReadTotals,
-}
-
-/// A partition whose runs were merged.
-#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub struct Merged {
-    /// Merged counts of the partition (in `work/merged`).
-    pub counts: String,
-    /// Continuation contributions emitted to all partitions (in `work/merged`).
-    pub suffix_runs: Vec<String>,
-}
-
-/// Statistics one partition contributes to the store's totals.
-#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
-pub struct PartitionStats {
-    /// Stored n-grams per order (index 0 = unigrams).
-    pub ngrams: Vec<u64>,
-    /// Raw count-of-counts per order: count → number of n-grams.
-    pub coc_raw: Vec<BTreeMap<u64, u64>>,
-    /// Adjusted count-of-counts per order.
-    pub coc_adjusted: Vec<BTreeMap<u64, u64>>,
-    /// This partition's share of the empty context's statistics.
-    pub root: ContextStats,
-    /// True if the unigram `<unk>` is in this partition.
-    pub unk_seen: bool,
-}
-
-/// A partition whose store files are written.
-#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub struct Joined {
-    /// `(column family, file name in work/sst)`.
-    pub ssts: Vec<(String, String)>,
-    /// Totals.
-    pub stats: PartitionStats,
 }
 
 /// The counts of an existing store, exported for `--append`.
@@ -189,7 +119,7 @@ pub struct Manifest {
     /// The inputs, as found when planned (must match on resume).
     pub inputs: Vec<InputFile>,
     /// Their chunks.
-    pub chunks: Vec<Chunk>,
+    pub chunks: Vec<Span>,
     /// Number of hash partitions.
     pub partitions: u32,
     /// Current phase.
@@ -263,45 +193,14 @@ impl Manifest {
 
     /// Reads and verifies one manifest file.
     fn load_file(path: &Path) -> Result<Option<Manifest>> {
-        let text = match std::fs::read(path) {
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-            r => r.at(path, "read")?,
-        };
-        let text = String::from_utf8(text).map_err(|_| Error::corrupt(path, "not UTF-8"))?;
-        let (body, sum) = text
-            .rsplit_once("\n#xxh3=")
-            .ok_or_else(|| Error::corrupt(path, "no checksum line (truncated?)"))?;
-        let want = format!("{:016x}", xxhash_rust::xxh3::xxh3_64(body.as_bytes()));
-        if sum.trim_end() != want {
-            return Err(Error::corrupt(path, "checksum mismatch"));
-        }
-        #[derive(Deserialize)]
-        struct Probe {
-            format_version: u32,
-        }
-        let probe: Probe =
-            serde_json::from_str(body).map_err(|e| Error::corrupt(path, e.to_string()))?;
-        if probe.format_version != MANIFEST_VERSION {
-            return Err(Error::Version {
-                path: path.to_path_buf(),
-                found: probe.format_version,
-                expected: MANIFEST_VERSION,
-            });
-        }
-        serde_json::from_str(body)
-            .map(Some)
-            .map_err(|e| Error::corrupt(path, e.to_string()))
+        fsutil::read_checked_json_versioned(path, MANIFEST_VERSION)
     }
 
     /// Writes the manifest atomically and durably, keeping the one it
     /// replaces as the previous manifest: temporary file and fsync, then
     /// current → previous, temporary → current, fsync of the folder.
     pub fn save(&self, work: &Path) -> Result<()> {
-        let body = serde_json::to_string_pretty(self).expect("manifest serialises");
-        let text = format!(
-            "{body}\n#xxh3={:016x}\n",
-            xxhash_rust::xxh3::xxh3_64(body.as_bytes())
-        );
+        let text = fsutil::checked_json_text(self);
         let path = Self::path(work);
         let tmp = fsutil::tmp_name(&path);
         fsutil::write_synced(&tmp, text.as_bytes())?;
@@ -399,17 +298,17 @@ mod tests {
             mode: Mode::Fresh,
             inputs: vec![],
             chunks: vec![
-                Chunk {
+                Span {
                     file: 0,
                     start: 0,
                     end: 100,
                 },
-                Chunk {
+                Span {
                     file: 0,
                     start: 100,
                     end: u64::MAX,
                 },
-                Chunk {
+                Span {
                     file: 1,
                     start: 0,
                     end: u64::MAX,

@@ -11,6 +11,7 @@ use std::path::Path;
 
 use super::manifest::{Manifest, Phase};
 use crate::error::Error;
+use crate::layout;
 use crate::store;
 
 /// Peak bytes of an ingest's files (work folder and the database it
@@ -26,13 +27,13 @@ pub const PEAK_PER_INPUT_BYTE: u64 = 26;
 /// Wraps out-of-space error `e` of an ingest into `store` as
 /// [`Error::DiskFull`].
 pub fn disk_full(store: &Path, e: Error) -> Error {
-    let work = store::work_dir(store);
-    let used = store::dir_bytes(&work) + store::dir_bytes(&store.join("db.new"));
+    let dirs = layout::WorkDirs::of(store);
+    let used = store::dir_bytes(&dirs.work) + store::dir_bytes(&layout::db_new(store));
     let free = crate::fsutil::free_space(store).unwrap_or(0);
-    let peak = Manifest::load(&work)
+    let peak = Manifest::load(&dirs.work)
         .ok()
         .flatten()
-        .map(|m| estimate_peak(&m, store::dir_bytes(&work.join("runs"))))
+        .map(|m| estimate_peak(&m, store::dir_bytes(&dirs.runs)))
         .unwrap_or(0);
     Error::DiskFull {
         dir: store.to_path_buf(),

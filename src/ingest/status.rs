@@ -4,10 +4,10 @@ use std::path::{Path, PathBuf};
 
 use serde::Serialize;
 
-use super::lock_path;
 use super::manifest::{Manifest, Mode};
 use crate::error::Result;
-use crate::store::{self, Store};
+use crate::layout;
+use crate::store::Store;
 
 /// State of an ingest on a store, and what the finished store holds.
 #[derive(Clone, Debug, Serialize)]
@@ -68,7 +68,7 @@ pub struct FinishedStore {
 }
 
 fn lock_held(dir: &Path) -> bool {
-    let Ok(f) = std::fs::File::open(lock_path(dir)) else {
+    let Ok(f) = std::fs::File::open(layout::lock(dir)) else {
         return false;
     };
     match f.try_lock_shared() {
@@ -82,7 +82,7 @@ fn lock_held(dir: &Path) -> bool {
 
 /// Reports on the store directory `dir`; works while an ingest runs.
 pub fn status(dir: &Path) -> Result<IngestStatus> {
-    let manifest = Manifest::load(&store::work_dir(dir))?;
+    let manifest = Manifest::load(&layout::work(dir))?;
     let ingest = manifest.map(|m| {
         let input_bytes: u64 = m.inputs.iter().map(|f| f.size).sum();
         let counted_bytes = m.counted_bytes();
@@ -103,7 +103,7 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
         }
     });
     let running = lock_held(dir);
-    let has_db = store::db_dir(dir).join("CURRENT").exists();
+    let has_db = layout::has_db(dir);
     let finished = if has_db && ingest.is_none() {
         let s = Store::open(dir)?;
         let m = s.meta();

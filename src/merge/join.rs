@@ -6,7 +6,7 @@ use std::path::Path;
 use super::kway::{KWayMerge, RecordSource};
 use super::partition::{open_all, reduce_sources, MergeConfig};
 use crate::error::{Error, Result};
-use crate::ingest::manifest::{Joined, PartitionStats};
+use crate::records::{Joined, PartitionStats};
 use crate::shard::RunFile;
 use crate::store::build::{sst_options, SstSet};
 use crate::store::keys::{encode_ngram, ngram_cf};

@@ -6,8 +6,8 @@ use std::sync::atomic::{AtomicU64, Ordering};
 use super::kway::{KWayMerge, RecordSource};
 use crate::count::Table;
 use crate::error::Result;
-use crate::ingest::manifest::Merged;
 use crate::key::partition_of;
+use crate::records::Merged;
 use crate::shard::{RunFile, RunWriter, SectionReader};
 
 /// Settings of the merge steps.

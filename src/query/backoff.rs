@@ -20,7 +20,8 @@
 use crate::error::{Error, Result};
 use crate::store::ContextStats;
 
-use super::{Estimator, Level, Method, Model};
+use super::estimator::Model;
+use super::{Estimator, Level, Method};
 
 /// How a method is written in back-off form.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -1,177 +1,20 @@
-//! The last stage: vocabulary, metadata and the store. The vocabulary and
-//! metadata functions are shared with the single-machine ingest.
+//! The last stage: the store built from every task's output, by the same
+//! finishing path as the single-machine ingest ([`crate::finish`]).
 
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
+use super::commit::{need_done, unique, Outcome, TaskReport};
 use super::tasks::MapResult;
-use super::{join_dir, map_dir, need_done, unique, Job, Outcome, TaskReport};
+use super::{join_dir, map_dir, Job};
 use crate::error::{Error, Result};
+use crate::finish::{self, GrowthInputs};
 use crate::fsutil;
-use crate::ingest::manifest::{Joined, PartitionStats, ReadTotals};
+use crate::growth::curve::SpillFirsts;
+use crate::layout;
 use crate::memory::Plan;
-use crate::shard::{DictReader, DictWriter};
-use crate::store::{
-    self, build, keys, ContextStats, OrderStats, Ranks, Settings, Store, StoreMeta, Totals,
-};
-use crate::words::WordId;
-
-/// Merges dictionary files by id, calling `emit` once per word, and turns
-/// one id with two different words into [`Error::HashCollision`].
-pub fn merge_dicts(
-    paths: &[PathBuf],
-    mut emit: impl FnMut(WordId, &str) -> Result<()>,
-) -> Result<()> {
-    let mut readers = paths
-        .iter()
-        .map(|p| DictReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut heap = std::collections::BinaryHeap::new();
-    for (i, r) in readers.iter_mut().enumerate() {
-        if let Some((id, w)) = r.next_entry()? {
-            heap.push(std::cmp::Reverse((id, w, i)));
-        }
-    }
-    let mut last: Option<(WordId, String)> = None;
-    while let Some(std::cmp::Reverse((id, w, i))) = heap.pop() {
-        if let Some(next) = readers[i].next_entry()? {
-            heap.push(std::cmp::Reverse((next.0, next.1, i)));
-        }
-        if let Some((lid, lw)) = &last {
-            if *lid == id {
-                if *lw != w {
-                    return Err(Error::HashCollision {
-                        first: lw.clone(),
-                        second: w,
-                        id,
-                    });
-                }
-                continue;
-            }
-        }
-        emit(id, &w)?;
-        last = Some((id, w));
-    }
-    Ok(())
-}
-
-/// Merges the dictionaries `paths` into the store's word list: SST files
-/// `sst_dir/all-vocab.sst` (rank → word) and `sst_dir/all-ids.sst` (the
-/// sorted ids of `ranks`, which must hold every word of the dictionaries),
-/// in rounds of at most `fanin` files through `tmp` (created and removed),
-/// to bound the open readers. Returns `(column family, path)` pairs.
-pub fn merge_vocabulary(
-    mut paths: Vec<PathBuf>,
-    ranks: &Ranks,
-    tmp: &Path,
-    sst_dir: &Path,
-    fanin: usize,
-) -> Result<Vec<(String, PathBuf)>> {
-    fsutil::create_dir(tmp)?;
-    let mut round = 0;
-    while paths.len() > fanin.max(2) {
-        let mut next = Vec::new();
-        for (i, group) in paths.chunks(fanin.max(2)).enumerate() {
-            let out = tmp.join(format!("vocab-{round}-{i}.dict"));
-            let mut w = DictWriter::create(&out)?;
-            merge_dicts(group, |id, word| w.push(id, word))?;
-            w.finish()?;
-            for p in group.iter().filter(|p| p.starts_with(tmp)) {
-                let _ = std::fs::remove_file(p);
-            }
-            next.push(out);
-        }
-        paths = next;
-        round += 1;
-    }
-    for cf in [keys::VOCAB_CF, keys::IDS_CF] {
-        let _ = std::fs::remove_file(sst_dir.join(format!("all-{cf}.sst")));
-    }
-    let opts = build::sst_options();
-    let mut sink = build::SstSet::new(&opts, sst_dir, "all".into());
-    let mut kb = Vec::with_capacity(4);
-    merge_dicts(&paths, |id, word| {
-        let r = ranks.rank(id).ok_or_else(|| {
-            Error::corrupt(
-                sst_dir,
-                format!("the word {word:?} is missing from the store's word list"),
-            )
-        })?;
-        kb.clear();
-        ranks.write_rank(r, &mut kb);
-        sink.put(keys::VOCAB_CF, &kb, word.as_bytes())
-    })?;
-    let mut chunk = Vec::with_capacity(keys::IDS_PER_CHUNK * 8);
-    for (i, ids) in ranks.ids().chunks(keys::IDS_PER_CHUNK).enumerate() {
-        chunk.clear();
-        for id in ids {
-            chunk.extend_from_slice(&id.to_le_bytes());
-        }
-        sink.put(keys::IDS_CF, &(i as u32).to_be_bytes(), &chunk)?;
-    }
-    fsutil::remove_dir(tmp)?;
-    Ok(sink
-        .finish()?
-        .into_iter()
-        .map(|(cf, name)| (cf, sst_dir.join(name)))
-        .collect())
-}
-
-/// The store's metadata from every partition's statistics and the readers'
-/// totals.
-pub fn store_meta<'a>(
-    settings: Settings,
-    partitions: impl IntoIterator<Item = &'a PartitionStats>,
-    read: ReadTotals,
-) -> StoreMeta {
-    let n = settings.order;
-    let mut ngrams = vec![0u64; n];
-    let mut raw = vec![BTreeMap::<u64, u64>::new(); n];
-    let mut adj = vec![BTreeMap::<u64, u64>::new(); n];
-    let mut root = ContextStats::default();
-    let mut unk_seen = false;
-    for s in partitions {
-        for k in 0..n {
-            ngrams[k] += s.ngrams[k];
-            for (r, c) in &s.coc_raw[k] {
-                *raw[k].entry(*r).or_insert(0) += c;
-            }
-            for (r, c) in &s.coc_adjusted[k] {
-                *adj[k].entry(*r).or_insert(0) += c;
-            }
-        }
-        root.merge(&s.root);
-        unk_seen |= s.unk_seen;
-    }
-    let totals = Totals {
-        sentences: read.sentences,
-        tokens: root.count_sum,
-        types: root.types,
-        vocabulary: root.types + u64::from(!unk_seen),
-        unk_seen,
-        skipped_lines: read.skipped_lines,
-        invalid_utf8_lines: read.invalid_utf8_lines,
-        marker_tokens: read.marker_tokens,
-        input_bytes: read.bytes,
-    };
-    let orders = (0..n)
-        .map(|k| OrderStats {
-            order: k + 1,
-            ngrams: ngrams[k],
-            coc_raw: raw[k].iter().map(|(a, b)| (*a, *b)).collect(),
-            coc_adjusted: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
-        })
-        .collect();
-    StoreMeta {
-        format_version: store::STORE_VERSION,
-        settings,
-        totals,
-        orders,
-        root,
-        growth: None,
-    }
-}
+use crate::records::{Joined, ReadTotals};
+use crate::store::{self, Store};
 
 /// Builds the store in `store_dir` from every output of the plan in `dir`:
 /// the vocabulary from the map outputs' dictionaries, the metadata from the
@@ -191,7 +34,7 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
         dicts.extend(d.result.dicts.iter().map(|f| m.join(f)));
         read.add(&d.result.totals);
         for (f, starts) in &d.result.firsts {
-            firsts.push(crate::growth::curve::SpillFirsts {
+            firsts.push(SpillFirsts {
                 path: m.join(f),
                 starts: starts.clone(),
             });
@@ -203,18 +46,24 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
         let d = need_done::<Joined>(&j, "join", q, &id)?;
         joined.push((j, d.result));
     }
-    let mut meta = store_meta(job.settings, joined.iter().map(|(_, j)| &j.stats), read);
     let plan = Plan::new(memory, 1)?;
-    // The vocabulary growth curve, as the single-machine ingest computes it.
     fsutil::create_dir(store_dir)?;
-    let gtmp = store_dir.join(format!(".growth.{}.tmp", unique()));
-    fsutil::create_dir(&gtmp)?;
-    let curve = crate::growth::growth_curve(None, &firsts, &gtmp, plan.fanin);
-    fsutil::remove_dir(&gtmp)?;
-    meta.growth = Some(curve?);
+    // The vocabulary growth curve, as the single-machine ingest computes it.
+    let growth = GrowthInputs {
+        before: None,
+        spills: firsts,
+    };
+    let meta = finish::store_meta(
+        job.settings,
+        joined.iter().map(|(_, j)| &j.stats),
+        read,
+        Some(&growth),
+        &store_dir.join(format!(".growth.{}.tmp", unique())),
+        plan.fanin,
+    )?;
     let ngrams: u64 = meta.orders.iter().map(|o| o.ngrams).sum();
-    let db = store::db_dir(store_dir);
-    if db.join("CURRENT").exists() {
+    let db = layout::db(store_dir);
+    if layout::has_db(store_dir) {
         let s = Store::open(store_dir)?;
         if *s.meta() != meta {
             return Err(Error::state(
@@ -228,30 +77,19 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
         let bytes = s.disk_bytes();
         return Ok(report(Outcome::Skipped, store_dir, ngrams, bytes, t0));
     }
-    fsutil::create_dir(store_dir)?;
     let u = unique();
     let work = store_dir.join(format!(".assemble.{u}.tmp"));
     let db_new = store_dir.join(format!(".db.{u}.tmp"));
     let r = (|| {
-        fsutil::create_dir(&work)?;
-        let ranks = Ranks::from_dicts(&dicts)?;
-        let mut files = merge_vocabulary(dicts, &ranks, &work.join("rounds"), &work, plan.fanin)?;
-        for (j, d) in &joined {
-            for (cf, f) in &d.ssts {
-                files.push((cf.clone(), j.join(f)));
-            }
-        }
-        build::create_db(
-            &db_new,
-            job.settings.order,
-            &files,
-            &work.join("staging"),
-            &meta,
-        )?;
+        let ssts: Vec<(String, PathBuf)> = joined
+            .iter()
+            .flat_map(|(j, d)| d.ssts.iter().map(|(cf, f)| (cf.clone(), j.join(f))))
+            .collect();
+        finish::build_db(&meta, dicts, &ssts, &db_new, &work, plan.fanin)?;
         crate::fault::point("stage-written");
         let outcome = match std::fs::rename(&db_new, &db) {
             Ok(()) => Outcome::Written,
-            Err(_) if db.join("CURRENT").exists() => {
+            Err(_) if layout::has_db(store_dir) => {
                 // Another copy finished first; it built the same store if
                 // its metadata is ours.
                 let same = Store::open(store_dir).is_ok_and(|s| *s.meta() == meta);

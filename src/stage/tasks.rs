@@ -7,16 +7,14 @@ use std::time::Instant;
 
 use serde::{Deserialize, Serialize};
 
-use super::{
-    commit, finished, join_dir, map_dir, need_done, reduce_dir, temp_dir_for, Job, Outcome,
-    TaskReport,
-};
+use super::commit::{commit, finished, need_done, temp_dir_for, Done, Outcome, TaskReport};
+use super::{join_dir, map_dir, reduce_dir, Job};
 use crate::count::{count_spans, CountConfig, Spill};
 use crate::error::{Error, Result};
 use crate::fsutil;
-use crate::ingest::manifest::{Joined, Merged, ReadTotals};
 use crate::memory::Plan;
 use crate::merge::{join_partition, merge_partition, MergeConfig};
+use crate::records::{Joined, Merged, ReadTotals};
 use crate::shard::RunFile;
 use crate::store::Ranks;
 
@@ -55,7 +53,7 @@ fn report(
     }
 }
 
-fn skipped_bytes<T>(d: &super::Done<T>) -> u64 {
+fn skipped_bytes<T>(d: &Done<T>) -> u64 {
     d.files.iter().map(|f| f.bytes).sum()
 }
 

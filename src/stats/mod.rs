@@ -16,6 +16,7 @@
 
 pub mod compare;
 pub mod fits;
+#[cfg(feature = "plot")]
 pub mod plot;
 pub mod tables;
 

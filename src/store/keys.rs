@@ -18,7 +18,7 @@
 //! statistics ride in h's own value instead of a record of their own: one
 //! key fewer for most n-grams below the top order.
 
-use serde::{Deserialize, Serialize};
+pub use crate::records::ContextStats;
 
 /// Name of the metadata column family.
 pub const META_CF: &str = "meta";
@@ -45,49 +45,6 @@ pub fn all_cfs(order: usize) -> Vec<String> {
     ];
     v.extend((1..=order).map(ngram_cf));
     v
-}
-
-/// Statistics of one context h over its children h·w.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
-pub struct ContextStats {
-    /// C(h): sum of the children's raw counts.
-    pub count_sum: u64,
-    /// T(h): number of children.
-    pub types: u64,
-    /// A(h): sum of the children's adjusted counts.
-    pub adjusted_sum: u64,
-    /// N1(h): children with adjusted count 1.
-    pub n1: u64,
-    /// N2(h): children with adjusted count 2.
-    pub n2: u64,
-    /// N3+(h): children with adjusted count 3 or more.
-    pub n3plus: u64,
-}
-
-impl ContextStats {
-    /// Adds one child with raw count `c` and adjusted count `a`.
-    #[inline]
-    pub fn add_child(&mut self, c: u64, a: u64) {
-        self.count_sum += c;
-        self.types += 1;
-        self.adjusted_sum += a;
-        match a {
-            0 => {}
-            1 => self.n1 += 1,
-            2 => self.n2 += 1,
-            _ => self.n3plus += 1,
-        }
-    }
-
-    /// Adds another partial statistic.
-    pub fn merge(&mut self, o: &ContextStats) {
-        self.count_sum += o.count_sum;
-        self.types += o.types;
-        self.adjusted_sum += o.adjusted_sum;
-        self.n1 += o.n1;
-        self.n2 += o.n2;
-        self.n3plus += o.n3plus;
-    }
 }
 
 use crate::varint::{get as get_varint, put as put_varint};

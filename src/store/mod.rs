@@ -7,19 +7,18 @@
 //!
 //! A store directory holds `db/` (the database), and while an ingest is
 //! unfinished also `work/` (its manifest and intermediate files) and
-//! `ingest.lock`. A store with a `work/` folder is unfinished: [`Store::open`]
-//! refuses it and says which phase it is in.
+//! `ingest.lock` ([`crate::layout`]). A store with a `work/` folder is
+//! unfinished: [`Store::open`] refuses it with [`Error::Unfinished`].
 
 pub mod build;
 pub mod keys;
-mod meta;
 pub mod ranks;
 
-pub use keys::{ContextStats, NgramRecord};
-pub use meta::{
+pub use crate::records::{
     mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
     STORE_VERSION,
 };
+pub use keys::{ContextStats, NgramRecord};
 pub use ranks::Ranks;
 
 use std::collections::HashMap;
@@ -29,17 +28,8 @@ use rocksdb::{IteratorMode, Options, DB};
 
 use crate::error::{Error, Result};
 use crate::key::Key;
+use crate::layout;
 use crate::words::{bos_id, eos_id, unk_id, WordId, BOS, EOS, UNK};
-
-/// The database folder inside a store directory.
-pub fn db_dir(store: &Path) -> PathBuf {
-    store.join("db")
-}
-
-/// The work folder of an unfinished ingest.
-pub fn work_dir(store: &Path) -> PathBuf {
-    store.join("work")
-}
 
 /// Block cache of a store opened by [`Store::open`], in bytes.
 pub const DEFAULT_CACHE_BYTES: usize = 8 << 20;
@@ -85,19 +75,13 @@ impl Store {
     /// same blocks again run from the cache; size it to the store for the
     /// fastest repeated queries.
     pub fn open_with_cache(dir: &Path, cache_bytes: usize) -> Result<Store> {
-        if let Some(m) = crate::ingest::Manifest::load(&work_dir(dir)).ok().flatten() {
-            return Err(Error::state(
-                dir,
-                format!(
-                    "this store is unfinished: an ingest is in its {} phase; run the same ingest command again to resume it (or `quern status` to see its progress)",
-                    m.phase.name()
-                ),
-            ));
+        if layout::work(dir).exists() {
+            return Err(Error::Unfinished {
+                path: dir.to_path_buf(),
+                phase: None,
+            });
         }
-        if work_dir(dir).exists() {
-            return Err(Error::state(dir, "this store is unfinished (an ingest has started); run the same ingest command again to resume it"));
-        }
-        let path = db_dir(dir);
+        let path = layout::db(dir);
         if !path.join("CURRENT").exists() {
             return Err(Error::state(
                 dir,
@@ -124,21 +108,7 @@ impl Store {
             .get_cf(meta_cf, keys::META_KEY)
             .map_err(rocks)?
             .ok_or_else(|| Error::corrupt(&path, "no metadata record"))?;
-        #[derive(serde::Deserialize)]
-        struct Probe {
-            format_version: u32,
-        }
-        let probe: Probe =
-            serde_json::from_slice(&raw).map_err(|e| Error::corrupt(&path, e.to_string()))?;
-        if probe.format_version != STORE_VERSION {
-            return Err(Error::Version {
-                path,
-                found: probe.format_version,
-                expected: STORE_VERSION,
-            });
-        }
-        let meta: StoreMeta =
-            serde_json::from_slice(&raw).map_err(|e| Error::corrupt(&path, e.to_string()))?;
+        let meta: StoreMeta = crate::fsutil::parse_versioned(&path, &raw, STORE_VERSION)?;
         let ranks = read_ranks(&db, &path)?;
         Ok(Store {
             dir: dir.to_path_buf(),
@@ -165,14 +135,17 @@ impl Store {
 
     fn rocks(&self, source: rocksdb::Error) -> Error {
         Error::Rocks {
-            path: db_dir(&self.dir),
+            path: layout::db(&self.dir),
             source,
         }
     }
 
     fn cf(&self, name: &str) -> Result<&rocksdb::ColumnFamily> {
         self.db.cf_handle(name).ok_or_else(|| {
-            Error::corrupt(db_dir(&self.dir), format!("missing column family {name}"))
+            Error::corrupt(
+                layout::db(&self.dir),
+                format!("missing column family {name}"),
+            )
         })
     }
 
@@ -191,7 +164,7 @@ impl Store {
                 .ranks
                 .read_key(&k)
                 .filter(|k| k.order() == 1)
-                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad vocabulary key"))?
+                .ok_or_else(|| Error::corrupt(layout::db(&self.dir), "bad vocabulary key"))?
                 .ids()[0];
             m.insert(id, String::from_utf8_lossy(&v).into_owned());
         }
@@ -241,7 +214,7 @@ impl Store {
             .map_err(|e| self.rocks(e))?;
         v.map(|v| {
             keys::decode_ngram(&v)
-                .ok_or_else(|| Error::corrupt(db_dir(&self.dir), "bad n-gram value"))
+                .ok_or_else(|| Error::corrupt(layout::db(&self.dir), "bad n-gram value"))
         })
         .transpose()
     }
@@ -312,10 +285,9 @@ impl Store {
             let got = self.db.batched_multi_get_cf(cf, keys, sorted);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    out[i] =
-                        Some(keys::decode_ngram(&v).ok_or_else(|| {
-                            Error::corrupt(db_dir(&self.dir), "bad n-gram value")
-                        })?);
+                    out[i] = Some(keys::decode_ngram(&v).ok_or_else(|| {
+                        Error::corrupt(layout::db(&self.dir), "bad n-gram value")
+                    })?);
                 }
             }
         }
@@ -354,7 +326,7 @@ impl Store {
         prefix: &[WordId],
         after: Option<&[WordId]>,
     ) -> Result<impl Iterator<Item = Result<(Key, NgramRecord)>> + 'a> {
-        let path = db_dir(&self.dir);
+        let path = layout::db(&self.dir);
         let pb = self.key_of(prefix);
         let mut start = pb.clone().unwrap_or_default();
         if let Some(a) = after {
@@ -399,7 +371,7 @@ impl Store {
 
     /// Size of the database files on disk, in bytes.
     pub fn disk_bytes(&self) -> u64 {
-        dir_bytes(&db_dir(&self.dir))
+        dir_bytes(&layout::db(&self.dir))
     }
 }
 

@@ -1,8 +1,8 @@
-//! The store's metadata record: settings, totals, count-of-counts.
+//! The store's metadata record: settings, totals, count-of-counts, growth.
 
 use serde::{Deserialize, Serialize};
 
-use super::keys::ContextStats;
+use super::ContextStats;
 
 /// Format version of the store; checked on open.
 pub const STORE_VERSION: u32 = 2;

@@ -1,0 +1,165 @@
+//! What each stage reports about its share of the work, and how the
+//! store's metadata is summed from the partitions' reports.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+
+use super::{OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
+
+/// Statistics of one context h over its children h·w.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ContextStats {
+    /// C(h): sum of the children's raw counts.
+    pub count_sum: u64,
+    /// T(h): number of children.
+    pub types: u64,
+    /// A(h): sum of the children's adjusted counts.
+    pub adjusted_sum: u64,
+    /// N1(h): children with adjusted count 1.
+    pub n1: u64,
+    /// N2(h): children with adjusted count 2.
+    pub n2: u64,
+    /// N3+(h): children with adjusted count 3 or more.
+    pub n3plus: u64,
+}
+
+impl ContextStats {
+    /// Adds one child with raw count `c` and adjusted count `a`.
+    #[inline]
+    pub fn add_child(&mut self, c: u64, a: u64) {
+        self.count_sum += c;
+        self.types += 1;
+        self.adjusted_sum += a;
+        match a {
+            0 => {}
+            1 => self.n1 += 1,
+            2 => self.n2 += 1,
+            _ => self.n3plus += 1,
+        }
+    }
+
+    /// Adds another partial statistic.
+    pub fn merge(&mut self, o: &ContextStats) {
+        self.count_sum += o.count_sum;
+        self.types += o.types;
+        self.adjusted_sum += o.adjusted_sum;
+        self.n1 += o.n1;
+        self.n2 += o.n2;
+        self.n3plus += o.n3plus;
+    }
+}
+
+/// Counters of what the readers saw.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ReadTotals {
+    /// Sentences (lines with at least one token).
+    pub sentences: u64,
+    /// Lines skipped for exceeding the line limit.
+    pub skipped_lines: u64,
+    /// Lines that held invalid UTF-8 (decoded lossily).
+    pub invalid_utf8_lines: u64,
+    /// Literal tokens spelled like a marker (counted as `<unk>`).
+    pub marker_tokens: u64,
+    /// Input bytes read (decompressed).
+    pub bytes: u64,
+}
+
+impl ReadTotals {
+    /// Adds `o` into `self`.
+    pub fn add(&mut self, o: &ReadTotals) {
+        self.sentences += o.sentences;
+        self.skipped_lines += o.skipped_lines;
+        self.invalid_utf8_lines += o.invalid_utf8_lines;
+        self.marker_tokens += o.marker_tokens;
+        self.bytes += o.bytes;
+    }
+}
+
+/// A partition whose runs were merged.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Merged {
+    /// Merged counts of the partition (in `work/merged`).
+    pub counts: String,
+    /// Continuation contributions emitted to all partitions (in `work/merged`).
+    pub suffix_runs: Vec<String>,
+}
+
+/// Statistics one partition contributes to the store's totals.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct PartitionStats {
+    /// Stored n-grams per order (index 0 = unigrams).
+    pub ngrams: Vec<u64>,
+    /// Raw count-of-counts per order: count → number of n-grams.
+    pub coc_raw: Vec<BTreeMap<u64, u64>>,
+    /// Adjusted count-of-counts per order.
+    pub coc_adjusted: Vec<BTreeMap<u64, u64>>,
+    /// This partition's share of the empty context's statistics.
+    pub root: ContextStats,
+    /// True if the unigram `<unk>` is in this partition.
+    pub unk_seen: bool,
+}
+
+/// A partition whose store files are written.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Joined {
+    /// `(column family, file name in work/sst)`.
+    pub ssts: Vec<(String, String)>,
+    /// Totals.
+    pub stats: PartitionStats,
+}
+
+/// The store's metadata from every partition's statistics and the readers'
+/// totals.
+pub fn store_meta<'a>(
+    settings: Settings,
+    partitions: impl IntoIterator<Item = &'a PartitionStats>,
+    read: ReadTotals,
+) -> StoreMeta {
+    let n = settings.order;
+    let mut ngrams = vec![0u64; n];
+    let mut raw = vec![BTreeMap::<u64, u64>::new(); n];
+    let mut adj = vec![BTreeMap::<u64, u64>::new(); n];
+    let mut root = ContextStats::default();
+    let mut unk_seen = false;
+    for s in partitions {
+        for k in 0..n {
+            ngrams[k] += s.ngrams[k];
+            for (r, c) in &s.coc_raw[k] {
+                *raw[k].entry(*r).or_insert(0) += c;
+            }
+            for (r, c) in &s.coc_adjusted[k] {
+                *adj[k].entry(*r).or_insert(0) += c;
+            }
+        }
+        root.merge(&s.root);
+        unk_seen |= s.unk_seen;
+    }
+    let totals = Totals {
+        sentences: read.sentences,
+        tokens: root.count_sum,
+        types: root.types,
+        vocabulary: root.types + u64::from(!unk_seen),
+        unk_seen,
+        skipped_lines: read.skipped_lines,
+        invalid_utf8_lines: read.invalid_utf8_lines,
+        marker_tokens: read.marker_tokens,
+        input_bytes: read.bytes,
+    };
+    let orders = (0..n)
+        .map(|k| OrderStats {
+            order: k + 1,
+            ngrams: ngrams[k],
+            coc_raw: raw[k].iter().map(|(a, b)| (*a, *b)).collect(),
+            coc_adjusted: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
+        })
+        .collect();
+    StoreMeta {
+        format_version: STORE_VERSION,
+        settings,
+        totals,
+        orders,
+        root,
+        growth: None,
+    }
+}
