@@ -121,6 +121,35 @@ impl Built {
     }
 }
 
+/// A folder for the temporary arrays beside the output, removed when
+/// dropped (also on an error).
+struct TempDir(PathBuf);
+
+impl TempDir {
+    fn create(parent: &Path, out: &Path) -> Result<TempDir> {
+        let name = out
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        let p = parent.join(format!(".{name}.freeze-{}", std::process::id()));
+        if p.exists() {
+            std::fs::remove_dir_all(&p).at(&p, "remove a stale temporary folder")?;
+        }
+        std::fs::create_dir(&p).at(&p, "create a temporary folder")?;
+        Ok(TempDir(p))
+    }
+
+    fn path(&self) -> &Path {
+        &self.0
+    }
+}
+
+impl Drop for TempDir {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.0);
+    }
+}
+
 /// Sums over the kept children of one context.
 #[derive(Default)]
 struct Acc {
@@ -151,10 +180,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let tmp = tempfile::Builder::new()
-        .prefix(".quern-freeze-")
-        .tempdir_in(&parent_dir)
-        .at(&parent_dir, "create a temporary folder")?;
+    let tmp = TempDir::create(&parent_dir, out)?;
     let tpath = |name: String| tmp.path().join(name);
     let mut notes: Vec<String> = est.notes().to_vec();
     let bos = bos_id();
