@@ -312,54 +312,113 @@ impl DocResult {
         }
     }
 
-    /// The result as one JSON object: `id`, `line`, `sentences`,
-    /// `predictions`, then the main model's `oov`, `zero_probability`,
+    /// The result as one JSON object, keys in this order: `id`, `line`,
+    /// `file` (the input's path, when `file` is given), then `sentences`,
+    /// `predictions`, and the main model's `oov`, `zero_probability`,
     /// `log10_prob`, `perplexity`; with a general model `general` (the same
     /// four) and `ce_difference`; with words `words`, one array
     /// `[token, log10, order, oov]` per prediction (with a general model
-    /// followed by its log10, order and oov). A bad line has `id` `null`
-    /// (the line number for [`Format::Lines`]), `line` and `error`.
-    /// `file` (the input's path) is added when `file` is given.
-    pub fn to_json(&self, probability: bool, file: Option<&str>) -> Value {
-        let mut v = match &self.outcome {
-            Outcome::Bad(e) => json!({"id": Value::Null, "line": self.line, "error": e}),
+    /// followed by its log10, order and oov). A bad line has `id` `null`,
+    /// `line` and `error`.
+    pub fn record<'r>(&'r self, probability: bool, file: Option<&'r str>) -> Record<'r> {
+        let mut r = Record {
+            id: &NULL,
+            line: self.line,
+            file,
+            sentences: None,
+            predictions: None,
+            oov: None,
+            zero_probability: None,
+            log10_prob: None,
+            perplexity: None,
+            general: None,
+            ce_difference: None,
+            words: None,
+            error: None,
+        };
+        match &self.outcome {
+            Outcome::Bad(e) => r.error = Some(e),
             Outcome::Scored(d) => {
-                let mut v = json!({
-                    "id": d.id,
-                    "line": self.line,
-                    "sentences": d.main.sentences,
-                    "predictions": d.main.predictions,
+                let m = &d.main;
+                r.id = &d.id;
+                r.sentences = Some(m.sentences);
+                r.predictions = Some(m.predictions);
+                r.oov = Some(m.oov);
+                r.zero_probability = Some(m.zero);
+                r.log10_prob = Some(num(m.log10_prob()));
+                r.perplexity = Some(if probability {
+                    num(m.perplexity())
+                } else {
+                    Value::Null
                 });
-                let m = d.main.to_json(probability);
-                for (k, x) in m.as_object().expect("an object") {
-                    v[k] = x.clone();
-                }
                 if let Some(g) = &d.general {
-                    v["general"] = g.to_json(probability);
-                    v["ce_difference"] = num(d.value());
+                    r.general = Some(g.to_json(probability));
+                    r.ce_difference = Some(num(d.value()));
                 }
                 if let Some(ws) = &d.words {
-                    v["words"] = ws
-                        .iter()
-                        .map(|w| {
-                            let mut a = vec![json!(w.token)];
-                            for i in 0..w.log10.len() {
-                                a.push(num(Some(w.log10[i])));
-                                a.push(json!(w.order[i]));
-                                a.push(json!(w.oov[i]));
-                            }
-                            Value::Array(a)
-                        })
-                        .collect();
+                    r.words = Some(
+                        ws.iter()
+                            .map(|w| {
+                                let mut a = vec![json!(w.token)];
+                                for i in 0..w.log10.len() {
+                                    a.push(num(Some(w.log10[i])));
+                                    a.push(json!(w.order[i]));
+                                    a.push(json!(w.oov[i]));
+                                }
+                                Value::Array(a)
+                            })
+                            .collect(),
+                    );
                 }
-                v
             }
-        };
-        if let Some(f) = file {
-            v["file"] = json!(f);
         }
-        v
+        r
     }
+}
+
+static NULL: Value = Value::Null;
+
+/// One line of output: a [`DocResult`] ready to serialize, its keys in a
+/// fixed order (see [`DocResult::record`]).
+#[derive(Debug, Serialize)]
+pub struct Record<'r> {
+    /// The id.
+    pub id: &'r Value,
+    /// The line number.
+    pub line: u64,
+    /// The input's path.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub file: Option<&'r str>,
+    /// Sentences.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sentences: Option<u64>,
+    /// Predictions.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub predictions: Option<u64>,
+    /// Predictions outside V.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub oov: Option<u64>,
+    /// Predictions with probability 0.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub zero_probability: Option<u64>,
+    /// Total log10 probability (`null` for −∞).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub log10_prob: Option<Value>,
+    /// Perplexity (`null` if infinite, undefined or not a probability).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub perplexity: Option<Value>,
+    /// The general model's totals.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub general: Option<Value>,
+    /// The cross-entropy difference.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ce_difference: Option<Value>,
+    /// Per prediction.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub words: Option<Value>,
+    /// Why the line is bad.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error: Option<&'r str>,
 }
 
 /// The totals of a run.
@@ -426,5 +485,50 @@ impl Summary {
                 }
             }
         }
+    }
+}
+
+impl Summary {
+    /// The summary as one JSON object: counts, the main model's (and the
+    /// general model's) totals over every document, and the distribution
+    /// (`score` names what it is of: `perplexity` or `ce_difference`) with
+    /// its percentiles keyed `"p1"` … `"p99"`, whether they are exact, and
+    /// the histogram (`bin_width`, `bins` as `[index, count]` pairs, bin i
+    /// holding x in [i·w, (i+1)·w), x = log10 of a perplexity or the
+    /// difference itself) from which summaries of several runs merge.
+    pub fn to_json(&self, probability: bool) -> Value {
+        let d = &self.distribution;
+        let ps = d.percentiles(&dist::PERCENTILES);
+        let mut pj = serde_json::Map::new();
+        for (p, v) in dist::PERCENTILES.iter().zip(&ps) {
+            pj.insert(format!("p{p}"), num(Some(*v)));
+        }
+        let mut v = json!({
+            "inputs": self.inputs,
+            "lines": self.lines,
+            "documents": self.documents,
+            "bad_lines": self.bad,
+            "empty_documents": self.empty,
+            "infinite_scores": self.infinite,
+            "sentences": self.main.sentences,
+            "predictions": self.main.predictions,
+            "model": self.main.to_json(probability),
+            "score": if self.general.is_some() { "ce_difference" } else { "perplexity" },
+            "distribution": {
+                "count": d.count,
+                "mean": num(d.mean()),
+                "min": num(Some(d.min)),
+                "max": num(Some(d.max)),
+                "percentiles": pj,
+                "exact": d.is_exact(),
+                "scale": d.scale,
+                "bin_width": dist::BIN_WIDTH,
+                "bins": d.bins.iter().map(|(k, c)| json!([k, c])).collect::<Vec<_>>(),
+            },
+        });
+        if let Some(g) = &self.general {
+            v["general"] = g.to_json(probability);
+        }
+        v
     }
 }

@@ -43,6 +43,9 @@ fn sentence_json(s: &SentenceScore, probability: bool) -> serde_json::Value {
 }
 
 pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
+    if a.docs.jsonl || a.docs.lines {
+        return super::docs::run(a);
+    }
     let store = open_store(&a.store)?;
     let est = estimator(&store, &a.method, &a.params)?;
     let probability = est.method().is_probability();

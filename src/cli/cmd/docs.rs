@@ -1,0 +1,250 @@
+//! `quern score --jsonl` / `--lines`: one result per document, the
+//! distribution of their scores, and the kept/dropped split.
+
+use std::io::Write;
+
+use anyhow::{bail, Context};
+use quern::docs::{
+    self, split::ScoreFile, split::Split, BoxedModel, DocModel, Format, Models, Options, Summary,
+};
+use quern::query::{Estimator, Method};
+use serde_json::json;
+
+use super::prob::{estimator, open_store, params};
+use super::thousands;
+use crate::cli::args::{QueryStoreArgs, ScoreArgs};
+
+pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
+    let d = &a.docs;
+    let cut = match (d.keep_below, d.keep_fraction) {
+        (Some(x), _) => Some(docs::split::Cut::Below(x)),
+        (_, Some(f)) => {
+            if !(0.0..=1.0).contains(&f) {
+                bail!("--keep-fraction must be between 0 and 1, not {f}");
+            }
+            if a.files.iter().any(|f| f.as_os_str() == "-") {
+                bail!("--keep-fraction reads the inputs twice: give files, not - (standard input)");
+            }
+            Some(docs::split::Cut::Fraction(f))
+        }
+        _ => None,
+    };
+    if cut.is_some() != (d.kept.is_some() && d.dropped.is_some()) {
+        bail!("a cut (--keep-below or --keep-fraction) goes with both --kept FILE and --dropped FILE");
+    }
+    let store = open_store(&a.store)?;
+    let method: Method = a.method.parse()?;
+    let p = params(method, &a.params)?;
+    let probability = {
+        // Built once here so that its notes are shown once and a bad
+        // parameter fails before any thread starts.
+        let est = estimator(&store, &a.method, &a.params)?;
+        DocModel::is_probability(&est)
+    };
+    let general_store = match &d.minus_store {
+        Some(dir) => Some(open_store(&QueryStoreArgs {
+            store: dir.clone(),
+            memory: a.store.memory.clone(),
+        })?),
+        None => None,
+    };
+    if let Some(g) = &general_store {
+        Estimator::new(g, method, p.clone())
+            .with_context(|| format!("the general store {}", g.dir().display()))?;
+    }
+    let make_main = || -> quern::Result<BoxedModel<'_>> {
+        Ok(Box::new(Estimator::new(&store, method, p.clone())?))
+    };
+    let make_general = || -> quern::Result<BoxedModel<'_>> {
+        let g = general_store.as_ref().expect("a general store");
+        Ok(Box::new(Estimator::new(g, method, p.clone())?))
+    };
+    let models = Models {
+        main: &make_main,
+        general: general_store.as_ref().map(|_| &make_general as &docs::MakeModel<'_>),
+    };
+    run_docs(&a, &models, probability, cut)
+}
+
+fn run_docs(
+    a: &ScoreArgs,
+    models: &Models<'_>,
+    probability: bool,
+    cut: Option<docs::split::Cut>,
+) -> anyhow::Result<()> {
+    let d = &a.docs;
+    let format = if d.lines {
+        Format::Lines
+    } else {
+        Format::JsonLines {
+            text_field: d.text_field.clone(),
+            id_field: d.id_field.clone(),
+        }
+    };
+    let mut opts = Options::new(format);
+    if let Some(t) = d.threads {
+        opts.threads = t.max(1);
+    }
+    opts.words = d.words;
+    opts.max_line_bytes = d.max_line_bytes;
+    let names: Vec<String> = a.files.iter().map(|f| f.display().to_string()).collect();
+    let several = a.files.len() > 1;
+    let mut out = std::io::BufWriter::with_capacity(1 << 20, std::io::stdout().lock());
+    let mut split = match (&d.kept, &d.dropped) {
+        (Some(k), Some(x)) if cut.is_some() => Some(Split::create(k, x)?),
+        _ => None,
+    };
+    let mut side = match cut {
+        Some(docs::split::Cut::Fraction(_)) => {
+            let k = d.kept.as_ref().expect("checked");
+            Some(ScoreFile::create(&k.with_extension("scores.tmp"))?)
+        }
+        _ => None,
+    };
+    let t = std::time::Instant::now();
+    let summary = docs::score_inputs(&a.files, &opts, models, |r, raw| {
+        let file = several.then(|| names[r.file].as_str());
+        let v = r.record(probability, file);
+        serde_json::to_writer(&mut out, &v)
+            .map_err(std::io::Error::from)
+            .and_then(|_| out.write_all(b"\n"))
+            .map_err(|e| quern::Error::io(std::path::Path::new("standard output"), "write", e))?;
+        match (cut, &mut split) {
+            (Some(docs::split::Cut::Below(x)), Some(s)) => {
+                if let Some(raw) = raw {
+                    s.write(r.value().is_some_and(|v| v < x), raw)?;
+                }
+            }
+            (Some(docs::split::Cut::Fraction(_)), _) => {
+                side.as_mut().expect("made").push(r.value())?;
+            }
+            _ => {}
+        }
+        Ok(())
+    })?;
+    out.flush()?;
+    let scoring_secs = t.elapsed().as_secs_f64();
+    let mut threshold = None;
+    let mut counts = None;
+    if let Some(mut s) = split {
+        match cut {
+            Some(docs::split::Cut::Below(x)) => threshold = Some(x),
+            Some(docs::split::Cut::Fraction(f)) => {
+                let side = side.take().expect("made");
+                threshold = Some(side.split(
+                    &a.files,
+                    opts.max_line_bytes,
+                    &summary.distribution,
+                    f,
+                    &mut s,
+                )?);
+            }
+            None => {}
+        }
+        counts = Some(s.finish()?);
+    }
+    if let Some(p) = &d.plot {
+        docs::plot::histogram(p, &summary.distribution, threshold)?;
+    }
+    let secs = t.elapsed().as_secs_f64();
+    let mut v = summary.to_json(probability);
+    v["method"] = json!(a.method);
+    v["threads"] = json!(opts.threads);
+    v["seconds"] = json!(secs);
+    v["scoring_seconds"] = json!(scoring_secs);
+    v["predictions_per_second"] = json!(summary.main.predictions as f64 / scoring_secs.max(1e-9));
+    v["documents_per_second"] = json!(summary.documents as f64 / scoring_secs.max(1e-9));
+    if let (Some(c), Some(t)) = (counts, threshold) {
+        v["cut"] = json!({
+            "below": docs::num(Some(t)),
+            "fraction": d.keep_fraction,
+            "kept": c[0],
+            "dropped": c[1],
+            "kept_file": d.kept,
+            "dropped_file": d.dropped,
+        });
+    }
+    if let Some(f) = &d.summary {
+        let mut w = std::fs::File::create(f).with_context(|| format!("creating {}", f.display()))?;
+        serde_json::to_writer(&mut w, &v)?;
+        writeln!(w)?;
+    }
+    report(&summary, &v, probability)?;
+    Ok(())
+}
+
+/// The plain summary on standard error.
+fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Result<()> {
+    let mut e = std::io::stderr().lock();
+    let two = s.general.is_some();
+    let what = if two {
+        "cross-entropy difference"
+    } else {
+        "perplexity"
+    };
+    let dist = &s.distribution;
+    match dist.mean() {
+        Some(m) if probability => writeln!(
+            e,
+            "{} documents scored, mean {what} {m:.4} (median {:.4}); {} bad lines, {} without a token",
+            thousands(s.documents),
+            dist.percentiles(&[50.0])[0],
+            thousands(s.bad),
+            thousands(s.empty)
+        )?,
+        _ => writeln!(
+            e,
+            "{} documents scored; {} bad lines, {} without a token",
+            thousands(s.documents),
+            thousands(s.bad),
+            thousands(s.empty)
+        )?,
+    }
+    writeln!(
+        e,
+        "  predictions     {:>14}   ({} outside the vocabulary)",
+        thousands(s.main.predictions),
+        thousands(s.main.oov)
+    )?;
+    if s.infinite > 0 {
+        writeln!(
+            e,
+            "  infinite        {:>14}   (a prediction got probability 0: not in the distribution)",
+            thousands(s.infinite)
+        )?;
+    }
+    if probability && dist.count > 0 {
+        let ps = dist.percentiles(&docs::dist::PERCENTILES);
+        let line: Vec<String> = docs::dist::PERCENTILES
+            .iter()
+            .zip(&ps)
+            .map(|(p, x)| format!("p{p}={x:.4}"))
+            .collect();
+        writeln!(
+            e,
+            "  {what} by document ({}): {}",
+            if dist.is_exact() {
+                "exact"
+            } else {
+                "histogram, within 0.0115 %"
+            },
+            line.join(" ")
+        )?;
+    }
+    if let Some(c) = v.get("cut") {
+        writeln!(
+            e,
+            "  cut below {}: {} lines kept, {} dropped",
+            c["below"], c["kept"], c["dropped"]
+        )?;
+    }
+    writeln!(
+        e,
+        "  time {:.2} s on {} threads: {:.0} predictions/s, {:.0} documents/s",
+        v["scoring_seconds"].as_f64().unwrap_or(0.0),
+        v["threads"],
+        v["predictions_per_second"].as_f64().unwrap_or(0.0),
+        v["documents_per_second"].as_f64().unwrap_or(0.0)
+    )?;
+    Ok(())
+}
