@@ -60,7 +60,11 @@ pub fn with_workers<R>(
         }
         main()
     });
-    let first = errors.into_inner().unwrap_or_else(|p| p.into_inner()).into_iter().next();
+    let first = errors
+        .into_inner()
+        .unwrap_or_else(|p| p.into_inner())
+        .into_iter()
+        .next();
     match (out, first) {
         (Ok(r), None) => Ok(r),
         (Ok(_), Some(e)) => Err(e),

@@ -79,10 +79,7 @@ where
         Scale::Linear => "cross-entropy difference H_in - H_general (log10 per token)",
     };
     let mut c = ChartBuilder::on(root)
-        .caption(
-            format!("{} documents", dist.count),
-            ("sans-serif", 22),
-        )
+        .caption(format!("{} documents", dist.count), ("sans-serif", 22))
         .margin(16)
         .x_label_area_size(48)
         .y_label_area_size(72)
@@ -91,6 +88,7 @@ where
     c.configure_mesh()
         .x_desc(xdesc)
         .y_desc("documents")
+        .y_label_formatter(&|v| format!("{v:.0}"))
         .label_style(("sans-serif", 15))
         .axis_desc_style(("sans-serif", 17))
         .light_line_style(RGBColor(0xEE, 0xEE, 0xEE))

@@ -44,7 +44,10 @@ pub struct Split {
 fn create(p: &Path) -> Result<Box<dyn Write>> {
     let f = BufWriter::with_capacity(1 << 20, File::create(p).at(p, "create")?);
     Ok(if p.extension().is_some_and(|e| e == "gz") {
-        Box::new(flate2::write::GzEncoder::new(f, flate2::Compression::default()))
+        Box::new(flate2::write::GzEncoder::new(
+            f,
+            flate2::Compression::default(),
+        ))
     } else {
         Box::new(f)
     })
@@ -64,7 +67,11 @@ impl Split {
     /// Writes one line to the kept file (`keep`) or the dropped one.
     pub fn write(&mut self, keep: bool, line: &[u8]) -> Result<()> {
         let i = if keep { 0 } else { 1 };
-        let w = if keep { &mut self.kept } else { &mut self.dropped };
+        let w = if keep {
+            &mut self.kept
+        } else {
+            &mut self.dropped
+        };
         w.write_all(line)
             .and_then(|_| w.write_all(b"\n"))
             .at(&self.paths[i], "write")?;

@@ -30,7 +30,9 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         _ => None,
     };
     if cut.is_some() != (d.kept.is_some() && d.dropped.is_some()) {
-        bail!("a cut (--keep-below or --keep-fraction) goes with both --kept FILE and --dropped FILE");
+        bail!(
+            "a cut (--keep-below or --keep-fraction) goes with both --kept FILE and --dropped FILE"
+        );
     }
     let store = open_store(&a.store)?;
     let method: Method = a.method.parse()?;
@@ -61,7 +63,9 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     };
     let models = Models {
         main: &make_main,
-        general: general_store.as_ref().map(|_| &make_general as &docs::MakeModel<'_>),
+        general: general_store
+            .as_ref()
+            .map(|_| &make_general as &docs::MakeModel<'_>),
     };
     run_docs(&a, &models, probability, cut)
 }
@@ -165,7 +169,8 @@ fn run_docs(
         });
     }
     if let Some(f) = &d.summary {
-        let mut w = std::fs::File::create(f).with_context(|| format!("creating {}", f.display()))?;
+        let mut w =
+            std::fs::File::create(f).with_context(|| format!("creating {}", f.display()))?;
         serde_json::to_writer(&mut w, &v)?;
         writeln!(w)?;
     }
