@@ -150,12 +150,12 @@ impl Distribution {
             s.sort_unstable_by(f64::total_cmp);
             return ranks.iter().map(|&r| s[(r - 1) as usize]).collect();
         }
-        ranks.iter().map(|&r| self.from_bins(r)).collect()
+        ranks.iter().map(|&r| self.rank_in_bins(r)).collect()
     }
 
     /// The value of the given rank (1-based) from the histogram: the
     /// centre of its bin, clamped to [min, max].
-    fn from_bins(&self, r: u64) -> f64 {
+    fn rank_in_bins(&self, r: u64) -> f64 {
         let mut seen = 0;
         for (&b, &c) in &self.bins {
             seen += c;
