@@ -57,12 +57,7 @@ impl Tokenizer {
             if out.is_empty() {
                 out.push(self.bos);
             }
-            let tok: Cow<str> =
-                if self.lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
-                    Cow::Owned(raw.to_lowercase())
-                } else {
-                    Cow::Borrowed(raw)
-                };
+            let tok = normalise(raw, self.lowercase);
             if tok == BOS || tok == EOS || tok == UNK {
                 report.marker_tokens += 1;
                 out.push(self.unk);
@@ -77,6 +72,30 @@ impl Tokenizer {
         }
         Ok(report)
     }
+}
+
+/// A token as counted: Unicode-lowercased when `lowercase` (borrowed when
+/// that changes nothing).
+fn normalise(raw: &str, lowercase: bool) -> Cow<'_, str> {
+    if lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
+        Cow::Owned(raw.to_lowercase())
+    } else {
+        Cow::Borrowed(raw)
+    }
+}
+
+/// The ids of a query line (not a corpus line): tokens split and lowercased
+/// exactly as at ingest, but `<s>`, `</s>` and `<unk>` written as words mean
+/// the markers, so that a query can ask about them; no padding.
+pub fn query_ids(line: &str, lowercase: bool) -> Vec<WordId> {
+    line.split_whitespace()
+        .map(|raw| match &*normalise(raw, lowercase) {
+            BOS => bos_id(),
+            EOS => eos_id(),
+            UNK => unk_id(),
+            w => word_id(w.as_bytes()),
+        })
+        .collect()
 }
 
 #[cfg(test)]
@@ -128,6 +147,25 @@ mod tests {
             .unwrap();
         assert!(r.invalid_utf8);
         assert_eq!(out, ids(&["<s>", "ok", "\u{fffd}\u{fffd}", "</s>"]));
+    }
+
+    #[test]
+    fn query_ids_split_and_lowercase_as_ingest_but_keep_markers() {
+        let t = Tokenizer::new(true);
+        let mut out = Vec::new();
+        let line = "<s> ÉCOLE\u{3000}Straße </s>";
+        t.sentence(line.as_bytes(), &mut Dictionary::new(), &mut out)
+            .unwrap();
+        // Ingest reads the literal markers as <unk>; a query means them.
+        assert_eq!(
+            out,
+            ids(&["<s>", "<unk>", "école", "straße", "<unk>", "</s>"])
+        );
+        assert_eq!(
+            query_ids(line, true),
+            ids(&["<s>", "école", "straße", "</s>"])
+        );
+        assert_eq!(query_ids("ÉCOLE", false), ids(&["ÉCOLE"]));
     }
 
     #[test]
