@@ -495,7 +495,8 @@ impl Summary {
     /// its percentiles keyed `"p1"` … `"p99"`, whether they are exact, and
     /// the histogram (`bin_width`, `bins` as `[index, count]` pairs, bin i
     /// holding x in [i·w, (i+1)·w), x = log10 of a perplexity or the
-    /// difference itself) from which summaries of several runs merge.
+    /// difference itself) from which summaries of several runs merge, as
+    /// do `totals` (and `general_totals`): the [`Tally`] fields.
     pub fn to_json(&self, probability: bool) -> Value {
         let d = &self.distribution;
         let ps = d.percentiles(&dist::PERCENTILES);
@@ -513,6 +514,7 @@ impl Summary {
             "sentences": self.main.sentences,
             "predictions": self.main.predictions,
             "model": self.main.to_json(probability),
+            "totals": self.main,
             "score": if self.general.is_some() { "ce_difference" } else { "perplexity" },
             "distribution": {
                 "count": d.count,
@@ -528,6 +530,7 @@ impl Summary {
         });
         if let Some(g) = &self.general {
             v["general"] = g.to_json(probability);
+            v["general_totals"] = json!(g);
         }
         v
     }

@@ -18,7 +18,7 @@ use crate::common::{bin, gutenberg_dir, ingest_ok, manifest_dir};
 use crate::stage::{assert_raw_eq, raw_view, RawView};
 
 /// `spark-submit` of the installed pyspark, or `None` when skipping.
-fn spark_submit() -> Option<PathBuf> {
+pub(crate) fn spark_submit() -> Option<PathBuf> {
     if std::env::var_os("QUERN_SKIP_SPARK").is_some_and(|v| v == "1") {
         eprintln!("QUERN_SKIP_SPARK=1: Spark tests skipped");
         return None;
@@ -44,7 +44,7 @@ static BASELINE: OnceLock<RawView> = OnceLock::new();
 
 /// One Spark job at a time: each runs a JVM and two task slots, and the
 /// test machine has two cores shared with the other tests.
-static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+pub(crate) static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
 
 /// The single-machine ingest of fixtures/gutenberg at order 5 (built once).
 fn baseline() -> &'static RawView {
