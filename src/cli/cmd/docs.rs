@@ -191,17 +191,19 @@ fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Resu
     match dist.mean() {
         Some(m) if probability => writeln!(
             e,
-            "{} documents scored, mean {what} {m:.4} (median {:.4}); {} bad lines, {} without a token",
+            "{} documents scored, mean {what} {m:.4} (median {:.4}); {} bad line{}, {} without a token",
             thousands(s.documents),
             dist.percentiles(&[50.0])[0],
             thousands(s.bad),
+            if s.bad == 1 { "" } else { "s" },
             thousands(s.empty)
         )?,
         _ => writeln!(
             e,
-            "{} documents scored; {} bad lines, {} without a token",
+            "{} documents scored; {} bad line{}, {} without a token",
             thousands(s.documents),
             thousands(s.bad),
+            if s.bad == 1 { "" } else { "s" },
             thousands(s.empty)
         )?,
     }
@@ -245,7 +247,7 @@ fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Resu
     }
     writeln!(
         e,
-        "  time {:.2} s on {} threads: {:.0} predictions/s, {:.0} documents/s",
+        "  time {:.2} s on {} thread(s): {:.0} predictions/s, {:.0} documents/s",
         v["scoring_seconds"].as_f64().unwrap_or(0.0),
         v["threads"],
         v["predictions_per_second"].as_f64().unwrap_or(0.0),
