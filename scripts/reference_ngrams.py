@@ -192,7 +192,7 @@ def count(inputs, order=DEFAULT_ORDER, lowercase=False, max_line_bytes=DEFAULT_M
 
 
 class Derived:
-    """Continuation counts, adjusted counts, contexts, totals of a Model."""
+    """Continuation counts, left-type counts, contexts, totals of a Model."""
 
     def __init__(self, m):
         self.m = m
@@ -206,7 +206,7 @@ class Derived:
             for g in m.counts[k]:
                 ck[g[1:]] += 1
 
-    def adjusted(self, g):
+    def left_type(self, g):
         k = len(g)
         if k == self.m.order or g[0] == BOS:
             return self.m.counts[k][g]
@@ -225,7 +225,7 @@ class Derived:
             for g, c in self.m.counts[k].items():
                 if g[-1] == BOS:  # only the unigram <s>; never a child
                     continue
-                a = self.adjusted(g)
+                a = self.left_type(g)
                 s = ctx.get(g[:-1])
                 if s is None:
                     s = ctx[g[:-1]] = [0, 0, 0, 0, 0, 0]
@@ -246,7 +246,7 @@ class Derived:
             if g == (BOS,):
                 continue
             raw[c] += 1
-            adj[self.adjusted(g)] += 1
+            adj[self.left_type(g)] += 1
         return sorted(raw.items()), sorted(adj.items())
 
     def stats(self):
@@ -263,9 +263,9 @@ class Derived:
                 "ngrams": len(m.counts[k]),
                 "count_of_counts": {
                     "raw": [[r, n] for r, n in raw],
-                    "adjusted": [[r, n] for r, n in adj],
+                    "left_type": [[r, n] for r, n in adj],
                 },
-                "mkn_discounts": mkn_discounts(dict(adj)),
+                "discounts": discounts(dict(adj)),
             })
         return {
             "format_version": 2,
@@ -283,21 +283,26 @@ class Derived:
         }
 
 
-def mkn_discounts(n):
-    """Modified Kneser-Ney discounts (Chen & Goodman 1998) from the ADJUSTED
-    count-of-counts n = {r: n_r}:
-        Y = n1/(n1+2 n2); D1 = 1 - 2Y n2/n1; D2 = 2 - 3Y n3/n2; D3+ = 3 - 4Y n4/n3.
-    The whole object is None (JSON null) when any of n1..n4 is 0: the three
-    discounts are used together, and the project's rule is to report them
-    undefined rather than guess one of them."""
-    n1, n2, n3, n4 = (n.get(r, 0) for r in (1, 2, 3, 4))
-    if n1 == 0 or n2 == 0 or n3 == 0 or n4 == 0:
-        return None
-    y = n1 / (n1 + 2 * n2)
-    d1 = 1 - 2 * y * n2 / n1
-    d2 = 2 - 3 * y * n3 / n2
-    d3 = 3 - 4 * y * n4 / n3
-    return {"d1": d1, "d2": d2, "d3plus": d3}
+def discounts(n):
+    """The Kneser-Ney discounts of one order from its LEFT-TYPE
+    count-of-counts n = {r: n_r}, each {"value": number or None}:
+    modified Kneser-Ney (Chen & Goodman 1998) with Y = n1/(n1+2 n2),
+    D1 = 1 - 2Y n2/n1, D2 = 2 - 3Y n3/n2, D3+ = 3 - 4Y n4/n3, and the single
+    discount D = n1/(n1 + 2 n2) (Ney, Essen & Kneser 1994).
+    D_r is None where n1, n2, n_r or n_(r+1) is 0 or where it falls outside
+    (0, r]; D is None where n1 or n2 is 0."""
+    n1, n2 = n.get(1, 0), n.get(2, 0)
+
+    def modified(r):
+        if any(n.get(i, 0) == 0 for i in (1, 2, r, r + 1)):
+            return None
+        y = n1 / (n1 + 2 * n2)
+        d = r - (r + 1) * y * n[r + 1] / n[r]
+        return d if 0 < d <= r else None
+
+    single = n1 / (n1 + 2 * n2) if n1 and n2 else None
+    return {"d1": {"value": modified(1)}, "d2": {"value": modified(2)},
+            "d3plus": {"value": modified(3)}, "kn": {"value": single}}
 
 
 # ---------------------------------------------------------------- output
@@ -382,7 +387,7 @@ def self_test():
     assert dump_lines(d, only_order=2) == [
         "<s> a\t1\t0", "<s> b\t1\t0", "a </s>\t2\t1", "a b\t1\t1", "b a\t2\t2"]
     assert context_lines(d) == [
-        # context  C  T  A  N1 N2 N3+   (children's adjusted counts)
+        # context  C  T  A  N1 N2 N3+   (children's left-type counts)
         "\t7\t3\t5\t1\t2\t0",          # a:2 b:2 </s>:1
         "<s>\t2\t2\t2\t2\t0\t0",       # <s> a:1 (raw), <s> b:1 (raw)
         "<s> a\t1\t1\t1\t1\t0\t0",     # <s> a b:1
@@ -403,21 +408,26 @@ def self_test():
                             "invalid_utf8_lines": 0}, st["totals"]
     o1, o2, o3 = st["orders"]
     assert (o1["order"], o1["ngrams"]) == (1, 4)
-    assert o1["count_of_counts"] == {"raw": [[2, 2], [3, 1]], "adjusted": [[1, 1], [2, 2]]}
+    assert o1["count_of_counts"] == {"raw": [[2, 2], [3, 1]], "left_type": [[1, 1], [2, 2]]}
     assert (o2["order"], o2["ngrams"]) == (2, 5)
-    assert o2["count_of_counts"] == {"raw": [[1, 3], [2, 2]], "adjusted": [[1, 4], [2, 1]]}
+    assert o2["count_of_counts"] == {"raw": [[1, 3], [2, 2]], "left_type": [[1, 4], [2, 1]]}
     assert (o3["order"], o3["ngrams"]) == (3, 4)
-    assert o3["count_of_counts"] == {"raw": [[1, 3], [2, 1]], "adjusted": [[1, 3], [2, 1]]}
+    assert o3["count_of_counts"] == {"raw": [[1, 3], [2, 1]], "left_type": [[1, 3], [2, 1]]}
 
     def close(x, y):
         return abs(x - y) < 1e-12
 
-    # n3 = 0 at every order here, so the discounts are undefined (null).
-    assert o1["mkn_discounts"] is None and o2["mkn_discounts"] is None
-    assert o3["mkn_discounts"] is None
+    # n3 = 0 at every order here, so D2 and D3+ are undefined (null); D1 and
+    # D need only n1 and n2. Order 1: n1 = 1, n2 = 2: Y = 1/5,
+    # D1 = 1 - 2(1/5)(2/1) = 0.2, D = 1/5. Order 2: n1 = 4, n2 = 1: Y = 4/6,
+    # D1 = 1 - 2(2/3)(1/4) = 2/3, D = 2/3.
+    for o, d1 in ((o1, 0.2), (o2, 2 / 3)):
+        ds = o["discounts"]
+        assert close(ds["d1"]["value"], d1) and close(ds["kn"]["value"], d1), ds
+        assert ds["d2"]["value"] is None and ds["d3plus"]["value"] is None, ds
     json.dumps(st)
 
-    # ---- Case B, order 1 (adjusted = raw): all three discounts defined.
+    # ---- Case B, order 1 (left-type = raw): all three discounts defined.
     #   x:4 y:3 z:2 w:1 </s>:4 -> n1=1 n2=1 n3=1 n4=2; Y=1/3
     #   D1 = 1-2(1/3) = 1/3; D2 = 2-3(1/3) = 1; D3+ = 3-4(1/3)(2) = 1/3
     d = _run_bytes(b"x x x x\ny y y\nz z\nw", order=1)  # last line has no \n
@@ -426,19 +436,24 @@ def self_test():
     st = d.stats()
     assert st["totals"]["tokens"] == 14 and st["totals"]["types"] == 5
     assert st["totals"]["vocabulary"] == 6 and st["totals"]["sentences"] == 4
-    mk = st["orders"][0]["mkn_discounts"]
-    assert close(mk["d1"], 1 / 3) and close(mk["d2"], 1.0) and close(mk["d3plus"], 1 / 3), mk
+    mk = st["orders"][0]["discounts"]
+    assert close(mk["d1"]["value"], 1 / 3) and close(mk["d2"]["value"], 1.0), mk
+    assert close(mk["d3plus"]["value"], 1 / 3) and close(mk["kn"]["value"], 1 / 3), mk
     assert st["orders"][0]["ngrams"] == 6
     assert st["orders"][0]["count_of_counts"]["raw"] == [[1, 1], [2, 1], [3, 1], [4, 2]]
+    def values(n):
+        return [v["value"] for v in discounts(n).values()]
     # n2 = 0: nothing is defined
-    assert mkn_discounts({1: 5, 3: 2}) is None
-    assert mkn_discounts({}) is None
-    # n4 = 0: undefined as a whole.
-    assert mkn_discounts({1: 2, 2: 1, 3: 1}) is None
-    # n1=2 n2=1 n3=1 n4=1: Y = 2/4; D1 = 1-2(1/2)(1/2) = 1/2,
-    # D2 = 2-3(1/2)(1/1) = 1/2, D3+ = 3-4(1/2)(1/1) = 1
-    mk = mkn_discounts({1: 2, 2: 1, 3: 1, 4: 1})
-    assert close(mk["d1"], 0.5) and close(mk["d2"], 0.5) and close(mk["d3plus"], 1.0)
+    assert values({1: 5, 3: 2}) == [None] * 4
+    assert values({}) == [None] * 4
+    # n4 = 0: only D3+ is undefined. n1=2 n2=1 n3=1: Y = 1/2,
+    # D1 = 1-2(1/2)(1/2) = 1/2, D2 = 2-3(1/2)(1/1) = 1/2, D = 1/2.
+    assert values({1: 2, 2: 1, 3: 1}) == [0.5, 0.5, None, 0.5]
+    # n1=2 n2=1 n3=1 n4=1: D3+ = 3-4(1/2)(1/1) = 1
+    assert close(values({1: 2, 2: 1, 3: 1, 4: 1})[2], 1.0)
+    # n1=2050 n2=243 n3=95 n4=96 (the demo corpus, order 2): Y = 2050/2536,
+    # D3+ = 3 - 4Y(96/95) = -0.267475..., outside (0, 3]: None.
+    assert values({1: 2050, 2: 243, 3: 95, 4: 96})[2] is None
 
     # ---- Case C, order 1: lines, markers, whitespace, bad UTF-8, long lines.
     data = (b"<s> </s> <unk> q\r\n"     # 3 markers -> <unk>; \r dropped
@@ -495,7 +510,7 @@ def self_test():
     st = d.stats()
     assert st["totals"]["sentences"] == 0 and st["totals"]["vocabulary"] == 1
     assert [o["ngrams"] for o in st["orders"]] == [0, 0]
-    assert all(o["mkn_discounts"] is None for o in st["orders"])
+    assert all(v["value"] is None for o in st["orders"] for v in o["discounts"].values())
     assert dump_lines(d) == [] and context_lines(d) == []
 
     print("reference_ngrams self-test: 6 passed, 0 failed")

@@ -56,14 +56,15 @@ def parse_args(argv):
     p.add_argument("--dir", required=True, help="shared directory of the job, seen by every executor")
     p.add_argument("--store", required=True, help="store directory to build (on the shared storage)")
     p.add_argument("--order", type=int, default=5, help="highest n-gram order N (default 5)")
-    p.add_argument("--lowercase", action="store_true", help="lowercase every token")
-    p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this")
+    p.add_argument("--lowercase", action="store_true", help="lowercase every token (default: off)")
+    p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one reduce and one join task each (default 64)")
     p.add_argument("--map-tasks", type=int, default=0,
                    help="map tasks (default: 4 per core of the cluster, as Spark's default parallelism)")
     p.add_argument("--task-memory", default="1GiB",
-                   help="memory budget of each quern task (default 1GiB); size executor memory overhead to it")
+                   help="memory budget of each quern task (default 1GiB; KiB/MiB/GiB are powers of 1024, "
+                        "K/M/G powers of 1000); size executor memory overhead to it")
     p.add_argument("--map-threads", type=int, default=1,
                    help="counting threads per map task (default 1; match spark.task.cpus)")
     p.add_argument("--quern", default=None,
@@ -71,7 +72,7 @@ def parse_args(argv):
                         "--files, else `quern` on PATH)")
     p.add_argument("--clean", action="store_true",
                    help="remove the intermediate outputs once the store is built")
-    p.add_argument("--report", default=None, help="also write the JSON summary to this file")
+    p.add_argument("--report", default=None, help="also write the JSON summary to this file (default: none)")
     p.add_argument("--fault-kill", action="append", default=[], metavar="STAGE:TASK:POINT",
                    help="tests: SIGKILL the first attempt of this task at a fault point "
                         "(stage-written: output written, not committed; stage-done: committed)")

@@ -226,8 +226,8 @@ def merge(summaries):
     added, percentiles (nearest rank) from the merged histogram."""
     keys = ["lines", "documents", "bad_lines", "empty_documents", "infinite_scores"]
     m = {k: sum(s[k] for s in summaries) for k in keys}
-    tot = {k: 0 for k in ("sentences", "predictions", "oov", "zero")}
-    tot["log10_nonzero"] = 0.0
+    tot = {k: 0 for k in ("sentences", "predictions", "outside_vocabulary", "probability_zero")}
+    tot["log10_sum_nonzero"] = 0.0
     for s in summaries:
         for k in tot:
             tot[k] += s["totals"][k]
@@ -259,8 +259,8 @@ def merge(summaries):
                     v = 10 ** x if log else x
                     pct[f"p{p}"] = min(max(v, lo), hi)
                     break
-    n, z = tot["predictions"], tot["zero"]
-    m["perplexity"] = (10 ** (-tot["log10_nonzero"] / n)) if n and not z else None
+    n, z = tot["predictions"], tot["probability_zero"]
+    m["perplexity"] = (10 ** (-tot["log10_sum_nonzero"] / n)) if n and not z else None
     m["distribution"] = {"count": count, "mean": total / count if count else None,
                          "min": lo if count else None, "max": hi if count else None,
                          "percentiles": pct, "exact": False, "bin_width": width,

@@ -21,6 +21,8 @@
 //! * [`merge`] merges each partition's runs (k-way), shuffles continuation
 //!   contributions once, and derives every statistic in one ordered pass.
 //! * [`store`] writes and reads the RocksDB store.
+//! * [`discount`] defines the Kneser-Ney discounts from count-of-counts,
+//!   once, for the estimators and the statistics report.
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
@@ -55,6 +57,7 @@
 pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;
+pub mod discount;
 #[cfg(feature = "store")]
 pub mod docs;
 pub mod error;

@@ -16,7 +16,7 @@ pub struct Cli {
 pub enum Command {
     /// Count every n-gram of the inputs into a store (resumes an unfinished one).
     Ingest(IngestArgs),
-    /// Print every stored n-gram (or context) as TSV.
+    /// Print every stored n-gram (or context) as TSV, under a header line.
     Dump(DumpArgs),
     /// Totals, n-grams per order, count-of-counts and discounts.
     Stats(StatsArgs),
@@ -29,7 +29,8 @@ pub enum Command {
     Next(NextArgs),
     /// The stored n-grams that begin with given words, a page at a time.
     Ngrams(NgramsArgs),
-    /// Score held-out text: predictions, OOVs, log10 probability, perplexity.
+    /// Perplexity of held-out text, with its predictions, words outside the
+    /// vocabulary and log10 probability.
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
@@ -61,29 +62,31 @@ pub enum StageCommand {
 #[derive(Args, Debug)]
 pub struct StageDirArgs {
     /// The shared directory of the job.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub dir: PathBuf,
 }
 
 #[derive(Args, Debug)]
 pub struct StagePlanArgs {
     /// The shared directory of the job (created if missing).
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub dir: PathBuf,
-    /// Highest n-gram order N.
-    #[arg(long, default_value_t = 5)]
+    /// Highest n-gram order N (1 to 8).
+    #[arg(long, value_name = "N", default_value_t = 5)]
     pub order: usize,
-    /// Lowercase every token (Unicode lowercasing).
+    /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
     /// Skip (and report) lines longer than this many bytes.
-    #[arg(long, default_value_t = 1 << 20)]
+    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,
-    /// Number of partitions: one reduce and one join task each.
-    #[arg(long)]
+    /// Number of partitions: one reduce and one join task each. Required
+    /// (the Spark driver passes its own default).
+    #[arg(long, value_name = "N")]
     pub partitions: u32,
     /// Number of map tasks (fewer if the inputs have fewer chunks).
-    #[arg(long)]
+    /// Required (the Spark driver passes its own default).
+    #[arg(long, value_name = "N")]
     pub map_tasks: usize,
     /// Files or directories (walked recursively, sorted), on the shared storage.
     #[arg(required = true)]
@@ -93,42 +96,43 @@ pub struct StagePlanArgs {
 #[derive(Args, Debug)]
 pub struct StageMapArgs {
     /// The shared directory of the job.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub dir: PathBuf,
-    /// The map task's number in the plan.
-    #[arg(long)]
+    /// The map task's number in the plan (from 0).
+    #[arg(long, value_name = "I")]
     pub task: u32,
-    /// Memory budget of this task, e.g. 2GiB.
-    #[arg(long, default_value = "1GiB")]
+    /// Memory budget of this task. SIZE: bytes, or a number with a unit:
+    /// KiB, MiB, GiB (powers of 1024) or K, M, G (powers of 1000).
+    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
     pub memory: String,
     /// Counting threads (more than one: same counts, not byte-identical runs).
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, value_name = "N", default_value_t = 1)]
     pub threads: usize,
 }
 
 #[derive(Args, Debug)]
 pub struct StagePartArgs {
     /// The shared directory of the job.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub dir: PathBuf,
-    /// The partition.
-    #[arg(long)]
+    /// The partition (from 0).
+    #[arg(long, value_name = "P")]
     pub partition: u32,
-    /// Memory budget of this task.
-    #[arg(long, default_value = "1GiB")]
+    /// Memory budget of this task (SIZE: as for map).
+    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
     pub memory: String,
 }
 
 #[derive(Args, Debug)]
 pub struct StageAssembleArgs {
     /// The shared directory of the job.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub dir: PathBuf,
     /// Store directory to build (created if missing).
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
-    /// Memory budget of this task.
-    #[arg(long, default_value = "1GiB")]
+    /// Memory budget of this task (SIZE: as for map).
+    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
     pub memory: String,
 }
 
@@ -136,48 +140,66 @@ pub struct StageAssembleArgs {
 #[derive(Args, Debug, Clone)]
 pub struct QueryStoreArgs {
     /// Store directory.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
     /// Memory for caches: three quarters go to the store's block cache.
-    #[arg(long, default_value = "256MiB")]
+    /// SIZE: bytes, or a number with a unit: KiB, MiB, GiB (powers of
+    /// 1024) or K, M, G (powers of 1000).
+    #[arg(long, value_name = "SIZE", default_value = "256MiB")]
     pub memory: String,
 }
 
 /// A smoothing method's parameters (each method reads only its own).
 #[derive(Args, Debug, Clone, Default)]
 pub struct ParamArgs {
-    /// Parameters from a JSON file written by `quern tune` (flags given
-    /// here override it).
-    #[arg(long)]
-    pub params: Option<PathBuf>,
-    /// add-k: the count added to every n-gram (default 1, Laplace).
-    #[arg(long)]
+    /// Parameters from a file written by `quern tune --out` (flags given
+    /// here override it). Default: none.
+    #[arg(long, value_name = "FILE")]
+    pub tuned: Option<PathBuf>,
+    /// add-k: the count added to every n-gram (> 0). Default: 1 (Laplace).
+    #[arg(long, value_name = "K")]
     pub k: Option<f64>,
-    /// stupid: the back-off factor (default 0.4).
-    #[arg(long)]
+    /// stupid: the back-off factor (> 0). Default: 0.4.
+    #[arg(long, value_name = "A")]
     pub alpha: Option<f64>,
-    /// interp: the weight of orders 1 to N, comma-separated (default 0.5 each).
-    #[arg(long, value_delimiter = ',')]
+    /// interp: the weight of orders 1 to N, comma-separated, each in
+    /// [0, 1]. Default: 0.5 each.
+    #[arg(long, value_name = "L1,...,LN", value_delimiter = ',')]
     pub lambdas: Option<Vec<f64>>,
-    /// katz: the largest count that is discounted (default 5).
-    #[arg(long)]
+    /// katz: the largest count that is discounted. Default: 5 (lowered per
+    /// order where the data make it unusable, with a note).
+    #[arg(long, value_name = "K")]
     pub katz_k: Option<usize>,
-    /// mkn: D1,D2,D3+ (kn, absolute: D) used only where the data leave a
-    /// discount undefined; reported when used.
-    #[arg(long, value_delimiter = ',')]
-    pub fallback_discounts: Option<Vec<f64>>,
+    /// mkn, kn, absolute: where the discounts come from. `estimate`: from
+    /// the count-of-counts, an error where they leave one undefined or out
+    /// of range; `estimate-or-single`: as estimate, and an unusable D1, D2
+    /// or D3+ is replaced by that order's single discount n1/(n1 + 2 n2),
+    /// with a note; `estimate-or:D1,D2,D3+`: the given values replace
+    /// unusable ones, with a note; `fixed:D1,D2,D3+`: the given values at
+    /// every order (kn and absolute use the first value).
+    /// Default: estimate-or-single.
+    #[arg(long, value_name = "POLICY")]
+    pub discounts: Option<String>,
+}
+
+/// The smoothing method of a query command.
+#[derive(Args, Debug, Clone)]
+pub struct MethodArgs {
+    /// The smoothing method: mkn, kn, absolute, witten-bell, katz, interp,
+    /// add-k, mle or stupid.
+    #[arg(long, value_name = "M", default_value = "mkn")]
+    pub method: String,
 }
 
 #[derive(Args, Debug)]
 pub struct ProbArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    #[command(flatten)]
+    pub method: MethodArgs,
     #[command(flatten)]
     pub params: ParamArgs,
-    /// JSON (one object a line) instead of TSV.
+    /// One JSON object a line instead of TSV. Default: TSV.
     #[arg(long)]
     pub json: bool,
     /// The context and the predicted word; none: read one query a line
@@ -189,18 +211,18 @@ pub struct ProbArgs {
 pub struct NextArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    #[command(flatten)]
+    pub method: MethodArgs,
     #[command(flatten)]
     pub params: ParamArgs,
     /// How many words.
-    #[arg(long, default_value_t = 10)]
+    #[arg(long, value_name = "K", default_value_t = 10)]
     pub top: usize,
-    /// JSON instead of a table.
+    /// One JSON object instead of a table. Default: a table.
     #[arg(long)]
     pub json: bool,
-    /// The context (may be empty). `<s>` means the sentence start.
+    /// The context; none: the words most probable anywhere (the unigram
+    /// level). `<s>` means the sentence start.
     pub words: Vec<String>,
 }
 
@@ -208,23 +230,28 @@ pub struct NextArgs {
 pub struct NgramsArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
-    /// Add the probability of each n-gram's last word under this method.
-    #[arg(long)]
+    /// Add the probability of each n-gram's last word under this method
+    /// (mkn, kn, ...). Default: no probabilities.
+    #[arg(long, value_name = "M")]
     pub method: Option<String>,
     #[command(flatten)]
     pub params: ParamArgs,
-    /// The order of the n-grams shown (default: one more than the words given).
-    #[arg(long)]
+    /// The order of the n-grams shown. Default: one more than the words given.
+    #[arg(long, value_name = "K")]
     pub order: Option<usize>,
     /// N-grams per page.
-    #[arg(long, default_value_t = 20)]
+    #[arg(long, value_name = "N", default_value_t = 20)]
     pub limit: usize,
-    /// Continue after this cursor (printed at the end of the previous page).
-    #[arg(long)]
+    /// Continue after this cursor (printed at the end of the previous
+    /// page). Default: from the first n-gram.
+    #[arg(long, value_name = "CURSOR")]
     pub after: Option<String>,
-    /// JSON instead of TSV.
+    /// One JSON object (the page) instead of TSV. Default: TSV.
     #[arg(long)]
     pub json: bool,
+    /// Leave out the TSV header line. Default: print it.
+    #[arg(long)]
+    pub no_header: bool,
     /// The words the n-grams begin with.
     pub words: Vec<String>,
 }
@@ -233,15 +260,16 @@ pub struct NgramsArgs {
 pub struct ScoreArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
-    /// mkn, kn, absolute, witten-bell, katz, interp, add-k, mle or stupid.
-    #[arg(long)]
-    pub method: String,
+    #[command(flatten)]
+    pub method: MethodArgs,
     #[command(flatten)]
     pub params: ParamArgs,
-    /// Add one record per sentence.
+    /// One row per sentence (TSV with a header line; with --json one
+    /// object a line), then the totals. Default: the totals only.
     #[arg(long)]
     pub per_line: bool,
-    /// JSON instead of text.
+    /// JSON instead of text: one object (with --per-line, one object a
+    /// line). Default: text.
     #[arg(long)]
     pub json: bool,
     #[command(flatten)]
@@ -256,18 +284,20 @@ pub struct TuneArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
     /// add-k or interp.
-    #[arg(long)]
+    #[arg(long, value_name = "M")]
     pub method: String,
     #[command(flatten)]
     pub params: ParamArgs,
     /// interp: one weight per order and bucket of the context count
     /// (bucket b: 2^b <= C(h) < 2^(b+1), the last one everything above).
-    #[arg(long)]
+    /// Default: one weight per order.
+    #[arg(long, value_name = "B")]
     pub buckets: Option<usize>,
-    /// Write the parameters found to this JSON file (read back with --params).
-    #[arg(long)]
+    /// Write the parameters found to this JSON file (read back with
+    /// --tuned FILE).
+    #[arg(long, value_name = "FILE")]
     pub out: PathBuf,
-    /// JSON report instead of text.
+    /// One JSON object instead of text. Default: text.
     #[arg(long)]
     pub json: bool,
     /// Held-out text files, one sentence a line.
@@ -278,25 +308,29 @@ pub struct TuneArgs {
 #[derive(Args, Debug)]
 pub struct IngestArgs {
     /// Store directory (created if missing).
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
-    /// Highest n-gram order N.
-    #[arg(long, default_value_t = 5)]
+    /// Highest n-gram order N (1 to 8).
+    #[arg(long, value_name = "N", default_value_t = 5)]
     pub order: usize,
-    /// Memory budget of the whole process, e.g. 512MiB or 4GiB.
-    #[arg(long, default_value = "1GiB")]
+    /// Memory budget of the whole process, at least 16MiB. SIZE: bytes, or
+    /// a number with a unit: KiB, MiB, GiB (powers of 1024: 1GiB is
+    /// 1,073,741,824 bytes) or K, M, G (powers of 1000: 1.5G is
+    /// 1,500,000,000 bytes).
+    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
     pub memory: String,
-    /// Worker threads (default: all cores).
-    #[arg(long)]
+    /// Worker threads. Default: all cores.
+    #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
-    /// Lowercase every token (Unicode lowercasing).
+    /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
     /// Skip (and report) lines longer than this many bytes.
-    #[arg(long, default_value_t = 1 << 20)]
+    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,
-    /// Number of partitions (default: 16 per thread, 16 to 256).
-    #[arg(long)]
+    /// Number of partitions the merge is cut into. Default: 16 per thread,
+    /// at least 16 and at most 256.
+    #[arg(long, value_name = "N")]
     pub partitions: Option<u32>,
     /// Discard an unfinished ingest in this store and start again.
     #[arg(long)]
@@ -304,13 +338,14 @@ pub struct IngestArgs {
     /// Add the inputs to a finished store.
     #[arg(long)]
     pub append: bool,
-    /// No progress display.
+    /// No progress display (shown on standard error when it is a terminal).
     #[arg(long, short)]
     pub quiet: bool,
-    /// Print the summary as JSON on standard output.
+    /// Print the summary as one JSON object on standard output. Default: text.
     #[arg(long)]
     pub json: bool,
-    /// Files or directories (walked recursively, sorted); `-` reads standard input.
+    /// Files or directories (walked recursively, sorted); `.gz` and `.zst`
+    /// are decompressed; `-` reads standard input.
     #[arg(required = true)]
     pub inputs: Vec<PathBuf>,
 }
@@ -318,43 +353,49 @@ pub struct IngestArgs {
 #[derive(Args, Debug)]
 pub struct DumpArgs {
     /// Store directory.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
-    /// Only n-grams of this order.
-    #[arg(long)]
+    /// Only n-grams of this order (with --contexts: contexts of this many
+    /// words, 0 to N − 1). Default: every order.
+    #[arg(long, value_name = "K")]
     pub order: Option<usize>,
-    /// Print context statistics instead: context, C, T, A, N1, N2, N3+.
+    /// Print context statistics instead (columns: context, C, T, A, N1, N2,
+    /// N3+; see the header line).
     #[arg(long)]
     pub contexts: bool,
     /// Leave out n-grams (or contexts) whose raw count is below this: rare
     /// n-grams of crawled text are where personal data hides.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, value_name = "COUNT", default_value_t = 1)]
     pub min_count: u64,
+    /// Leave out the header line. Default: print it.
+    #[arg(long)]
+    pub no_header: bool,
 }
 
 #[derive(Args, Debug)]
 pub struct StatsArgs {
     /// Store directory.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
     /// Output format: table (for people), tsv, csv (one header line, stable
-    /// column names) or json. Default: table, or nothing with --plot.
+    /// column names) or json (one object). Default: table, or nothing with
+    /// --plot.
     #[arg(long, value_enum)]
     pub format: Option<StatsFormat>,
     /// The same as --format json.
     #[arg(long, conflicts_with = "format")]
     pub json: bool,
-    /// Only this order.
-    #[arg(long)]
+    /// Only this order. Default: every order.
+    #[arg(long, value_name = "K")]
     pub order: Option<usize>,
-    /// Count-of-counts rows up to this count r (default: 10 in the table,
-    /// all otherwise).
-    #[arg(long, alias = "rows")]
+    /// Count-of-counts rows up to this count r. Default: 10 in the table,
+    /// all otherwise.
+    #[arg(long, value_name = "R", alias = "rows")]
     pub max_count: Option<u64>,
     /// Katz's K: the Good-Turing table has the rows r = 1..=K.
-    #[arg(long, default_value_t = 5)]
+    #[arg(long, value_name = "K", default_value_t = 5)]
     pub katz_k: usize,
-    /// Draw the figures into FILE (.svg or .png).
+    /// Draw the figures into FILE (.svg or .png). Default: no figure.
     #[arg(long, value_name = "FILE")]
     pub plot: Option<PathBuf>,
     /// Compare with this second store: the differences per order, and both
@@ -379,9 +420,9 @@ pub enum StatsFormat {
 #[derive(Args, Debug)]
 pub struct StatusArgs {
     /// Store directory.
-    #[arg(long)]
+    #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
-    /// JSON instead of text.
+    /// One JSON object instead of text. Default: text.
     #[arg(long)]
     pub json: bool,
 }

@@ -169,10 +169,13 @@ pub struct Tally {
     /// Predictions (tokens and one `</s>` per sentence).
     pub predictions: u64,
     /// Predictions whose word was outside V (scored as `<unk>`).
+    #[serde(rename = "outside_vocabulary")]
     pub oov: u64,
     /// Predictions that got probability 0.
+    #[serde(rename = "probability_zero")]
     pub zero: u64,
     /// Σ log10 P over the predictions with P > 0.
+    #[serde(rename = "log10_sum_nonzero")]
     pub log10_nonzero: f64,
 }
 
@@ -218,14 +221,14 @@ impl Tally {
         }
     }
 
-    /// As JSON: OOV, zero-probability predictions, total log10 probability
-    /// and perplexity (`null` where −∞, infinite or undefined, and the
+    /// As JSON: `outside_vocabulary`, `probability_zero`, `log10_sum` and
+    /// `perplexity` (`null` where −∞, infinite or undefined, and the
     /// perplexity too when the scores are not probabilities).
     pub fn to_json(&self, probability: bool) -> Value {
         json!({
-            "oov": self.oov,
-            "zero_probability": self.zero,
-            "log10_prob": num(self.log10_prob()),
+            "outside_vocabulary": self.oov,
+            "probability_zero": self.zero,
+            "log10_sum": num(self.log10_prob()),
             "perplexity": if probability { num(self.perplexity()) } else { Value::Null },
         })
     }
@@ -314,10 +317,10 @@ impl DocResult {
 
     /// The result as one JSON object, keys in this order: `id`, `line`,
     /// `file` (the input's path, when `file` is given), then `sentences`,
-    /// `predictions`, and the main model's `oov`, `zero_probability`,
-    /// `log10_prob`, `perplexity`; with a general model `general` (the same
-    /// four) and `ce_difference`; with words `words`, one array
-    /// `[token, log10, order, oov]` per prediction (with a general model
+    /// `predictions`, and the main model's `outside_vocabulary`,
+    /// `probability_zero`, `log10_sum`, `perplexity`; with a general model
+    /// `general` (the same four) and `ce_difference`; with words `words`,
+    /// one array `[token, log10, order, outside V]` per prediction (with a general model
     /// followed by its log10, order and oov). A bad line has `id` `null`,
     /// `line` and `error`.
     pub fn record<'r>(&'r self, probability: bool, file: Option<&'r str>) -> Record<'r> {
@@ -327,9 +330,9 @@ impl DocResult {
             file,
             sentences: None,
             predictions: None,
-            oov: None,
-            zero_probability: None,
-            log10_prob: None,
+            outside_vocabulary: None,
+            probability_zero: None,
+            log10_sum: None,
             perplexity: None,
             general: None,
             ce_difference: None,
@@ -343,9 +346,9 @@ impl DocResult {
                 r.id = &d.id;
                 r.sentences = Some(m.sentences);
                 r.predictions = Some(m.predictions);
-                r.oov = Some(m.oov);
-                r.zero_probability = Some(m.zero);
-                r.log10_prob = Some(num(m.log10_prob()));
+                r.outside_vocabulary = Some(m.oov);
+                r.probability_zero = Some(m.zero);
+                r.log10_sum = Some(num(m.log10_prob()));
                 r.perplexity = Some(if probability {
                     num(m.perplexity())
                 } else {
@@ -397,13 +400,13 @@ pub struct Record<'r> {
     pub predictions: Option<u64>,
     /// Predictions outside V.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub oov: Option<u64>,
+    pub outside_vocabulary: Option<u64>,
     /// Predictions with probability 0.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub zero_probability: Option<u64>,
+    pub probability_zero: Option<u64>,
     /// Total log10 probability (`null` for −∞).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub log10_prob: Option<Value>,
+    pub log10_sum: Option<Value>,
     /// Perplexity (`null` if infinite, undefined or not a probability).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub perplexity: Option<Value>,

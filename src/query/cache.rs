@@ -28,11 +28,11 @@ impl CtxInfo {
 }
 
 /// The unigram table: every stored unigram but `<s>`, with raw and
-/// adjusted count, and V in id order.
+/// left-type count, and V in id order.
 pub(crate) struct Unigrams {
     pub map: IdMap<(u64, u64)>,
     pub vocab: Vec<WordId>,
-    /// `counts[i]`: raw and adjusted count of `vocab[i]` ((0, 0) for an
+    /// `counts[i]`: raw and left-type count of `vocab[i]` ((0, 0) for an
     /// unseen `<unk>`).
     pub counts: Vec<(u64, u64)>,
 }

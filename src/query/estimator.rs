@@ -54,7 +54,7 @@ impl<'s> Estimator<'s> {
     /// Builds `method` with `params` over `store`: derives and checks the
     /// per-order constants. Fails with a message naming the order where the
     /// data leave a discount undefined (`mkn`, `kn`, `absolute`) and no
-    /// fallback was given, or where a parameter is out of range.
+    /// discount policy replaces them, or where a parameter is out of range.
     pub fn new(store: &'s Store, method: Method, params: Params) -> Result<Estimator<'s>> {
         let meta = store.meta();
         let n = meta.settings.order;
@@ -63,21 +63,21 @@ impl<'s> Estimator<'s> {
         }
         let mut notes = Vec::new();
         let model = match method {
-            Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts_checked(
+            Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts(
                 meta,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
-            Method::Kn => Model::Kn(kneser_ney::single_discounts_checked(
+            Method::Kn => Model::Kn(kneser_ney::single_discounts(
                 meta,
                 false,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
-            Method::Absolute => Model::Absolute(kneser_ney::single_discounts_checked(
+            Method::Absolute => Model::Absolute(kneser_ney::single_discounts(
                 meta,
                 true,
-                params.fallback_discounts.as_deref(),
+                &params.discounts,
                 &mut notes,
             )?),
             Method::WittenBell => Model::WittenBell,
@@ -139,7 +139,7 @@ impl<'s> Estimator<'s> {
     }
 
     /// What was decided when the estimator was built and should be shown to
-    /// the user: fallback discounts used, Katz's K lowered at an order.
+    /// the user: discounts that took the place of unusable ones, Katz's K lowered at an order.
     pub fn notes(&self) -> &[String] {
         &self.notes
     }
@@ -287,11 +287,11 @@ impl<'s> Estimator<'s> {
         }
     }
 
-    /// The adjusted count of an n-gram from its raw count and stored
+    /// The left-type count of an n-gram from its raw count and stored
     /// continuation (`None` at the top order): the raw count at the top
     /// order and for n-grams that start with `<s>`, else the continuation.
     #[inline]
-    pub(super) fn adjusted(&self, c: u64, cont: Option<u64>, first: WordId) -> u64 {
+    pub(super) fn left_type(&self, c: u64, cont: Option<u64>, first: WordId) -> u64 {
         match cont {
             Some(x) if first != self.bos => x,
             _ => c,
@@ -311,7 +311,7 @@ impl<'s> Estimator<'s> {
             if id == self.bos {
                 continue;
             }
-            map.insert(id, (c, self.adjusted(c, cont, id)));
+            map.insert(id, (c, self.left_type(c, cont, id)));
             vocab.push(id);
         }
         if !map.contains_key(&self.unk) {
@@ -341,7 +341,7 @@ impl<'s> Estimator<'s> {
         Ok(&self.unigrams()?.vocab)
     }
 
-    /// The stored children w of context `h` (|h| ≥ 1) with raw and adjusted
+    /// The stored children w of context `h` (|h| ≥ 1) with raw and left-type
     /// count of h·w, through a bounded cache.
     pub(crate) fn child_map(&self, h: &[WordId]) -> Result<ChildMap> {
         let key = Key::new(h);
@@ -354,7 +354,7 @@ impl<'s> Estimator<'s> {
         for item in self.store.children(h)? {
             let (k, c, cont) = item?;
             let w = k.ids()[h.len()];
-            let ca = (c, self.adjusted(c, cont, h[0]));
+            let ca = (c, self.left_type(c, cont, h[0]));
             list.push((w, ca, uni.counts_from(w, &mut at)));
         }
         if !list.windows(2).all(|p| p[0].0 < p[1].0) {

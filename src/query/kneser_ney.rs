@@ -10,192 +10,179 @@
 //! else:      P_k(w|h) = max(a − D_k(a), 0) / S(h) + γ(h) · P_{k-1}(w|h')
 //! ```
 //!
-//! h' is h without its first word. `mkn` and `kn` count with adjusted counts
-//! a(·) (continuation counts below the top order, except for n-grams that
-//! start with `<s>`), S = A(h); `absolute` with raw counts, S = C(h).
+//! h' is h without its first word. `mkn` and `kn` count with left-type counts
+//! a(·) (continuation counts, the number of distinct words seen right
+//! before, below the top order, except for n-grams that start with `<s>`),
+//! S = A(h); `absolute` with raw counts, S = C(h).
 //!
 //! * `mkn` (Chen & Goodman 1998): D_k(1) = D1, D_k(2) = D2, D_k(a ≥ 3) = D3+
 //!   with Y = n1/(n1 + 2 n2), D1 = 1 − 2Y n2/n1, D2 = 2 − 3Y n3/n2,
-//!   D3+ = 3 − 4Y n4/n3 from the adjusted count-of-counts of order k, and
+//!   D3+ = 3 − 4Y n4/n3 from the left-type count-of-counts of order k, and
 //!   γ(h) = (D1 N1(h) + D2 N2(h) + D3+ N3+(h)) / A(h).
-//! * `kn` (Ney, Essen & Kneser 1994): one D_k = n1/(n1 + 2 n2) (adjusted
+//! * `kn` (Ney, Essen & Kneser 1994): one D_k = n1/(n1 + 2 n2) (left-type
 //!   count-of-counts), γ(h) = D_k (N1 + N2 + N3+)(h) / A(h).
 //! * `absolute` (the same paper): D_k from the raw count-of-counts,
 //!   γ(h) = D_k T(h) / C(h).
 //!
-//! A discount is undefined where a count-of-count it divides by or
-//! multiplies with is 0, and out of range outside (0, r] for D_r; either is
-//! an error naming the order, unless fallback discounts are given, which are
-//! then used for exactly the undefined ones and reported.
+//! The discounts come from [`crate::discount`], the one definition that
+//! `quern stats` reports too. Where the count-of-counts leave one undefined
+//! or out of range, the [`DiscountPolicy`] decides: an error naming the
+//! order (`estimate`), that order's single discount in place of a modified
+//! one (`estimate-or-single`, the default), given values in its place
+//! (`estimate-or:`), or given values everywhere (`fixed:`). Every
+//! replacement is reported in the estimator's notes.
 
+use crate::discount::{self, modified_name};
 use crate::error::{Error, Result};
 use crate::store::{OrderStats, StoreMeta};
 
-use super::Level;
+use super::{DiscountPolicy, Level};
 
-/// The three modified Kneser-Ney discounts of every order (index k − 1),
-/// checked. Fallbacks (`[D1, D2, D3+]`) replace only undefined or
-/// out-of-range values; each use is added to `notes`.
-pub fn mkn_discounts_checked(
-    meta: &StoreMeta,
-    fallback: Option<&[f64]>,
-    notes: &mut Vec<String>,
-) -> Result<Vec<[f64; 3]>> {
-    let fb = match fallback {
-        None => None,
-        Some(f) if f.len() == 3 => Some([f[0], f[1], f[2]]),
-        Some(f) => {
+/// The left-type count-of-counts n1..n4 of one order.
+pub fn left_type_n(o: &OrderStats) -> [u64; 4] {
+    [1, 2, 3, 4].map(|r| o.adjusted(r))
+}
+
+/// The raw count-of-counts n1..n4 of one order.
+pub fn raw_n(o: &OrderStats) -> [u64; 4] {
+    [1, 2, 3, 4].map(|r| o.raw(r))
+}
+
+/// Checks given discounts: D_r in (0, r] (`mkn`, three values) or D in
+/// (0, 1] (`kn`, `absolute`: the first value).
+fn given(method: &str, values: &[f64], three: bool) -> Result<Vec<f64>> {
+    let v: Vec<f64> = if three {
+        if values.len() != 3 {
             return Err(Error::Config(format!(
-                "mkn: --fallback-discounts needs three values D1,D2,D3+, got {}",
-                f.len()
-            )))
+                "{method}: --discounts gives {} value(s); {method} needs three, D1,D2,D3+",
+                values.len()
+            )));
         }
+        values.to_vec()
+    } else {
+        values[..1].to_vec()
     };
-    if let Some(f) = fb {
-        for (r, d) in f.iter().enumerate() {
-            if !(*d > 0.0 && *d <= (r + 1) as f64) {
-                return Err(Error::Config(format!(
-                    "mkn: fallback discount D{} = {d} is outside (0, {}]",
-                    if r == 2 {
-                        "3+".into()
-                    } else {
-                        (r + 1).to_string()
-                    },
-                    r + 1
-                )));
-            }
+    for (i, d) in v.iter().enumerate() {
+        let (name, hi) = if three {
+            (modified_name(i + 1), (i + 1) as f64)
+        } else {
+            ("D", 1.0)
+        };
+        if !(*d > 0.0 && *d <= hi) {
+            return Err(Error::Config(format!(
+                "{method}: the given discount {name} = {d} is outside (0, {hi}]"
+            )));
         }
     }
+    Ok(v)
+}
+
+/// The three modified Kneser-Ney discounts of every order (index k − 1)
+/// under `policy`; each replacement of an unusable one is added to `notes`.
+pub fn mkn_discounts(
+    meta: &StoreMeta,
+    policy: &DiscountPolicy,
+    notes: &mut Vec<String>,
+) -> Result<Vec<[f64; 3]>> {
     let mut out = Vec::with_capacity(meta.orders.len());
+    let instead = match policy {
+        DiscountPolicy::Fixed(v) => {
+            let v = given("mkn", v, true)?;
+            return Ok(vec![[v[0], v[1], v[2]]; meta.orders.len()]);
+        }
+        DiscountPolicy::EstimateOr(v) => Some(given("mkn", v, true)?),
+        _ => None,
+    };
     for o in &meta.orders {
+        let n = left_type_n(o);
         let mut ds = [0.0; 3];
         for (i, d) in ds.iter_mut().enumerate() {
-            let r = (i + 1) as u64;
-            match mkn_discount(o, r) {
-                Ok(v) => *d = v,
-                Err(why) => match fb {
-                    Some(f) => {
+            let why = match discount::modified(n, i + 1, "left-type") {
+                Ok(v) => {
+                    *d = v;
+                    continue;
+                }
+                Err(why) => why,
+            };
+            let name = modified_name(i + 1);
+            *d = match (policy, &instead) {
+                (_, Some(v)) => {
+                    notes.push(format!(
+                        "mkn: order {}: {why}; the given {name} = {} takes its place (--discounts {policy})",
+                        o.order, v[i]
+                    ));
+                    v[i]
+                }
+                (DiscountPolicy::EstimateOrSingle, None) => match discount::single(n, "left-type") {
+                    Ok(s) => {
                         notes.push(format!(
-                            "mkn: order {}: {why}; using the fallback D{} = {}",
-                            o.order,
-                            dname(r),
-                            f[i]
+                            "mkn: order {}: {why}; this order's single discount D = n1/(n1 + 2 n2) = {s:.6} takes its place (--discounts estimate refuses instead)",
+                            o.order
                         ));
-                        *d = f[i];
+                        s
                     }
-                    None => {
+                    Err(also) => {
                         return Err(Error::Config(format!(
-                            "mkn: order {}: {why}; give --fallback-discounts D1,D2,D3+ to use fixed discounts where the data leave one undefined",
+                            "mkn: order {}: {why}, and so does the single discount: {also}; give the discounts to use with --discounts estimate-or:D1,D2,D3+ or fixed:D1,D2,D3+",
                             o.order
                         )))
                     }
                 },
-            }
+                _ => {
+                    return Err(Error::Config(format!(
+                        "mkn: order {}: {why}; --discounts estimate takes discounts only from the counts: choose estimate-or-single (this order's single discount in its place) or estimate-or:D1,D2,D3+",
+                        o.order
+                    )))
+                }
+            };
         }
         out.push(ds);
     }
     Ok(out)
 }
 
-fn dname(r: u64) -> String {
-    if r >= 3 {
-        "3+".into()
-    } else {
-        r.to_string()
-    }
-}
-
-/// D_r (r = 1, 2, 3 for 3+) of Chen & Goodman (1998) from the adjusted
-/// count-of-counts of one order, or why it is undefined or out of range.
-pub fn mkn_discount(o: &OrderStats, r: u64) -> std::result::Result<f64, String> {
-    let n = |i: u64| o.adjusted(i);
-    let need = [1, 2, r, r + 1];
-    if let Some(&z) = need.iter().find(|&&i| n(i) == 0) {
-        return Err(format!(
-            "the discount D{} is undefined: the adjusted count-of-count n{z} is 0 (n1 = {}, n2 = {}, n3 = {}, n4 = {})",
-            dname(r),
-            n(1),
-            n(2),
-            n(3),
-            n(4)
-        ));
-    }
-    let (n1, n2) = (n(1) as f64, n(2) as f64);
-    let y = n1 / (n1 + 2.0 * n2);
-    let rf = r as f64;
-    let d = rf - (rf + 1.0) * y * n(r + 1) as f64 / n(r) as f64;
-    if d > 0.0 && d <= rf {
-        Ok(d)
-    } else {
-        Err(format!(
-            "the discount D{} = {d:.6} is outside (0, {r}] (adjusted n1 = {}, n2 = {}, n3 = {}, n4 = {})",
-            dname(r),
-            n(1),
-            n(2),
-            n(3),
-            n(4)
-        ))
-    }
-}
-
 /// The single discount of every order, D = n1/(n1 + 2 n2), from the
-/// adjusted (`kn`) or raw (`absolute`) count-of-counts, checked; the first
-/// fallback value replaces an undefined one.
-pub fn single_discounts_checked(
+/// left-type (`kn`) or raw (`absolute`) count-of-counts, under `policy`
+/// (given values: the first one).
+pub fn single_discounts(
     meta: &StoreMeta,
     raw: bool,
-    fallback: Option<&[f64]>,
+    policy: &DiscountPolicy,
     notes: &mut Vec<String>,
 ) -> Result<Vec<f64>> {
     let name = if raw { "absolute" } else { "kn" };
-    let fb = fallback.and_then(|f| f.first().copied());
-    if let Some(f) = fb {
-        if !(f > 0.0 && f <= 1.0) {
-            return Err(Error::Config(format!(
-                "{name}: fallback discount {f} is outside (0, 1]"
-            )));
+    let instead = match policy {
+        DiscountPolicy::Fixed(v) => {
+            return Ok(vec![given(name, v, false)?[0]; meta.orders.len()]);
         }
-    }
+        DiscountPolicy::EstimateOr(v) => Some(given(name, v, false)?[0]),
+        _ => None,
+    };
     let mut out = Vec::new();
     for o in &meta.orders {
-        match single_discount(o, raw) {
-            Ok(d) => out.push(d),
-            Err(why) => match fb {
-                Some(f) => {
-                    notes.push(format!(
-                        "{name}: order {}: {why}; using the fallback D = {f}",
-                        o.order
-                    ));
-                    out.push(f);
-                }
-                None => {
-                    return Err(Error::Config(format!(
-                        "{name}: order {}: {why}; give --fallback-discounts D to use a fixed discount where the data leave it undefined",
-                        o.order
-                    )))
-                }
-            },
+        let r = if raw {
+            discount::single(raw_n(o), "raw")
+        } else {
+            discount::single(left_type_n(o), "left-type")
+        };
+        match (r, instead) {
+            (Ok(d), _) => out.push(d),
+            (Err(why), Some(f)) => {
+                notes.push(format!(
+                    "{name}: order {}: {why}; the given D = {f} takes its place (--discounts {policy})",
+                    o.order
+                ));
+                out.push(f);
+            }
+            (Err(why), None) => {
+                return Err(Error::Config(format!(
+                    "{name}: order {}: {why}; give the discount to use with --discounts estimate-or:D or fixed:D",
+                    o.order
+                )))
+            }
         }
     }
     Ok(out)
-}
-
-/// The single discount D = n1/(n1 + 2 n2) of one order from its adjusted
-/// (`raw` false) or raw count-of-counts, or why it is undefined.
-pub fn single_discount(o: &OrderStats, raw: bool) -> std::result::Result<f64, String> {
-    let (n1, n2) = if raw {
-        (o.raw(1), o.raw(2))
-    } else {
-        (o.adjusted(1), o.adjusted(2))
-    };
-    let kind = if raw { "raw" } else { "adjusted" };
-    if n1 == 0 || n2 == 0 {
-        Err(format!(
-            "the discount is undefined: the {kind} count-of-counts are n1 = {n1}, n2 = {n2}"
-        ))
-    } else {
-        Ok(n1 as f64 / (n1 as f64 + 2.0 * n2 as f64))
-    }
 }
 
 /// `mkn` over the levels of one prediction.
@@ -220,7 +207,7 @@ pub(crate) fn mkn(d: &[[f64; 3]], levels: &[Level], v: f64) -> f64 {
     p
 }
 
-/// `kn` (adjusted counts) or `absolute` (`raw`) over the levels of one
+/// `kn` (left-type counts) or `absolute` (`raw`) over the levels of one
 /// prediction.
 pub(crate) fn kn(d: &[f64], levels: &[Level], v: f64, raw: bool) -> f64 {
     let mut p = 1.0 / v;

@@ -12,10 +12,10 @@ use crate::error::{Error, Result};
 #[serde(rename_all = "kebab-case")]
 pub enum Method {
     /// Interpolated modified Kneser-Ney (Chen & Goodman 1998): three
-    /// discounts per order over adjusted counts.
+    /// discounts per order over left-type counts.
     Mkn,
     /// Interpolated Kneser-Ney with one discount per order (Ney, Essen &
-    /// Kneser 1994) over adjusted counts.
+    /// Kneser 1994) over left-type counts.
     Kn,
     /// Interpolated absolute discounting (Ney, Essen & Kneser 1994) over raw
     /// counts.

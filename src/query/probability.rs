@@ -32,7 +32,7 @@ pub struct Prob {
 pub(crate) struct Level {
     /// Raw count c(h_j w).
     pub c: u64,
-    /// Adjusted count a(h_j w).
+    /// Left-type count a(h_j w).
     pub a: u64,
     /// Statistics of h_j (`None`: h_j has no children).
     pub ctx: Option<ContextStats>,
@@ -127,7 +127,7 @@ impl Estimator<'_> {
                     let ca = g.map_or((0, 0), |r| {
                         (
                             r.count,
-                            self.adjusted(r.count, r.continuation, full[nl - 1 - j]),
+                            self.left_type(r.count, r.continuation, full[nl - 1 - j]),
                         )
                     });
                     (ca, CtxInfo::of(h))

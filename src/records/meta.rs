@@ -97,31 +97,3 @@ pub struct GrowthCurve {
     /// (T, types).
     pub points: Vec<(u64, u64)>,
 }
-
-/// Modified Kneser-Ney discounts of one order.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
-pub struct MknDiscounts {
-    /// D1.
-    pub d1: f64,
-    /// D2.
-    pub d2: f64,
-    /// D3+.
-    pub d3plus: f64,
-}
-
-/// The discounts of Chen & Goodman (1998) from adjusted count-of-counts:
-/// Y = n1/(n1 + 2 n2), D1 = 1 − 2Y n2/n1, D2 = 2 − 3Y n3/n2,
-/// D3+ = 3 − 4Y n4/n3. `None` where any of n1..n4 is 0: the data then
-/// leave at least one of the three undefined or degenerate.
-pub fn mkn_discounts(o: &OrderStats) -> Option<MknDiscounts> {
-    let [n1, n2, n3, n4] = [1, 2, 3, 4].map(|r| o.adjusted(r) as f64);
-    if n1 == 0.0 || n2 == 0.0 || n3 == 0.0 || n4 == 0.0 {
-        return None;
-    }
-    let y = n1 / (n1 + 2.0 * n2);
-    Some(MknDiscounts {
-        d1: 1.0 - 2.0 * y * n2 / n1,
-        d2: 2.0 - 3.0 * y * n3 / n2,
-        d3plus: 3.0 - 4.0 * y * n4 / n3,
-    })
-}

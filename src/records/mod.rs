@@ -17,8 +17,5 @@
 mod meta;
 mod partition;
 
-pub use meta::{
-    mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
-    STORE_VERSION,
-};
+pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
 pub use partition::{store_meta, ContextStats, Joined, Merged, PartitionStats, ReadTotals};

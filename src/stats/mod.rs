@@ -27,7 +27,12 @@ pub use fits::PowerFit;
 pub use tables::{order_report, OrderReport};
 
 /// Version of the report's JSON schema (README.md, "Statistics").
-pub const REPORT_SCHEMA: u32 = 1;
+///
+/// 2: `count_of_counts.adjusted` became `count_of_counts.left_type` (the
+/// TSV/CSV section `coc_adjusted` became `coc_left_type`), the earlier
+/// `mkn_discounts` object was dropped (`discounts` holds each discount with
+/// why it is unusable), and a discount's reason is worded anew.
+pub const REPORT_SCHEMA: u32 = 2;
 
 /// Settings the store was built with.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -128,7 +133,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
             let mut r = order_report(o, opts.katz_k);
             if let Some(m) = opts.max_count {
                 r.count_of_counts.raw.retain(|e| e.0 <= m);
-                r.count_of_counts.adjusted.retain(|e| e.0 <= m);
+                r.count_of_counts.left_type.retain(|e| e.0 <= m);
             }
             r
         })

@@ -1,6 +1,6 @@
 //! Figures of one or more reports, drawn with the `plotters` crate: per
 //! store a row of three log-log panels: the count-of-counts of every order
-//! (raw and adjusted), the rank-frequency curve with Zipf's fit, and the
+//! (raw and left-type), the rank-frequency curve with Zipf's fit, and the
 //! vocabulary growth with Heaps' fit. With several stores the axes are
 //! shared, so rows can be compared by eye.
 //!
@@ -14,7 +14,7 @@
 //! Colours are the eight of Okabe & Ito (2008), "Color Universal Design",
 //! chosen to stay distinct for the common kinds of colour blindness; every
 //! order also has its own marker shape, and raw counts are solid lines with
-//! filled markers, adjusted counts dashed lines with hollow markers, so the
+//! filled markers, left-type counts dashed lines with hollow markers, so the
 //! figure reads in grey too. Fits are dashed black lines.
 //!
 //! `.svg` files are written by the SVG backend (text as `<text>`, no font
@@ -118,7 +118,7 @@ fn ranges(reports: &[(&str, &Report)]) -> Ranges {
                 .count_of_counts
                 .raw
                 .iter()
-                .chain(&o.count_of_counts.adjusted)
+                .chain(&o.count_of_counts.left_type)
             {
                 r.coc.1 = r.coc.1.max(c as f64);
                 r.coc.2 = r.coc.2.max(n as f64);
@@ -310,8 +310,8 @@ where
                 PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(2))
             });
         marker(&mut c, o.order, &raw, colour, true)?;
-        if o.order > 1 || o.count_of_counts.adjusted != o.count_of_counts.raw {
-            let adj = binned_spectrum(&o.count_of_counts.adjusted);
+        if o.order > 1 || o.count_of_counts.left_type != o.count_of_counts.raw {
+            let adj = binned_spectrum(&o.count_of_counts.left_type);
             c.draw_series(DashedLineSeries::new(
                 adj.clone(),
                 8,
@@ -319,7 +319,7 @@ where
                 colour.stroke_width(2),
             ))
             .map_err(s)?
-            .label(format!("order {} adjusted", o.order))
+            .label(format!("order {} left-type", o.order))
             .legend(move |(x, y)| {
                 PathElement::new(vec![(x, y), (x + 8, y)], colour.stroke_width(2))
             });

@@ -2,9 +2,10 @@
 
 use serde::Serialize;
 
+use crate::discount::{modified, single, Unusable};
 use crate::query::katz::usable_k;
-use crate::query::kneser_ney::{mkn_discount, single_discount};
-use crate::store::{mkn_discounts, MknDiscounts, OrderStats};
+use crate::query::kneser_ney::left_type_n;
+use crate::store::OrderStats;
 
 /// A discount, or why the data leave it unusable.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -16,7 +17,7 @@ pub struct Discount {
 }
 
 impl Discount {
-    fn from(r: std::result::Result<f64, String>) -> Discount {
+    fn from(r: std::result::Result<f64, Unusable>) -> Discount {
         match r {
             Ok(v) => Discount {
                 value: Some(v),
@@ -24,13 +25,14 @@ impl Discount {
             },
             Err(e) => Discount {
                 value: None,
-                undefined: Some(e),
+                undefined: Some(e.to_string()),
             },
         }
     }
 }
 
-/// The discounts of one order from its adjusted count-of-counts.
+/// The discounts of one order from its left-type count-of-counts
+/// ([`crate::discount`], the definition the estimators use).
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Discounts {
     /// Modified Kneser-Ney D1 (Chen & Goodman 1998).
@@ -78,8 +80,9 @@ pub struct GoodTuring {
 pub struct Spectra {
     /// `(r, n_r)` over raw counts, r ascending.
     pub raw: Vec<(u64, u64)>,
-    /// `(r, n_r)` over adjusted (continuation) counts.
-    pub adjusted: Vec<(u64, u64)>,
+    /// `(r, n_r)` over left-type counts (continuation counts below the top
+    /// order, raw counts at it and for n-grams that start with `<s>`).
+    pub left_type: Vec<(u64, u64)>,
 }
 
 /// Everything reported of one order.
@@ -95,9 +98,6 @@ pub struct OrderReport {
     pub singleton_share: Option<f64>,
     /// The spectra (possibly cut at `--max-count`).
     pub count_of_counts: Spectra,
-    /// The three modified Kneser-Ney discounts together, `None` if any of
-    /// adjusted n1..n4 is 0 (kept from the first version of this report).
-    pub mkn_discounts: Option<MknDiscounts>,
     /// Each discount on its own, with why it is unusable.
     pub discounts: Discounts,
     /// Good-Turing and Katz.
@@ -109,6 +109,7 @@ pub fn order_report(o: &OrderStats, katz_k: usize) -> OrderReport {
     let total: u64 = o.coc_raw.iter().map(|e| e.1).sum();
     let n1 = o.raw(1);
     let (k_used, d, note) = usable_k(o, katz_k);
+    let n = left_type_n(o);
     let rows = (1..=katz_k as u64)
         .map(|r| {
             let (nr, nn) = (o.raw(r), o.raw(r + 1));
@@ -128,14 +129,13 @@ pub fn order_report(o: &OrderStats, katz_k: usize) -> OrderReport {
         singleton_share: (total > 0).then(|| n1 as f64 / total as f64),
         count_of_counts: Spectra {
             raw: o.coc_raw.clone(),
-            adjusted: o.coc_adjusted.clone(),
+            left_type: o.coc_adjusted.clone(),
         },
-        mkn_discounts: mkn_discounts(o),
         discounts: Discounts {
-            d1: Discount::from(mkn_discount(o, 1)),
-            d2: Discount::from(mkn_discount(o, 2)),
-            d3plus: Discount::from(mkn_discount(o, 3)),
-            kn: Discount::from(single_discount(o, false)),
+            d1: Discount::from(modified(n, 1, "left-type")),
+            d2: Discount::from(modified(n, 2, "left-type")),
+            d3plus: Discount::from(modified(n, 3, "left-type")),
+            kn: Discount::from(single(n, "left-type")),
         },
         good_turing: GoodTuring {
             k_requested: katz_k,
@@ -150,7 +150,7 @@ pub fn order_report(o: &OrderStats, katz_k: usize) -> OrderReport {
 mod tests {
     use super::*;
 
-    /// Hand-worked: raw n1..n4 = 10, 4, 2, 1; adjusted n1..n3 = 6, 3, 0.
+    /// Hand-worked: raw n1..n4 = 10, 4, 2, 1; left-type n1..n3 = 6, 3, 0.
     #[test]
     fn tables_by_hand() {
         let o = OrderStats {
@@ -171,7 +171,7 @@ mod tests {
         let d1 = r.good_turing.rows[0].katz_d.unwrap();
         let d2 = r.good_turing.rows[1].katz_d.unwrap();
         assert!((d1 - 0.5).abs() < 1e-12 && (d2 - 0.375).abs() < 1e-12);
-        // Adjusted: Y = 6/12 = 0.5; D1 = 1 − 2·0.5·3/6 = 0.5; D2 needs n3 = 0
+        // Left-type: Y = 6/12 = 0.5; D1 = 1 − 2·0.5·3/6 = 0.5; D2 needs n3 = 0
         // → undefined, and so D3+; single D = 0.5.
         assert_eq!(r.discounts.d1.value, Some(0.5));
         assert!(r.discounts.d2.value.is_none());
@@ -181,9 +181,8 @@ mod tests {
             .undefined
             .as_ref()
             .unwrap()
-            .contains("n3 is 0"));
+            .contains("left-type n3 = 0"));
         assert!(r.discounts.d3plus.value.is_none());
         assert_eq!(r.discounts.kn.value, Some(0.5));
-        assert!(r.mkn_discounts.is_none());
     }
 }

@@ -14,10 +14,7 @@ pub mod build;
 pub mod keys;
 pub mod ranks;
 
-pub use crate::records::{
-    mkn_discounts, GrowthCurve, MknDiscounts, OrderStats, Settings, StoreMeta, Totals,
-    STORE_VERSION,
-};
+pub use crate::records::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
 pub use keys::{ContextStats, NgramRecord};
 pub use ranks::Ranks;
 

@@ -60,12 +60,12 @@ fn sorted(v: &[&str]) -> Vec<String> {
 ///   <unk> on, on </s>, <s> <unk>, <unk> mat, mat <unk>, <unk> </s>,
 ///   <s> BAD_DOG, BAD_DOG </s>.
 /// Contexts: "" has children The cat </s> sat <unk> on mat BAD_DOG with raw
-///   1 1 4 1 3 1 1 1 (C 13) and adjusted 1 1 4 1 3 1 1 1 (A 13): T 8, N1 6,
+///   1 1 4 1 3 1 1 1 (C 13) and left-type 1 1 4 1 3 1 1 1 (A 13): T 8, N1 6,
 ///   N2 0, N3+ 2. <s>: 4 bigrams of count 1: 4 4 4 4 0 0. <unk>: on, mat,
 ///   </s>: 3 3 3 3 0 0. The, cat, sat, on, mat, BAD_DOG: 1 1 1 1 0 0.
 /// Totals: 4 sentences; tokens 9 words + 4 </s> = 13; types 8; vocabulary 8
 ///   (<unk> seen); marker_tokens 3; invalid_utf8_lines 1; skipped_lines 0.
-/// Count-of-counts order 1: raw = adjusted = {1:6, 3:1, 4:1}; order 2:
+/// Count-of-counts order 1: raw = left-type = {1:6, 3:1, 4:1}; order 2:
 ///   {1:13}. n-grams: 9 unigrams (with <s>), 13 bigrams.
 #[test]
 fn mixed_tiny_input_hand_computed() {
@@ -142,12 +142,12 @@ fn mixed_tiny_input_hand_computed() {
     assert_eq!(stats["orders"][1]["ngrams"], 13, "bigrams (hand computed)");
     assert_eq!(
         stats["orders"][0]["count_of_counts"],
-        serde_json::json!({"raw": [[1, 6], [3, 1], [4, 1]], "adjusted": [[1, 6], [3, 1], [4, 1]]}),
+        serde_json::json!({"raw": [[1, 6], [3, 1], [4, 1]], "left_type": [[1, 6], [3, 1], [4, 1]]}),
         "order 1 count-of-counts (hand computed)"
     );
     assert_eq!(
         stats["orders"][1]["count_of_counts"],
-        serde_json::json!({"raw": [[1, 13]], "adjusted": [[1, 13]]}),
+        serde_json::json!({"raw": [[1, 13]], "left_type": [[1, 13]]}),
         "order 2 count-of-counts (hand computed)"
     );
 
@@ -339,7 +339,7 @@ fn stats_json_fields_present() {
     for (i, o) in orders.iter().enumerate() {
         assert_eq!(o["order"], i as u64 + 1);
         assert!(o["ngrams"].is_u64(), "orders[{i}].ngrams: {o}");
-        for kind in ["raw", "adjusted"] {
+        for kind in ["raw", "left_type"] {
             let list = o["count_of_counts"][kind]
                 .as_array()
                 .unwrap_or_else(|| panic!("orders[{i}].count_of_counts.{kind}: {o}"));
@@ -354,19 +354,14 @@ fn stats_json_fields_present() {
             }
         }
         let d = o
-            .get("mkn_discounts")
-            .unwrap_or_else(|| panic!("orders[{i}].mkn_discounts missing: {o}"));
-        assert!(
-            d.is_null() || d.is_object(),
-            "orders[{i}].mkn_discounts: {d}"
-        );
-        if d.is_object() {
-            for k in ["d1", "d2", "d3plus"] {
-                assert!(
-                    d.get(k).is_some(),
-                    "orders[{i}].mkn_discounts.{k} missing: {d}"
-                );
-            }
+            .get("discounts")
+            .unwrap_or_else(|| panic!("orders[{i}].discounts missing: {o}"));
+        for k in ["d1", "d2", "d3plus", "kn"] {
+            let x = &d[k];
+            assert!(
+                x["value"].is_number() != x["undefined"].is_string(),
+                "orders[{i}].discounts.{k}: a value or a reason: {d}"
+            );
         }
     }
 
@@ -407,4 +402,85 @@ fn one_huge_sentence_overflowing_the_table() {
     ingest_ok(&store, &args, std::slice::from_ref(&input));
     let expected = Reference::from_paths(Settings::order(4), std::slice::from_ref(&input)).view();
     assert_views_eq("huge sentence", &expected, &store_view(&store));
+}
+
+/// The first hour on the demo corpus: `mkn` is the default method and runs
+/// although the counts put order 2's D3+ out of range (left-type n1..n4 =
+/// 2050, 243, 95, 96, so D3+ = 3 − 4·(2050/2536)·(96/95) < 0 by Chen &
+/// Goodman's formula); a note names it and the single discount used
+/// instead, D = 2050/2536 (Ney, Essen & Kneser). The strict policy refuses.
+/// `dump` and `ngrams` start with their header line, and `--no-header`
+/// leaves exactly the rows.
+#[test]
+fn demo_corpus_default_method_and_headers() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("ferry");
+    let demo = crate::common::fixtures().join("demo").join("ferry-log.txt");
+    ingest_ok(&store, &["--order", "3", "--quiet"], std::slice::from_ref(&demo));
+    let s = store.display().to_string();
+    let r = run_ok(&["prob", "--store", &s, "<s>", "Guillemot", "departed"]);
+    assert!(
+        r.stdout.starts_with("<s> Guillemot departed\t"),
+        "{}",
+        r.stdout
+    );
+    assert!(
+        r.stderr.contains("mkn: order 2: D3+ would be -0.26")
+            && r.stderr
+                .contains(&format!("D = n1/(n1 + 2 n2) = {:.6}", 2050.0 / 2536.0)),
+        "{}",
+        r.stderr
+    );
+    let r = run(&[
+        "prob",
+        "--store",
+        &s,
+        "--discounts",
+        "estimate",
+        "<s>",
+        "Guillemot",
+    ]);
+    r.assert_failure();
+    assert!(
+        r.stderr.contains("order 2") && r.stderr.contains("D3+"),
+        "{}",
+        r.stderr
+    );
+
+    let with = run_ok(&["dump", "--store", &s, "--order", "2"]).stdout;
+    let without = run_ok(&["dump", "--store", &s, "--order", "2", "--no-header"]).stdout;
+    assert_eq!(with, format!("ngram\tcount\tcontinuation\n{without}"));
+    let ctx = run_ok(&["dump", "--store", &s, "--contexts", "--order", "0"]).stdout;
+    let lines: Vec<&str> = ctx.lines().collect();
+    assert_eq!(lines[0], "context\tC\tT\tA\tN1\tN2\tN3+");
+    // The empty context: C = every token (the words and one </s> per
+    // sentence), T = the distinct ones; counted here with the standard
+    // library's split_whitespace (the demo corpus holds no marker tokens).
+    let text = std::fs::read_to_string(&demo).unwrap();
+    let sentences: Vec<Vec<&str>> = text
+        .lines()
+        .map(|l| l.split_whitespace().collect::<Vec<_>>())
+        .filter(|w| !w.is_empty())
+        .collect();
+    let tokens: usize = sentences.iter().map(|w| w.len() + 1).sum();
+    let types = sentences
+        .iter()
+        .flatten()
+        .collect::<std::collections::HashSet<_>>()
+        .len()
+        + 1;
+    assert!(
+        lines[1].starts_with(&format!("\t{tokens}\t{types}\t")),
+        "{} (tokens {tokens}, types {types})",
+        lines[1]
+    );
+    assert_eq!(lines.len(), 2);
+    let r = run(&["dump", "--store", &s, "--contexts", "--order", "3"]);
+    r.assert_failure();
+    assert!(r.stderr.contains("at most 2 words"), "{}", r.stderr);
+    let page = run_ok(&["ngrams", "--store", &s, "--method", "kn", "Guillemot"]).stdout;
+    assert!(
+        page.starts_with("ngram\tcount\tcontinuation\tprobability\tlog10\n"),
+        "{page}"
+    );
 }

@@ -216,7 +216,7 @@ fn order_ids_and_bad_lines_are_kept_and_any_thread_count_gives_the_same_output()
     assert!(r.stdout == text1, "standard input changed the output");
     // The summary counts the bad lines.
     assert!(
-        r.stderr.contains(&format!("{bad} bad lines")),
+        r.stderr.contains(&format!("{bad} bad lines,")),
         "{}",
         r.stderr
     );
@@ -242,15 +242,15 @@ fn document_scores_equal_plain_score_runs() {
         .sum();
     let l: f64 = docs
         .iter()
-        .map(|(o, _)| o["log10_prob"].as_f64().unwrap())
+        .map(|(o, _)| o["log10_sum"].as_f64().unwrap())
         .sum();
-    let oov: u64 = docs.iter().map(|(o, _)| o["oov"].as_u64().unwrap()).sum();
+    let oov: u64 = docs.iter().map(|(o, _)| o["outside_vocabulary"].as_u64().unwrap()).sum();
     assert_eq!(n, plain["predictions"].as_u64().unwrap());
-    assert_eq!(oov, plain["oov"].as_u64().unwrap());
+    assert_eq!(oov, plain["outside_vocabulary"].as_u64().unwrap());
     assert!(
-        close(l, plain["log10_prob"].as_f64().unwrap()),
+        close(l, plain["log10_sum"].as_f64().unwrap()),
         "{l} vs {}",
-        plain["log10_prob"]
+        plain["log10_sum"]
     );
     // Single documents: perplexity of the document = `score` of its text.
     for k in [0, 7, 100, docs.len() - 1] {
@@ -327,12 +327,12 @@ fn two_model_score_equals_two_separate_runs() {
         }
         let n = x["predictions"].as_f64().unwrap();
         // Moore & Lewis (2010): H_I(s) - H_O(s), H = -log10 P / n.
-        let want = -x["log10_prob"].as_f64().unwrap() / n + y["log10_prob"].as_f64().unwrap() / n;
+        let want = -x["log10_sum"].as_f64().unwrap() / n + y["log10_sum"].as_f64().unwrap() / n;
         let got = z["ce_difference"].as_f64().unwrap();
         assert!(close(got, want), "line {}: {got} vs {want}", x["line"]);
         assert_eq!(z["perplexity"], x["perplexity"]);
         assert_eq!(z["general"]["perplexity"], y["perplexity"]);
-        assert_eq!(z["general"]["oov"], y["oov"]);
+        assert_eq!(z["general"]["outside_vocabulary"], y["outside_vocabulary"]);
         checked += 1;
     }
     assert!(checked > 300);
@@ -470,9 +470,9 @@ fn compressed_inputs_lines_format_and_words() {
         let w = o["words"].as_array().unwrap();
         assert_eq!(w.len() as u64, o["predictions"].as_u64().unwrap());
         let sum: f64 = w.iter().map(|x| x[1].as_f64().unwrap()).sum();
-        assert!(close(sum, o["log10_prob"].as_f64().unwrap()));
+        assert!(close(sum, o["log10_sum"].as_f64().unwrap()));
         let oov = w.iter().filter(|x| x[3] == json!(true)).count() as u64;
-        assert_eq!(oov, o["oov"].as_u64().unwrap());
+        assert_eq!(oov, o["outside_vocabulary"].as_u64().unwrap());
         assert_eq!(w.last().unwrap()[0], json!("</s>"));
         let tokens: Vec<&str> = some[i].split_whitespace().collect();
         let got: Vec<&str> = w[..w.len() - 1]
@@ -565,12 +565,12 @@ fn spark_driver_in_local_mode_equals_single_machine() {
     for k in ["lines", "documents", "bad_lines", "empty_documents"] {
         assert_eq!(merged[k], single[k], "{k}");
     }
-    for k in ["sentences", "predictions", "oov", "zero"] {
+    for k in ["sentences", "predictions", "outside_vocabulary", "probability_zero"] {
         assert_eq!(merged["totals"][k], single["totals"][k], "{k}");
     }
     assert!(close(
-        merged["totals"]["log10_nonzero"].as_f64().unwrap(),
-        single["totals"]["log10_nonzero"].as_f64().unwrap()
+        merged["totals"]["log10_sum_nonzero"].as_f64().unwrap(),
+        single["totals"]["log10_sum_nonzero"].as_f64().unwrap()
     ));
     let (md, sd) = (&merged["distribution"], &single["distribution"]);
     assert_eq!(md["count"], sd["count"]);

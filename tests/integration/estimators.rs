@@ -18,18 +18,18 @@
 //! Bigram counts: <s>a 1, <s>c 3, a</s> 2, cc 2, cb 1, c</s> 1, ca 1, b</s> 1.
 //! Continuation counts N1+(•w) (distinct left neighbours): a {<s>, c} = 2,
 //! b {c} = 1, c {<s>, c} = 2, </s> {a, b, c} = 3. At N = 2 the unigrams'
-//! adjusted counts are these, the bigrams' their raw counts.
+//! left-type counts are these, the bigrams' their raw counts.
 //! Context statistics (C, T, A, N1, N2, N3+):
 //!   root  12, 4, 8, 1, 2, 1      [<s>]  4, 2, 4, 1, 0, 1
 //!   [c]    5, 4, 5, 3, 1, 0      [a]    2, 1, 2, 0, 1, 0     [b] 1, 1, 1, 1, 0, 0
 //! Count-of-counts: order 1 raw n1 = 1, n2 = 1, n4 = 1, n5 = 1; order 1
-//! adjusted n1 = 1, n2 = 2, n3 = 1; order 2 (raw = adjusted) n1 = 5, n2 = 2,
+//! left-type n1 = 1, n2 = 2, n3 = 1; order 2 (raw = left-type) n1 = 5, n2 = 2,
 //! n3 = 1.
 
 use std::path::PathBuf;
 use std::sync::OnceLock;
 
-use quern::query::{query_ids, Estimator, Method, Params};
+use quern::query::{query_ids, DiscountPolicy, Estimator, Method, Params};
 use quern::store::{ContextStats, OrderStats, Store};
 
 use crate::common::ingest_ok;
@@ -119,22 +119,46 @@ fn the_tiny_store_holds_the_hand_counts() {
 #[test]
 fn mkn_by_hand() {
     let s = Store::open(tiny()).unwrap();
-    // n4 = 0 at both orders: D3+ is undefined, and without fallbacks the
-    // method refuses, naming the order.
-    let err = Estimator::new(&s, Method::Mkn, Params::default())
+    // n4 = 0 at both orders: D3+ is undefined, and the strict policy
+    // refuses, naming the order.
+    let strict = Params {
+        discounts: DiscountPolicy::Estimate,
+        ..Params::default()
+    };
+    let err = Estimator::new(&s, Method::Mkn, strict)
         .err()
-        .expect("mkn must refuse an undefined D3+")
+        .expect("mkn must refuse an undefined D3+ under --discounts estimate")
         .to_string();
-    assert!(err.contains("order 1") && err.contains("D3+"), "{err}");
+    assert!(
+        err.contains("order 1") && err.contains("D3+") && err.contains("n4 = 0"),
+        "{err}"
+    );
+    // The default policy puts the order's single discount n1/(n1 + 2 n2)
+    // in D3+'s place (order 1: 1/5, order 2: 5/9, as in the kn test) and
+    // says so, once per order.
+    let e = est(&s, Method::Mkn, Params::default());
+    assert_eq!(e.notes().len(), 2, "{:?}", e.notes());
+    assert!(e.notes()[0].contains("order 1") && e.notes()[0].contains("single discount"));
+    let c = e.constants();
+    close(
+        c["discounts"][0][2].as_f64().unwrap(),
+        1.0 / 5.0,
+        "D3+ of order 1 (default)",
+    );
+    close(
+        c["discounts"][1][2].as_f64().unwrap(),
+        5.0 / 9.0,
+        "D3+ of order 2 (default)",
+    );
     let params = Params {
-        fallback_discounts: Some(vec![0.7, 1.2, 1.4]),
+        discounts: DiscountPolicy::EstimateOr(vec![0.7, 1.2, 1.4]),
         ..Params::default()
     };
     let e = est(&s, Method::Mkn, params);
-    // The fallback is used for D3+ only, at both orders, and reported.
+    // The given values are used for D3+ only, at both orders, and reported.
     assert_eq!(e.notes().len(), 2, "{:?}", e.notes());
-    // Order 1 (adjusted n1 = 1, n2 = 2, n3 = 1): Y = 1/5, D1 = 1 − 2·(1/5)·2 = 0.2,
-    // D2 = 2 − 3·(1/5)·(1/2) = 1.7, D3+ = 1.4 (fallback).
+    // Order 1 (left-type n1 = 1, n2 = 2, n3 = 1): Y = 1/5, D1 = 1 − 2·(1/5)·2 = 0.2,
+    // D2 = 2 − 3·(1/5)·(1/2) = 1.7, D3+ = 1.4 (given).
     let y1 = 1.0 / 5.0;
     let (d1, d2, d3) = (1.0 - 2.0 * y1 * 2.0, 2.0 - 3.0 * y1 * 1.0 / 2.0, 1.4);
     close(d1, 0.2, "D1 of order 1");
@@ -160,7 +184,7 @@ fn mkn_by_hand() {
         "an OOV word is scored as <unk>",
     );
     // Order 2 (n1 = 5, n2 = 2, n3 = 1): Y = 5/9, D1 = 1 − 2·(5/9)·(2/5) = 5/9,
-    // D2 = 2 − 3·(5/9)·(1/2) = 7/6, D3+ = 1.4 (fallback).
+    // D2 = 2 − 3·(5/9)·(1/2) = 7/6, D3+ = 1.4 (given).
     let y2 = 5.0 / 9.0;
     let (e1, e2, e3) = (1.0 - 2.0 * y2 * 2.0 / 5.0, 2.0 - 3.0 * y2 / 2.0, 1.4);
     close(e1, 5.0 / 9.0, "D1 of order 2");
@@ -183,13 +207,13 @@ fn mkn_by_hand() {
 }
 
 /// Kneser-Ney with one discount per order, Ney, Essen & Kneser (1994):
-/// D = n1/(n1 + 2 n2) over adjusted counts; absolute discounting (the same
+/// D = n1/(n1 + 2 n2) over left-type counts; absolute discounting (the same
 /// paper) with raw counts.
 #[test]
 fn kn_and_absolute_by_hand() {
     let s = Store::open(tiny()).unwrap();
     let e = est(&s, Method::Kn, Params::default());
-    // Adjusted: order 1 n1 = 1, n2 = 2 → D = 1/5; order 2 n1 = 5, n2 = 2 → 5/9.
+    // Left-type: order 1 n1 = 1, n2 = 2 → D = 1/5; order 2 n1 = 5, n2 = 2 → 5/9.
     let (d1, d2) = (1.0 / 5.0, 5.0 / 9.0);
     let p1 = |a: f64| (a - if a > 0.0 { d1 } else { 0.0 }) / 8.0 + d1 * 4.0 / 8.0 / V;
     close(p(&e, "a"), p1(2.0), "kn P(a)");
@@ -395,10 +419,12 @@ fn discount_formulas_on_made_up_counts() {
     };
     // Y = 6/12 = 0.5: D1 = 1 − 2·0.5·3/6 = 0.5, D2 = 2 − 3·0.5·2/3 = 1,
     // D3+ = 3 − 4·0.5·1/2 = 2.
-    use quern::query::kneser_ney::mkn_discount;
-    close(mkn_discount(&o, 1).unwrap(), 0.5, "D1");
-    close(mkn_discount(&o, 2).unwrap(), 1.0, "D2");
-    close(mkn_discount(&o, 3).unwrap(), 2.0, "D3+");
+    use quern::discount::modified;
+    use quern::query::kneser_ney::left_type_n;
+    let n = left_type_n(&o);
+    close(modified(n, 1, "left-type").unwrap(), 0.5, "D1");
+    close(modified(n, 2, "left-type").unwrap(), 1.0, "D2");
+    close(modified(n, 3, "left-type").unwrap(), 2.0, "D3+");
     // Katz, raw n1..n4 = 10, 4, 2, 1. K = 2: x = 3·2/10 = 0.6,
     // r*_1 = 2·4/10 = 0.8 → d1 = (0.8 − 0.6)/0.4 = 0.5,
     // r*_2 = 3·2/4 = 1.5 → d2 = (0.75 − 0.6)/0.4 = 0.375.
@@ -475,4 +501,38 @@ fn score_report_by_hand() {
         10f64.powf(-((0.75f64).log10() + (4.0f64 / 12.0).log10()) / 2.0),
         "mle perplexity without OOV",
     );
+}
+
+/// The statistics report (`quern stats`) and the estimators take their
+/// discounts from one function: where the report gives a value, `mkn` and
+/// `kn` use exactly that value; where the report says a modified discount
+/// is unusable, the default policy uses the report's single discount.
+#[test]
+fn stats_report_and_estimators_agree_on_discounts() {
+    let s = Store::open(tiny()).unwrap();
+    let rep = quern::stats::report(s.meta(), &quern::stats::ReportOptions::default());
+    let mkn = est(&s, Method::Mkn, Params::default()).constants();
+    let kn = est(&s, Method::Kn, Params::default()).constants();
+    let mut replaced = 0;
+    for (k, o) in rep.orders.iter().enumerate() {
+        let d = &o.discounts;
+        let single = d.kn.value.expect("the tiny corpus has n1, n2 > 0");
+        assert_eq!(
+            kn["discounts"][k].as_f64(),
+            Some(single),
+            "kn order {}",
+            k + 1
+        );
+        for (i, x) in [&d.d1, &d.d2, &d.d3plus].into_iter().enumerate() {
+            let used = mkn["discounts"][k][i].as_f64().unwrap();
+            match x.value {
+                Some(v) => assert_eq!(used, v, "order {} D{}", k + 1, i + 1),
+                None => {
+                    assert_eq!(used, single, "order {} D{}", k + 1, i + 1);
+                    replaced += 1;
+                }
+            }
+        }
+    }
+    assert!(replaced > 0, "the tiny corpus leaves D3+ undefined");
 }

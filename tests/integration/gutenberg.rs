@@ -38,10 +38,10 @@ fn check_corpus_is_big_enough(stats: &Value) {
         stats["totals"]
     );
     for o in stats["orders"].as_array().unwrap() {
-        let d = &o["mkn_discounts"];
+        let d = &o["discounts"];
         for k in ["d1", "d2", "d3plus"] {
             assert!(
-                d[k].is_number(),
+                d[k]["value"].is_number(),
                 "discount {k} undefined at order {}: {d}",
                 o["order"]
             );

@@ -64,7 +64,7 @@ mod query_next;
 mod estimators;
 
 // `tune` (add-k search, interp EM with and without buckets) lowers
-// held-out perplexity; its file round-trips through --params.
+// held-out perplexity; its file round-trips through --tuned.
 mod query_tune;
 
 // `score --jsonl`/`--lines`: order, ids and bad lines kept, any thread

@@ -137,14 +137,14 @@ fn score_json_reports_infinite_perplexity_as_null() {
     ]);
     let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
     assert!(v["perplexity"].is_null());
-    assert!(v["zero_probability"].as_u64().unwrap() > 0);
+    assert!(v["probability_zero"].as_u64().unwrap() > 0);
     let r = run_ok(&[
         "score", "--store", &store, "--method", "kn", "--json", &held,
     ]);
     let v: serde_json::Value = serde_json::from_str(&r.stdout).unwrap();
     let ppl = v["perplexity"].as_f64().unwrap();
     assert!(ppl > 1.0 && ppl.is_finite());
-    assert_eq!(v["zero_probability"], 0);
+    assert_eq!(v["probability_zero"], 0);
     assert_eq!(
         v["sentences"].as_u64().unwrap(),
         heldout_sentences().len() as u64

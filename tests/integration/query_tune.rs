@@ -118,7 +118,7 @@ fn tune_writes_params_that_score_reads_back() {
         "--method",
         "interp",
         "--json",
-        "--params",
+        "--tuned",
         &out.display().to_string(),
         &held,
     ]);
@@ -132,7 +132,7 @@ fn tune_writes_params_that_score_reads_back() {
         &store,
         "--method",
         "add-k",
-        "--params",
+        "--tuned",
         &out.display().to_string(),
         &held,
     ]);

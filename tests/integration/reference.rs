@@ -1,7 +1,7 @@
 //! Independent reference counter, written from /tmp/contract.md only.
 //!
 //! Single pass over the input into plain `HashMap<Vec<String>, u64>` tables
-//! (one per order), then everything else (continuation counts, adjusted
+//! (one per order), then everything else (continuation counts, left-type
 //! counts, context statistics, count-of-counts, totals, discounts) is derived
 //! from those tables. Readability matters more than speed here.
 
@@ -75,10 +75,10 @@ pub struct Derived {
     pub continuation: Vec<HashMap<Vec<String>, u64>>,
     /// Context statistics keyed by context (possibly empty).
     pub contexts: HashMap<Vec<String>, ContextStats>,
-    /// Per order k: raw and adjusted count-of-counts r -> n_r, unigram `<s>`
+    /// Per order k: raw and left-type count-of-counts r -> n_r, unigram `<s>`
     /// excluded.
     pub raw_coc: Vec<BTreeMap<u64, u64>>,
-    pub adjusted_coc: Vec<BTreeMap<u64, u64>>,
+    pub left_type_coc: Vec<BTreeMap<u64, u64>>,
 }
 
 impl Reference {
@@ -231,7 +231,7 @@ impl Reference {
 
         let mut contexts: HashMap<Vec<String>, ContextStats> = HashMap::new();
         let mut raw_coc: Vec<BTreeMap<u64, u64>> = (0..n).map(|_| BTreeMap::new()).collect();
-        let mut adjusted_coc: Vec<BTreeMap<u64, u64>> = (0..n).map(|_| BTreeMap::new()).collect();
+        let mut left_type_coc: Vec<BTreeMap<u64, u64>> = (0..n).map(|_| BTreeMap::new()).collect();
         for k in 1..=n {
             for (gram, &c) in &self.counts[k - 1] {
                 // Unigram `<s>` is no child of the empty context and is left
@@ -239,9 +239,9 @@ impl Reference {
                 if k == 1 && gram[0] == BOS {
                     continue;
                 }
-                let a = adjusted_of(n, &continuation, gram, c);
+                let a = left_type_of(n, &continuation, gram, c);
                 *raw_coc[k - 1].entry(c).or_insert(0) += 1;
-                *adjusted_coc[k - 1].entry(a).or_insert(0) += 1;
+                *left_type_coc[k - 1].entry(a).or_insert(0) += 1;
                 let st = contexts.entry(gram[..k - 1].to_vec()).or_default();
                 st.c += c;
                 st.t += 1;
@@ -250,7 +250,7 @@ impl Reference {
                     1 => st.n1 += 1,
                     2 => st.n2 += 1,
                     _ if a >= 3 => st.n3plus += 1,
-                    _ => panic!("adjusted count 0 for {gram:?}"),
+                    _ => panic!("left-type count 0 for {gram:?}"),
                 }
             }
         }
@@ -258,7 +258,7 @@ impl Reference {
             continuation,
             contexts,
             raw_coc,
-            adjusted_coc,
+            left_type_coc,
         }
     }
 
@@ -322,13 +322,13 @@ impl Reference {
             |m: &BTreeMap<u64, u64>| Value::Array(m.iter().map(|(r, n)| json!([r, n])).collect());
         let orders: Vec<Value> = (1..=self.settings.order)
             .map(|k| {
-                let adj = &d.adjusted_coc[k - 1];
+                let adj = &d.left_type_coc[k - 1];
                 let nr = |r: u64| adj.get(&r).copied().unwrap_or(0);
                 json!({
                     "order": k,
                     "ngrams": self.counts[k - 1].len(),
-                    "count_of_counts": {"raw": coc(&d.raw_coc[k - 1]), "adjusted": coc(adj)},
-                    "mkn_discounts": mkn_discounts(nr(1), nr(2), nr(3), nr(4)),
+                    "count_of_counts": {"raw": coc(&d.raw_coc[k - 1]), "left_type": coc(adj)},
+                    "discounts": discounts(nr(1), nr(2), nr(3), nr(4)),
                 })
             })
             .collect();
@@ -359,9 +359,9 @@ impl Reference {
     }
 }
 
-/// Adjusted count a(g) = c(g) if order(g) = N or g starts with `<s>`, else
+/// Left-type count a(g) = c(g) if order(g) = N or g starts with `<s>`, else
 /// N1+(. g).
-fn adjusted_of(
+fn left_type_of(
     n: usize,
     continuation: &[HashMap<Vec<String>, u64>],
     gram: &[String],
@@ -374,25 +374,39 @@ fn adjusted_of(
     }
 }
 
-/// Modified Kneser-Ney discounts from adjusted n1..n4 (contract formulas):
-/// Y = n1/(n1+2 n2); D1 = 1 - 2Y n2/n1; D2 = 2 - 3Y n3/n2;
-/// D3+ = 3 - 4Y n4/n3.
+/// The Kneser-Ney discounts of one order from its left-type n1..n4, as the
+/// stats JSON's `discounts` (values only): modified Kneser-Ney (Chen &
+/// Goodman 1998) Y = n1/(n1+2 n2); D1 = 1 - 2Y n2/n1; D2 = 2 - 3Y n3/n2;
+/// D3+ = 3 - 4Y n4/n3, and the single discount D = n1/(n1 + 2 n2) (Ney,
+/// Essen & Kneser 1994).
 ///
-/// Reading of the contract: its JSON shape is `{"d1","d2","d3plus"} or
-/// null`, and a discount is undefined "where a needed n_r is 0". The three
-/// discounts of an order together need n1..n4 of that order, so the whole
-/// object is null as soon as any of n1..n4 is 0 (this also avoids every
-/// division by zero).
-pub fn mkn_discounts(n1: u64, n2: u64, n3: u64, n4: u64) -> Value {
-    if n1 == 0 || n2 == 0 || n3 == 0 || n4 == 0 {
-        return Value::Null;
-    }
-    let (f1, f2, f3, f4) = (n1 as f64, n2 as f64, n3 as f64, n4 as f64);
-    let y = f1 / (f1 + 2.0 * f2);
+/// D_r is null where n1, n2, n_r or n_(r+1) is 0 (its formula reads them)
+/// or where it falls outside (0, r]; D is null where n1 or n2 is 0.
+pub fn discounts(n1: u64, n2: u64, n3: u64, n4: u64) -> Value {
+    let n = [n1, n2, n3, n4];
+    let modified = |r: usize| -> Value {
+        if [1, 2, r, r + 1].iter().any(|&i| n[i - 1] == 0) {
+            return Value::Null;
+        }
+        let (f1, f2) = (n1 as f64, n2 as f64);
+        let y = f1 / (f1 + 2.0 * f2);
+        let d = r as f64 - (r + 1) as f64 * y * n[r] as f64 / n[r - 1] as f64;
+        if d > 0.0 && d <= r as f64 {
+            json!(d)
+        } else {
+            Value::Null
+        }
+    };
+    let single = if n1 > 0 && n2 > 0 {
+        json!(n1 as f64 / (n1 as f64 + 2.0 * n2 as f64))
+    } else {
+        Value::Null
+    };
     json!({
-        "d1": 1.0 - 2.0 * y * f2 / f1,
-        "d2": 2.0 - 3.0 * y * f3 / f2,
-        "d3plus": 3.0 - 4.0 * y * f4 / f3,
+        "d1": {"value": modified(1)},
+        "d2": {"value": modified(2)},
+        "d3plus": {"value": modified(3)},
+        "kn": {"value": single},
     })
 }
 
@@ -430,10 +444,10 @@ mod tests {
     ///   b a   b a </s> (1):                      1 1 1 1 0 0
     ///   (</s>, b </s>, a </s> have no children.)
     /// Count-of-counts (unigram <s> excluded):
-    ///   order 1 raw {2:2, 3:1}, adjusted {1:1, 2:2}
-    ///   order 2 raw {1:3, 2:2}, adjusted {1:4, 2:1}
-    ///   order 3 raw {1:3, 2:1}, adjusted {1:3, 2:1}
-    /// Discounts: adjusted n3 = 0 at every order, so all are null.
+    ///   order 1 raw {2:2, 3:1}, left-type {1:1, 2:2}
+    ///   order 2 raw {1:3, 2:2}, left-type {1:4, 2:1}
+    ///   order 3 raw {1:3, 2:1}, left-type {1:3, 2:1}
+    /// Discounts: left-type n3 = 0 at every order, so D2 and D3+ are null.
     /// Totals: 2 sentences; tokens 3+2+2 = 7; types {a,b,</s>} = 3;
     ///   vocabulary 3 + 1 (no <unk>) = 4; n-grams per order 4, 5, 4.
     #[test]
@@ -487,18 +501,33 @@ mod tests {
         assert_eq!(o[2]["ngrams"], json!(4));
         assert_eq!(
             o[0]["count_of_counts"],
-            json!({"raw": [[2, 2], [3, 1]], "adjusted": [[1, 1], [2, 2]]})
+            json!({"raw": [[2, 2], [3, 1]], "left_type": [[1, 1], [2, 2]]})
         );
         assert_eq!(
             o[1]["count_of_counts"],
-            json!({"raw": [[1, 3], [2, 2]], "adjusted": [[1, 4], [2, 1]]})
+            json!({"raw": [[1, 3], [2, 2]], "left_type": [[1, 4], [2, 1]]})
         );
         assert_eq!(
             o[2]["count_of_counts"],
-            json!({"raw": [[1, 3], [2, 1]], "adjusted": [[1, 3], [2, 1]]})
+            json!({"raw": [[1, 3], [2, 1]], "left_type": [[1, 3], [2, 1]]})
         );
-        for k in 0..3 {
-            assert!(o[k]["mkn_discounts"].is_null(), "order {} discounts", k + 1);
+        // D1 and D need only n1 and n2: order 1 (1, 2): Y = 1/5,
+        // D1 = 1 - 2(1/5)(2/1) = 1/5; order 2 (4, 1): Y = 2/3, D1 = 2/3;
+        // order 3 (3, 1): Y = 3/5, D1 = 1 - 2(3/5)(1/3) = 3/5.
+        for (k, d) in [(0, 0.2), (1, 2.0 / 3.0), (2, 0.6)] {
+            let ds = &o[k]["discounts"];
+            assert!(
+                (ds["d1"]["value"].as_f64().unwrap() - d).abs() < 1e-12,
+                "{ds}"
+            );
+            assert!(
+                (ds["kn"]["value"].as_f64().unwrap() - d).abs() < 1e-12,
+                "{ds}"
+            );
+            assert!(
+                ds["d2"]["value"].is_null() && ds["d3plus"]["value"].is_null(),
+                "{ds}"
+            );
         }
     }
 
@@ -507,19 +536,34 @@ mod tests {
     /// D2 = 2 - 3(0.5)(1/2) = 1.25; D3+ = 3 - 4(0.5)(1/1) = 1.
     /// n = (6, 3, 2, 1): Y = 6/12 = 0.5; D1 = 1 - 2(0.5)(3/6) = 0.5;
     /// D2 = 2 - 3(0.5)(2/3) = 1; D3+ = 3 - 4(0.5)(1/2) = 2.
-    /// Any of n1..n4 zero -> null.
+    /// A zero that a formula reads -> null; so is a value outside (0, r]:
+    /// n = (2050, 243, 95, 96) (the demo corpus, order 2) gives
+    /// D3+ = 3 - 4(2050/2536)(96/95) = -0.2675.
     #[test]
     fn reference_discount_formulas() {
+        let values = |v: Value| -> Vec<Value> {
+            ["d1", "d2", "d3plus", "kn"]
+                .map(|k| v[k]["value"].clone())
+                .to_vec()
+        };
         assert_eq!(
-            mkn_discounts(4, 2, 1, 1),
-            json!({"d1": 0.5, "d2": 1.25, "d3plus": 1.0})
+            values(discounts(4, 2, 1, 1)),
+            vec![json!(0.5), json!(1.25), json!(1.0), json!(0.5)]
         );
         assert_eq!(
-            mkn_discounts(6, 3, 2, 1),
-            json!({"d1": 0.5, "d2": 1.0, "d3plus": 2.0})
+            values(discounts(6, 3, 2, 1)),
+            vec![json!(0.5), json!(1.0), json!(2.0), json!(0.5)]
         );
-        for n in [(0, 1, 1, 1), (1, 0, 1, 1), (1, 1, 0, 1), (1, 1, 1, 0)] {
-            assert_eq!(mkn_discounts(n.0, n.1, n.2, n.3), Value::Null);
+        assert!(values(discounts(2050, 243, 95, 96))[2].is_null());
+        for (n, defined) in [
+            ((0, 1, 1, 1), [false, false, false, false]),
+            ((1, 0, 1, 1), [false, false, false, false]),
+            ((1, 1, 0, 1), [true, false, false, true]),
+            ((1, 1, 1, 0), [true, true, false, true]),
+        ] {
+            let got = values(discounts(n.0, n.1, n.2, n.3));
+            let is: Vec<bool> = got.iter().map(|v| !v.is_null()).collect();
+            assert_eq!(is, defined.to_vec(), "{n:?}: {got:?}");
         }
     }
 

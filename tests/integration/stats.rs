@@ -235,7 +235,7 @@ fn stats_tables_agree_with_reference_and_formulas() {
                 .map(|p| (p[0].as_u64().unwrap(), p[1].as_u64().unwrap() as f64))
                 .collect()
         };
-        let (raw, adj) = (spec("raw"), spec("adjusted"));
+        let (raw, adj) = (spec("raw"), spec("left_type"));
         let n =
             |m: &std::collections::BTreeMap<u64, f64>, r: u64| m.get(&r).copied().unwrap_or(0.0);
         let total: f64 = raw.values().sum();
@@ -324,7 +324,7 @@ fn csv_tsv_and_json_hold_the_same_values() {
             let order_of = |k: &str| &json["orders"][k.parse::<usize>().unwrap() - 1];
             let want: Option<Value> = match section {
                 "totals" => Some(json["totals"][name].clone()),
-                "coc_raw" | "coc_adjusted" => {
+                "coc_raw" | "coc_left_type" => {
                     let kind = &section[4..];
                     let r: u64 = x.parse().unwrap();
                     order_of(order)["count_of_counts"][kind]
@@ -398,7 +398,7 @@ fn heaps_and_zipf_fits_on_gutenberg() {
 }
 
 /// Well-formed XML (Python's xml.etree.ElementTree) with one raw and one
-/// adjusted series per order, each named once in the legend and drawn in
+/// left-type series per order, each named once in the legend and drawn in
 /// its order's colour; a PNG starts with the PNG signature and has the
 /// size asked for (PNG specification, IHDR).
 #[test]
@@ -425,7 +425,7 @@ ns = "{http://www.w3.org/2000/svg}"
 texts = [(t.text or "").strip() for t in root.iter(ns + "text")]
 colours = {"1": "#E69F00", "2": "#56B4E9", "3": "#009E73"}
 for k, c in colours.items():
-    for kind in ("raw", "adjusted"):
+    for kind in ("raw", "left-type"):
         n = texts.count("order %s %s" % (k, kind))
         assert n == 1, ("legend entries for order", k, kind, n)
     lines = [p for p in root.iter(ns + "polyline") if (p.get("stroke") or "").upper() == c]

@@ -24,7 +24,7 @@ def expected_rows(j):
         out[("order", k, "", "ngrams")] = o["ngrams"]
         out[("order", k, "", "singletons")] = o["singletons"]
         out[("order", k, "", "singleton_share")] = o["singleton_share"]
-        for kind in ("raw", "adjusted"):
+        for kind in ("raw", "left_type"):
             for r, n in o["count_of_counts"][kind]:
                 out[("coc_" + kind, k, str(r), "n_r")] = n
         d = o["discounts"]

@@ -35,12 +35,12 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         );
     }
     let store = open_store(&a.store)?;
-    let method: Method = a.method.parse()?;
+    let method: Method = a.method.method.parse()?;
     let p = params(method, &a.params)?;
     let probability = {
         // Built once here so that its notes are shown once and a bad
         // parameter fails before any thread starts.
-        let est = estimator(&store, &a.method, &a.params)?;
+        let est = estimator(&store, &a.method.method, &a.params)?;
         DocModel::is_probability(&est)
     };
     let general_store = match &d.minus_store {
@@ -152,7 +152,7 @@ fn run_docs(
     }
     let secs = t.elapsed().as_secs_f64();
     let mut v = summary.to_json(probability);
-    v["method"] = json!(a.method);
+    v["method"] = json!(a.method.method);
     v["threads"] = json!(opts.threads);
     v["seconds"] = json!(secs);
     v["scoring_seconds"] = json!(scoring_secs);
@@ -178,80 +178,74 @@ fn run_docs(
     Ok(())
 }
 
-/// The plain summary on standard error.
+/// The plain summary on standard error, in the manner of the `score`
+/// report: one sentence, a table, the time.
 fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Result<()> {
     let mut e = std::io::stderr().lock();
-    let two = s.general.is_some();
-    let what = if two {
+    let method = v["method"].as_str().unwrap_or("");
+    let what = if s.general.is_some() {
         "cross-entropy difference"
     } else {
         "perplexity"
     };
     let dist = &s.distribution;
-    match dist.mean() {
-        Some(m) if probability => writeln!(
-            e,
-            "{} documents scored, mean {what} {m:.4} (median {:.4}); {} bad line{}, {} without a token",
-            thousands(s.documents),
+    let plural = |n: u64, one: &str, many: &str| {
+        format!("{} {}", thousands(n), if n == 1 { one } else { many })
+    };
+    let lead = match dist.mean() {
+        Some(_) if probability => format!(
+            "median {what} {:.4} over {}",
             dist.percentiles(&[50.0])[0],
-            thousands(s.bad),
-            if s.bad == 1 { "" } else { "s" },
-            thousands(s.empty)
-        )?,
-        _ => writeln!(
-            e,
-            "{} documents scored; {} bad line{}, {} without a token",
-            thousands(s.documents),
-            thousands(s.bad),
-            if s.bad == 1 { "" } else { "s" },
-            thousands(s.empty)
-        )?,
-    }
+            plural(s.documents, "document", "documents")
+        ),
+        _ => format!("{} scored", plural(s.documents, "document", "documents")),
+    };
     writeln!(
         e,
-        "  predictions     {:>14}   ({} outside the vocabulary)",
+        "{method}: {lead} ({} predictions, {} outside the vocabulary); {}, {} without a token",
         thousands(s.main.predictions),
-        thousands(s.main.oov)
+        plural(s.main.oov, "word", "words"),
+        plural(s.bad, "bad line", "bad lines"),
+        thousands(s.empty),
     )?;
-    if s.infinite > 0 {
-        writeln!(
-            e,
-            "  infinite        {:>14}   (a prediction got probability 0: not in the distribution)",
-            thousands(s.infinite)
-        )?;
-    }
     if probability && dist.count > 0 {
+        writeln!(e)?;
+        let how = if dist.is_exact() {
+            "exact"
+        } else {
+            "from a histogram, within 0.0115 %"
+        };
+        writeln!(e, "{what} by document ({how})")?;
+        writeln!(e, "  scored        {:>14}", thousands(dist.count))?;
+        if s.infinite > 0 {
+            writeln!(
+                e,
+                "  infinite      {:>14}   (a prediction got probability 0; not counted below)",
+                thousands(s.infinite)
+            )?;
+        }
+        writeln!(e, "  mean          {:>14.4}", dist.mean().unwrap_or(f64::NAN))?;
         let ps = dist.percentiles(&docs::dist::PERCENTILES);
-        let line: Vec<String> = docs::dist::PERCENTILES
-            .iter()
-            .zip(&ps)
-            .map(|(p, x)| format!("p{p}={x:.4}"))
-            .collect();
-        writeln!(
-            e,
-            "  {what} by document ({}): {}",
-            if dist.is_exact() {
-                "exact"
-            } else {
-                "histogram, within 0.0115 %"
-            },
-            line.join(" ")
-        )?;
+        for (p, x) in docs::dist::PERCENTILES.iter().zip(&ps) {
+            writeln!(e, "  {:<13} {x:>14.4}", format!("{p} %"))?;
+        }
     }
     if let Some(c) = v.get("cut") {
         writeln!(
             e,
-            "  cut below {}: {} lines kept, {} dropped",
-            c["below"], c["kept"], c["dropped"]
+            "\ncut: {what} below {}: {} kept, {} dropped",
+            c["below"],
+            plural(c["kept"].as_u64().unwrap_or(0), "line", "lines"),
+            thousands(c["dropped"].as_u64().unwrap_or(0))
         )?;
     }
     writeln!(
         e,
-        "  time {:.2} s on {} thread(s): {:.0} predictions/s, {:.0} documents/s",
+        "\n{method}: {:.2} s on {}, {} predictions and {} documents a second",
         v["scoring_seconds"].as_f64().unwrap_or(0.0),
-        v["threads"],
-        v["predictions_per_second"].as_f64().unwrap_or(0.0),
-        v["documents_per_second"].as_f64().unwrap_or(0.0)
+        plural(v["threads"].as_u64().unwrap_or(1), "thread", "threads"),
+        thousands(v["predictions_per_second"].as_f64().unwrap_or(0.0) as u64),
+        thousands(v["documents_per_second"].as_f64().unwrap_or(0.0) as u64)
     )?;
     Ok(())
 }

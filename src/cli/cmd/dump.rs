@@ -1,4 +1,6 @@
-//! `quern dump`: every n-gram (or context) as TSV.
+//! `quern dump`: every n-gram (or context) as TSV, under a header line
+//! (`ngram, count, continuation`; with `--contexts`:
+//! `context, C, T, A, N1, N2, N3+`).
 
 use std::collections::HashMap;
 use std::io::{BufWriter, Write};
@@ -37,18 +39,27 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
     let store = Store::open(&a.store)?;
     let n = store.order();
     let orders: Vec<usize> = match a.order {
+        Some(k) if a.contexts && k >= n => bail!(
+            "--contexts --order {k}: a context has at most {} words in this store of order {n} (the {n}-grams are no context of anything); give 0 to {}",
+            n - 1,
+            n - 1
+        ),
+        Some(0) if a.contexts => vec![0],
         Some(k) if k == 0 || k > n => bail!("--order {k}: this store has orders 1 to {n}"),
         Some(k) => vec![k],
-        None => (1..=n).collect(),
+        None => (0..=n).collect(),
     };
     let vocab = store.vocabulary()?;
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let mut w = String::new();
     if a.contexts {
-        if a.order.is_none() && store.meta().root.count_sum >= a.min_count {
+        if !a.no_header {
+            writeln!(out, "context\tC\tT\tA\tN1\tN2\tN3+")?;
+        }
+        if orders.contains(&0) && store.meta().root.count_sum >= a.min_count {
             context_line(&mut out, "", &store.meta().root)?;
         }
-        for k in orders.into_iter().filter(|&k| k < n) {
+        for k in orders.into_iter().filter(|&k| k > 0 && k < n) {
             for item in store.contexts(k)? {
                 let (key, st) = item?;
                 if st.count_sum < a.min_count {
@@ -59,7 +70,10 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
             }
         }
     } else {
-        for k in orders {
+        if !a.no_header {
+            writeln!(out, "ngram\tcount\tcontinuation")?;
+        }
+        for k in orders.into_iter().filter(|&k| k > 0) {
             for item in store.ngrams(k)? {
                 let (key, c, cont) = item?;
                 if c < a.min_count {

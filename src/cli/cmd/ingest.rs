@@ -10,6 +10,9 @@ use super::{bytes, thousands};
 use crate::cli::args::IngestArgs;
 use crate::cli::progress::Bar;
 
+/// The phases in the order they run.
+const RUN_ORDER: [&str; 4] = ["counting", "merging", "joining", "building"];
+
 pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     let mut o = IngestOptions::new(&a.store, a.inputs);
     o.order = a.order;
@@ -60,11 +63,15 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     for r in &s.repaired {
         writeln!(out, "  repaired: {r}")?;
     }
-    let phases: Vec<String> = s
-        .phase_seconds
-        .iter()
-        .map(|(p, x)| format!("{p} {x:.1}"))
-        .collect();
+    // In the order the phases run (the map holds them by name).
+    let mut timed: Vec<(&String, &f64)> = s.phase_seconds.iter().collect();
+    timed.sort_by_key(|(p, _)| {
+        RUN_ORDER
+            .iter()
+            .position(|q| q == p)
+            .unwrap_or(RUN_ORDER.len())
+    });
+    let phases: Vec<String> = timed.iter().map(|(p, x)| format!("{p} {x:.1}")).collect();
     writeln!(out, "  time {:.1} s ({})", s.seconds, phases.join(", "))?;
     writeln!(
         out,

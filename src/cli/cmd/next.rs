@@ -3,14 +3,35 @@
 use std::io::Write;
 
 use quern::query::query_ids;
-use serde_json::json;
 
-use super::prob::{estimator, jnum, log, num, open_store, words};
+use super::prob::{estimator, jnum, log, num, open_store, words, ProbJson};
 use crate::cli::args::NextArgs;
+
+/// One word of the answer.
+#[derive(serde::Serialize)]
+struct Item<'a> {
+    word: &'a str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    probability: Option<serde_json::Value>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    score: Option<serde_json::Value>,
+    log10: serde_json::Value,
+}
+
+/// The answer as JSON, in the order written.
+#[derive(serde::Serialize)]
+struct NextJson<'a> {
+    context: &'a str,
+    method: &'static str,
+    top: Vec<Item<'a>>,
+    rest: serde_json::Value,
+    words_scored: usize,
+    seconds: f64,
+}
 
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method, &a.params)?;
+    let est = estimator(&store, &a.method.method, &a.params)?;
     let ids = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
     let t = std::time::Instant::now();
     let next = est.next(&ids, a.top)?;
@@ -19,27 +40,47 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
     let mut out = std::io::stdout().lock();
     let context = words(&store, &next.context)?;
     if a.json {
-        let mut items = Vec::new();
-        for (w, p) in &next.items {
-            items.push(json!({
-                "word": words(&store, &[*w])?,
-                if prob { "probability" } else { "score" }: jnum(*p),
-                "log10": jnum(p.log10()),
-            }));
-        }
-        let v = json!({
-            "context": context,
-            "method": est.method().name(),
-            "top": items,
-            "rest": if prob { jnum(next.rest) } else { serde_json::Value::Null },
-            "words_scored": next.scored,
-            "seconds": secs,
-        });
+        let names: Vec<String> = next
+            .items
+            .iter()
+            .map(|(w, _)| words(&store, &[*w]))
+            .collect::<anyhow::Result<_>>()?;
+        let top = next
+            .items
+            .iter()
+            .zip(&names)
+            .map(|((_, p), w)| {
+                let j = ProbJson::new(w, est.method(), *p, None, None);
+                Item {
+                    word: w,
+                    probability: j.probability,
+                    score: j.score,
+                    log10: j.log10,
+                }
+            })
+            .collect();
+        let v = NextJson {
+            context: &context,
+            method: est.method().name(),
+            top,
+            rest: if prob {
+                jnum(next.rest)
+            } else {
+                serde_json::Value::Null
+            },
+            words_scored: next.scored,
+            seconds: secs,
+        };
         return super::print_json(&mut out, &v);
     }
+    let heading = if context.is_empty() {
+        "with no context: the unigram level".to_string()
+    } else {
+        format!("after \"{context}\"")
+    };
     writeln!(
         out,
-        "after \"{context}\" ({}, {} of {} words scored)",
+        "{heading} ({}, {} of {} words scored)",
         est.method(),
         next.scored,
         est.vocabulary_size()

@@ -5,10 +5,31 @@ use std::io::Write;
 use anyhow::{bail, Context};
 use quern::query::{prefix_page, query_ids};
 use quern::words::WordId;
-use serde_json::json;
 
-use super::prob::{estimator, jnum, log, num, open_store, words};
+use super::prob::{estimator, log, num, open_store, words, ProbJson};
 use crate::cli::args::NgramsArgs;
+
+/// One n-gram of a page as JSON, in the order written.
+#[derive(serde::Serialize)]
+struct NgramJson {
+    words: String,
+    count: u64,
+    continuation: Option<u64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    probability: Option<serde_json::Value>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    score: Option<serde_json::Value>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    log10: Option<serde_json::Value>,
+}
+
+/// A page as JSON.
+#[derive(serde::Serialize)]
+struct PageJson {
+    order: usize,
+    ngrams: Vec<NgramJson>,
+    next: Option<String>,
+}
 
 /// A cursor: the ids of the last n-gram shown, 16 hex digits each.
 fn cursor(ids: &[WordId]) -> String {
@@ -52,20 +73,40 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     if a.json {
         let mut items = Vec::new();
         for (i, (k, c, cont)) in page.items.iter().enumerate() {
-            let mut v = json!({"words": words(&store, k.ids())?, "count": c, "continuation": cont});
-            if let (Some(ps), Some(e)) = (&probs, &est) {
-                let key = if e.method().is_probability() {
-                    "probability"
-                } else {
-                    "score"
-                };
-                v[key] = jnum(ps[i].p);
-                v["log10"] = jnum(ps[i].log10);
-            }
-            items.push(v);
+            let (probability, score, log10) = match (&probs, &est) {
+                (Some(ps), Some(e)) => {
+                    let j = ProbJson::new("", e.method(), ps[i].p, None, None);
+                    (j.probability, j.score, Some(j.log10))
+                }
+                _ => (None, None, None),
+            };
+            items.push(NgramJson {
+                words: words(&store, k.ids())?,
+                count: *c,
+                continuation: *cont,
+                probability,
+                score,
+                log10,
+            });
         }
-        let v = json!({"order": order, "ngrams": items, "next": next});
+        let v = PageJson {
+            order,
+            ngrams: items,
+            next,
+        };
         return super::print_json(&mut out, &v);
+    }
+    if !a.no_header {
+        write!(out, "ngram\tcount\tcontinuation")?;
+        if let Some(e) = &est {
+            let what = if e.method().is_probability() {
+                "probability"
+            } else {
+                "score"
+            };
+            write!(out, "\t{what}\tlog10")?;
+        }
+        writeln!(out)?;
     }
     for (i, (k, c, cont)) in page.items.iter().enumerate() {
         let cont = cont.map_or("-".to_string(), |x| x.to_string());

@@ -6,7 +6,7 @@ use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::{bail, Context};
 use quern::memory::parse_size;
-use quern::query::{query_ids, Estimator, Method, Params, Prob};
+use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Prob};
 use quern::store::Store;
 use quern::words::WordId;
 use serde_json::json;
@@ -19,23 +19,11 @@ pub fn open_store(a: &QueryStoreArgs) -> anyhow::Result<Store> {
     Ok(Store::open_with_cache(&a.store, (mem / 4 * 3) as usize)?)
 }
 
-/// The parameters file written by `quern tune`.
-#[derive(serde::Serialize, serde::Deserialize)]
-pub struct ParamsFile {
-    /// The method the parameters were fitted for.
-    pub method: Method,
-    /// The parameters.
-    pub params: Params,
-}
-
-/// `--params FILE` (if given), then the flags on top.
+/// `--tuned FILE` (if given), then the flags on top.
 pub fn params(method: Method, a: &ParamArgs) -> anyhow::Result<Params> {
     let mut p = Params::default();
-    if let Some(f) = &a.params {
-        let text =
-            std::fs::read_to_string(f).with_context(|| format!("reading {}", f.display()))?;
-        let pf: ParamsFile = serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a parameters file of quern tune", f.display()))?;
+    if let Some(f) = &a.tuned {
+        let pf = ParamsFile::load(f)?;
         if pf.method != method {
             bail!(
                 "{}: the parameters were fitted for {}, not {method}",
@@ -58,14 +46,14 @@ pub fn params(method: Method, a: &ParamArgs) -> anyhow::Result<Params> {
     if let Some(k) = a.katz_k {
         p.katz_k = k;
     }
-    if let Some(d) = &a.fallback_discounts {
-        p.fallback_discounts = Some(d.clone());
+    if let Some(d) = &a.discounts {
+        p.discounts = d.parse()?;
     }
     Ok(p)
 }
 
-/// Builds the estimator and prints its notes (fallbacks, Katz's K) to
-/// standard error.
+/// Builds the estimator and prints its notes (discounts replaced, Katz's
+/// K lowered) to standard error.
 pub fn estimator<'s>(
     store: &'s Store,
     method: &str,
@@ -126,6 +114,52 @@ pub fn jnum(x: f64) -> serde_json::Value {
     }
 }
 
+/// A probability (or, for `stupid`, a score) as JSON, in the order written.
+#[derive(serde::Serialize)]
+pub struct ProbJson<'a> {
+    /// The words of the query.
+    pub words: &'a str,
+    /// The probability.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub probability: Option<serde_json::Value>,
+    /// The score of `stupid`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub score: Option<serde_json::Value>,
+    /// log10 of it (`null` for −∞).
+    pub log10: serde_json::Value,
+    /// The order of the longest stored n-gram ending in the word.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub order: Option<usize>,
+    /// The word is outside V.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub oov: Option<bool>,
+}
+
+impl<'a> ProbJson<'a> {
+    /// `p` under `method`, with the order and OOV flag if given.
+    pub fn new(
+        words: &'a str,
+        method: Method,
+        p: f64,
+        order: Option<usize>,
+        oov: Option<bool>,
+    ) -> Self {
+        let (probability, score) = if method.is_probability() {
+            (Some(jnum(p)), None)
+        } else {
+            (None, Some(jnum(p)))
+        };
+        ProbJson {
+            words,
+            probability,
+            score,
+            log10: jnum(p.log10()),
+            order,
+            oov,
+        }
+    }
+}
+
 fn write_one(
     out: &mut impl Write,
     json_out: bool,
@@ -134,18 +168,7 @@ fn write_one(
     p: &Prob,
 ) -> anyhow::Result<()> {
     if json_out {
-        let key = if method.is_probability() {
-            "probability"
-        } else {
-            "score"
-        };
-        let v = json!({
-            "words": text,
-            key: jnum(p.p),
-            "log10": jnum(p.log10),
-            "order": p.order,
-            "oov": p.oov,
-        });
+        let v = ProbJson::new(text, method, p.p, Some(p.order), Some(p.oov));
         serde_json::to_writer(&mut *out, &v)?;
         writeln!(out)?;
     } else {
@@ -158,7 +181,7 @@ const BATCH: usize = 4096;
 
 pub fn run(a: ProbArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method, &a.params)?;
+    let est = estimator(&store, &a.method.method, &a.params)?;
     let lc = store.meta().settings.lowercase;
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     if !a.words.is_empty() {
@@ -221,7 +244,7 @@ fn batch(
             // An empty query keeps its place: an empty line (TSV) or an
             // error record (JSON).
             if json_out {
-                writeln!(out, "{}", json!({"words": "", "error": "empty query"}))?;
+                writeln!(out, r#"{{"words":"","error":"empty query"}}"#)?;
             } else {
                 writeln!(out)?;
             }

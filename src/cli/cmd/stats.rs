@@ -9,10 +9,18 @@ use quern::stats::plot::write_figure;
 use quern::stats::tables::Discount;
 use quern::stats::{report, PowerFit, Report, ReportOptions};
 use quern::store::Store;
-use serde_json::json;
 
 use super::thousands;
 use crate::cli::args::{StatsArgs, StatsFormat};
+
+/// The comparison as JSON, in the order written.
+#[derive(serde::Serialize)]
+struct CompareJson<'a> {
+    schema: u32,
+    a: &'a str,
+    b: &'a str,
+    differences: &'a [Difference],
+}
 
 /// Rows of count-of-counts in the table when `--max-count` is not given.
 const TABLE_ROWS: u64 = 10;
@@ -67,7 +75,12 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
                 StatsFormat::Table => compare_table(&mut out, &label_a, lb, &diffs),
                 StatsFormat::Json => super::print_json(
                     &mut out,
-                    &json!({"schema": quern::stats::REPORT_SCHEMA, "a": label_a, "b": lb, "differences": diffs}),
+                    &CompareJson {
+                        schema: quern::stats::REPORT_SCHEMA,
+                        a: &label_a,
+                        b: lb,
+                        differences: &diffs,
+                    },
                 ),
                 StatsFormat::Tsv => compare_rows(&mut out, b'\t', &diffs),
                 StatsFormat::Csv => compare_rows(&mut out, b',', &diffs),
@@ -79,7 +92,7 @@ pub fn run(a: StatsArgs) -> anyhow::Result<()> {
                 if a.max_count.is_none() {
                     for o in &mut rep.orders {
                         o.count_of_counts.raw.retain(|e| e.0 <= TABLE_ROWS);
-                        o.count_of_counts.adjusted.retain(|e| e.0 <= TABLE_ROWS);
+                        o.count_of_counts.left_type.retain(|e| e.0 <= TABLE_ROWS);
                     }
                 }
                 table(
@@ -204,8 +217,8 @@ fn rows(out: &mut impl Write, delim: u8, r: &Report) -> anyhow::Result<()> {
         for &(c, n) in &o.count_of_counts.raw {
             put("coc_raw", k, Some(c), "n_r", n.to_string(), "")?;
         }
-        for &(c, n) in &o.count_of_counts.adjusted {
-            put("coc_adjusted", k, Some(c), "n_r", n.to_string(), "")?;
+        for &(c, n) in &o.count_of_counts.left_type {
+            put("coc_left_type", k, Some(c), "n_r", n.to_string(), "")?;
         }
         let g = &o.good_turing;
         put(
@@ -341,7 +354,7 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
         writeln!(out, "  {n}")?;
     }
     writeln!(out)?;
-    writeln!(out, "count-of-counts n_r, raw / adjusted:")?;
+    writeln!(out, "count-of-counts n_r, raw / left-type:")?;
     write!(out, "{:>5}", "r")?;
     for o in &r.orders {
         write!(out, " {:>21}", format!("order {}", o.order))?;
@@ -357,7 +370,7 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
                 format!(
                     "{} / {}",
                     thousands(get(&o.count_of_counts.raw, c)),
-                    thousands(get(&o.count_of_counts.adjusted, c))
+                    thousands(get(&o.count_of_counts.left_type, c))
                 )
             )?;
         }

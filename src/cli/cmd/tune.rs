@@ -5,10 +5,24 @@ use std::io::Write;
 use quern::query::score::read_sentences;
 use quern::query::tune::tune;
 use quern::query::Method;
-use serde_json::json;
 
-use super::prob::{open_store, params, ParamsFile};
+use quern::query::ParamsFile;
+
+use super::prob::{open_store, params};
 use crate::cli::args::TuneArgs;
+
+/// The report as JSON, in the order written.
+#[derive(serde::Serialize)]
+struct TuneJson<'a> {
+    method: &'static str,
+    heldout_sentences: usize,
+    iterations: usize,
+    perplexity_before: Option<f64>,
+    perplexity_after: Option<f64>,
+    params: &'a quern::query::Params,
+    written: String,
+    seconds: f64,
+}
 
 fn ppl(x: Option<f64>) -> String {
     x.map_or("infinite".into(), |v| format!("{v:.4}"))
@@ -22,11 +36,7 @@ pub fn run(a: TuneArgs) -> anyhow::Result<()> {
     let t = std::time::Instant::now();
     let r = tune(&store, method, &start, &sentences, a.buckets)?;
     let secs = t.elapsed().as_secs_f64();
-    let file = ParamsFile {
-        method,
-        params: r.params.clone(),
-    };
-    let text = serde_json::to_string_pretty(&file)? + "\n";
+    let text = ParamsFile::new(method, r.params.clone()).to_text();
     // A bare file name has an empty parent; write it in the current folder.
     let out_path = if a.out.is_relative() {
         std::env::current_dir()?.join(&a.out)
@@ -36,16 +46,16 @@ pub fn run(a: TuneArgs) -> anyhow::Result<()> {
     quern::fsutil::write_atomic(&out_path, text.as_bytes())?;
     let mut out = std::io::stdout().lock();
     if a.json {
-        let v = json!({
-            "method": method.name(),
-            "params": r.params,
-            "heldout_sentences": sentences.len(),
-            "perplexity_before": r.before,
-            "perplexity_after": r.after,
-            "iterations": r.iterations,
-            "written": a.out.display().to_string(),
-            "seconds": secs,
-        });
+        let v = TuneJson {
+            method: method.name(),
+            heldout_sentences: sentences.len(),
+            iterations: r.iterations,
+            perplexity_before: r.before,
+            perplexity_after: r.after,
+            params: &r.params,
+            written: a.out.display().to_string(),
+            seconds: secs,
+        };
         return super::print_json(&mut out, &v);
     }
     writeln!(
@@ -76,6 +86,11 @@ pub fn run(a: TuneArgs) -> anyhow::Result<()> {
         ppl(r.before),
         ppl(r.after)
     )?;
-    writeln!(out, "written to {} (use it with --params)", a.out.display())?;
+    writeln!(
+        out,
+        "written to {} (use it with --tuned {})",
+        a.out.display(),
+        a.out.display()
+    )?;
     Ok(())
 }
