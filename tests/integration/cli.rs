@@ -416,7 +416,11 @@ fn demo_corpus_default_method_and_headers() {
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("ferry");
     let demo = crate::common::fixtures().join("demo").join("ferry-log.txt");
-    ingest_ok(&store, &["--order", "3", "--quiet"], std::slice::from_ref(&demo));
+    ingest_ok(
+        &store,
+        &["--order", "3", "--quiet"],
+        std::slice::from_ref(&demo),
+    );
     let s = store.display().to_string();
     let r = run_ok(&["prob", "--store", &s, "<s>", "Guillemot", "departed"]);
     assert!(

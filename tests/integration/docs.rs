@@ -244,7 +244,10 @@ fn document_scores_equal_plain_score_runs() {
         .iter()
         .map(|(o, _)| o["log10_sum"].as_f64().unwrap())
         .sum();
-    let oov: u64 = docs.iter().map(|(o, _)| o["outside_vocabulary"].as_u64().unwrap()).sum();
+    let oov: u64 = docs
+        .iter()
+        .map(|(o, _)| o["outside_vocabulary"].as_u64().unwrap())
+        .sum();
     assert_eq!(n, plain["predictions"].as_u64().unwrap());
     assert_eq!(oov, plain["outside_vocabulary"].as_u64().unwrap());
     assert!(
@@ -565,7 +568,12 @@ fn spark_driver_in_local_mode_equals_single_machine() {
     for k in ["lines", "documents", "bad_lines", "empty_documents"] {
         assert_eq!(merged[k], single[k], "{k}");
     }
-    for k in ["sentences", "predictions", "outside_vocabulary", "probability_zero"] {
+    for k in [
+        "sentences",
+        "predictions",
+        "outside_vocabulary",
+        "probability_zero",
+    ] {
         assert_eq!(merged["totals"][k], single["totals"][k], "{k}");
     }
     assert!(close(

@@ -16,6 +16,9 @@ use crate::cli::args::{QueryStoreArgs, ScoreArgs};
 
 pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     let d = &a.docs;
+    if a.per_line || a.json {
+        bail!("--jsonl and --lines already write one JSON result a line and the summary to standard error (as JSON with --summary FILE): leave out --per-line and --json");
+    }
     let cut = match (d.keep_below, d.keep_fraction) {
         (Some(x), _) => Some(docs::split::Cut::Below(x)),
         (_, Some(f)) => {
@@ -224,7 +227,11 @@ fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Resu
                 thousands(s.infinite)
             )?;
         }
-        writeln!(e, "  mean          {:>14.4}", dist.mean().unwrap_or(f64::NAN))?;
+        writeln!(
+            e,
+            "  mean          {:>14.4}",
+            dist.mean().unwrap_or(f64::NAN)
+        )?;
         let ps = dist.percentiles(&docs::dist::PERCENTILES);
         for (p, x) in docs::dist::PERCENTILES.iter().zip(&ps) {
             writeln!(e, "  {:<13} {x:>14.4}", format!("{p} %"))?;
