@@ -23,6 +23,8 @@
 //! * [`store`] writes and reads the RocksDB store.
 //! * [`discount`] defines the Kneser-Ney discounts from count-of-counts,
 //!   once, for the estimators and the statistics report.
+//! * [`model`] freezes a method into a memory-mapped back-off model file
+//!   (and ARPA text) and answers queries from it.
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
@@ -74,6 +76,8 @@ pub mod layout;
 pub mod memory;
 #[cfg(feature = "store")]
 pub mod merge;
+#[cfg(feature = "store")]
+pub mod model;
 pub mod pool;
 #[cfg(feature = "store")]
 pub mod query;

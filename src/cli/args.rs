@@ -34,6 +34,9 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Write a method over a store as a read-only back-off model file (and
+    /// ARPA text); or check a model file with --verify.
+    Freeze(FreezeArgs),
     /// Run one stage of an ingest as a task over a shared directory (for a
     /// cluster; see scripts/spark_ingest.py).
     #[command(subcommand)]
@@ -149,6 +152,29 @@ pub struct QueryStoreArgs {
     pub memory: String,
 }
 
+/// Where `prob`, `next` and `score` get their answers: a method over a
+/// store, or a frozen model file.
+#[derive(Args, Debug, Clone)]
+pub struct QuerySourceArgs {
+    /// Store directory.
+    #[arg(
+        long,
+        value_name = "DIR",
+        required_unless_present = "model",
+        conflicts_with = "model"
+    )]
+    pub store: Option<PathBuf>,
+    /// A model file written by `quern freeze`, in place of --store (its
+    /// method and parameters are the ones it was frozen with).
+    #[arg(long, value_name = "FILE")]
+    pub model: Option<PathBuf>,
+    /// Memory for caches: three quarters go to the store's block cache.
+    /// SIZE: bytes, or a number with a unit: KiB, MiB, GiB (powers of
+    /// 1024) or K, M, G (powers of 1000).
+    #[arg(long, value_name = "SIZE", default_value = "256MiB")]
+    pub memory: String,
+}
+
 /// A smoothing method's parameters (each method reads only its own).
 #[derive(Args, Debug, Clone, Default)]
 pub struct ParamArgs {
@@ -186,15 +212,16 @@ pub struct ParamArgs {
 #[derive(Args, Debug, Clone)]
 pub struct MethodArgs {
     /// The smoothing method: mkn, kn, absolute, witten-bell, katz, interp,
-    /// add-k, mle or stupid.
-    #[arg(long, value_name = "M", default_value = "mkn")]
-    pub method: String,
+    /// add-k, mle or stupid. Default: mkn over a store; with --model, the
+    /// method it was frozen with (if given, it must be that one).
+    #[arg(long, value_name = "M")]
+    pub method: Option<String>,
 }
 
 #[derive(Args, Debug)]
 pub struct ProbArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
+    pub store: QuerySourceArgs,
     #[command(flatten)]
     pub method: MethodArgs,
     #[command(flatten)]
@@ -210,7 +237,7 @@ pub struct ProbArgs {
 #[derive(Args, Debug)]
 pub struct NextArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
+    pub store: QuerySourceArgs,
     #[command(flatten)]
     pub method: MethodArgs,
     #[command(flatten)]
@@ -259,7 +286,7 @@ pub struct NgramsArgs {
 #[derive(Args, Debug)]
 pub struct ScoreArgs {
     #[command(flatten)]
-    pub store: QueryStoreArgs,
+    pub store: QuerySourceArgs,
     #[command(flatten)]
     pub method: MethodArgs,
     #[command(flatten)]
@@ -474,10 +501,50 @@ pub struct DocArgs {
     #[arg(long, value_name = "FILE")]
     pub plot: Option<PathBuf>,
     /// A general store: score by the cross-entropy difference of Moore &
-    /// Lewis (2010), in-domain (--store) minus general (this), same method.
-    #[arg(long, value_name = "DIR")]
+    /// Lewis (2010), in-domain (--store or --model) minus general (this),
+    /// same method.
+    #[arg(long, value_name = "DIR", conflicts_with = "minus_model")]
     pub minus_store: Option<PathBuf>,
+    /// A general frozen model: the same as --minus-store, from a model file.
+    #[arg(long, value_name = "FILE")]
+    pub minus_model: Option<PathBuf>,
     /// Lines longer than this many bytes are bad lines.
     #[arg(long, default_value_t = 64 << 20, value_name = "BYTES")]
     pub max_line_bytes: usize,
+}
+
+#[derive(Args, Debug)]
+pub struct FreezeArgs {
+    /// Store directory.
+    #[arg(long, required_unless_present = "verify")]
+    pub store: Option<PathBuf>,
+    /// Memory budget: three quarters go to the store's block cache.
+    #[arg(long, default_value = "256MiB")]
+    pub memory: String,
+    /// The method to freeze: mkn, kn, absolute, witten-bell, katz, interp
+    /// or stupid (add-k and mle are not back-off models). Default: mkn.
+    #[arg(long, value_name = "M")]
+    pub method: Option<String>,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// The model file to write.
+    #[arg(long, required_unless_present_any = ["verify", "arpa"])]
+    pub out: Option<PathBuf>,
+    /// Also (or only) write the model as ARPA text; a name ending in .gz
+    /// is compressed.
+    #[arg(long)]
+    pub arpa: Option<PathBuf>,
+    /// Keep an n-gram of order k only if its raw count is at least the
+    /// k-th value (comma-separated, orders 1..N; the first must be 1).
+    #[arg(long, value_delimiter = ',')]
+    pub min_counts: Option<Vec<u64>>,
+    /// Held-out text: report its perplexity under the store and the model.
+    #[arg(long)]
+    pub heldout: Vec<PathBuf>,
+    /// Check every checksum and invariant of this model file, and nothing else.
+    #[arg(long, conflicts_with_all = ["store", "out", "arpa"])]
+    pub verify: Option<PathBuf>,
+    /// The summary as JSON.
+    #[arg(long)]
+    pub json: bool,
 }

@@ -55,13 +55,14 @@ use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
 
 use crate::error::Result;
-use crate::query::{Estimator, Prob};
+use crate::query::{Predictor, Prob};
 use crate::words::WordId;
 
 pub use dist::Distribution;
 pub use run::score_inputs;
 
-/// What scores a sentence: the store's estimator, a frozen model.
+/// What scores a sentence: any [`Predictor`] (the store's estimator, a
+/// frozen model), or a shared one through [`Shared`].
 pub trait DocModel {
     /// Highest order N.
     fn order(&self) -> usize;
@@ -71,37 +72,41 @@ pub trait DocModel {
     /// Whether its scores are probabilities (false for `stupid`).
     fn is_probability(&self) -> bool;
     /// The probabilities of many predictions, each query the context
-    /// followed by the word; consecutive queries are running text.
+    /// followed by the word; consecutive queries are running text (a frozen
+    /// model carries the matched context from one to the next).
     fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>>;
 }
 
-impl DocModel for Estimator<'_> {
+impl<P: Predictor + ?Sized> DocModel for P {
     fn order(&self) -> usize {
-        Estimator::order(self)
+        Predictor::order(self)
     }
     fn lowercase(&self) -> bool {
-        self.store().meta().settings.lowercase
+        Predictor::lowercase(self)
     }
     fn is_probability(&self) -> bool {
-        self.method().is_probability()
+        Predictor::method(self).is_probability()
     }
     fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
-        Estimator::prob_batch(self, queries)
+        Predictor::prob_batch(self, queries)
     }
 }
 
-impl<M: DocModel + ?Sized> DocModel for &M {
+/// A `Sync` predictor (a frozen model) lent to every worker thread.
+pub struct Shared<'a>(pub &'a (dyn Predictor + Sync));
+
+impl DocModel for Shared<'_> {
     fn order(&self) -> usize {
-        (**self).order()
+        self.0.order()
     }
     fn lowercase(&self) -> bool {
-        (**self).lowercase()
+        self.0.lowercase()
     }
     fn is_probability(&self) -> bool {
-        (**self).is_probability()
+        self.0.method().is_probability()
     }
     fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
-        (**self).prob_batch(queries)
+        self.0.prob_batch(queries)
     }
 }
 

@@ -80,13 +80,20 @@ impl Lambdas {
     pub(crate) fn eval(&self, levels: &[Level], v: f64) -> f64 {
         let mut p = 1.0 / v;
         for (j, l) in levels.iter().enumerate() {
-            let Some(s) = l.ctx else { continue };
-            if s.count_sum == 0 {
-                continue;
-            }
-            let lam = self.get(j + 1, s.count_sum);
-            p = lam * l.c as f64 / s.count_sum as f64 + (1.0 - lam) * p;
+            p = self.step(j, l, p);
         }
         p
+    }
+
+    /// One order of `interp` (context length `j`): P_{j+1}(w|h) from the
+    /// level of h·w and P_j(w|h').
+    #[inline]
+    pub(crate) fn step(&self, j: usize, l: &Level, lower: f64) -> f64 {
+        let Some(s) = l.ctx else { return lower };
+        if s.count_sum == 0 {
+            return lower;
+        }
+        let lam = self.get(j + 1, s.count_sum);
+        lam * l.c as f64 / s.count_sum as f64 + (1.0 - lam) * lower
     }
 }

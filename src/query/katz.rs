@@ -160,7 +160,8 @@ impl Estimator<'_> {
         self.katz_at(o, full, levels, levels.len() - 1)
     }
 
-    fn katz_unigram(&self, o: &KatzOrder, c: u64) -> f64 {
+    /// P(w) at the unigram level for a word seen `c` times.
+    pub(crate) fn katz_unigram(&self, o: &KatzOrder, c: u64) -> f64 {
         let zeros = self.v - self.root.types as f64;
         let t = self.root.count_sum as f64;
         if c > 0 {

@@ -189,22 +189,28 @@ pub fn single_discounts(
 pub(crate) fn mkn(d: &[[f64; 3]], levels: &[Level], v: f64) -> f64 {
     let mut p = 1.0 / v;
     for (j, l) in levels.iter().enumerate() {
-        let Some(s) = l.ctx else { continue };
-        if s.adjusted_sum == 0 {
-            continue;
-        }
-        let [d1, d2, d3] = d[j];
-        let disc = match l.a {
-            0 => 0.0,
-            1 => d1,
-            2 => d2,
-            _ => d3,
-        };
-        let a = s.adjusted_sum as f64;
-        let gamma = (d1 * s.n1 as f64 + d2 * s.n2 as f64 + d3 * s.n3plus as f64) / a;
-        p = (l.a as f64 - disc).max(0.0) / a + gamma * p;
+        p = mkn_step(&d[j], l, p);
     }
     p
+}
+
+/// One order of `mkn`: P_k(w|h) from the level of h·w and P_{k−1}(w|h').
+#[inline]
+pub(crate) fn mkn_step(d: &[f64; 3], l: &Level, lower: f64) -> f64 {
+    let Some(s) = l.ctx else { return lower };
+    if s.adjusted_sum == 0 {
+        return lower;
+    }
+    let [d1, d2, d3] = *d;
+    let disc = match l.a {
+        0 => 0.0,
+        1 => d1,
+        2 => d2,
+        _ => d3,
+    };
+    let a = s.adjusted_sum as f64;
+    let gamma = (d1 * s.n1 as f64 + d2 * s.n2 as f64 + d3 * s.n3plus as f64) / a;
+    (l.a as f64 - disc).max(0.0) / a + gamma * lower
 }
 
 /// `kn` (left-type counts) or `absolute` (`raw`) over the levels of one
@@ -212,19 +218,25 @@ pub(crate) fn mkn(d: &[[f64; 3]], levels: &[Level], v: f64) -> f64 {
 pub(crate) fn kn(d: &[f64], levels: &[Level], v: f64, raw: bool) -> f64 {
     let mut p = 1.0 / v;
     for (j, l) in levels.iter().enumerate() {
-        let Some(s) = l.ctx else { continue };
-        let (count, sum, types) = if raw {
-            (l.c, s.count_sum, s.types)
-        } else {
-            (l.a, s.adjusted_sum, s.n1 + s.n2 + s.n3plus)
-        };
-        if sum == 0 {
-            continue;
-        }
-        let dk = d[j];
-        let disc = if count == 0 { 0.0 } else { dk };
-        let sum = sum as f64;
-        p = (count as f64 - disc).max(0.0) / sum + dk * types as f64 / sum * p;
+        p = kn_step(d[j], l, raw, p);
     }
     p
+}
+
+/// One order of `kn` or `absolute`: P_k(w|h) from the level of h·w and
+/// P_{k−1}(w|h').
+#[inline]
+pub(crate) fn kn_step(dk: f64, l: &Level, raw: bool, lower: f64) -> f64 {
+    let Some(s) = l.ctx else { return lower };
+    let (count, sum, types) = if raw {
+        (l.c, s.count_sum, s.types)
+    } else {
+        (l.a, s.adjusted_sum, s.n1 + s.n2 + s.n3plus)
+    };
+    if sum == 0 {
+        return lower;
+    }
+    let disc = if count == 0 { 0.0 } else { dk };
+    let sum = sum as f64;
+    (count as f64 - disc).max(0.0) / sum + dk * types as f64 / sum * lower
 }

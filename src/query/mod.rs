@@ -33,6 +33,7 @@
 //! An estimator keeps small caches (context statistics, words, children
 //! lists) behind `RefCell`s: use one estimator per thread.
 
+pub mod backoff;
 mod cache;
 mod estimator;
 pub mod jelinek_mercer;
@@ -42,6 +43,7 @@ mod method;
 pub mod next;
 pub mod ngrams;
 pub mod params;
+pub mod predictor;
 mod probability;
 pub mod score;
 pub mod simple;
@@ -54,6 +56,7 @@ pub use method::Method;
 pub use next::Next;
 pub use ngrams::{prefix_page, Page};
 pub use params::{DiscountPolicy, Params, ParamsFile};
+pub use predictor::Predictor;
 pub(crate) use probability::Level;
 pub use probability::Prob;
 pub use score::{ScoreReport, Scorer, SentenceScore};

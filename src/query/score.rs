@@ -13,7 +13,7 @@ use crate::error::Result;
 use crate::tokenize::Tokenizer;
 use crate::words::{Dictionary, WordId};
 
-use super::{prediction, Estimator};
+use super::{prediction, Predictor};
 
 /// Totals of a scoring run.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
@@ -86,9 +86,9 @@ pub struct SentenceScore {
 }
 
 /// Scores text a line at a time, in batches through
-/// [`Estimator::prob_batch`].
-pub struct Scorer<'a, 's> {
-    est: &'a Estimator<'s>,
+/// [`Predictor::prob_batch`] (a store's estimator or a frozen model).
+pub struct Scorer<'a> {
+    est: &'a dyn Predictor,
     tok: Tokenizer,
     dict: Dictionary,
     batch: Vec<(u64, Vec<WordId>)>,
@@ -100,13 +100,13 @@ pub struct Scorer<'a, 's> {
 
 const BATCH_PREDICTIONS: usize = 8192;
 
-impl<'a, 's> Scorer<'a, 's> {
+impl<'a> Scorer<'a> {
     /// A scorer; `per_sentence` keeps a [`SentenceScore`] for every sentence
     /// (collect them with [`Scorer::take_sentences`]).
-    pub fn new(est: &'a Estimator<'s>, per_sentence: bool) -> Self {
+    pub fn new(est: &'a dyn Predictor, per_sentence: bool) -> Self {
         Scorer {
             est,
-            tok: Tokenizer::new(est.store().meta().settings.lowercase),
+            tok: Tokenizer::new(est.lowercase()),
             dict: Dictionary::new(),
             batch: Vec::new(),
             batch_predictions: 0,
@@ -210,7 +210,7 @@ impl<'a, 's> Scorer<'a, 's> {
 }
 
 /// Scores padded sentences with `est` and returns the totals.
-pub fn score_padded(est: &Estimator<'_>, sentences: &[Vec<WordId>]) -> Result<ScoreReport> {
+pub fn score_padded(est: &dyn Predictor, sentences: &[Vec<WordId>]) -> Result<ScoreReport> {
     let mut s = Scorer::new(est, false);
     for (i, p) in sentences.iter().enumerate() {
         s.add_padded(i as u64 + 1, p.clone())?;

@@ -17,12 +17,19 @@ use super::Level;
 pub(crate) fn witten_bell(levels: &[Level], v: f64) -> f64 {
     let mut p = 1.0 / v;
     for l in levels {
-        let Some(s) = l.ctx else { continue };
-        if s.count_sum == 0 {
-            continue;
-        }
-        let (c, t) = (s.count_sum as f64, s.types as f64);
-        p = (l.c as f64 + t * p) / (c + t);
+        p = witten_bell_step(l, p);
     }
     p
+}
+
+/// One order of `witten-bell`: P_k(w|h) from the level of h·w and
+/// P_{k−1}(w|h').
+#[inline]
+pub(crate) fn witten_bell_step(l: &Level, lower: f64) -> f64 {
+    let Some(s) = l.ctx else { return lower };
+    if s.count_sum == 0 {
+        return lower;
+    }
+    let (c, t) = (s.count_sum as f64, s.types as f64);
+    (l.c as f64 + t * lower) / (c + t)
 }

@@ -82,3 +82,9 @@ mod stage;
 // scripts/spark_ingest.py under Spark local mode: equal to ingest byte for
 // byte; killed and doubled tasks; a missing input fails the job.
 mod spark;
+
+// Frozen models: every freezable method equals the store's estimator over
+// all of V (orders 3 and 5), running text, next; the ARPA export read by an
+// independent Python reader (sums to 1, closure, same probabilities);
+// count pruning stays normalised; add-k/mle refused; damaged files refused.
+mod freeze;

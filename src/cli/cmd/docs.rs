@@ -5,14 +5,15 @@ use std::io::Write;
 
 use anyhow::{bail, Context};
 use quern::docs::{
-    self, split::ScoreFile, split::Split, BoxedModel, DocModel, Format, Models, Options, Summary,
+    self, split::ScoreFile, split::Split, BoxedModel, Format, Models, Options, Shared, Summary,
 };
-use quern::query::{Estimator, Method};
+use quern::model::Model;
+use quern::query::Estimator;
 use serde_json::json;
 
-use super::prob::{estimator, open_store, params};
+use super::prob::{open_source, params, predictor, Source};
 use super::thousands;
-use crate::cli::args::{QueryStoreArgs, ScoreArgs};
+use crate::cli::args::{QuerySourceArgs, ScoreArgs};
 
 pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     let d = &a.docs;
@@ -37,46 +38,57 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
             "a cut (--keep-below or --keep-fraction) goes with both --kept FILE and --dropped FILE"
         );
     }
-    let store = open_store(&a.store)?;
-    let method: Method = a.method.method.parse()?;
-    let p = params(method, &a.params)?;
-    let probability = {
-        // Built once here so that its notes are shown once and a bad
-        // parameter fails before any thread starts.
-        let est = estimator(&store, &a.method.method, &a.params)?;
-        DocModel::is_probability(&est)
+    let src = open_source(&a.store)?;
+    // Built once here so that its notes are shown once and a bad
+    // parameter fails before any thread starts.
+    let (method, probability) = {
+        let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+        (pred.get().method(), pred.get().method().is_probability())
     };
-    let general_store = match &d.minus_store {
-        Some(dir) => Some(open_store(&QueryStoreArgs {
-            store: dir.clone(),
+    let p = params(method, &a.params)?;
+    let general = match (&d.minus_store, &d.minus_model) {
+        (Some(dir), _) => Some(open_source(&QuerySourceArgs {
+            store: Some(dir.clone()),
+            model: None,
             memory: a.store.memory.clone(),
         })?),
-        None => None,
+        (_, Some(m)) => Some(Source::Model(Model::open(m)?)),
+        _ => None,
     };
-    if let Some(g) = &general_store {
-        Estimator::new(g, method, p.clone())
-            .with_context(|| format!("the general store {}", g.dir().display()))?;
+    if let Some(g) = &general {
+        let name = method.name();
+        predictor(g, Some(name), &a.params)
+            .context("the general model (--minus-store or --minus-model)")?;
     }
-    let make_main = || -> quern::Result<BoxedModel<'_>> {
-        Ok(Box::new(Estimator::new(&store, method, p.clone())?))
-    };
-    let make_general = || -> quern::Result<BoxedModel<'_>> {
-        let g = general_store.as_ref().expect("a general store");
-        Ok(Box::new(Estimator::new(g, method, p.clone())?))
-    };
+    let make_main = || make(&src, method, &p);
+    let make_general = || make(general.as_ref().expect("a general model"), method, &p);
     let models = Models {
         main: &make_main,
-        general: general_store
+        general: general
             .as_ref()
             .map(|_| &make_general as &docs::MakeModel<'_>),
     };
-    run_docs(&a, &models, probability, cut)
+    run_docs(&a, &models, probability, method.name(), cut)
+}
+
+/// One worker's model: its own estimator over the shared store, or the
+/// shared frozen model.
+fn make<'a>(
+    src: &'a Source,
+    method: quern::query::Method,
+    p: &quern::query::Params,
+) -> quern::Result<BoxedModel<'a>> {
+    Ok(match src {
+        Source::Store(store) => Box::new(Estimator::new(store, method, p.clone())?),
+        Source::Model(m) => Box::new(Shared(m)),
+    })
 }
 
 fn run_docs(
     a: &ScoreArgs,
     models: &Models<'_>,
     probability: bool,
+    method: &str,
     cut: Option<docs::split::Cut>,
 ) -> anyhow::Result<()> {
     let d = &a.docs;
@@ -155,7 +167,7 @@ fn run_docs(
     }
     let secs = t.elapsed().as_secs_f64();
     let mut v = summary.to_json(probability);
-    v["method"] = json!(a.method.method);
+    v["method"] = json!(method);
     v["threads"] = json!(opts.threads);
     v["seconds"] = json!(secs);
     v["scoring_seconds"] = json!(scoring_secs);

@@ -2,6 +2,7 @@
 
 pub mod docs;
 pub mod dump;
+pub mod freeze;
 pub mod ingest;
 pub mod next;
 pub mod ngrams;

@@ -4,7 +4,7 @@ use std::io::Write;
 
 use quern::query::query_ids;
 
-use super::prob::{estimator, jnum, log, num, open_store, words, ProbJson};
+use super::prob::{jnum, log, num, open_source, predictor, words, ProbJson};
 use crate::cli::args::NextArgs;
 
 /// One word of the answer.
@@ -30,20 +30,21 @@ struct NextJson<'a> {
 }
 
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
-    let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method.method, &a.params)?;
-    let ids = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
+    let src = open_source(&a.store)?;
+    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let est = pred.get();
+    let ids = query_ids(&a.words.join(" "), est.lowercase());
     let t = std::time::Instant::now();
     let next = est.next(&ids, a.top)?;
     let secs = t.elapsed().as_secs_f64();
     let prob = est.method().is_probability();
     let mut out = std::io::stdout().lock();
-    let context = words(&store, &next.context)?;
+    let context = words(est, &next.context)?;
     if a.json {
         let names: Vec<String> = next
             .items
             .iter()
-            .map(|(w, _)| words(&store, &[*w]))
+            .map(|(w, _)| words(est, &[*w]))
             .collect::<anyhow::Result<_>>()?;
         let top = next
             .items
@@ -96,7 +97,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
             out,
             "{:>4}  {:<20} {:>14} {:>10}",
             i + 1,
-            words(&store, &[*w])?,
+            words(est, &[*w])?,
             num(*p),
             log(p.log10())
         )?;

@@ -6,7 +6,7 @@ use anyhow::{bail, Context};
 use quern::query::{prefix_page, query_ids};
 use quern::words::WordId;
 
-use super::prob::{estimator, log, num, open_store, words, ProbJson};
+use super::prob::{estimator, log, num, open_store, store_words, ProbJson};
 use crate::cli::args::NgramsArgs;
 
 /// One n-gram of a page as JSON, in the order written.
@@ -81,7 +81,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
                 _ => (None, None, None),
             };
             items.push(NgramJson {
-                words: words(&store, k.ids())?,
+                words: store_words(&store, k.ids())?,
                 count: *c,
                 continuation: *cont,
                 probability,
@@ -110,7 +110,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     }
     for (i, (k, c, cont)) in page.items.iter().enumerate() {
         let cont = cont.map_or("-".to_string(), |x| x.to_string());
-        write!(out, "{}\t{c}\t{cont}", words(&store, k.ids())?)?;
+        write!(out, "{}\t{c}\t{cont}", store_words(&store, k.ids())?)?;
         if let Some(ps) = &probs {
             write!(out, "\t{}\t{}", num(ps[i].p), log(ps[i].log10))?;
         }

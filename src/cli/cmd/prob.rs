@@ -6,17 +6,96 @@ use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::{bail, Context};
 use quern::memory::parse_size;
-use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Prob};
+use quern::model::Model;
+use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
 use quern::store::Store;
 use quern::words::WordId;
 use serde_json::json;
 
-use crate::cli::args::{ParamArgs, ProbArgs, QueryStoreArgs};
+use crate::cli::args::{ParamArgs, ProbArgs, QuerySourceArgs, QueryStoreArgs};
 
 /// Opens the store with a block cache of three quarters of `--memory`.
 pub fn open_store(a: &QueryStoreArgs) -> anyhow::Result<Store> {
     let mem = parse_size(&a.memory)?;
     Ok(Store::open_with_cache(&a.store, (mem / 4 * 3) as usize)?)
+}
+
+/// What `prob`, `next` and `score` read: a store or a frozen model.
+pub enum Source {
+    /// `--store`.
+    Store(Store),
+    /// `--model`.
+    Model(Model),
+}
+
+/// Opens `--store` (with a block cache of three quarters of `--memory`)
+/// or `--model`.
+pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
+    if let Some(m) = &a.model {
+        return Ok(Source::Model(Model::open(m)?));
+    }
+    let dir = a.store.as_ref().expect("clap requires --store or --model");
+    let mem = parse_size(&a.memory)?;
+    Ok(Source::Store(Store::open_with_cache(
+        dir,
+        (mem / 4 * 3) as usize,
+    )?))
+}
+
+/// The predictor of a query command: the method over the store, or the
+/// model itself.
+pub enum Pred<'s> {
+    /// A method over a store.
+    Est(Box<Estimator<'s>>),
+    /// A frozen model.
+    Model(&'s Model),
+}
+
+impl Pred<'_> {
+    /// As a [`Predictor`].
+    pub fn get(&self) -> &dyn Predictor {
+        match self {
+            Pred::Est(e) => e.as_ref(),
+            Pred::Model(m) => *m,
+        }
+    }
+}
+
+/// The method (and parameters) over a store, or the frozen model (whose
+/// method, if `--method` names one, must be that). Prints the notes.
+pub fn predictor<'s>(
+    src: &'s Source,
+    method: Option<&str>,
+    a: &ParamArgs,
+) -> anyhow::Result<Pred<'s>> {
+    match src {
+        Source::Store(store) => Ok(Pred::Est(Box::new(estimator(
+            store,
+            method.unwrap_or("mkn"),
+            a,
+        )?))),
+        Source::Model(m) => {
+            if let Some(name) = method {
+                let want: Method = name.parse()?;
+                if want != m.method() {
+                    bail!(
+                        "{}: the model was frozen with {}, not {want}",
+                        m.path().display(),
+                        m.method()
+                    );
+                }
+            }
+            for n in m.notes() {
+                eprintln!("quern: note: {n}");
+            }
+            if !m.meta().probabilities {
+                eprintln!(
+                    "quern: note: stupid back-off gives scores, not probabilities: they do not sum to 1"
+                );
+            }
+            Ok(Pred::Model(m))
+        }
+    }
 }
 
 /// `--tuned FILE` (if given), then the flags on top.
@@ -72,14 +151,26 @@ pub fn estimator<'s>(
     Ok(est)
 }
 
+/// The words of `ids` in a store, space-separated.
+pub fn store_words(store: &Store, ids: &[WordId]) -> anyhow::Result<String> {
+    join_words(|id| store.word(id), ids)
+}
+
 /// The words of `ids`, space-separated.
-pub fn words(store: &Store, ids: &[WordId]) -> anyhow::Result<String> {
+pub fn words(p: &dyn Predictor, ids: &[WordId]) -> anyhow::Result<String> {
+    join_words(|id| p.word(id), ids)
+}
+
+fn join_words(
+    word: impl Fn(WordId) -> quern::Result<Option<String>>,
+    ids: &[WordId],
+) -> anyhow::Result<String> {
     let mut out = String::new();
     for (i, &id) in ids.iter().enumerate() {
         if i > 0 {
             out.push(' ');
         }
-        match store.word(id)? {
+        match word(id)? {
             Some(w) => out.push_str(&w),
             None => out.push_str(&format!("#{id:016x}")),
         }
@@ -180,9 +271,10 @@ fn write_one(
 const BATCH: usize = 4096;
 
 pub fn run(a: ProbArgs) -> anyhow::Result<()> {
-    let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method.method, &a.params)?;
-    let lc = store.meta().settings.lowercase;
+    let src = open_source(&a.store)?;
+    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let est = pred.get();
+    let lc = est.lowercase();
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     if !a.words.is_empty() {
         let line = a.words.join(" ");
@@ -212,7 +304,7 @@ pub fn run(a: ProbArgs) -> anyhow::Result<()> {
             lines.push(String::from_utf8_lossy(l).into_owned());
         }
         if lines.len() == BATCH || (n == 0 && !lines.is_empty()) {
-            batch(&est, lc, &lines, a.json, &mut out)?;
+            batch(est, lc, &lines, a.json, &mut out)?;
             lines.clear();
         }
         if n == 0 {
@@ -224,7 +316,7 @@ pub fn run(a: ProbArgs) -> anyhow::Result<()> {
 }
 
 fn batch(
-    est: &Estimator<'_>,
+    est: &dyn Predictor,
     lc: bool,
     lines: &[String],
     json_out: bool,

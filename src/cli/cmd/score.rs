@@ -14,7 +14,7 @@ use quern::query::{ScoreReport, Scorer, SentenceScore};
 use serde::Serialize;
 use serde_json::json;
 
-use super::prob::{estimator, jnum, open_store};
+use super::prob::{jnum, open_source, predictor};
 use super::thousands;
 use crate::cli::args::ScoreArgs;
 
@@ -80,8 +80,9 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     if a.docs.jsonl || a.docs.lines {
         return super::docs::run(a);
     }
-    let store = open_store(&a.store)?;
-    let est = estimator(&store, &a.method.method, &a.params)?;
+    let src = open_source(&a.store)?;
+    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let est = pred.get();
     let probability = est.method().is_probability();
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());
     if a.per_line && !a.json {
@@ -90,7 +91,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     let t = std::time::Instant::now();
     let mut total = ScoreReport::default();
     for f in &a.files {
-        let mut scorer = Scorer::new(&est, a.per_line);
+        let mut scorer = Scorer::new(est, a.per_line);
         let reader: Box<dyn BufRead> = if f.as_os_str() == "-" {
             Box::new(std::io::stdin().lock())
         } else {

@@ -1,0 +1,220 @@
+//! `quern freeze`: a method over a store written as a read-only back-off
+//! model file and/or ARPA text; `--verify` checks a model file.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use anyhow::Context;
+use quern::memory::parse_size;
+use quern::model::{arpa, freeze, FreezeOptions, Model};
+use quern::query::prediction;
+use quern::query::score::read_sentences;
+use quern::store::Store;
+use quern::words::WordId;
+use serde_json::json;
+
+use super::prob::{estimator, jnum};
+use super::{bytes, thousands};
+use crate::cli::args::FreezeArgs;
+
+/// Perplexity of padded sentences from a batch scorer: `None` if a
+/// prediction got 0.
+fn perplexity(
+    sentences: &[Vec<WordId>],
+    n: usize,
+    mut batch: impl FnMut(&[&[WordId]]) -> quern::Result<Vec<quern::query::Prob>>,
+) -> anyhow::Result<Option<f64>> {
+    let mut sum = 0.0;
+    let mut count = 0u64;
+    let mut zero = false;
+    for chunk in sentences.chunks(512) {
+        let mut qs: Vec<&[WordId]> = Vec::new();
+        for s in chunk {
+            for i in 1..s.len() {
+                qs.push(prediction(s, i, n));
+            }
+        }
+        for p in batch(&qs)? {
+            count += 1;
+            if p.p > 0.0 {
+                sum += p.log10;
+            } else {
+                zero = true;
+            }
+        }
+    }
+    Ok((!zero).then(|| 10f64.powf(-sum / count.max(1) as f64)))
+}
+
+fn verify(path: &Path, json_out: bool) -> anyhow::Result<()> {
+    let t = std::time::Instant::now();
+    let m = Model::open(path)?;
+    m.verify()?;
+    let secs = t.elapsed().as_secs_f64();
+    let mut out = std::io::stdout().lock();
+    if json_out {
+        let v = json!({
+            "model": path.display().to_string(),
+            "ok": true,
+            "method": m.meta().method.name(),
+            "order": m.order(),
+            "ngrams": m.meta().ngrams,
+            "bytes": m.file_bytes(),
+            "seconds": secs,
+        });
+        return super::print_json(&mut out, &v);
+    }
+    writeln!(
+        out,
+        "{}: verified ({} method {}, order {}, {} n-grams, every checksum and invariant holds; {secs:.2} s)",
+        path.display(),
+        bytes(m.file_bytes()),
+        m.meta().method,
+        m.order(),
+        thousands(m.meta().ngrams.iter().sum())
+    )?;
+    Ok(())
+}
+
+pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
+    if let Some(p) = &a.verify {
+        return verify(p, a.json);
+    }
+    let store_dir = a.store.clone().expect("clap requires --store");
+    let method = a.method.clone().unwrap_or_else(|| "mkn".to_string());
+    let mem = parse_size(&a.memory)?;
+    let store = Store::open_with_cache(&store_dir, (mem / 4 * 3) as usize)?;
+    let est = estimator(&store, &method, &a.params)?;
+    est.backoff_kind()?;
+    let opts = FreezeOptions {
+        min_counts: a.min_counts.clone().unwrap_or_default(),
+    };
+    if opts.min_counts.len() > store.order() {
+        anyhow::bail!(
+            "--min-counts gives {} thresholds for a store of order {}",
+            opts.min_counts.len(),
+            store.order()
+        );
+    }
+    // Only --arpa: the model is written beside it and removed afterwards.
+    let (out, temporary) = match (&a.out, &a.arpa) {
+        (Some(o), _) => (o.clone(), false),
+        (None, Some(arpa)) => {
+            let mut p = arpa.as_os_str().to_owned();
+            p.push(".model.tmp");
+            (PathBuf::from(p), true)
+        }
+        (None, None) => unreachable!("clap requires --out or --arpa"),
+    };
+    let t = std::time::Instant::now();
+    let report =
+        freeze(&est, &out, &opts).with_context(|| format!("freezing into {}", out.display()))?;
+    let freeze_secs = t.elapsed().as_secs_f64();
+    for n in &report.notes[est.notes().len()..] {
+        eprintln!("quern: note: {n}");
+    }
+    let model = Model::open(&out)?;
+    let mut arpa_bytes = None;
+    if let Some(p) = &a.arpa {
+        arpa_bytes = Some(arpa::write_arpa_file(&model, p)?);
+    }
+    let heldout = if a.heldout.is_empty() || !est.method().is_probability() {
+        None
+    } else {
+        let s = read_sentences(&a.heldout, store.meta().settings.lowercase)?;
+        let n = store.order();
+        let before = perplexity(&s, n, |q| est.prob_batch(q))?;
+        let after = perplexity(&s, n, |q| model.prob_batch(q))?;
+        Some((before, after, s.len()))
+    };
+    let total_secs = t.elapsed().as_secs_f64();
+    let kept: u64 = report.ngrams.iter().sum();
+    let file_bytes = if temporary {
+        None
+    } else {
+        Some(report.file_bytes)
+    };
+    drop(model);
+    if temporary {
+        std::fs::remove_file(&out).with_context(|| format!("removing {}", out.display()))?;
+    }
+    let mut o = std::io::stdout().lock();
+    if a.json {
+        let v = json!({
+            "store": store_dir.display().to_string(),
+            "method": est.method().name(),
+            "probabilities": est.method().is_probability(),
+            "order": store.order(),
+            "model": a.out.as_ref().map(|p| p.display().to_string()),
+            "model_bytes": file_bytes,
+            "bytes_per_ngram": file_bytes.map(|b| b as f64 / kept.max(1) as f64),
+            "value_bits": 32,
+            "arpa": a.arpa.as_ref().map(|p| p.display().to_string()),
+            "arpa_bytes": arpa_bytes,
+            "ngrams_kept": report.ngrams,
+            "ngrams_store": report.store_ngrams,
+            "min_counts": opts.min_counts,
+            "notes": report.notes,
+            "heldout": heldout.map(|(b, a, s)| json!({
+                "sentences": s,
+                "perplexity_store": b.map_or(serde_json::Value::Null, jnum),
+                "perplexity_model": a.map_or(serde_json::Value::Null, jnum),
+            })),
+            "seconds_freeze": freeze_secs,
+            "seconds": total_secs,
+        });
+        return super::print_json(&mut o, &v);
+    }
+    let target = match (&a.out, &a.arpa) {
+        (Some(m), Some(r)) => format!("{} and {}", m.display(), r.display()),
+        (Some(m), None) => m.display().to_string(),
+        (None, Some(r)) => r.display().to_string(),
+        (None, None) => unreachable!(),
+    };
+    writeln!(
+        o,
+        "froze {} ({}, order {}) into {target}",
+        store_dir.display(),
+        est.method(),
+        store.order()
+    )?;
+    if !est.method().is_probability() {
+        writeln!(
+            o,
+            "  the values are stupid back-off scores, not probabilities (so marked in the file)"
+        )?;
+    }
+    writeln!(o, "  order   store n-grams     kept  min count")?;
+    for (k, (s, kk)) in report.store_ngrams.iter().zip(&report.ngrams).enumerate() {
+        writeln!(
+            o,
+            "  {:>5} {:>15} {:>8} {:>10}",
+            k + 1,
+            thousands(*s),
+            thousands(*kk),
+            opts.min_counts.get(k).copied().unwrap_or(1).max(1)
+        )?;
+    }
+    if let Some(b) = file_bytes {
+        writeln!(
+            o,
+            "  model {} ({:.2} bytes per n-gram, 32-bit values)",
+            bytes(b),
+            b as f64 / kept.max(1) as f64
+        )?;
+    }
+    if let Some(b) = arpa_bytes {
+        writeln!(o, "  ARPA {}", bytes(b))?;
+    }
+    if let Some((b, a, s)) = heldout {
+        let f = |x: Option<f64>| x.map_or("infinite".to_string(), |v| format!("{v:.4}"));
+        writeln!(
+            o,
+            "  held-out perplexity ({s} sentences): store {}, model {}",
+            f(b),
+            f(a)
+        )?;
+    }
+    writeln!(o, "  time {total_secs:.2} s (freezing {freeze_secs:.2} s)")?;
+    Ok(())
+}

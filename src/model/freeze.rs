@@ -1,0 +1,715 @@
+//! Freezing: a store streamed, order by order, into a model file.
+//!
+//! Order k is one pass over the store's n-grams of order k beside its
+//! n-grams of order k − 1 (both in key order, so the children of a context
+//! come right after it is met): for each kept n-gram h·w it computes
+//! q(h·w) from the method's step at that order and P(w | h') = q(h'·w),
+//! which it finds in the arrays already written for order k − 1; for each
+//! kept context h of order k − 1 it writes where its children start and
+//! β(h). Every array goes to its own temporary file next to the output
+//! (memory-mapped when a later order searches it); at the end the arrays
+//! are copied into the model file behind the metadata and the vocabulary.
+//!
+//! Memory: the store's block cache (the caller's), the vocabulary (its ids,
+//! words and unigram values: about 40 bytes a word), one bit per n-gram of
+//! the previous order (which were kept), and buffers. The mapped arrays are
+//! file pages the kernel can drop at any time.
+//!
+//! Pruning by count (`min_counts`) keeps an n-gram of order k only if its
+//! raw count reaches the k-th threshold and its context and its suffix
+//! h'·w are kept (closure under prefixes and suffixes); the back-off weight
+//! of a context that lost a child is recomputed so that its distribution
+//! sums to 1: β(h) = (1 − Σ q(h·v)) / (1 − Σ q(h'·v)) over its kept
+//! children v.
+
+use std::fs::File;
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, IoContext, Result};
+use crate::key::Key;
+use crate::query::backoff::BackoffKind;
+use crate::query::katz::EPS;
+use crate::query::Estimator;
+use crate::store::NgramRecord;
+use crate::words::{bos_id, unk_id, WordId};
+
+use super::format::{ModelMeta, SectionKind};
+use super::reader::{find_word, map_read_only, u32_at};
+use super::writer::{ArrayFile, ModelWriter};
+
+/// What to freeze.
+#[derive(Clone, Debug, Default)]
+pub struct FreezeOptions {
+    /// Count thresholds per order (index k − 1; missing orders and 0 mean
+    /// 1, keep everything). The unigrams are always all kept.
+    pub min_counts: Vec<u64>,
+}
+
+/// What a freeze wrote.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FreezeReport {
+    /// Kept n-grams per order.
+    pub ngrams: Vec<u64>,
+    /// The store's n-grams per order.
+    pub store_ngrams: Vec<u64>,
+    /// The model file's size.
+    pub file_bytes: u64,
+    /// Notes of the method and of freezing.
+    pub notes: Vec<String>,
+}
+
+/// A file's bytes, memory-mapped (or empty).
+enum Bytes {
+    Map(memmap2::Mmap),
+    Empty,
+}
+
+impl std::ops::Deref for Bytes {
+    type Target = [u8];
+    fn deref(&self) -> &[u8] {
+        match self {
+            Bytes::Map(m) => m,
+            Bytes::Empty => &[],
+        }
+    }
+}
+
+fn map(path: &Path) -> Result<Bytes> {
+    let f = File::open(path).at(path, "open")?;
+    if f.metadata().at(path, "stat")?.len() == 0 {
+        return Ok(Bytes::Empty);
+    }
+    Ok(Bytes::Map(map_read_only(&f, path)?))
+}
+
+/// The arrays written so far, searchable: `words[k]` and `children[k]`
+/// (index k − 1 … as the order), mapped.
+struct Built {
+    words: Vec<Bytes>,
+    children: Vec<Bytes>,
+    /// Cached path of the last lookup: word indices and entries.
+    path_x: Vec<u32>,
+    path_e: Vec<u32>,
+}
+
+impl Built {
+    /// The entry of order |xs| of the n-gram of word indices `xs`.
+    fn lookup(&mut self, xs: &[u32]) -> Option<u32> {
+        let mut same = 0;
+        while same < xs.len() && same < self.path_x.len() && self.path_x[same] == xs[same] {
+            same += 1;
+        }
+        self.path_x.truncate(same);
+        self.path_e.truncate(same);
+        for t in same..xs.len() {
+            let e = if t == 0 {
+                xs[0]
+            } else {
+                // Entry path_e[t-1] of order t; its children are of order t + 1.
+                let c = &self.children[t - 1];
+                let w = &self.words[t];
+                let n = w.len() / 4;
+                let p = self.path_e[t - 1] as usize;
+                let lo = (u32_at(c, p) as usize).min(n);
+                let hi = (u32_at(c, p + 1) as usize).clamp(lo, n);
+                find_word(w, lo, hi, xs[t])? as u32
+            };
+            self.path_x.push(xs[t]);
+            self.path_e.push(e);
+        }
+        self.path_e.last().copied()
+    }
+}
+
+/// Sums over the kept children of one context.
+#[derive(Default)]
+struct Acc {
+    kept: u64,
+    sum_q: f64,
+    sum_lower: f64,
+    pruned: bool,
+    freed: f64,
+}
+
+/// Freezes the estimator's method over its store into the model file
+/// `out` (written under a temporary name and renamed into place).
+pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<FreezeReport> {
+    let kind = est.backoff_kind()?;
+    let store = est.store();
+    let meta = store.meta();
+    let n = meta.settings.order;
+    let root = meta.root;
+    let v = est.vocabulary_f64();
+    let min = |k: usize| opts.min_counts.get(k - 1).copied().unwrap_or(1).max(1);
+    if min(1) > 1 {
+        return Err(Error::Config(
+            "the unigrams are always kept (every word of V needs a probability): the first count threshold must be 1".into(),
+        ));
+    }
+    let pruning = (1..=n).any(|k| min(k) > 1);
+    let parent_dir = match out.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let tmp = tempfile::Builder::new()
+        .prefix(".quern-freeze-")
+        .tempdir_in(&parent_dir)
+        .at(&parent_dir, "create a temporary folder")?;
+    let tpath = |name: String| tmp.path().join(name);
+    let mut notes: Vec<String> = est.notes().to_vec();
+    let bos = bos_id();
+
+    // ---- the vocabulary and order 1 -----------------------------------------
+    let mut ids: Vec<WordId> = Vec::new();
+    for item in store.ngrams(1)? {
+        ids.push(item?.0.ids()[0]);
+    }
+    let unk_seen = ids.binary_search(&unk_id()).is_ok();
+    if !unk_seen {
+        let at = ids.binary_search(&unk_id()).unwrap_err();
+        ids.insert(at, unk_id());
+    }
+    let nw = ids.len();
+    let index = |id: WordId| ids.binary_search(&id).ok().map(|i| i as u32);
+    let bos_x = index(bos).ok_or_else(|| Error::corrupt(store.dir(), "the store has no <s>"))?;
+    let mut q1 = vec![0.0f64; nw];
+    let mut q_file = ArrayFile::create(tpath("q1".into()))?;
+    let mut q64_file = ArrayFile::create(tpath("q64-1".into()))?;
+    {
+        let mut recs = store.scan_records(1, &[], None)?.peekable();
+        for (x, &id) in ids.iter().enumerate() {
+            let rec: Option<NgramRecord> = match recs.peek() {
+                Some(Ok((k, _))) if k.ids()[0] == id => {
+                    recs.next().map(|r| r.map(|r| r.1)).transpose()?
+                }
+                Some(Err(_)) => return Err(recs.next().expect("peeked").unwrap_err()),
+                _ => None,
+            };
+            let c = rec.map_or(0, |r| r.count);
+            let a = rec.map_or(0, |r| adjusted(r.count, r.continuation, id));
+            let q = if id == bos {
+                0.0
+            } else {
+                match kind {
+                    BackoffKind::Interpolated => {
+                        est.step(0, c, a, Some(root), root.count_sum, 1.0 / v)
+                    }
+                    BackoffKind::Katz => est.katz_seen(0, c, root.count_sum),
+                    BackoffKind::Stupid(_) => {
+                        if c > 0 {
+                            c as f64 / root.count_sum as f64
+                        } else {
+                            0.0
+                        }
+                    }
+                }
+            };
+            q1[x] = q;
+            q_file.f32(q as f32)?;
+            q64_file.f64(q)?;
+        }
+    }
+    let mut q_paths = vec![q_file.close()?];
+    let mut q64_prev = q64_file.close()?;
+    // The exact q of every finished order (index k − 1), for Katz's
+    // contexts that back off past their next shorter context.
+    let mut q64_maps: Vec<Bytes> = vec![map(&q64_prev)?];
+    let mut skip_paths: Vec<Option<PathBuf>> = Vec::new();
+    let mut word_paths: Vec<Option<PathBuf>> = vec![None];
+    let mut weight_paths: Vec<PathBuf> = Vec::new();
+    let mut child_paths: Vec<PathBuf> = Vec::new();
+    let mut kept_counts = vec![nw as u64];
+    let mut store_counts = vec![nw as u64 - u64::from(!unk_seen)];
+    let mut built = Built {
+        words: vec![Bytes::Empty],
+        children: Vec::new(),
+        path_x: Vec::new(),
+        path_e: Vec::new(),
+    };
+    // Which store n-grams of the previous order were kept (by position).
+    let mut kept_prev: Vec<u64> = Vec::new();
+    let mut katz_unrepresentable = 0u64;
+    let mut katz_skips = 0u64;
+
+    // ---- orders 2..N ----------------------------------------------------------
+    let default_beta = match kind {
+        BackoffKind::Stupid(a) => a,
+        _ => 1.0,
+    };
+    for k in 2..=n {
+        let lower_q = map(&q64_prev)?;
+        let mut any_skip = false;
+        let mut w_file = ArrayFile::create(tpath(format!("w{k}")))?;
+        let mut q_file = ArrayFile::create(tpath(format!("q{k}")))?;
+        let mut q64_file = ArrayFile::create(tpath(format!("q64-{k}")))?;
+        let mut ctx_out = ContextOut {
+            b: ArrayFile::create(tpath(format!("b{}", k - 1)))?,
+            f: ArrayFile::create(tpath(format!("f{}", k - 1)))?,
+            s: ArrayFile::create(tpath(format!("s{}", k - 1)))?,
+            next_p: 0,
+            default_beta,
+            k,
+        };
+        let mut kept_now: Vec<u64> = Vec::new();
+        let mut parents = ParentStream {
+            it: Box::new(store.scan_records(k - 1, &[], None)?),
+            pos: 0,
+            rank: 0,
+        };
+        // The current parent: key, record, model index if kept.
+        let mut cur: Option<(Key, NgramRecord, Option<u32>)> = None;
+        let mut acc = Acc::default();
+        let mut spread_f = 0.0;
+        let mut written: u64 = 0;
+        let mut xs: Vec<u32> = Vec::with_capacity(k);
+        let mut store_n: u64 = 0;
+        // β of a finished context; `None`: Katz must look past h'.
+        let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
+            let j = k - 1;
+            Some(match kind {
+                BackoffKind::Stupid(a) => a,
+                _ if acc.kept == 0 => 1.0,
+                BackoffKind::Interpolated if !acc.pruned => {
+                    est.interpolation_weight(j, rec.context, rec.count)
+                }
+                BackoffKind::Katz if !acc.pruned => {
+                    let s = rec.context.unwrap_or_default();
+                    let f = acc.freed / s.count_sum.max(1) as f64;
+                    let den = 1.0 - acc.sum_lower;
+                    if f <= EPS {
+                        0.0
+                    } else if s.types as f64 >= v {
+                        f
+                    } else if den > EPS {
+                        f / den
+                    } else {
+                        return None;
+                    }
+                }
+                _ => {
+                    let num = 1.0 - acc.sum_q;
+                    let den = 1.0 - acc.sum_lower;
+                    if kind == BackoffKind::Katz && num > EPS && den <= EPS {
+                        return None;
+                    }
+                    if num <= 0.0 || den <= EPS {
+                        0.0
+                    } else {
+                        num / den
+                    }
+                }
+            })
+        };
+        let kept_of = |pk: &Key, parents: &mut ParentStream| -> Option<u32> {
+            if k - 1 == 1 {
+                index(pk.ids()[0])
+            } else {
+                parents.next_kept(&kept_prev)
+            }
+        };
+        for (pos, item) in store.scan_records(k, &[], None)?.enumerate() {
+            let (g, rec) = item?;
+            store_n += 1;
+            let gi = g.ids();
+            let h = &gi[..k - 1];
+            // Move to the parent h, finishing the ones passed.
+            while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
+                if let Some((pk, prec, Some(p))) = &cur {
+                    let (beta, skip) = match beta_of(prec, &acc) {
+                        Some(b) => (b, 1),
+                        None => katz_deep(
+                            est,
+                            pk.ids(),
+                            prec,
+                            &mut built,
+                            &q64_maps,
+                            &index,
+                            &mut katz_unrepresentable,
+                            (acc.pruned, 1.0 - acc.sum_q, min(k)),
+                        )?,
+                    };
+                    any_skip |= skip > 1;
+                    katz_skips += u64::from(skip > 1);
+                    ctx_out.put(*p, written - acc.kept, beta, skip)?;
+                }
+                acc = Acc::default();
+                let Some(p) = parents.it.next() else {
+                    return Err(Error::corrupt(
+                        store.dir(),
+                        format!("order {k}: an n-gram whose context is not stored"),
+                    ));
+                };
+                let (pk, prec) = p?;
+                if pk.ids() > h {
+                    return Err(Error::corrupt(
+                        store.dir(),
+                        format!("order {k}: an n-gram whose context is not stored"),
+                    ));
+                }
+                let kept = kept_of(&pk, &mut parents);
+                spread_f = 0.0;
+                if kind == BackoffKind::Katz && kept.is_some() {
+                    if let Some(s) = prec.context {
+                        if s.types as f64 >= v {
+                            // Every word follows this context: Katz spreads
+                            // its freed mass, which needs F(h) first.
+                            let mut freed = 0.0;
+                            for c in store.children(pk.ids())? {
+                                freed += est.katz_freed(k - 1, c?.1);
+                            }
+                            spread_f = freed / s.count_sum as f64;
+                        }
+                    }
+                }
+                cur = Some((pk, prec, kept));
+            }
+            let (_, prec, kept) = cur.as_ref().expect("set above");
+            if kind == BackoffKind::Katz {
+                acc.freed += est.katz_freed(k - 1, rec.count);
+            }
+            if kept.is_none() {
+                continue;
+            }
+            xs.clear();
+            for &id in &gi[1..] {
+                xs.push(index(id).ok_or_else(|| {
+                    Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
+                })?);
+            }
+            let lower_e = if k == 2 {
+                Some(xs[0])
+            } else {
+                built.lookup(&xs)
+            };
+            let Some(lower_e) = lower_e else {
+                if !pruning {
+                    return Err(Error::corrupt(
+                        store.dir(),
+                        format!("order {k}: the suffix of a stored n-gram is not stored"),
+                    ));
+                }
+                acc.pruned = true;
+                continue;
+            };
+            if rec.count < min(k) {
+                acc.pruned = true;
+                continue;
+            }
+            let at = 8 * lower_e as usize;
+            let lower = f64::from_le_bytes(
+                lower_q
+                    .get(at..at + 8)
+                    .ok_or_else(|| Error::corrupt(&q64_prev, "short temporary array"))?
+                    .try_into()
+                    .expect("8 bytes"),
+            );
+            let j = k - 1;
+            let q = match kind {
+                BackoffKind::Interpolated => {
+                    let a = adjusted(rec.count, rec.continuation, gi[0]);
+                    est.step(j, rec.count, a, prec.context, prec.count, lower)
+                }
+                BackoffKind::Katz => {
+                    let s = prec.context.unwrap_or_default();
+                    let p = est.katz_seen(j, rec.count, s.count_sum);
+                    if s.types as f64 >= v && spread_f > EPS {
+                        p + spread_f * lower
+                    } else {
+                        p
+                    }
+                }
+                BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
+            };
+            w_file.u32(*xs.last().expect("k ≥ 2"))?;
+            q_file.f32(q as f32)?;
+            q64_file.f64(q)?;
+            let word = pos / 64;
+            if kept_now.len() <= word {
+                kept_now.resize(word + 1, 0);
+            }
+            kept_now[word] |= 1 << (pos % 64);
+            written += 1;
+            acc.kept += 1;
+            acc.sum_q += q;
+            acc.sum_lower += lower;
+        }
+        if let Some((pk, prec, Some(p))) = &cur {
+            let (beta, skip) = match beta_of(prec, &acc) {
+                Some(b) => (b, 1),
+                None => katz_deep(
+                    est,
+                    pk.ids(),
+                    prec,
+                    &mut built,
+                    &q64_maps,
+                    &index,
+                    &mut katz_unrepresentable,
+                    (acc.pruned, 1.0 - acc.sum_q, min(k)),
+                )?,
+            };
+            any_skip |= skip > 1;
+            katz_skips += u64::from(skip > 1);
+            ctx_out.put(*p, written - acc.kept, beta, skip)?;
+        }
+        // Every later context has no kept child.
+        let n_prev = kept_counts[k - 2];
+        ctx_out.fill_to(n_prev as u32, written)?;
+        ctx_out
+            .f
+            .u32(u32::try_from(written).map_err(|_| too_many(k))?)?;
+        kept_counts.push(written);
+        store_counts.push(store_n);
+        word_paths.push(Some(w_file.close()?));
+        q_paths.push(q_file.close()?);
+        weight_paths.push(ctx_out.b.close()?);
+        child_paths.push(ctx_out.f.close()?);
+        let sp = ctx_out.s.close()?;
+        skip_paths.push(any_skip.then_some(sp));
+        q64_prev = q64_file.close()?;
+        q64_maps.push(map(&q64_prev)?);
+        kept_prev = kept_now;
+        built
+            .words
+            .push(map(word_paths[k - 1].as_ref().expect("order ≥ 2"))?);
+        built.children.push(map(&child_paths[k - 2])?);
+        built.path_x.clear();
+        built.path_e.clear();
+    }
+    if katz_skips > 0 {
+        notes.push(format!(
+            "katz: {katz_skips} contexts pass their freed mass past their next shorter context (their children take all of its probability): the model records how far; ARPA text cannot, so there the ARPA file gives their unseen words almost nothing"
+        ));
+    }
+    if katz_unrepresentable > 0 {
+        notes.push(format!(
+            "katz: {katz_unrepresentable} contexts give their freed mass to the uniform distribution (their children take all the probability of every shorter context); the model gives their unseen words 0"
+        ));
+    }
+
+    // ---- the ranking of V and the file --------------------------------------
+    let mut ranking: Vec<u32> = (0..nw as u32).filter(|&x| x != bos_x).collect();
+    ranking.sort_by(|&a, &b| q1[b as usize].total_cmp(&q1[a as usize]).then(a.cmp(&b)));
+    let words = store.vocabulary()?;
+    let mut offsets: Vec<u8> = Vec::with_capacity((nw + 1) * 8);
+    let mut text: Vec<u8> = Vec::new();
+    offsets.extend_from_slice(&0u64.to_le_bytes());
+    for id in &ids {
+        let w = words.get(id).ok_or_else(|| {
+            Error::corrupt(
+                store.dir(),
+                format!("the word with id {id:#018x} has no text"),
+            )
+        })?;
+        text.extend_from_slice(w.as_bytes());
+        offsets.extend_from_slice(&(text.len() as u64).to_le_bytes());
+    }
+    drop(words);
+    let mmeta = ModelMeta {
+        method: est.method(),
+        params: est.params().clone(),
+        constants: est.constants(),
+        notes: notes.clone(),
+        probabilities: est.method().is_probability(),
+        default_backoff: match kind {
+            BackoffKind::Stupid(a) => a,
+            _ => 1.0,
+        },
+        order: n,
+        lowercase: meta.settings.lowercase,
+        vocabulary: meta.totals.vocabulary,
+        unk_seen,
+        ngrams: kept_counts.clone(),
+        store_ngrams: store_counts.clone(),
+        value_bits: 32,
+        min_counts: (1..=n).map(min).collect(),
+    };
+    let mut w = ModelWriter::create(out)?;
+    w.section(
+        SectionKind::Meta,
+        0,
+        &serde_json::to_vec_pretty(&mmeta).expect("metadata serialises"),
+    )?;
+    let id_bytes: Vec<u8> = ids.iter().flat_map(|x| x.to_le_bytes()).collect();
+    w.section(SectionKind::Ids, 0, &id_bytes)?;
+    w.section(SectionKind::WordOffsets, 0, &offsets)?;
+    w.section(SectionKind::WordText, 0, &text)?;
+    let rk: Vec<u8> = ranking.iter().flat_map(|x| x.to_le_bytes()).collect();
+    w.section(SectionKind::Ranking, 0, &rk)?;
+    let copy = |w: &mut ModelWriter, kind: SectionKind, k: usize, p: &Path| -> Result<()> {
+        let mut f = File::open(p).at(p, "open")?;
+        w.section_from(kind, k, &mut f, p)
+    };
+    for k in 1..=n {
+        if let Some(p) = &word_paths[k - 1] {
+            copy(&mut w, SectionKind::Words, k, p)?;
+        }
+        copy(&mut w, SectionKind::Probs, k, &q_paths[k - 1])?;
+        if k < n {
+            copy(&mut w, SectionKind::Weights, k, &weight_paths[k - 1])?;
+            copy(&mut w, SectionKind::Children, k, &child_paths[k - 1])?;
+            if let Some(p) = &skip_paths[k - 1] {
+                copy(&mut w, SectionKind::Skips, k, p)?;
+            }
+        }
+    }
+    drop(built);
+    let file_bytes = w.finish()?;
+    Ok(FreezeReport {
+        ngrams: kept_counts,
+        store_ngrams: store_counts,
+        file_bytes,
+        notes,
+    })
+}
+
+fn too_many(k: usize) -> Error {
+    Error::Config(format!(
+        "order {k} keeps more than 4,294,967,295 n-grams, more than a model of this format version can index"
+    ))
+}
+
+/// The adjusted count: the continuation count, except at the top order and
+/// for n-grams that start with `<s>` (the raw count there).
+fn adjusted(c: u64, cont: Option<u64>, first: WordId) -> u64 {
+    match cont {
+        Some(x) if first != bos_id() => x,
+        _ => c,
+    }
+}
+
+/// The n-grams of the previous order in key order, with which of them
+/// were kept.
+struct ParentStream<'a> {
+    it: Box<dyn Iterator<Item = Result<(Key, NgramRecord)>> + 'a>,
+    pos: u64,
+    rank: u32,
+}
+
+impl ParentStream<'_> {
+    /// Whether the n-gram just taken from `it` was kept (by its position),
+    /// and its entry if so.
+    fn next_kept(&mut self, kept: &[u64]) -> Option<u32> {
+        let p = self.pos;
+        self.pos += 1;
+        let bit = kept
+            .get(p as usize / 64)
+            .is_some_and(|w| w >> (p % 64) & 1 == 1);
+        bit.then(|| {
+            self.rank += 1;
+            self.rank - 1
+        })
+    }
+}
+
+/// The children starts and back-off weights of one order's kept n-grams,
+/// written in entry order; an entry without kept children gets an empty
+/// range and the default weight.
+struct ContextOut {
+    b: ArrayFile,
+    f: ArrayFile,
+    s: ArrayFile,
+    next_p: u32,
+    default_beta: f64,
+    k: usize,
+}
+
+impl ContextOut {
+    fn fill_to(&mut self, p: u32, start: u64) -> Result<()> {
+        while self.next_p < p {
+            self.f
+                .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
+            self.b.f32(self.default_beta as f32)?;
+            self.s.put(&[1])?;
+            self.next_p += 1;
+        }
+        Ok(())
+    }
+
+    fn put(&mut self, p: u32, start: u64, beta: f64, skip: u8) -> Result<()> {
+        self.fill_to(p, start)?;
+        self.f
+            .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
+        self.b.f32(beta as f32)?;
+        self.s.put(&[skip])?;
+        self.next_p = p + 1;
+        Ok(())
+    }
+}
+
+/// Katz's back-off weight for a context h whose children take all the
+/// probability of h' (1 − Σ P(v | h') ≤ 1e-12): like the estimator, it
+/// looks at ever shorter contexts h_i for one where the denominator
+/// 1 − Σ_{v child of h} P(v | h_i) is positive, and returns β = F(h)/that
+/// denominator with the number of words dropped. Where there is none, the
+/// estimator spreads F(h) uniformly, which a back-off model cannot say:
+/// counted in `unrep`, β = 0. `pruned`: (some child of h was pruned, the
+/// mass 1 − Σ q(h·v) of its kept children, the count threshold of their
+/// order): then the numerator is that mass and only kept children count.
+#[allow(clippy::too_many_arguments)]
+fn katz_deep(
+    est: &Estimator<'_>,
+    h: &[WordId],
+    rec: &NgramRecord,
+    built: &mut Built,
+    q64: &[Bytes],
+    index: &dyn Fn(WordId) -> Option<u32>,
+    unrep: &mut u64,
+    pruned: (bool, f64, u64),
+) -> Result<(f64, u8)> {
+    let j = h.len();
+    let s = rec.context.unwrap_or_default();
+    let store = est.store();
+    let mut kids: Vec<(u32, u64)> = Vec::new();
+    for c in store.children(h)? {
+        let (key, count, _) = c?;
+        let v = index(key.ids()[j])
+            .ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))?;
+        kids.push((v, count));
+    }
+    let freed: f64 = kids.iter().map(|&(_, c)| est.katz_freed(j, c)).sum();
+    let hx: Vec<u32> = h
+        .iter()
+        .map(|&id| {
+            index(id).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))
+        })
+        .collect::<Result<_>>()?;
+    let mut xs: Vec<u32> = Vec::with_capacity(j + 1);
+    let f = if pruned.0 {
+        // Only the kept children: count at the threshold and h'·v kept.
+        kids.retain(|&(v, c)| {
+            c >= pruned.2 && {
+                xs.clear();
+                xs.extend_from_slice(&hx[1..]);
+                xs.push(v);
+                xs.len() == 1 || built.lookup(&xs).is_some()
+            }
+        });
+        pruned.1
+    } else {
+        freed / s.count_sum.max(1) as f64
+    };
+    for i in (0..j.saturating_sub(1)).rev() {
+        let mut sum = 0.0;
+        for &(v, _) in &kids {
+            xs.clear();
+            xs.extend_from_slice(&hx[j - i..]);
+            xs.push(v);
+            let e = if i == 0 { Some(v) } else { built.lookup(&xs) };
+            let Some(e) = e else {
+                return Err(Error::corrupt(
+                    store.dir(),
+                    "the suffix of a kept n-gram is not kept",
+                ));
+            };
+            let b = &q64[i];
+            let at = 8 * e as usize;
+            sum += f64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"));
+        }
+        let den = 1.0 - sum;
+        if den > EPS {
+            return Ok((f / den, (j - i) as u8));
+        }
+    }
+    *unrep += 1;
+    Ok((0.0, 1))
+}

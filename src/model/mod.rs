@@ -1,0 +1,85 @@
+//! Frozen models: a store's method written once in back-off form into a
+//! read-only, memory-mapped file, and queried from it.
+//!
+//! [`freeze()`] streams a store through an [`Estimator`](crate::query::Estimator)
+//! into a model file; [`Model::open`] maps it; [`Model`] answers the same
+//! questions as the estimator (`prob`, `prob_batch`, `next`,
+//! `distribution`), [`arpa`] writes it as ARPA text.
+//!
+//! # The back-off form
+//!
+//! For every kept n-gram h·w the file holds q(h·w) = P(w | h) under the
+//! method, and for every kept n-gram h of order < N a weight β(h). Then
+//! P(w | h) = q(h·w) if h·w is kept; otherwise β(h)·P(w | h') if h is kept,
+//! and P(w | h') if not (β0·P(w | h') for `stupid`, whose every context
+//! backs off with α), down to the unigrams, every word of V being one. The
+//! kept n-grams are closed under prefixes and suffixes: with h·w kept, h
+//! and h'·w are kept. See [`crate::query::backoff`] for how each method's
+//! q and β are computed.
+//!
+//! # Byte layout (version 1)
+//!
+//! Little-endian throughout; sections start at multiples of 8 bytes.
+//!
+//! ```text
+//! header     8  magic "qrnmodl\x1a"
+//!            4  version (u32) = 1
+//!            4  reserved (0)
+//! sections   one after another, in this order (see SectionKind):
+//!            Meta         JSON: method, parameters, constants, notes,
+//!                         order N, |V|, n-grams kept per order, value
+//!                         bits, whether the values are probabilities,
+//!                         the weight of a context that is not kept
+//!            Ids          u64 × W: the word ids (xxh3-64 of the word),
+//!                         increasing; word index i = position i (W = |V|
+//!                         + 1: V and <s>)
+//!            WordOffsets  u64 × (W + 1) into WordText
+//!            WordText     the words' UTF-8 bytes
+//!            Ranking      u32 × |V|: V by q of the unigram, best first
+//!            per order k = 1..N:
+//!              Words      (k ≥ 2) u32 × n_k: the last word of each kept
+//!                         n-gram; the n-grams are in key order, i.e.
+//!                         grouped by context (in the context's own order
+//!                         among the n-grams of order k − 1), then by word
+//!              Probs      f32 × n_k: q (entry i of order 1 is word i)
+//!              Weights    (k < N) f32 × n_k: β of each n-gram as a context
+//!              Children   (k < N) u32 × (n_k + 1): the children of entry
+//!                         i of order k are entries Children[i] ..
+//!                         Children[i + 1] of order k + 1
+//! directory  32 bytes per section: kind (u32), order (u32), offset (u64),
+//!            length (u64), xxh3-64 of the section (u64)
+//! trailer    directory offset (u64), entry count (u64), xxh3-64 of the
+//!            directory (u64), end magic "\x1aldomnrq"
+//! ```
+//!
+//! # Why this shape
+//!
+//! A prediction walks from a context's entries to their children: with the
+//! context's kept suffixes h_1 … h_M known as entries, P(w | h) needs one
+//! search for w among the children of each h_j, from j = 1 up until one
+//! fails. The search runs over a run of sorted u32 word indices, which are
+//! ranks of hashes and so spread evenly: interpolation finds a word in a
+//! few probes even among the hundred thousand children of a frequent word.
+//! In running text the next context's kept suffixes are exactly the entries
+//! just found, so a [`State`] carries them and no context is looked up
+//! twice. Structure of arrays (words apart from values) keeps the searched
+//! bytes dense. Byte-aligned u32/f32 arrays cost 8 bytes per top-order
+//! n-gram and 16 below it; the checksummed directory lets a reader refuse
+//! a truncated or damaged file without reading the arrays, so opening takes
+//! milliseconds whatever the size; [`Model::verify`] reads everything.
+//!
+//! Precision: q and β are stored as 32-bit floats (relative error below
+//! 6e-8 each); a probability is a product of at most N of them, computed in
+//! 64 bits, so it is within about 3e-7 relative of the estimator's.
+
+pub mod arpa;
+pub mod format;
+pub mod freeze;
+pub mod query;
+pub mod reader;
+pub mod writer;
+
+pub use format::ModelMeta;
+pub use freeze::{freeze, FreezeOptions, FreezeReport};
+pub use query::State;
+pub use reader::Model;

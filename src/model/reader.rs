@@ -1,0 +1,541 @@
+//! Opening a model file: the memory map (the crate's one `unsafe` block),
+//! the checks made on open, and the full verification.
+//!
+//! Opening reads the trailer, the directory and the small sections (the
+//! metadata, the vocabulary and the unigram ranking) and checks their
+//! checksums and every section's bounds and length, so a truncated file or
+//! a damaged directory, header or vocabulary is refused at once, in
+//! milliseconds whatever the file's size. The large n-gram arrays are
+//! checked by [`Model::verify`] (`quern freeze --verify`): every checksum
+//! and every structural invariant. Lookups never index outside the map,
+//! so a damaged array that was not verified gives wrong numbers, never a
+//! crash.
+
+use std::fs::File;
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+use memmap2::Mmap;
+
+use crate::error::{Error, IoContext, Result};
+use crate::words::{bos_id, unk_id, WordId};
+
+use super::format::{
+    Entry, ModelMeta, SectionKind, END_MAGIC, ENTRY_BYTES, HEADER_BYTES, MAGIC, MODEL_VERSION,
+    TRAILER_BYTES,
+};
+
+/// Maps `file` (opened read-only) into memory.
+///
+/// # Safety
+///
+/// This function is safe to call, but it rests on one assumption that the
+/// compiler cannot check: nobody changes or truncates the file while the
+/// map lives. quern never writes a model file (or a freeze's temporary
+/// array file) in place once it is mapped: files are written whole under a
+/// temporary name and renamed into place, so a later freeze to the same
+/// name replaces the directory entry and leaves the mapped inode intact.
+/// Another program that truncates a mapped file makes reads past the new
+/// end fault (SIGBUS); one that rewrites it in place changes what the map
+/// reads. Both are outside what quern supports, as for any read-only data
+/// file.
+#[allow(unsafe_code)]
+pub(crate) fn map_read_only(file: &File, path: &Path) -> Result<Mmap> {
+    // SAFETY: `Mmap::map` is unsafe because the mapped file could be
+    // modified or truncated by another process while the map is alive,
+    // which Rust's aliasing rules cannot see. The file is opened read-only,
+    // the map is read-only, and quern only ever replaces model and
+    // temporary array files by renaming a new file over them (see the
+    // `# Safety` section above), so the mapped bytes do not change under
+    // us in any supported use.
+    unsafe { Mmap::map(file) }.at(path, "memory-map")
+}
+
+/// Reads the u32 at index `i` of little-endian bytes.
+#[inline(always)]
+pub(crate) fn u32_at(b: &[u8], i: usize) -> u32 {
+    u32::from_le_bytes(b[4 * i..4 * i + 4].try_into().expect("4 bytes"))
+}
+
+/// Reads the f32 at index `i` of little-endian bytes.
+#[inline(always)]
+pub(crate) fn f32_at(b: &[u8], i: usize) -> f32 {
+    f32::from_le_bytes(b[4 * i..4 * i + 4].try_into().expect("4 bytes"))
+}
+
+/// Reads the u64 at index `i` of little-endian bytes.
+#[inline(always)]
+pub(crate) fn u64_at(b: &[u8], i: usize) -> u64 {
+    u64::from_le_bytes(b[8 * i..8 * i + 8].try_into().expect("8 bytes"))
+}
+
+/// The sections of one order.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct OrderSections {
+    /// Kept n-grams.
+    pub len: usize,
+    /// Last words (empty at order 1, where entry i is word i).
+    pub words: Range<usize>,
+    /// q values.
+    pub probs: Range<usize>,
+    /// β values (empty at the top order).
+    pub weights: Range<usize>,
+    /// Child starts, len + 1 of them (empty at the top order).
+    pub children: Range<usize>,
+    /// Words dropped on backing off, one byte each (empty: 1 for all).
+    pub skips: Range<usize>,
+}
+
+/// A frozen model, memory-mapped and read-only. `Send + Sync`: one model
+/// serves any number of threads (every query method takes `&self`).
+pub struct Model {
+    pub(crate) path: PathBuf,
+    pub(crate) map: Mmap,
+    pub(crate) meta: ModelMeta,
+    pub(crate) entries: Vec<Entry>,
+    pub(crate) n: usize,
+    /// Words, `<s>` included.
+    pub(crate) nw: usize,
+    pub(crate) ids: Range<usize>,
+    pub(crate) offsets: Range<usize>,
+    pub(crate) text: Range<usize>,
+    pub(crate) ranking: Range<usize>,
+    pub(crate) orders: Vec<OrderSections>,
+    pub(crate) bos: u32,
+    pub(crate) unk: u32,
+}
+
+impl Model {
+    /// Opens the model file at `path`: checks the header, the trailer, the
+    /// directory, every section's bounds, and the checksums of the small
+    /// sections. A truncated or damaged file is refused with an error that
+    /// names it.
+    pub fn open(path: &Path) -> Result<Model> {
+        let f = File::open(path).at(path, "open")?;
+        let size = f.metadata().at(path, "stat")?.len();
+        let bad = |d: String| Error::corrupt(path, format!("not a usable quern model: {d}"));
+        if size < (HEADER_BYTES + TRAILER_BYTES) as u64 {
+            return Err(bad(format!(
+                "{size} bytes, shorter than a header and a trailer (truncated?)"
+            )));
+        }
+        let map = map_read_only(&f, path)?;
+        let b = &map[..];
+        if b[..8] != MAGIC {
+            return Err(bad("the file does not start with the model magic".into()));
+        }
+        let version = u32::from_le_bytes(b[8..12].try_into().expect("4 bytes"));
+        let t = &b[b.len() - TRAILER_BYTES..];
+        if t[24..32] != END_MAGIC {
+            return Err(bad(
+                "the trailer is missing (the file is truncated or was not finished)".into(),
+            ));
+        }
+        if version != MODEL_VERSION {
+            return Err(Error::Version {
+                path: path.to_path_buf(),
+                found: version,
+                expected: MODEL_VERSION,
+            });
+        }
+        let dir_off = u64_at(t, 0);
+        let count = u64_at(t, 1);
+        let dir_hash = u64_at(t, 2);
+        let dir_end = (b.len() - TRAILER_BYTES) as u64;
+        if count > 4096
+            || dir_off < HEADER_BYTES as u64
+            || dir_off.checked_add(count * ENTRY_BYTES as u64) != Some(dir_end)
+        {
+            return Err(bad(format!(
+                "the directory ({count} entries at byte {dir_off}) does not fit the file of {size} bytes"
+            )));
+        }
+        let d = &b[dir_off as usize..dir_end as usize];
+        if xxhash_rust::xxh3::xxh3_64(d) != dir_hash {
+            return Err(bad("the directory's checksum does not match".into()));
+        }
+        let entries: Vec<Entry> = d.chunks_exact(ENTRY_BYTES).map(Entry::decode).collect();
+        for e in &entries {
+            if e.offset < HEADER_BYTES as u64
+                || e.offset.checked_add(e.len).is_none_or(|end| end > dir_off)
+            {
+                return Err(bad(format!(
+                    "section {} of order {} (bytes {}..+{}) lies outside the data",
+                    e.kind, e.order, e.offset, e.len
+                )));
+            }
+        }
+        let find = |kind: SectionKind, order: usize| -> Result<Range<usize>> {
+            entries
+                .iter()
+                .find(|e| e.kind == kind as u32 && e.order as usize == order)
+                .map(|e| e.offset as usize..(e.offset + e.len) as usize)
+                .ok_or_else(|| bad(format!("no {} section of order {order}", kind.name())))
+        };
+        let checked = |kind: SectionKind, order: usize| -> Result<Range<usize>> {
+            let r = find(kind, order)?;
+            let e = entries
+                .iter()
+                .find(|e| e.kind == kind as u32 && e.order as usize == order)
+                .expect("found above");
+            if xxhash_rust::xxh3::xxh3_64(&b[r.clone()]) != e.hash {
+                return Err(bad(format!(
+                    "the checksum of the {} section does not match",
+                    kind.name()
+                )));
+            }
+            Ok(r)
+        };
+        let meta_r = checked(SectionKind::Meta, 0)?;
+        let meta: ModelMeta = serde_json::from_slice(&b[meta_r])
+            .map_err(|e| bad(format!("the metadata does not parse: {e}")))?;
+        let n = meta.order;
+        if !(1..=crate::key::MAX_ORDER).contains(&n) || meta.ngrams.len() != n {
+            return Err(bad(format!(
+                "order {n} with {} counts per order",
+                meta.ngrams.len()
+            )));
+        }
+        let ids = checked(SectionKind::Ids, 0)?;
+        let nw = ids.len() / 8;
+        let offsets = checked(SectionKind::WordOffsets, 0)?;
+        let text = checked(SectionKind::WordText, 0)?;
+        let ranking = checked(SectionKind::Ranking, 0)?;
+        let want = |r: &Range<usize>, bytes: u64, what: &str| -> Result<()> {
+            if r.len() as u64 != bytes {
+                Err(bad(format!(
+                    "the {what} section holds {} bytes, {bytes} expected",
+                    r.len()
+                )))
+            } else {
+                Ok(())
+            }
+        };
+        want(&ids, meta.ngrams[0] * 8, "word ids")?;
+        want(&offsets, (nw as u64 + 1) * 8, "word offsets")?;
+        want(&ranking, meta.vocabulary * 4, "unigram ranking")?;
+        let mut orders = Vec::with_capacity(n);
+        for k in 1..=n {
+            let len = meta.ngrams[k - 1];
+            let mut o = OrderSections {
+                len: len as usize,
+                probs: find(SectionKind::Probs, k)?,
+                ..Default::default()
+            };
+            want(&o.probs, len * 4, "probabilities")?;
+            if k > 1 {
+                o.words = find(SectionKind::Words, k)?;
+                want(&o.words, len * 4, "n-gram words")?;
+            }
+            if k < n {
+                o.weights = find(SectionKind::Weights, k)?;
+                want(&o.weights, len * 4, "back-off weights")?;
+                o.children = find(SectionKind::Children, k)?;
+                want(&o.children, (len + 1) * 4, "children index")?;
+                if let Ok(r) = find(SectionKind::Skips, k) {
+                    want(&r, len, "back-off skips")?;
+                    o.skips = r;
+                }
+            }
+            orders.push(o);
+        }
+        let mut m = Model {
+            path: path.to_path_buf(),
+            map,
+            meta,
+            entries,
+            n,
+            nw,
+            ids,
+            offsets,
+            text,
+            ranking,
+            orders,
+            bos: 0,
+            unk: 0,
+        };
+        let need = |m: &Model, id: WordId, what: &str| {
+            m.index_of(id)
+                .ok_or_else(|| bad(format!("the vocabulary has no {what}")))
+        };
+        m.bos = need(&m, bos_id(), "<s>")?;
+        m.unk = need(&m, unk_id(), "<unk>")?;
+        Ok(m)
+    }
+
+    /// The file it was opened from.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// The metadata record.
+    pub fn meta(&self) -> &ModelMeta {
+        &self.meta
+    }
+
+    /// The file's size in bytes.
+    pub fn file_bytes(&self) -> u64 {
+        self.map.len() as u64
+    }
+
+    /// Checks every section's checksum and every structural invariant
+    /// (children ranges increasing and ending at the next order's count,
+    /// words increasing within each context and in range, values finite
+    /// and probabilities within [0, 1], the ranking a permutation of V).
+    /// Reads the whole file.
+    pub fn verify(&self) -> Result<()> {
+        let b = &self.map[..];
+        let bad = |d: String| Error::corrupt(&self.path, d);
+        for e in &self.entries {
+            let r = e.offset as usize..(e.offset + e.len) as usize;
+            if xxhash_rust::xxh3::xxh3_64(&b[r]) != e.hash {
+                let name = SectionKind::from_u32(e.kind).map_or("unknown", |k| k.name());
+                return Err(bad(format!(
+                    "the checksum of the {name} section of order {} (bytes {}..+{}) does not match",
+                    e.order, e.offset, e.len
+                )));
+            }
+        }
+        let ids = &b[self.ids.clone()];
+        for i in 1..self.nw {
+            if u64_at(ids, i - 1) >= u64_at(ids, i) {
+                return Err(bad(format!("the word ids are not increasing at {i}")));
+            }
+        }
+        let offs = &b[self.offsets.clone()];
+        for i in 0..self.nw {
+            let (a, z) = (u64_at(offs, i), u64_at(offs, i + 1));
+            if a > z || z as usize > self.text.len() {
+                return Err(bad(format!("the offsets of word {i} are out of range")));
+            }
+        }
+        let mut seen = vec![false; self.nw];
+        let rk = &b[self.ranking.clone()];
+        for i in 0..self.meta.vocabulary as usize {
+            let x = u32_at(rk, i) as usize;
+            if x >= self.nw || x == self.bos as usize || std::mem::replace(&mut seen[x], true) {
+                return Err(bad(format!(
+                    "the unigram ranking is not a permutation of V at {i}"
+                )));
+            }
+        }
+        for k in 1..=self.n {
+            let o = &self.orders[k - 1];
+            let probs = &b[o.probs.clone()];
+            for i in 0..o.len {
+                let q = f32_at(probs, i);
+                if !(q.is_finite() && q >= 0.0 && (q <= 1.0 || !self.meta.probabilities)) {
+                    return Err(bad(format!("order {k}: value {q} of n-gram {i}")));
+                }
+            }
+            if k < self.n {
+                let w = &b[o.weights.clone()];
+                for i in 0..o.len {
+                    let x = f32_at(w, i);
+                    if !(x.is_finite() && x >= 0.0) {
+                        return Err(bad(format!("order {k}: back-off weight {x} of n-gram {i}")));
+                    }
+                }
+                for i in 0..if o.skips.is_empty() { 0 } else { o.len } {
+                    let sk = b[o.skips.start + i] as usize;
+                    if sk == 0 || sk > k {
+                        return Err(bad(format!("order {k}: back-off skip {sk} of n-gram {i}")));
+                    }
+                }
+                let c = &b[o.children.clone()];
+                let next = &self.orders[k];
+                let words = &b[next.words.clone()];
+                let mut prev = 0u32;
+                for i in 0..=o.len {
+                    let s = u32_at(c, i);
+                    if s < prev || (i == 0 && s != 0) || (i == o.len && s as usize != next.len) {
+                        return Err(bad(format!(
+                            "order {k}: the children index is broken at {i}"
+                        )));
+                    }
+                    if i > 0 {
+                        for e in prev as usize..s as usize {
+                            let x = u32_at(words, e);
+                            if x as usize >= self.nw
+                                || (e > prev as usize && u32_at(words, e - 1) >= x)
+                            {
+                                return Err(bad(format!(
+                                    "order {}: the words of the children of n-gram {} are not increasing",
+                                    k + 1,
+                                    i - 1
+                                )));
+                            }
+                        }
+                    }
+                    prev = s;
+                }
+            }
+        }
+        Ok(())
+    }
+
+    // ---- raw access ----------------------------------------------------------
+
+    /// The word index of `id`, if the model has it (`<s>` included).
+    pub(crate) fn index_of(&self, id: WordId) -> Option<u32> {
+        let ids = &self.map[self.ids.clone()];
+        let (mut lo, mut hi) = (0usize, self.nw);
+        // Interpolation search: ids are hashes, spread evenly.
+        while hi - lo > 8 {
+            let a = u64_at(ids, lo);
+            let z = u64_at(ids, hi - 1);
+            if id < a || id > z {
+                return None;
+            }
+            let span = (z - a) as u128;
+            let mut m = lo + (((id - a) as u128 * (hi - 1 - lo) as u128) / span.max(1)) as usize;
+            m = m.clamp(lo, hi - 1);
+            let x = u64_at(ids, m);
+            if x == id {
+                return Some(m as u32);
+            }
+            if x < id {
+                lo = m + 1;
+            } else {
+                hi = m;
+            }
+            // One bisection step as well, so that a skewed range still
+            // halves.
+            if hi - lo > 8 {
+                let mid = lo + (hi - lo) / 2;
+                let x = u64_at(ids, mid);
+                if x == id {
+                    return Some(mid as u32);
+                }
+                if x < id {
+                    lo = mid + 1;
+                } else {
+                    hi = mid;
+                }
+            }
+        }
+        (lo..hi).find(|&i| u64_at(ids, i) == id).map(|i| i as u32)
+    }
+
+    /// The id of word index `x`.
+    pub(crate) fn id_at(&self, x: u32) -> WordId {
+        u64_at(&self.map[self.ids.clone()], x as usize)
+    }
+
+    /// The text of word index `x` (lossy for damaged bytes).
+    pub(crate) fn text_at(&self, x: u32) -> String {
+        let offs = &self.map[self.offsets.clone()];
+        let t = &self.map[self.text.clone()];
+        let a = (u64_at(offs, x as usize) as usize).min(t.len());
+        let z = (u64_at(offs, x as usize + 1) as usize).clamp(a, t.len());
+        String::from_utf8_lossy(&t[a..z]).into_owned()
+    }
+
+    /// q of entry `e` of order `k`.
+    #[inline]
+    pub(crate) fn q(&self, k: usize, e: u32) -> f64 {
+        f32_at(&self.map[self.orders[k - 1].probs.clone()], e as usize) as f64
+    }
+
+    /// β of entry `e` of order `k` (k < N).
+    #[inline]
+    pub(crate) fn beta(&self, k: usize, e: u32) -> f64 {
+        f32_at(&self.map[self.orders[k - 1].weights.clone()], e as usize) as f64
+    }
+
+    /// How many words entry `e` of order `k` (k < N) drops when it backs
+    /// off (1 unless the order has a skips section).
+    #[inline]
+    pub(crate) fn skip(&self, k: usize, e: u32) -> usize {
+        let r = &self.orders[k - 1].skips;
+        if r.is_empty() {
+            1
+        } else {
+            self.map[r.clone()]
+                .get(e as usize)
+                .map_or(1, |&s| s.max(1) as usize)
+        }
+    }
+
+    /// How many contexts back off past their next shorter context (`katz`
+    /// only): the ARPA text cannot say so, and there it is not the method.
+    pub fn skipping_contexts(&self) -> u64 {
+        let mut n = 0;
+        for o in &self.orders {
+            n += self.map[o.skips.clone()].iter().filter(|&&s| s > 1).count() as u64;
+        }
+        n
+    }
+
+    /// Whether some context backs off past its next shorter context.
+    pub(crate) fn has_skips(&self) -> bool {
+        self.orders.iter().any(|o| !o.skips.is_empty())
+    }
+
+    /// The children of entry `e` of order `k` (k < N): a range of entries
+    /// of order k + 1, clamped to it.
+    #[inline]
+    pub(crate) fn children(&self, k: usize, e: u32) -> Range<usize> {
+        let c = &self.map[self.orders[k - 1].children.clone()];
+        let n = self.orders[k].len;
+        let lo = (u32_at(c, e as usize) as usize).min(n);
+        let hi = (u32_at(c, e as usize + 1) as usize).clamp(lo, n);
+        lo..hi
+    }
+
+    /// The last word of entry `e` of order `k`.
+    #[inline]
+    pub(crate) fn word_of(&self, k: usize, e: usize) -> u32 {
+        if k == 1 {
+            e as u32
+        } else {
+            u32_at(&self.map[self.orders[k - 1].words.clone()], e)
+        }
+    }
+
+    /// The entry of order `k + 1` that continues entry `e` of order `k`
+    /// with word `w`, if kept.
+    #[inline]
+    pub(crate) fn child(&self, k: usize, e: u32, w: u32) -> Option<u32> {
+        let r = self.children(k, e);
+        find_word(&self.map[self.orders[k].words.clone()], r.start, r.end, w).map(|i| i as u32)
+    }
+}
+
+/// The position of `w` among the increasing u32 words `words[lo..hi]`.
+#[inline]
+pub(crate) fn find_word(words: &[u8], mut lo: usize, mut hi: usize, w: u32) -> Option<usize> {
+    // Word indices are ranks of hashes: spread evenly, so interpolation
+    // finds a word in a long list in a few probes; bisection steps keep
+    // the worst case logarithmic.
+    while hi - lo > 16 {
+        let a = u32_at(words, lo);
+        let z = u32_at(words, hi - 1);
+        if w < a || w > z {
+            return None;
+        }
+        let m = lo + ((w - a) as u64 * (hi - 1 - lo) as u64 / ((z - a) as u64).max(1)) as usize;
+        let x = u32_at(words, m);
+        if x == w {
+            return Some(m);
+        }
+        if x < w {
+            lo = m + 1;
+        } else {
+            hi = m;
+        }
+        if hi - lo > 16 {
+            let mid = lo + (hi - lo) / 2;
+            let x = u32_at(words, mid);
+            if x == w {
+                return Some(mid);
+            }
+            if x < w {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+    }
+    (lo..hi).find(|&i| u32_at(words, i) == w)
+}

@@ -1,0 +1,170 @@
+//! Writing a model file: header, sections one after another (each hashed
+//! as it is written), then the directory and the trailer. The file is
+//! written under a temporary name beside the target, synced, and renamed
+//! into place, so a model file is either complete or absent.
+
+use std::fs::File;
+use std::io::{BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+use xxhash_rust::xxh3::Xxh3;
+
+use crate::error::{Error, IoContext, Result};
+
+use super::format::{Entry, SectionKind, ALIGN, END_MAGIC, MAGIC, MODEL_VERSION};
+
+/// Writes one model file.
+pub struct ModelWriter {
+    path: PathBuf,
+    tmp: PathBuf,
+    out: BufWriter<File>,
+    pos: u64,
+    entries: Vec<Entry>,
+}
+
+impl ModelWriter {
+    /// Starts `path` (written as `path.tmp` until [`ModelWriter::finish`]).
+    pub fn create(path: &Path) -> Result<ModelWriter> {
+        let mut tmp = path.as_os_str().to_owned();
+        tmp.push(".tmp");
+        let tmp = PathBuf::from(tmp);
+        let f = File::create(&tmp).at(&tmp, "create")?;
+        let mut w = ModelWriter {
+            path: path.to_path_buf(),
+            tmp,
+            out: BufWriter::with_capacity(1 << 20, f),
+            pos: 0,
+            entries: Vec::new(),
+        };
+        let mut h = Vec::with_capacity(16);
+        h.extend_from_slice(&MAGIC);
+        h.extend_from_slice(&MODEL_VERSION.to_le_bytes());
+        h.extend_from_slice(&0u32.to_le_bytes());
+        w.raw(&h)?;
+        Ok(w)
+    }
+
+    fn raw(&mut self, b: &[u8]) -> Result<()> {
+        self.out.write_all(b).at(&self.tmp, "write")?;
+        self.pos += b.len() as u64;
+        Ok(())
+    }
+
+    fn pad(&mut self) -> Result<()> {
+        let r = (ALIGN - self.pos % ALIGN) % ALIGN;
+        self.raw(&[0u8; 8][..r as usize])
+    }
+
+    /// Adds a section from bytes in memory.
+    pub fn section(&mut self, kind: SectionKind, order: usize, bytes: &[u8]) -> Result<()> {
+        self.section_from(kind, order, &mut &bytes[..], &self.tmp.clone())
+    }
+
+    /// Adds a section copied from a reader (`what` names it in errors).
+    pub fn section_from(
+        &mut self,
+        kind: SectionKind,
+        order: usize,
+        r: &mut impl Read,
+        what: &Path,
+    ) -> Result<()> {
+        self.pad()?;
+        let offset = self.pos;
+        let mut h = Xxh3::new();
+        let mut buf = vec![0u8; 1 << 20];
+        loop {
+            let n = r.read(&mut buf).at(what, "read")?;
+            if n == 0 {
+                break;
+            }
+            h.update(&buf[..n]);
+            self.raw(&buf[..n])?;
+        }
+        self.entries.push(Entry {
+            kind: kind as u32,
+            order: order as u32,
+            offset,
+            len: self.pos - offset,
+            hash: h.digest(),
+        });
+        Ok(())
+    }
+
+    /// Writes the directory and the trailer, syncs and renames the file
+    /// into place. Returns its size.
+    pub fn finish(mut self) -> Result<u64> {
+        self.pad()?;
+        let dir_off = self.pos;
+        let mut d = Vec::with_capacity(self.entries.len() * 32);
+        for e in &self.entries {
+            e.encode(&mut d);
+        }
+        self.raw(&d)?;
+        let mut t = Vec::with_capacity(32);
+        t.extend_from_slice(&dir_off.to_le_bytes());
+        t.extend_from_slice(&(self.entries.len() as u64).to_le_bytes());
+        t.extend_from_slice(&xxhash_rust::xxh3::xxh3_64(&d).to_le_bytes());
+        t.extend_from_slice(&END_MAGIC);
+        self.raw(&t)?;
+        let size = self.pos;
+        let f = self
+            .out
+            .into_inner()
+            .map_err(|e| Error::io(&self.tmp, "write", e.into_error()))?;
+        f.sync_all().at(&self.tmp, "sync")?;
+        drop(f);
+        std::fs::rename(&self.tmp, &self.path).at(&self.path, "rename into place")?;
+        Ok(size)
+    }
+}
+
+/// Little-endian arrays written to a temporary file one value at a time.
+pub(crate) struct ArrayFile {
+    pub path: PathBuf,
+    out: BufWriter<File>,
+    /// Values written.
+    pub len: u64,
+}
+
+impl ArrayFile {
+    /// Creates (truncates) `path`.
+    pub fn create(path: PathBuf) -> Result<ArrayFile> {
+        let f = File::create(&path).at(&path, "create")?;
+        Ok(ArrayFile {
+            path,
+            out: BufWriter::with_capacity(1 << 18, f),
+            len: 0,
+        })
+    }
+
+    /// Appends raw bytes of one value.
+    #[inline]
+    pub fn put(&mut self, b: &[u8]) -> Result<()> {
+        self.len += 1;
+        self.out.write_all(b).at(&self.path, "write")
+    }
+
+    /// Appends a u32.
+    #[inline]
+    pub fn u32(&mut self, x: u32) -> Result<()> {
+        self.put(&x.to_le_bytes())
+    }
+
+    /// Appends an f32.
+    #[inline]
+    pub fn f32(&mut self, x: f32) -> Result<()> {
+        self.put(&x.to_le_bytes())
+    }
+
+    /// Appends an f64.
+    #[inline]
+    pub fn f64(&mut self, x: f64) -> Result<()> {
+        self.put(&x.to_le_bytes())
+    }
+
+    /// Flushes and closes; returns the path.
+    pub fn close(mut self) -> Result<PathBuf> {
+        self.out.flush().at(&self.path, "write")?;
+        Ok(self.path)
+    }
+}

@@ -1,0 +1,164 @@
+//! `bench-model`: a frozen model beside its store in one run: `prob`
+//! throughput (one thread, batches of running text, warm) and `next --top
+//! 10` latency from the store's estimator and from the model, the passes
+//! interleaved; the model's open time; printed as JSON.
+//!
+//! ```sh
+//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3]
+//! ```
+//!
+//! The model must have been frozen from the store with the same method
+//! (`quern freeze`). Queries are every prediction of the held-out
+//! sentences (tokenized as at ingest), in order: running text, so the
+//! model carries its matched context from one prediction to the next.
+//! The first pass of each warms caches (block cache, page cache) and is
+//! reported apart; "warm" is the mean rate of the later passes. Rates are
+//! given per second of wall time and per second of this thread's CPU time
+//! (the latter is what a machine shared with other jobs does not distort).
+
+use std::path::PathBuf;
+use std::time::Instant;
+
+use quern::model::Model;
+use quern::query::{prediction, Estimator, Method, Params};
+use quern::store::Store;
+use quern::words::WordId;
+
+/// CPU seconds of this thread so far (the rates per CPU second are what a
+/// loaded machine does not distort).
+fn thread_cpu() -> f64 {
+    let mut ts = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // clock_gettime only writes the timespec it is given.
+    let rc = thread_clock(&mut ts);
+    assert_eq!(rc, 0, "clock_gettime");
+    ts.tv_sec as f64 + ts.tv_nsec as f64 * 1e-9
+}
+
+#[allow(unsafe_code)]
+fn thread_clock(ts: &mut libc::timespec) -> i32 {
+    // SAFETY: `ts` is a valid, writable timespec for the call's duration.
+    unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, ts) }
+}
+
+fn main() {
+    let (mut store, mut model, mut text) = (None, None, None);
+    let (mut method, mut cache, mut contexts, mut passes) =
+        ("mkn".to_string(), 256usize << 20, 1000usize, 3usize);
+    let mut it = std::env::args().skip(1);
+    while let Some(a) = it.next() {
+        let v = it.next().unwrap_or_else(|| panic!("{a} needs a value"));
+        match a.as_str() {
+            "--store" => store = Some(PathBuf::from(v)),
+            "--model" => model = Some(PathBuf::from(v)),
+            "--text" => text = Some(PathBuf::from(v)),
+            "--method" => method = v,
+            "--cache" => cache = quern::memory::parse_size(&v).expect("size") as usize,
+            "--contexts" => contexts = v.parse().expect("number"),
+            "--passes" => passes = v.parse::<usize>().expect("number").max(2),
+            _ => panic!("unknown flag {a}"),
+        }
+    }
+    let t = Instant::now();
+    let model = Model::open(&model.expect("--model")).expect("open model");
+    let open_ms = t.elapsed().as_secs_f64() * 1e3;
+    let store = Store::open_with_cache(&store.expect("--store"), cache).expect("open store");
+    let m: Method = method.parse().expect("method");
+    assert_eq!(
+        model.method(),
+        m,
+        "the model was frozen with another method"
+    );
+    let est = Estimator::new(&store, m, Params::default()).expect("estimator");
+    let n = store.order();
+    let s = quern::query::score::read_sentences(&[text.expect("--text")], false).expect("text");
+    let queries: Vec<&[WordId]> = s
+        .iter()
+        .flat_map(|x| (1..x.len()).map(move |i| prediction(x, i, n)))
+        .collect();
+    let mut store_rates = Vec::new();
+    let mut model_rates = Vec::new();
+    let mut store_cpu = Vec::new();
+    let mut model_cpu = Vec::new();
+    let mut check = (0.0f64, 0.0f64);
+    for _ in 0..passes {
+        let (t, c0) = (Instant::now(), thread_cpu());
+        for c in queries.chunks(4096) {
+            let r = est.prob_batch(c).expect("prob");
+            check.0 += r
+                .iter()
+                .map(|p| p.log10)
+                .filter(|x| x.is_finite())
+                .sum::<f64>();
+        }
+        store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
+        store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+        let (t, c0) = (Instant::now(), thread_cpu());
+        for c in queries.chunks(4096) {
+            let r = model.prob_batch(c).expect("prob");
+            check.1 += r
+                .iter()
+                .map(|p| p.log10)
+                .filter(|x| x.is_finite())
+                .sum::<f64>();
+        }
+        model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
+        model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+    }
+    let warm = |r: &[f64]| r[1..].iter().sum::<f64>() / (r.len() - 1) as f64;
+    let half = (contexts / 2).max(1);
+    let ctxs: Vec<&[WordId]> = s
+        .iter()
+        .step_by((s.len() / half).max(1))
+        .flat_map(|x| {
+            let i = x.len() / 2;
+            [&x[..1], &x[(i + 1).saturating_sub(n)..=i]]
+        })
+        .collect();
+    let time_next = |f: &dyn Fn(&[WordId])| {
+        let mut times = Vec::new();
+        for _ in 0..2 {
+            times.clear();
+            for h in &ctxs {
+                let t = Instant::now();
+                f(h);
+                times.push(t.elapsed().as_secs_f64() * 1e3);
+            }
+        }
+        times.sort_by(f64::total_cmp);
+        let q = |f: f64| times[((times.len() - 1) as f64 * f).round() as usize];
+        serde_json::json!({"median_ms": q(0.5), "p99_ms": q(0.99), "max_ms": times[times.len() - 1]})
+    };
+    let next_store = time_next(&|h| {
+        std::hint::black_box(est.next(h, 10).expect("next"));
+    });
+    let next_model = time_next(&|h| {
+        std::hint::black_box(model.next(h, 10).expect("next"));
+    });
+    let ngrams: u64 = model.meta().ngrams.iter().sum();
+    let out = serde_json::json!({
+        "method": m.name(),
+        "order": n,
+        "predictions": queries.len(),
+        "model_bytes": model.file_bytes(),
+        "model_ngrams": ngrams,
+        "bytes_per_ngram": model.file_bytes() as f64 / ngrams as f64,
+        "model_open_ms": open_ms,
+        "prob_per_second": {
+            "store": {"first": store_rates[0], "warm": warm(&store_rates)},
+            "model": {"first": model_rates[0], "warm": warm(&model_rates)},
+            "model_over_store_warm": warm(&model_rates) / warm(&store_rates),
+        },
+        "prob_per_cpu_second": {
+            "store": {"first": store_cpu[0], "warm": warm(&store_cpu)},
+            "model": {"first": model_cpu[0], "warm": warm(&model_cpu)},
+            "model_over_store_warm": warm(&model_cpu) / warm(&store_cpu),
+        },
+        "log10_sum_per_pass": {"store": check.0 / passes as f64, "model": check.1 / passes as f64},
+        "next_contexts": ctxs.len(),
+        "next_top10_warm": {"store": next_store, "model": next_model},
+    });
+    println!("{out}");
+}
