@@ -619,3 +619,97 @@ fn spark_driver_in_local_mode_equals_single_machine() {
     assert_eq!(redone.len(), 1, "{third}");
     assert!(std::fs::read(&victim).unwrap() == before[1]);
 }
+
+/// `--model`: a frozen model of the same store gives every document the
+/// store's score within the model's stored precision (32-bit floats; the
+/// freeze tests check each probability to about 3e-7 relative), any thread
+/// count gives the same output, and `--minus-model` equals two runs.
+#[test]
+fn frozen_model_scores_equal_the_store_and_two_model_runs() {
+    let model = tmp().join("train3.qm");
+    run_ok(&[
+        "freeze",
+        "--store",
+        &s(train3()),
+        "--method",
+        "mkn",
+        "--out",
+        &s(&model),
+    ]);
+    let general = tmp().join("general2.qm");
+    run_ok(&[
+        "freeze",
+        "--store",
+        &s(general_store()),
+        "--method",
+        "mkn",
+        "--out",
+        &s(&general),
+    ]);
+    let (st, _) = score_docs(train3(), &["--jsonl"], &[input_file()]);
+    let run_model = |extra: &[&str]| -> (Vec<Value>, String) {
+        let mut args = vec!["score", "--model", model.to_str().unwrap(), "--jsonl"];
+        args.extend_from_slice(extra);
+        args.push(input_file().to_str().unwrap());
+        let r = run_ok(&args);
+        let v = r
+            .stdout
+            .lines()
+            .map(|l| serde_json::from_str(l).unwrap())
+            .collect();
+        (v, r.stdout)
+    };
+    let (m, text1) = run_model(&["--threads", "1"]);
+    let (_, text2) = run_model(&["--threads", "2"]);
+    assert!(text1 == text2, "--threads changed the model's output");
+    assert_eq!(m.len(), st.len());
+    for (a, b) in st.iter().zip(&m) {
+        assert_eq!(a["id"], b["id"]);
+        assert_eq!(a.get("error"), b.get("error"));
+        if a.get("error").is_some() {
+            continue;
+        }
+        assert_eq!(a["predictions"], b["predictions"]);
+        assert_eq!(a["outside_vocabulary"], b["outside_vocabulary"]);
+        let (x, y) = (
+            a["perplexity"].as_f64().unwrap(),
+            b["perplexity"].as_f64().unwrap(),
+        );
+        // log10 P is a sum of per-prediction logs each within ~3e-7
+        // relative in P, so the per-token log10 differs by < 1e-6.
+        assert!(
+            (x.log10() - y.log10()).abs() < 1e-6,
+            "line {}: {x} vs {y}",
+            a["line"]
+        );
+    }
+    // Two frozen models: the difference of two separate runs.
+    let mut args = vec!["score", "--model", model.to_str().unwrap(), "--jsonl"];
+    let g = general.display().to_string();
+    args.extend_from_slice(&["--minus-model", &g, input_file().to_str().unwrap()]);
+    let both: Vec<Value> = run_ok(&args)
+        .stdout
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let r = run_ok(&[
+        "score",
+        "--model",
+        &g,
+        "--jsonl",
+        input_file().to_str().unwrap(),
+    ]);
+    let gen: Vec<Value> = r
+        .stdout
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    for ((x, y), z) in m.iter().zip(&gen).zip(&both) {
+        if x.get("error").is_some() {
+            continue;
+        }
+        let n = x["predictions"].as_f64().unwrap();
+        let want = -x["log10_sum"].as_f64().unwrap() / n + y["log10_sum"].as_f64().unwrap() / n;
+        assert!(close(z["ce_difference"].as_f64().unwrap(), want));
+    }
+}
