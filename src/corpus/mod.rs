@@ -145,8 +145,31 @@ fn describe(p: &Path, meta: &std::fs::Metadata) -> Result<InputFile> {
     })
 }
 
-/// Cuts the inputs into chunks of about `chunk_bytes`, at line boundaries.
+/// The test setting that overrides every chunk size: `QUERN_CHUNK_BYTES=<n>`
+/// (bytes, at least 1) in the environment makes [`plan_chunks`] cut plain
+/// files into chunks of about n bytes, whatever size its caller asked for,
+/// so that tests cut small fixtures into many chunks (the ingest's default
+/// is 16 MiB, a staged plan's at least 1 MiB). Not for users: it is
+/// documented in DEVELOPERS.md only.
+pub const CHUNK_BYTES_VAR: &str = "QUERN_CHUNK_BYTES";
+
+fn chunk_bytes_setting(requested: u64) -> Result<u64> {
+    match std::env::var_os(CHUNK_BYTES_VAR) {
+        None => Ok(requested),
+        Some(v) => match v.to_str().and_then(|s| s.parse::<u64>().ok()) {
+            Some(n) if n >= 1 => Ok(n),
+            _ => Err(Error::Config(format!(
+                "{CHUNK_BYTES_VAR}={} is not a chunk size (a number of bytes, at least 1)",
+                v.to_string_lossy()
+            ))),
+        },
+    }
+}
+
+/// Cuts the inputs into chunks of about `chunk_bytes` (or the size set by
+/// [`CHUNK_BYTES_VAR`]), at line boundaries.
 pub fn plan_chunks(files: &[InputFile], chunk_bytes: u64) -> Result<Vec<Span>> {
+    let chunk_bytes = chunk_bytes_setting(chunk_bytes)?;
     let mut chunks = Vec::new();
     for (i, f) in files.iter().enumerate() {
         let file = i as u32;

@@ -39,6 +39,32 @@ pub fn fault_input() -> Vec<PathBuf> {
     vec![gutenberg_dir().join("persuasion.txt")]
 }
 
+/// Prints a notice that shows in the output of `cargo test` even when the
+/// test passes (it is written to standard error directly, past the test
+/// harness's capture): for a check that ran in a reduced form, such as a
+/// fallback. `scripts/test` repeats every such line in its last summary.
+pub fn notice(msg: &str) {
+    use std::io::Write;
+    let _ = writeln!(std::io::stderr(), "NOTICE (quern tests): {msg}");
+}
+
+/// `python3`, which the tests run (scripts/setup installs it). Panics with
+/// that advice when it is missing: a Python check is never skipped quietly.
+pub fn python3() -> &'static str {
+    static FOUND: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+    let found = *FOUND.get_or_init(|| {
+        Command::new("python3")
+            .arg("--version")
+            .output()
+            .is_ok_and(|o| o.status.success())
+    });
+    assert!(
+        found,
+        "python3 is not installed: run scripts/setup (the tests compare with Python's standard library)"
+    );
+    "python3"
+}
+
 /// Path of the binary under test (provided by cargo for integration tests).
 pub fn bin() -> &'static str {
     env!("CARGO_BIN_EXE_quern")
@@ -412,6 +438,20 @@ fn cmp_value(path: &str, e: &Value, a: &Value, errors: &mut Vec<String>) {
             }
         }
     }
+}
+
+/// Reads a JSON file written with a trailing `#xxh3=` line (the ingest's
+/// `work/manifest.json`, a staged job's `job.json`).
+pub fn checked_json(path: &Path) -> Value {
+    let text =
+        std::fs::read_to_string(path).unwrap_or_else(|e| panic!("read {}: {e}", path.display()));
+    let body = text.rsplit_once("\n#xxh3=").map_or(&text[..], |x| x.0);
+    serde_json::from_str(body).unwrap_or_else(|e| panic!("{} is not JSON: {e}", path.display()))
+}
+
+/// The manifest of an unfinished ingest into `store`.
+pub fn manifest(store: &Path) -> Value {
+    checked_json(&store.join("work").join("manifest.json"))
 }
 
 /// Waits for `child` up to `secs` seconds; kills it and returns None on

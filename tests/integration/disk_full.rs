@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use crate::common::{
-    assert_views_eq, ingest_args, ingest_ok, run, run_env, store_view, Run, StoreView,
+    assert_views_eq, ingest_args, ingest_ok, notice, run, run_env, store_view, Run, StoreView,
 };
 
 use crate::common::TINY_BUDGET as FLAGS;
@@ -111,9 +111,9 @@ fn small_tmpfs_disk_full_then_resume() {
     for size in ["1536k", "6m"] {
         let tmp = tempfile::tempdir().unwrap();
         let Some(fs) = Tmpfs::mount(&tmp.path().join("fs"), size) else {
-            eprintln!(
-                "disk_full: cannot mount a tmpfs here (not root, or not allowed); running the injected case instead"
-            );
+            notice(&format!(
+                "disk_full::small_tmpfs_disk_full_then_resume: cannot mount a tmpfs of {size} here (not root, or not allowed): ran the injected out-of-space case (QUERN_FULL_AT=run:4) instead of a real full file system"
+            ));
             injected(&expected, "run:4");
             return;
         };

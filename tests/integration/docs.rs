@@ -491,133 +491,137 @@ fn compressed_inputs_lines_format_and_words() {
     ));
 }
 
-/// scripts/spark_score.py under Spark in local mode (see spark.rs for how
-/// Spark is found; `QUERN_SKIP_SPARK=1` skips): each scored file equals the
-/// single-machine `quern score --jsonl` of its input byte for byte; the
-/// merged summary's counts and totals equal one single-machine run over all
-/// inputs, its percentiles are within the documented histogram bound of
-/// that run's exact ones; a second run skips every finished file.
-#[test]
-fn spark_driver_in_local_mode_equals_single_machine() {
-    let Some(submit) = crate::spark::spark_submit() else {
-        return;
-    };
-    let dir = tmp().join("spark");
-    if dir.exists() {
-        std::fs::remove_dir_all(&dir).unwrap();
+// In a module named `spark` so that the harness filter that leaves out the
+// Spark tests (`--skip spark::`, scripts/test) leaves this one out too.
+mod spark {
+    use super::*;
+
+    /// scripts/spark_score.py under Spark in local mode (see spark.rs for how
+    /// Spark is found): each scored file equals the
+    /// single-machine `quern score --jsonl` of its input byte for byte; the
+    /// merged summary's counts and totals equal one single-machine run over all
+    /// inputs, its percentiles are within the documented histogram bound of
+    /// that run's exact ones; a second run skips every finished file.
+    #[test]
+    fn driver_in_local_mode_equals_single_machine() {
+        let submit = crate::spark::spark_submit();
+        let dir = tmp().join("spark");
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).unwrap();
+        }
+        let inputs = dir.join("crawl");
+        std::fs::create_dir_all(&inputs).unwrap();
+        // Three .jsonl.gz files (Python's gzip module) from the test input.
+        let lines = &input().0;
+        let mut files = Vec::new();
+        for (k, part) in lines.chunks(lines.len().div_ceil(3)).enumerate() {
+            let plain = inputs.join(format!("part-{k}.jsonl"));
+            std::fs::write(&plain, part.join("\n") + "\n").unwrap();
+            let gz = inputs.join(format!("part-{k}.jsonl.gz"));
+            let st = std::process::Command::new("python3")
+                .args([
+                    "-c",
+                    "import gzip, shutil, sys; shutil.copyfileobj(open(sys.argv[1], 'rb'), gzip.open(sys.argv[2], 'wb'))",
+                    &s(&plain),
+                    &s(&gz),
+                ])
+                .status()
+                .unwrap();
+            assert!(st.success());
+            std::fs::remove_file(&plain).unwrap();
+            files.push(gz);
+        }
+        let out = dir.join("scored");
+        let go = || {
+            let _one = crate::spark::ONE_AT_A_TIME
+                .lock()
+                .unwrap_or_else(|e| e.into_inner());
+            let r = std::process::Command::new(&submit)
+                .args(["--master", "local[2,4]", "--conf", "spark.ui.enabled=false"])
+                .args(["--driver-memory", "1g"])
+                .arg(crate::common::manifest_dir().join("scripts/spark_score.py"))
+                .args(["--quern", crate::common::bin(), "--store", &s(train3())])
+                .args(["--out", &s(&out), &s(&inputs)])
+                .env("PYSPARK_PYTHON", "python3")
+                .env("SPARK_LOCAL_IP", "127.0.0.1")
+                .stdin(std::process::Stdio::null())
+                .output()
+                .unwrap();
+            let text = String::from_utf8_lossy(&r.stdout).into_owned();
+            assert!(
+                r.status.success(),
+                "spark_score.py failed:\n{text}\n{}",
+                String::from_utf8_lossy(&r.stderr)
+            );
+            let last = text.lines().rfind(|l| l.starts_with('{')).unwrap();
+            serde_json::from_str::<Value>(last).unwrap()
+        };
+        let merged = go();
+        for f in &files {
+            let name = f.file_name().unwrap().to_string_lossy().into_owned();
+            let got = std::fs::read(out.join(&name).join("scores.jsonl")).unwrap();
+            let (_, want) = score_docs(train3(), &["--jsonl", "--threads", "1"], &[f]);
+            assert!(got == want.as_bytes(), "{name}: Spark's output differs");
+        }
+        let sum = dir.join("single.json");
+        let mut all: Vec<&Path> = files.iter().map(|p| p.as_path()).collect();
+        all.sort();
+        score_docs(train3(), &["--jsonl", "--summary", &s(&sum)], &all);
+        let single: Value = serde_json::from_str(&std::fs::read_to_string(&sum).unwrap()).unwrap();
+        for k in ["lines", "documents", "bad_lines", "empty_documents"] {
+            assert_eq!(merged[k], single[k], "{k}");
+        }
+        for k in [
+            "sentences",
+            "predictions",
+            "outside_vocabulary",
+            "probability_zero",
+        ] {
+            assert_eq!(merged["totals"][k], single["totals"][k], "{k}");
+        }
+        assert!(close(
+            merged["totals"]["log10_sum_nonzero"].as_f64().unwrap(),
+            single["totals"]["log10_sum_nonzero"].as_f64().unwrap()
+        ));
+        let (md, sd) = (&merged["distribution"], &single["distribution"]);
+        assert_eq!(md["count"], sd["count"]);
+        assert_eq!(md["bins"], sd["bins"]);
+        // Documented bound: 10^(bin_width / 2) - 1 relative.
+        let bound = 10f64.powf(sd["bin_width"].as_f64().unwrap() / 2.0) - 1.0;
+        for p in [1, 5, 10, 25, 50, 75, 90, 95, 99] {
+            let k = format!("p{p}");
+            let (a, b) = (
+                md["percentiles"][&k].as_f64().unwrap(),
+                sd["percentiles"][&k].as_f64().unwrap(),
+            );
+            assert!((a / b - 1.0).abs() <= bound * 1.000001, "{k}: {a} vs {b}");
+        }
+        // A second run: every file is finished and skipped, outputs unchanged.
+        let before: Vec<Vec<u8>> = files
+            .iter()
+            .map(|f| std::fs::read(out.join(f.file_name().unwrap()).join("scores.jsonl")).unwrap())
+            .collect();
+        let again = go();
+        for t in again["tasks"].as_array().unwrap() {
+            assert_eq!(t["outcome"], json!("skipped"), "{t}");
+        }
+        for (f, b) in files.iter().zip(&before) {
+            let now = std::fs::read(out.join(f.file_name().unwrap()).join("scores.jsonl")).unwrap();
+            assert!(&now == b);
+        }
+        // A damaged output is redone on the next run.
+        let victim = out.join(files[1].file_name().unwrap()).join("scores.jsonl");
+        std::fs::write(&victim, b"damaged\n").unwrap();
+        let third = go();
+        let redone: Vec<&Value> = third["tasks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|t| t["outcome"] != json!("skipped"))
+            .collect();
+        assert_eq!(redone.len(), 1, "{third}");
+        assert!(std::fs::read(&victim).unwrap() == before[1]);
     }
-    let inputs = dir.join("crawl");
-    std::fs::create_dir_all(&inputs).unwrap();
-    // Three .jsonl.gz files (Python's gzip module) from the test input.
-    let lines = &input().0;
-    let mut files = Vec::new();
-    for (k, part) in lines.chunks(lines.len().div_ceil(3)).enumerate() {
-        let plain = inputs.join(format!("part-{k}.jsonl"));
-        std::fs::write(&plain, part.join("\n") + "\n").unwrap();
-        let gz = inputs.join(format!("part-{k}.jsonl.gz"));
-        let st = std::process::Command::new("python3")
-            .args([
-                "-c",
-                "import gzip, shutil, sys; shutil.copyfileobj(open(sys.argv[1], 'rb'), gzip.open(sys.argv[2], 'wb'))",
-                &s(&plain),
-                &s(&gz),
-            ])
-            .status()
-            .unwrap();
-        assert!(st.success());
-        std::fs::remove_file(&plain).unwrap();
-        files.push(gz);
-    }
-    let out = dir.join("scored");
-    let go = || {
-        let _one = crate::spark::ONE_AT_A_TIME
-            .lock()
-            .unwrap_or_else(|e| e.into_inner());
-        let r = std::process::Command::new(&submit)
-            .args(["--master", "local[2,4]", "--conf", "spark.ui.enabled=false"])
-            .args(["--driver-memory", "1g"])
-            .arg(crate::common::manifest_dir().join("scripts/spark_score.py"))
-            .args(["--quern", crate::common::bin(), "--store", &s(train3())])
-            .args(["--out", &s(&out), &s(&inputs)])
-            .env("PYSPARK_PYTHON", "python3")
-            .env("SPARK_LOCAL_IP", "127.0.0.1")
-            .stdin(std::process::Stdio::null())
-            .output()
-            .unwrap();
-        let text = String::from_utf8_lossy(&r.stdout).into_owned();
-        assert!(
-            r.status.success(),
-            "spark_score.py failed:\n{text}\n{}",
-            String::from_utf8_lossy(&r.stderr)
-        );
-        let last = text.lines().rfind(|l| l.starts_with('{')).unwrap();
-        serde_json::from_str::<Value>(last).unwrap()
-    };
-    let merged = go();
-    for f in &files {
-        let name = f.file_name().unwrap().to_string_lossy().into_owned();
-        let got = std::fs::read(out.join(&name).join("scores.jsonl")).unwrap();
-        let (_, want) = score_docs(train3(), &["--jsonl", "--threads", "1"], &[f]);
-        assert!(got == want.as_bytes(), "{name}: Spark's output differs");
-    }
-    let sum = dir.join("single.json");
-    let mut all: Vec<&Path> = files.iter().map(|p| p.as_path()).collect();
-    all.sort();
-    score_docs(train3(), &["--jsonl", "--summary", &s(&sum)], &all);
-    let single: Value = serde_json::from_str(&std::fs::read_to_string(&sum).unwrap()).unwrap();
-    for k in ["lines", "documents", "bad_lines", "empty_documents"] {
-        assert_eq!(merged[k], single[k], "{k}");
-    }
-    for k in [
-        "sentences",
-        "predictions",
-        "outside_vocabulary",
-        "probability_zero",
-    ] {
-        assert_eq!(merged["totals"][k], single["totals"][k], "{k}");
-    }
-    assert!(close(
-        merged["totals"]["log10_sum_nonzero"].as_f64().unwrap(),
-        single["totals"]["log10_sum_nonzero"].as_f64().unwrap()
-    ));
-    let (md, sd) = (&merged["distribution"], &single["distribution"]);
-    assert_eq!(md["count"], sd["count"]);
-    assert_eq!(md["bins"], sd["bins"]);
-    // Documented bound: 10^(bin_width / 2) - 1 relative.
-    let bound = 10f64.powf(sd["bin_width"].as_f64().unwrap() / 2.0) - 1.0;
-    for p in [1, 5, 10, 25, 50, 75, 90, 95, 99] {
-        let k = format!("p{p}");
-        let (a, b) = (
-            md["percentiles"][&k].as_f64().unwrap(),
-            sd["percentiles"][&k].as_f64().unwrap(),
-        );
-        assert!((a / b - 1.0).abs() <= bound * 1.000001, "{k}: {a} vs {b}");
-    }
-    // A second run: every file is finished and skipped, outputs unchanged.
-    let before: Vec<Vec<u8>> = files
-        .iter()
-        .map(|f| std::fs::read(out.join(f.file_name().unwrap()).join("scores.jsonl")).unwrap())
-        .collect();
-    let again = go();
-    for t in again["tasks"].as_array().unwrap() {
-        assert_eq!(t["outcome"], json!("skipped"), "{t}");
-    }
-    for (f, b) in files.iter().zip(&before) {
-        let now = std::fs::read(out.join(f.file_name().unwrap()).join("scores.jsonl")).unwrap();
-        assert!(&now == b);
-    }
-    // A damaged output is redone on the next run.
-    let victim = out.join(files[1].file_name().unwrap()).join("scores.jsonl");
-    std::fs::write(&victim, b"damaged\n").unwrap();
-    let third = go();
-    let redone: Vec<&Value> = third["tasks"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .filter(|t| t["outcome"] != json!("skipped"))
-        .collect();
-    assert_eq!(redone.len(), 1, "{third}");
-    assert!(std::fs::read(&victim).unwrap() == before[1]);
 }
 
 /// `--model`: a frozen model of the same store gives every document the

@@ -33,6 +33,10 @@ mod disk_full;
 // an unreadable file, a link loop): documented outcome, good input exact.
 mod bad_input;
 
+// Plain inputs cut into many small chunks (QUERN_CHUNK_BYTES): ingest with
+// 3 threads and the stage tasks equal the reference counter.
+mod chunks;
+
 // `--append` equals ingesting everything at once; append with another order
 // is refused.
 mod append;
@@ -62,6 +66,10 @@ mod query_next;
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
 // check), discount formulas, and a textbook add-one example (from memory).
 mod estimators;
+
+// The nine estimators recomputed independently from the reference
+// counter's tables (published formulas), orders 3 and 5, within 1e-12.
+mod estimators_independent;
 
 // `tune` (add-k search, interp EM with and without buckets) lowers
 // held-out perplexity; its file round-trips through --tuned.

@@ -5,30 +5,16 @@ use std::process::Command;
 
 use serde_json::Value;
 
-use crate::common::{assert_lines_eq, assert_stats_eq, manifest_dir, sorted_lines};
-
-fn python3_available() -> bool {
-    Command::new("python3")
-        .arg("--version")
-        .output()
-        .map(|o| o.status.success())
-        .unwrap_or(false)
-}
+use crate::common::{assert_lines_eq, assert_stats_eq, manifest_dir, python3, sorted_lines};
 
 #[test]
 fn python_reference_agrees_with_quern() {
-    if !python3_available() {
-        eprintln!(
-            "NOTICE: python3 not found; skipping the cross-check with scripts/reference_ngrams.py"
-        );
-        return;
-    }
     let script = manifest_dir().join("scripts/reference_ngrams.py");
     assert!(script.is_file(), "{} is missing", script.display());
     let tmp = tempfile::tempdir().unwrap();
     let dump_path = tmp.path().join("python.dump");
     let stats_path = tmp.path().join("python.stats.json");
-    let out = Command::new("python3")
+    let out = Command::new(python3())
         .current_dir(manifest_dir())
         .arg("scripts/reference_ngrams.py")
         .args(["--order", "5", "--dump"])

@@ -2,15 +2,18 @@
 //! store's refusals (order mismatch on resume, re-ingest of a finished store,
 //! a concurrent ingest) and `--restart`.
 
+use std::collections::BTreeMap;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::Stdio;
 use std::sync::OnceLock;
 use std::time::{Duration, Instant};
 
+use serde_json::Value;
+
 use crate::common::{
-    assert_lines_eq, assert_views_eq, command, gutenberg_files, ingest_args, ingest_ok, run,
-    run_env, store_view, wait_timeout, StoreView,
+    assert_lines_eq, assert_views_eq, command, gutenberg_files, ingest_args, ingest_ok, manifest,
+    run, run_env, store_view, wait_timeout, StoreView,
 };
 use crate::reference::{Reference, Settings};
 
@@ -310,4 +313,219 @@ fn concurrent_ingest_is_refused() {
         &actual.dump,
     );
     assert_views_eq("concurrent: first ingest", &expected, &actual);
+}
+
+/// What identifies one file of the work folder: inode, size and
+/// modification time. A file written again (in place, or under a
+/// temporary name and renamed over it) changes at least one of them.
+fn identity(p: &Path) -> (u64, u64, i64, i64) {
+    use std::os::unix::fs::MetadataExt;
+    let m = std::fs::metadata(p).unwrap_or_else(|e| panic!("{}: {e}", p.display()));
+    (m.ino(), m.size(), m.mtime(), m.mtime_nsec())
+}
+
+/// The recorded spills of a manifest: id → (run, dictionary and
+/// first-sightings file names, input ranges covered).
+fn spills(m: &Value) -> BTreeMap<u64, (Vec<String>, Value)> {
+    m["runsets"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            let mut files: Vec<String> = r["runs"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x.as_str().unwrap().to_string())
+                .collect();
+            files.push(r["dict"].as_str().unwrap().to_string());
+            if let Some(f) = r["firsts"].as_str() {
+                files.push(f.to_string());
+            }
+            (r["id"].as_u64().unwrap(), (files, r["covers"].clone()))
+        })
+        .collect()
+}
+
+/// The recorded entries of `merged` or `joined`: partition → its files
+/// (in work/merged or work/sst).
+fn partitions(m: &Value, what: &str) -> BTreeMap<usize, Vec<String>> {
+    let mut out = BTreeMap::new();
+    for (p, e) in m[what].as_array().unwrap().iter().enumerate() {
+        if e.is_null() {
+            continue;
+        }
+        let files: Vec<String> = if what == "merged" {
+            std::iter::once(&e["counts"])
+                .chain(e["suffix_runs"].as_array().unwrap())
+                .map(|x| x.as_str().unwrap().to_string())
+                .collect()
+        } else {
+            e["ssts"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x[1].as_str().unwrap().to_string())
+                .collect()
+        };
+        out.insert(p, files);
+    }
+    out
+}
+
+type Identities = BTreeMap<String, (u64, u64, i64, i64)>;
+
+fn identities<'a>(dir: &Path, names: impl Iterator<Item = &'a String>) -> Identities {
+    names.map(|n| (n.clone(), identity(&dir.join(n)))).collect()
+}
+
+/// A resume reuses what was recorded. The crash tests compare final
+/// stores only, which a resume that counted, merged and joined everything
+/// again would pass; here the manifest (DEVELOPERS.md, "How does resume
+/// work?") is read after each of a chain of kills (after the third
+/// recorded spill, then in the resumed run after its second merge, its
+/// second join, and at the build): every spill, merged partition and
+/// joined partition recorded at one kill is still recorded at the next with
+/// the same files, untouched (same inode, size and modification time); no
+/// input byte is covered by two spills; and the final resume, which only
+/// builds, reports no run file written and time spent in building alone.
+#[test]
+fn resume_reuses_recorded_spills_merges_and_joins() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("store");
+    let work = store.join("work");
+    let mut args = ingest_args(&store, FLAGS, &small_input());
+    let killed = |spec: &str| {
+        let r = run_env(&args, &[("QUERN_KILL_AT", spec)]);
+        assert_eq!(
+            r.signal(),
+            Some(SIGKILL),
+            "QUERN_KILL_AT={spec}\n{}",
+            r.describe()
+        );
+        manifest(&store)
+    };
+
+    // Counting: three spills recorded.
+    let m1 = killed("committed:3");
+    assert_eq!(m1["phase"], "counting", "{}", m1["phase"]);
+    let s1 = spills(&m1);
+    assert!(s1.len() >= 3, "{} spills recorded", s1.len());
+    let files1 = identities(&work.join("runs"), s1.values().flat_map(|s| &s.0));
+
+    // The resume counts only the rest: stopped after its second merge.
+    let m2 = killed("merge:2");
+    assert_eq!(m2["phase"], "merging", "{}", m2["phase"]);
+    let s2 = spills(&m2);
+    for (id, s) in &s1 {
+        assert_eq!(s2.get(id), Some(s), "spill {id} recorded before the resume");
+    }
+    assert!(
+        s2.len() > s1.len(),
+        "the resume recorded no spill of its own"
+    );
+    assert_eq!(
+        identities(&work.join("runs"), files1.keys()),
+        files1,
+        "a spill file recorded before the resume was written again"
+    );
+    // No input byte is covered twice, and every byte is covered.
+    let inputs = m2["inputs"].as_array().unwrap();
+    let mut covers: Vec<(u64, u64, u64)> = s2
+        .values()
+        .flat_map(|s| s.1.as_array().unwrap().clone())
+        .map(|c| {
+            let file = c["file"].as_u64().unwrap();
+            let size = inputs[file as usize]["size"].as_u64().unwrap();
+            (
+                file,
+                c["start"].as_u64().unwrap(),
+                c["end"].as_u64().unwrap().min(size),
+            )
+        })
+        .collect();
+    covers.sort();
+    let mut at = (0u64, 0u64);
+    for c in &covers {
+        if c.0 != at.0 {
+            assert_eq!(at.1, inputs[at.0 as usize]["size"].as_u64().unwrap());
+            at = (c.0, 0);
+        }
+        assert_eq!(
+            c.1, at.1,
+            "input {} covered twice or not at all near byte {}",
+            c.0, at.1
+        );
+        at.1 = c.2;
+    }
+    assert_eq!(at.1, inputs[at.0 as usize]["size"].as_u64().unwrap());
+    let p2 = partitions(&m2, "merged");
+    assert!(p2.len() >= 2, "{} partitions merged", p2.len());
+    let merged2 = identities(&work.join("merged"), p2.values().flatten());
+
+    // Joining, stopped after its second join.
+    let m3 = killed("join:2");
+    assert_eq!(m3["phase"], "joining", "{}", m3["phase"]);
+    let p3 = partitions(&m3, "merged");
+    for (p, files) in &p2 {
+        assert_eq!(p3.get(p), Some(files), "partition {p} merged before");
+    }
+    assert_eq!(
+        identities(&work.join("merged"), merged2.keys()),
+        merged2,
+        "a partition merged before the resume was merged again"
+    );
+    let j3 = partitions(&m3, "joined");
+    assert!(j3.len() >= 2, "{} partitions joined", j3.len());
+    let joined3 = identities(&work.join("sst"), j3.values().flatten());
+
+    // Building, stopped before the database is moved into place.
+    let m4 = killed("build:1");
+    let j4 = partitions(&m4, "joined");
+    for (p, files) in &j3 {
+        assert_eq!(j4.get(p), Some(files), "partition {p} joined before");
+    }
+    assert_eq!(
+        identities(&work.join("sst"), joined3.keys()),
+        joined3,
+        "a partition joined before the resume was joined again"
+    );
+
+    // The last resume only builds.
+    args.push("--json".into());
+    let r = run(&args);
+    r.assert_success();
+    let summary: Value = serde_json::from_str(r.stdout.trim()).unwrap();
+    assert_eq!(summary["resumed"], true, "{summary}");
+    assert_eq!(summary["runs_written"], 0, "{summary}");
+    let phases: Vec<&String> = summary["phase_seconds"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .collect();
+    assert_eq!(phases, ["building"], "{summary}");
+    assert_views_eq("after four kills", baseline(), &store_view(&store));
+}
+
+/// A resume after the merges were recorded writes no count run and spends
+/// no time counting or merging (source: the resumed run's summary).
+#[test]
+fn resume_after_the_merges_counts_and_merges_nothing() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("store");
+    run_killed(&store, "join:2");
+    let mut args = ingest_args(&store, FLAGS, &small_input());
+    args.push("--json".into());
+    let r = run(&args);
+    r.assert_success();
+    let summary: Value = serde_json::from_str(r.stdout.trim()).unwrap();
+    assert_eq!(summary["resumed"], true, "{summary}");
+    assert_eq!(summary["runs_written"], 0, "{summary}");
+    let phases: Vec<&String> = summary["phase_seconds"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .collect();
+    assert_eq!(phases, ["building", "joining"], "{summary}");
+    assert_views_eq("resume after join:2", baseline(), &store_view(&store));
 }

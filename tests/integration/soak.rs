@@ -165,6 +165,12 @@ fn scenario(
 fn random_kills_then_resume_equal_an_uninterrupted_run() {
     let trials = env_u64("QUERN_SOAK_TRIALS", 25);
     let seed = env_u64("QUERN_SOAK_SEED", 1);
+    // Too few trials cannot reach several phases: that is no soak, and a
+    // soak left out must show as left out (`--skip soak::`), not pass.
+    assert!(
+        trials >= MIN_TRIALS,
+        "QUERN_SOAK_TRIALS={trials}: the soak needs at least {MIN_TRIALS} trials; to leave it out, filter it out (cargo test -- --skip soak::)"
+    );
     eprintln!("soak: {trials} trials, QUERN_SOAK_SEED={seed}");
     let mut rng = Rng(seed);
     let dir = gutenberg_dir();
@@ -228,6 +234,23 @@ fn random_kills_then_resume_equal_an_uninterrupted_run() {
                 break;
             }
             kills += 1;
+            // A kill that lands after the store was put in place and the
+            // work folder removed, but before the process exited, leaves a
+            // finished store: running the same command again would be
+            // refused (fresh) or append twice. (An append killed before it
+            // started also leaves no work folder, but the old store, which
+            // differs from the expected one.)
+            if !store.join("work").exists()
+                && store.join("db").join("CURRENT").exists()
+                && store_view(&store) == s.expected
+            {
+                story.push(format!("killed at {at:?} after it finished"));
+                *hits
+                    .entry(format!("{} after finishing", s.name))
+                    .or_default() += 1;
+                finished = true;
+                break;
+            }
             let phase = phase_of(&store);
             story.push(format!("killed at {at:?} in {phase}"));
             *hits.entry(format!("{} {phase}", s.name)).or_default() += 1;
@@ -262,4 +285,23 @@ fn random_kills_then_resume_equal_an_uninterrupted_run() {
         2 * kills >= trials,
         "only {kills} kills landed in {trials} trials: the soak tested little"
     );
+    // The kills hit several phases of the ingest (the manifest's phase at
+    // the kill), in the fresh and in the appending scenario.
+    let phases = |scenario: &str| -> Vec<String> {
+        hits.keys()
+            .filter_map(|k| k.strip_prefix(scenario))
+            .map(|p| p.trim().to_string())
+            .filter(|p| p != "none" && p != "unreadable")
+            .collect()
+    };
+    for scenario in ["fresh", "append"] {
+        let seen = phases(scenario);
+        assert!(
+            seen.len() >= 2,
+            "the kills of the {scenario} ingests landed in phases {seen:?} only ({hits:?}): the soak missed most of the ingest"
+        );
+    }
 }
+
+/// The fewest trials that reach several phases of both scenarios.
+const MIN_TRIALS: u64 = 6;

@@ -9,17 +9,10 @@ use std::sync::OnceLock;
 use serde_json::Value;
 
 use crate::common::{
-    gutenberg_dir, gutenberg_files, ingest_args, ingest_ok, manifest_dir, run, run_env, run_ok,
-    stats_json, SMALL_BUDGET,
+    gutenberg_dir, gutenberg_files, ingest_args, ingest_ok, manifest_dir, python3, run, run_env,
+    run_ok, stats_json, SMALL_BUDGET,
 };
 use crate::reference::{Reference, Settings};
-
-fn python3() -> bool {
-    Command::new("python3")
-        .arg("--version")
-        .output()
-        .is_ok_and(|o| o.status.success())
-}
 
 /// The growth of `inputs` in reading order by scripts/reference_ngrams.py
 /// (Python standard library): tokens read and the sorted first positions of
@@ -27,7 +20,7 @@ fn python3() -> bool {
 pub fn python_growth(inputs: &[PathBuf], lowercase: bool) -> (u64, Vec<u64>) {
     let tmp = tempfile::tempdir().unwrap();
     let out = tmp.path().join("growth.json");
-    let mut c = Command::new("python3");
+    let mut c = Command::new(python3());
     c.current_dir(manifest_dir())
         .arg("scripts/reference_ngrams.py")
         .args(["--order", "1", "--quiet", "--growth"])
@@ -83,10 +76,6 @@ fn r20_points(limit: u64) -> Vec<u64> {
 /// types(t) = #{first positions < t} of the independent computation at
 /// every R20 sample point below T, then (T, types).
 pub fn assert_growth_matches(what: &str, stats: &Value, expected: &(u64, Vec<u64>)) {
-    if !python3() {
-        eprintln!("NOTICE: python3 not found; growth check skipped ({what})");
-        return;
-    }
     let (tokens, firsts) = expected;
     let pts: Vec<(u64, u64)> = stats["growth"]["points"]
         .as_array()
@@ -245,6 +234,15 @@ fn stats_tables_agree_with_reference_and_formulas() {
         ));
         let gt = &o["good_turing"];
         assert_eq!(gt["k_requested"], 5);
+        // One row per r = 1..K (K = 5 asked for), in order: an empty or
+        // short table fails here.
+        let rs: Vec<u64> = gt["rows"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|row| row["r"].as_u64().unwrap())
+            .collect();
+        assert_eq!(rs, [1, 2, 3, 4, 5], "order {} Good-Turing rows", k + 1);
         let k_used = gt["k_used"].as_u64().unwrap();
         let big_k = 5.0;
         let x = (big_k + 1.0) * n(&raw, 6) / n(&raw, 1);
@@ -352,11 +350,7 @@ fn csv_tsv_and_json_hold_the_same_values() {
         }
         assert!(n > 100, "only {n} rows");
     }
-    if !python3() {
-        eprintln!("NOTICE: python3 not found; Python parser check skipped");
-        return;
-    }
-    let o = Command::new("python3")
+    let o = Command::new(python3())
         .arg(manifest_dir().join("tests/integration/stats_export_check.py"))
         .args(&files)
         .output()
@@ -383,12 +377,72 @@ fn csv_tsv_and_json_hold_the_same_values() {
 /// tokens with case and punctuation kept ("Emma" and "Emma," are two types),
 /// which makes the vocabulary grow faster; the fixtures give β ≈ 0.68 and
 /// K ≈ 4.6 (printed below).
+///
+/// The fits themselves are recomputed from the exported points by Python's
+/// `statistics.linear_regression` and `statistics.correlation` (R² = r²)
+/// over the ranges README ("Fits") names; the rank-frequency points are
+/// the reference counter's unigram counts sorted from the highest.
 #[test]
 fn heaps_and_zipf_fits_on_gutenberg() {
-    let rep: Value = serde_json::from_str(&stats(gutenberg3(), &["--format", "json"])).unwrap();
+    let text = stats(gutenberg3(), &["--format", "json"]);
+    let rep: Value = serde_json::from_str(&text).unwrap();
     let h = &rep["growth"]["heaps"];
     let z = &rep["rank_frequency"]["zipf"];
     eprintln!("gutenberg fits: heaps {h}, zipf {z}");
+    // Every exported rank-frequency point: the frequency of the word at
+    // that rank (ties in any order) among the reference's unigrams but <s>.
+    let refr = Reference::from_paths(Settings::order(1), &gutenberg_files(6));
+    let mut freqs: Vec<u64> = refr.counts[0]
+        .iter()
+        .filter(|(g, _)| g[0] != crate::reference::BOS)
+        .map(|(_, &c)| c)
+        .collect();
+    freqs.sort_unstable_by(|a, b| b.cmp(a));
+    let points = rep["rank_frequency"]["points"].as_array().unwrap();
+    assert!(points.len() > 50, "{} rank-frequency points", points.len());
+    for p in points {
+        let (r, f) = (p[0].as_u64().unwrap(), p[1].as_u64().unwrap());
+        assert_eq!(f, freqs[r as usize - 1], "frequency at rank {r}");
+    }
+    assert_eq!(
+        points.last().unwrap()[0].as_u64().unwrap(),
+        freqs.len() as u64
+    );
+    let tmp = tempfile::tempdir().unwrap();
+    let file = tmp.path().join("stats.json");
+    std::fs::write(&file, &text).unwrap();
+    let script = r##"
+import json, math, statistics, sys
+rep = json.load(open(sys.argv[1]))
+def fit(points, keep):
+    xy = [(math.log(x), math.log(y)) for x, y in points if keep(x, y)]
+    xs, ys = [p[0] for p in xy], [p[1] for p in xy]
+    slope, intercept = statistics.linear_regression(xs, ys)
+    r = statistics.correlation(xs, ys)
+    return slope, math.exp(intercept), r * r, len(xy), min(x for x, y in points if keep(x, y)), max(x for x, y in points if keep(x, y))
+def check(name, got, want):
+    exponent, scale, r2, n, lo, hi = want
+    for key, value in (("exponent", exponent), ("scale", scale), ("r_squared", r2)):
+        assert math.isclose(got[key], value, rel_tol=1e-9), (name, key, got[key], value)
+    assert (got["points"], got["x_min"], got["x_max"]) == (n, lo, hi), (name, got, n, lo, hi)
+    print(name, "ok", exponent, scale, r2, n)
+heaps = fit(rep["growth"]["points"], lambda n, v: n >= 1000)
+check("heaps", rep["growth"]["heaps"], heaps)
+s, c, r2, n, lo, hi = fit(rep["rank_frequency"]["points"], lambda r, f: r >= 10 and f >= 5)
+check("zipf", rep["rank_frequency"]["zipf"], (-s, c, r2, n, lo, hi))
+"##;
+    let o = Command::new(python3())
+        .args(["-c", script])
+        .arg(&file)
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "the fits recomputed by Python differ: {}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    eprintln!("{}", String::from_utf8_lossy(&o.stdout));
     let beta = h["exponent"].as_f64().unwrap();
     let s = z["exponent"].as_f64().unwrap();
     assert!(beta > 0.0 && beta < 1.0, "Heaps beta {beta}");
@@ -414,10 +468,6 @@ fn figures_are_well_formed_with_one_series_per_order() {
     assert_eq!(&b[12..16], b"IHDR");
     assert_eq!(u32::from_be_bytes(b[16..20].try_into().unwrap()), 1800);
     assert_eq!(u32::from_be_bytes(b[20..24].try_into().unwrap()), 560);
-    if !python3() {
-        eprintln!("NOTICE: python3 not found; SVG check skipped");
-        return;
-    }
     let script = r##"
 import sys, xml.etree.ElementTree as ET
 root = ET.parse(sys.argv[1]).getroot()
@@ -433,7 +483,7 @@ for k, c in colours.items():
 assert "order 4 raw" not in texts
 print("ok")
 "##;
-    let o = Command::new("python3")
+    let o = Command::new(python3())
         .args(["-c", script])
         .arg(&svg)
         .output()
