@@ -28,6 +28,10 @@
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
+//! * [`docs`] scores documents (JSON lines or plain lines) on many
+//!   threads, one result each in input order, with the distribution of
+//!   their perplexities and a split into kept and dropped ones (filtering
+//!   a crawl).
 //! * [`growth`] records where each word is first seen while counting, and
 //!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
@@ -56,6 +60,8 @@ pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;
 pub mod discount;
+#[cfg(feature = "store")]
+pub mod docs;
 pub mod error;
 pub mod fault;
 #[cfg(feature = "store")]

@@ -36,3 +36,38 @@ pub fn on_each_thread(threads: usize, worker: impl Fn() -> Result<()> + Sync) ->
         .collect::<Result<Vec<()>>>()
         .map(|_| ())
 }
+
+/// Runs `worker(i)` for i in 0..`threads`, each on its own thread, while
+/// `main` runs on the calling thread (which is not one of them): the shape
+/// of a pipeline whose reader and writer feed and drain the workers through
+/// channels. `main` must end the workers (by closing their queue) before it
+/// returns. Returns `main`'s result, else the first worker error.
+pub fn with_workers<R>(
+    threads: usize,
+    worker: impl Fn(usize) -> Result<()> + Sync,
+    main: impl FnOnce() -> Result<R>,
+) -> Result<R> {
+    let pool = pool(threads)?;
+    let errors: std::sync::Mutex<Vec<Error>> = std::sync::Mutex::new(Vec::new());
+    let out = pool.in_place_scope(|s| {
+        for i in 0..threads.max(1) {
+            let (worker, errors) = (&worker, &errors);
+            s.spawn(move |_| {
+                if let Err(e) = worker(i) {
+                    errors.lock().unwrap_or_else(|p| p.into_inner()).push(e);
+                }
+            });
+        }
+        main()
+    });
+    let first = errors
+        .into_inner()
+        .unwrap_or_else(|p| p.into_inner())
+        .into_iter()
+        .next();
+    match (out, first) {
+        (Ok(r), None) => Ok(r),
+        (Ok(_), Some(e)) => Err(e),
+        (Err(e), _) => Err(e),
+    }
+}

@@ -299,6 +299,8 @@ pub struct ScoreArgs {
     /// line). Default: text.
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub docs: DocArgs,
     /// Text files, one sentence a line; `-` reads standard input.
     #[arg(required = true)]
     pub files: Vec<PathBuf>,
@@ -450,6 +452,65 @@ pub struct StatusArgs {
     /// One JSON object instead of text. Default: text.
     #[arg(long)]
     pub json: bool,
+}
+
+/// `score` of documents: one result per input line (filtering a crawl).
+#[derive(Args, Debug, Clone)]
+pub struct DocArgs {
+    /// Documents as JSON lines (plain, .gz, .zst or -): one JSON result a
+    /// line on standard output, in input order; the summary on standard
+    /// error.
+    #[arg(long, conflicts_with = "lines")]
+    pub jsonl: bool,
+    /// Documents one a line (plain text); the line number is the id.
+    #[arg(long)]
+    pub lines: bool,
+    /// --jsonl: the field holding the text (a string; its lines are the
+    /// sentences).
+    #[arg(long, default_value = "text", value_name = "NAME")]
+    pub text_field: String,
+    /// --jsonl: the field copied as the id (null where absent).
+    #[arg(long, default_value = "id", value_name = "NAME")]
+    pub id_field: String,
+    /// Scoring threads (default: every core).
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// Add each prediction's token, log10 probability, matched order and
+    /// OOV flag.
+    #[arg(long)]
+    pub words: bool,
+    /// Also write the summary as JSON to this file.
+    #[arg(long, value_name = "FILE")]
+    pub summary: Option<PathBuf>,
+    /// Keep the documents whose score is below this (perplexity; with a
+    /// second model, the cross-entropy difference).
+    #[arg(long, value_name = "SCORE", conflicts_with = "keep_fraction")]
+    pub keep_below: Option<f64>,
+    /// Keep this fraction (0 to 1) of the scored documents, the lowest
+    /// scores (reads the inputs twice; not standard input).
+    #[arg(long, value_name = "F")]
+    pub keep_fraction: Option<f64>,
+    /// With a cut: the kept input lines, unchanged (.gz compresses).
+    #[arg(long, value_name = "FILE")]
+    pub kept: Option<PathBuf>,
+    /// With a cut: every other input line, unchanged (.gz compresses).
+    #[arg(long, value_name = "FILE")]
+    pub dropped: Option<PathBuf>,
+    /// Draw the histogram of the scores (log10 perplexity) with the cut
+    /// marked (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub plot: Option<PathBuf>,
+    /// A general store: score by the cross-entropy difference of Moore &
+    /// Lewis (2010), in-domain (--store or --model) minus general (this),
+    /// same method.
+    #[arg(long, value_name = "DIR", conflicts_with = "minus_model")]
+    pub minus_store: Option<PathBuf>,
+    /// A general frozen model: the same as --minus-store, from a model file.
+    #[arg(long, value_name = "FILE")]
+    pub minus_model: Option<PathBuf>,
+    /// Lines longer than this many bytes are bad lines.
+    #[arg(long, default_value_t = 64 << 20, value_name = "BYTES")]
+    pub max_line_bytes: usize,
 }
 
 #[derive(Args, Debug)]

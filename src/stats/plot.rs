@@ -52,7 +52,8 @@ pub fn order_colour(k: usize) -> RGBColor {
 const FONT: &[u8] = include_bytes!("../../fixtures/fonts/DejaVuSans.ttf");
 static FONT_ONCE: Once = Once::new();
 
-fn register_font() {
+/// Registers the embedded font as "sans-serif" (once).
+pub fn register_font() {
     FONT_ONCE.call_once(|| {
         for style in [FontStyle::Normal, FontStyle::Bold] {
             // The bytes are a valid TrueType font (checked by a test).

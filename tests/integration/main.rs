@@ -75,6 +75,11 @@ mod estimators_independent;
 // held-out perplexity; its file round-trips through --tuned.
 mod query_tune;
 
+// `score --jsonl`/`--lines`: order, ids and bad lines kept, any thread
+// count the same, documents = plain `score` runs, percentiles = a sort,
+// two models = two runs, the kept/dropped split, .gz/.zst, --words.
+mod docs;
+
 // Benchmarks of prob throughput and next latency (ignored; run by hand).
 mod query_bench;
 

@@ -21,7 +21,7 @@ use crate::common::{bin, gutenberg_dir, ingest_ok, manifest_dir};
 use crate::stage::{assert_raw_eq, raw_view, RawView};
 
 /// `spark-submit` of the installed pyspark.
-fn spark_submit() -> PathBuf {
+pub(crate) fn spark_submit() -> PathBuf {
     let out = Command::new("python3")
         .args([
             "-c",
@@ -43,7 +43,7 @@ static BASELINE: OnceLock<RawView> = OnceLock::new();
 
 /// One Spark job at a time: each runs a JVM and two task slots, and the
 /// test machine has two cores shared with the other tests.
-static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+pub(crate) static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
 
 /// The single-machine ingest of fixtures/gutenberg at order 5 (built once).
 fn baseline() -> &'static RawView {

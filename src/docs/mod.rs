@@ -1,0 +1,545 @@
+//! Scoring documents: one result per input line, in input order, on many
+//! threads, with the distribution of the scores and a split into kept and
+//! dropped documents. The job of filtering a web crawl by language-model
+//! score.
+//!
+//! # Input
+//!
+//! Each input line is one document: a JSON object whose text field holds
+//! the text ([`Format::JsonLines`]), or the line itself ([`Format::Lines`]).
+//! Inputs are plain, `.gz` or `.zst` files, or `-` (standard input), read
+//! as [`crate::corpus`] reads them. A document's sentences are the lines of
+//! its text (split at `\n`, one trailing `\r` dropped), each tokenized as
+//! at ingest ([`crate::tokenize`]); a line without tokens is no sentence.
+//!
+//! A line that is not a JSON object, lacks the text field, or whose field
+//! is not a string, or a line longer than the limit, is a *bad line*: its
+//! result carries its line number and the error, and scoring goes on.
+//!
+//! # Scores
+//!
+//! A sentence `w1 … wm` is the m + 1 predictions of [`crate::query::score`].
+//! A document's perplexity is 10^(−L / n) over its n predictions, L being
+//! their total log10 probability: the perplexity of the concatenation of
+//! its sentences. It is infinite if some prediction got probability 0, and
+//! undefined for a document without tokens (an *empty* document).
+//!
+//! With a second, general model ([`Models::general`]) the score of a
+//! document is the cross-entropy difference of Moore & Lewis (2010),
+//! "Intelligent selection of language model training data": H_I − H_G,
+//! where H = −L / n is the per-token cross-entropy (log10) under the
+//! in-domain model I and the general model G. Lower means more like the
+//! in-domain text; it equals the general model's per-token log10
+//! probability minus the in-domain one's.
+//!
+//! # Parallel, ordered, bounded
+//!
+//! [`score_inputs`] reads lines on the calling thread and hands batches of
+//! them to worker threads ([`crate::pool::with_workers`]), each with its
+//! own model (a store's estimator is not shared between threads); results
+//! come back to the calling thread and are handed to the caller's sink in
+//! input order. At most a fixed number of batches is in flight, so memory
+//! is bounded whatever the input size. The batches do not depend on the
+//! number of threads, so neither do the results.
+
+pub mod dist;
+#[cfg(feature = "plot")]
+pub mod plot;
+mod read;
+mod run;
+pub mod split;
+
+use std::path::PathBuf;
+
+use serde::{Deserialize, Serialize};
+use serde_json::{json, Value};
+
+use crate::error::Result;
+use crate::query::{Predictor, Prob};
+use crate::words::WordId;
+
+pub use dist::Distribution;
+pub use run::score_inputs;
+
+/// What scores a sentence: any [`Predictor`] (the store's estimator, a
+/// frozen model), or a shared one through [`Shared`].
+pub trait DocModel {
+    /// Highest order N.
+    fn order(&self) -> usize;
+    /// Whether tokens are lowercased (the store was built with
+    /// `--lowercase`).
+    fn lowercase(&self) -> bool;
+    /// Whether its scores are probabilities (false for `stupid`).
+    fn is_probability(&self) -> bool;
+    /// The probabilities of many predictions, each query the context
+    /// followed by the word; consecutive queries are running text (a frozen
+    /// model carries the matched context from one to the next).
+    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>>;
+}
+
+impl<P: Predictor + ?Sized> DocModel for P {
+    fn order(&self) -> usize {
+        Predictor::order(self)
+    }
+    fn lowercase(&self) -> bool {
+        Predictor::lowercase(self)
+    }
+    fn is_probability(&self) -> bool {
+        Predictor::method(self).is_probability()
+    }
+    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
+        Predictor::prob_batch(self, queries)
+    }
+}
+
+/// A `Sync` predictor (a frozen model) lent to every worker thread.
+pub struct Shared<'a>(pub &'a (dyn Predictor + Sync));
+
+impl DocModel for Shared<'_> {
+    fn order(&self) -> usize {
+        self.0.order()
+    }
+    fn lowercase(&self) -> bool {
+        self.0.lowercase()
+    }
+    fn is_probability(&self) -> bool {
+        self.0.method().is_probability()
+    }
+    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
+        self.0.prob_batch(queries)
+    }
+}
+
+/// A boxed model, as a worker thread gets it.
+pub type BoxedModel<'a> = Box<dyn DocModel + 'a>;
+
+/// Makes one model for the calling thread.
+pub type MakeModel<'a> = dyn Fn() -> Result<BoxedModel<'a>> + Sync + 'a;
+
+/// The model(s) to score with: each worker thread calls the makers once.
+pub struct Models<'a> {
+    /// The model (the in-domain one with `general`).
+    pub main: &'a MakeModel<'a>,
+    /// The general model of the cross-entropy difference, if any.
+    pub general: Option<&'a MakeModel<'a>>,
+}
+
+/// How input lines hold documents.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Format {
+    /// One JSON object a line.
+    JsonLines {
+        /// The field that holds the text (a string).
+        text_field: String,
+        /// The field whose value is copied as the document's id (`null` if
+        /// absent).
+        id_field: String,
+    },
+    /// One document a line; its id is its line number.
+    Lines,
+}
+
+/// Options of a scoring run.
+#[derive(Clone, Debug)]
+pub struct Options {
+    /// How lines hold documents.
+    pub format: Format,
+    /// Worker threads (at least 1).
+    pub threads: usize,
+    /// Keep each prediction's log10 probability, matched order and OOV
+    /// flag ([`DocScore::words`]).
+    pub words: bool,
+    /// A longer input line is a bad line (read past, never held).
+    pub max_line_bytes: usize,
+}
+
+impl Options {
+    /// JSON lines with fields `text` and `id`, every core, no words, lines
+    /// up to 64 MiB.
+    pub fn new(format: Format) -> Options {
+        Options {
+            format,
+            threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
+            words: false,
+            max_line_bytes: 64 << 20,
+        }
+    }
+}
+
+/// The totals of some predictions under one model.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct Tally {
+    /// Sentences (lines of text with at least one token).
+    pub sentences: u64,
+    /// Predictions (tokens and one `</s>` per sentence).
+    pub predictions: u64,
+    /// Predictions whose word was outside V (scored as `<unk>`).
+    #[serde(rename = "outside_vocabulary")]
+    pub oov: u64,
+    /// Predictions that got probability 0.
+    #[serde(rename = "probability_zero")]
+    pub zero: u64,
+    /// Σ log10 P over the predictions with P > 0.
+    #[serde(rename = "log10_sum_nonzero")]
+    pub log10_nonzero: f64,
+}
+
+impl Tally {
+    /// The total log10 probability; `None` (−∞) if some prediction got 0.
+    pub fn log10_prob(&self) -> Option<f64> {
+        (self.zero == 0).then_some(self.log10_nonzero)
+    }
+
+    /// The per-token cross-entropy −L / n (log10); `None` without
+    /// predictions, +∞ if some prediction got 0.
+    pub fn cross_entropy(&self) -> Option<f64> {
+        if self.predictions == 0 {
+            None
+        } else if self.zero > 0 {
+            Some(f64::INFINITY)
+        } else {
+            Some(-self.log10_nonzero / self.predictions as f64)
+        }
+    }
+
+    /// 10^(−L / n); `None` without predictions, +∞ if some prediction got 0.
+    pub fn perplexity(&self) -> Option<f64> {
+        self.cross_entropy().map(|h| 10f64.powf(h))
+    }
+
+    /// Adds another tally.
+    pub fn add(&mut self, o: &Tally) {
+        self.sentences += o.sentences;
+        self.predictions += o.predictions;
+        self.oov += o.oov;
+        self.zero += o.zero;
+        self.log10_nonzero += o.log10_nonzero;
+    }
+
+    fn add_prob(&mut self, p: &Prob) {
+        self.predictions += 1;
+        self.oov += p.oov as u64;
+        if p.p > 0.0 {
+            self.log10_nonzero += p.log10;
+        } else {
+            self.zero += 1;
+        }
+    }
+
+    /// As JSON: `outside_vocabulary`, `probability_zero`, `log10_sum` and
+    /// `perplexity` (`null` where −∞, infinite or undefined, and the
+    /// perplexity too when the scores are not probabilities).
+    pub fn to_json(&self, probability: bool) -> Value {
+        json!({
+            "outside_vocabulary": self.oov,
+            "probability_zero": self.zero,
+            "log10_sum": num(self.log10_prob()),
+            "perplexity": if probability { num(self.perplexity()) } else { Value::Null },
+        })
+    }
+}
+
+/// A finite number as JSON, anything else as `null`.
+pub fn num(x: Option<f64>) -> Value {
+    match x {
+        Some(v) if v.is_finite() => json!(v),
+        _ => Value::Null,
+    }
+}
+
+/// One prediction of a document, for [`Options::words`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct WordScore {
+    /// The token as tokenized (`</s>` for a sentence's end, `<unk>` for a
+    /// token spelled like a marker).
+    pub token: String,
+    /// Its log10 probability (−∞ for 0) under each model: the main one,
+    /// then the general one.
+    pub log10: Vec<f64>,
+    /// The order of the longest stored n-gram ending in the word, under
+    /// each model.
+    pub order: Vec<usize>,
+    /// The word is outside V, under each model.
+    pub oov: Vec<bool>,
+}
+
+/// The score of one document.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DocScore {
+    /// The id (the id field's value, `null` if absent; the line number for
+    /// [`Format::Lines`]).
+    pub id: Value,
+    /// Totals under the main model.
+    pub main: Tally,
+    /// Totals under the general model, if any.
+    pub general: Option<Tally>,
+    /// Per prediction, with [`Options::words`].
+    pub words: Option<Vec<WordScore>>,
+}
+
+impl DocScore {
+    /// The score the distribution and the cut use: the perplexity, or with
+    /// a general model the cross-entropy difference H_I − H_G. `None` for
+    /// an empty document or an infinite score.
+    pub fn value(&self) -> Option<f64> {
+        let v = match &self.general {
+            None => self.main.perplexity()?,
+            Some(g) => self.main.cross_entropy()? - g.cross_entropy()?,
+        };
+        v.is_finite().then_some(v)
+    }
+}
+
+/// What became of one input line.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Outcome {
+    /// Scored.
+    Scored(DocScore),
+    /// A bad line: why.
+    Bad(String),
+}
+
+/// One input line's result, handed to the sink in input order.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DocResult {
+    /// Index of the input file (in the list given).
+    pub file: usize,
+    /// Line number in that file (1-based).
+    pub line: u64,
+    /// The score, or why the line is bad.
+    pub outcome: Outcome,
+}
+
+impl DocResult {
+    /// The score for the distribution and the cut ([`DocScore::value`]);
+    /// `None` for a bad line.
+    pub fn value(&self) -> Option<f64> {
+        match &self.outcome {
+            Outcome::Scored(d) => d.value(),
+            Outcome::Bad(_) => None,
+        }
+    }
+
+    /// The result as one JSON object, keys in this order: `id`, `line`,
+    /// `file` (the input's path, when `file` is given), then `sentences`,
+    /// `predictions`, and the main model's `outside_vocabulary`,
+    /// `probability_zero`, `log10_sum`, `perplexity`; with a general model
+    /// `general` (the same four) and `ce_difference`; with words `words`,
+    /// one array `[token, log10, order, outside V]` per prediction (with a general model
+    /// followed by its log10, order and oov). A bad line has `id` `null`,
+    /// `line` and `error`.
+    pub fn record<'r>(&'r self, probability: bool, file: Option<&'r str>) -> Record<'r> {
+        let mut r = Record {
+            id: &NULL,
+            line: self.line,
+            file,
+            sentences: None,
+            predictions: None,
+            outside_vocabulary: None,
+            probability_zero: None,
+            log10_sum: None,
+            perplexity: None,
+            general: None,
+            ce_difference: None,
+            words: None,
+            error: None,
+        };
+        match &self.outcome {
+            Outcome::Bad(e) => r.error = Some(e),
+            Outcome::Scored(d) => {
+                let m = &d.main;
+                r.id = &d.id;
+                r.sentences = Some(m.sentences);
+                r.predictions = Some(m.predictions);
+                r.outside_vocabulary = Some(m.oov);
+                r.probability_zero = Some(m.zero);
+                r.log10_sum = Some(num(m.log10_prob()));
+                r.perplexity = Some(if probability {
+                    num(m.perplexity())
+                } else {
+                    Value::Null
+                });
+                if let Some(g) = &d.general {
+                    r.general = Some(g.to_json(probability));
+                    r.ce_difference = Some(num(d.value()));
+                }
+                if let Some(ws) = &d.words {
+                    r.words = Some(
+                        ws.iter()
+                            .map(|w| {
+                                let mut a = vec![json!(w.token)];
+                                for i in 0..w.log10.len() {
+                                    a.push(num(Some(w.log10[i])));
+                                    a.push(json!(w.order[i]));
+                                    a.push(json!(w.oov[i]));
+                                }
+                                Value::Array(a)
+                            })
+                            .collect(),
+                    );
+                }
+            }
+        }
+        r
+    }
+}
+
+static NULL: Value = Value::Null;
+
+/// One line of output: a [`DocResult`] ready to serialize, its keys in a
+/// fixed order (see [`DocResult::record`]).
+#[derive(Debug, Serialize)]
+pub struct Record<'r> {
+    /// The id.
+    pub id: &'r Value,
+    /// The line number.
+    pub line: u64,
+    /// The input's path.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub file: Option<&'r str>,
+    /// Sentences.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sentences: Option<u64>,
+    /// Predictions.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub predictions: Option<u64>,
+    /// Predictions outside V.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub outside_vocabulary: Option<u64>,
+    /// Predictions with probability 0.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub probability_zero: Option<u64>,
+    /// Total log10 probability (`null` for −∞).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub log10_sum: Option<Value>,
+    /// Perplexity (`null` if infinite, undefined or not a probability).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub perplexity: Option<Value>,
+    /// The general model's totals.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub general: Option<Value>,
+    /// The cross-entropy difference.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ce_difference: Option<Value>,
+    /// Per prediction.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub words: Option<Value>,
+    /// Why the line is bad.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error: Option<&'r str>,
+}
+
+/// The totals of a run.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Summary {
+    /// The inputs, as given.
+    pub inputs: Vec<PathBuf>,
+    /// Input lines read.
+    pub lines: u64,
+    /// Documents scored (lines that were not bad).
+    pub documents: u64,
+    /// Bad lines.
+    pub bad: u64,
+    /// Documents without a token (no score).
+    pub empty: u64,
+    /// Documents with an infinite score (some prediction got probability
+    /// 0; with two models, under either).
+    pub infinite: u64,
+    /// Totals of every document under the main model.
+    pub main: Tally,
+    /// The same under the general model.
+    pub general: Option<Tally>,
+    /// The distribution of the documents' finite scores.
+    pub distribution: Distribution,
+}
+
+impl Summary {
+    fn new(inputs: &[PathBuf], two_models: bool) -> Summary {
+        Summary {
+            inputs: inputs.to_vec(),
+            lines: 0,
+            documents: 0,
+            bad: 0,
+            empty: 0,
+            infinite: 0,
+            main: Tally::default(),
+            general: two_models.then(Tally::default),
+            distribution: Distribution::new(if two_models {
+                dist::Scale::Linear
+            } else {
+                dist::Scale::Log10
+            }),
+        }
+    }
+
+    /// Counts one result.
+    pub fn add(&mut self, r: &DocResult) {
+        self.lines += 1;
+        match &r.outcome {
+            Outcome::Bad(_) => self.bad += 1,
+            Outcome::Scored(d) => {
+                self.documents += 1;
+                self.main.add(&d.main);
+                if let (Some(t), Some(g)) = (&mut self.general, &d.general) {
+                    t.add(g);
+                }
+                if d.main.predictions == 0 {
+                    self.empty += 1;
+                } else {
+                    match d.value() {
+                        Some(v) => self.distribution.add(v),
+                        None => self.infinite += 1,
+                    }
+                }
+            }
+        }
+    }
+}
+
+impl Summary {
+    /// The summary as one JSON object: counts, the main model's (and the
+    /// general model's) totals over every document, and the distribution
+    /// (`score` names what it is of: `perplexity` or `ce_difference`) with
+    /// its percentiles keyed `"p1"` … `"p99"`, whether they are exact, and
+    /// the histogram (`bin_width`, `bins` as `[index, count]` pairs, bin i
+    /// holding x in [i·w, (i+1)·w), x = log10 of a perplexity or the
+    /// difference itself) from which summaries of several runs merge, as
+    /// do `totals` (and `general_totals`): the [`Tally`] fields.
+    pub fn to_json(&self, probability: bool) -> Value {
+        let d = &self.distribution;
+        let ps = d.percentiles(&dist::PERCENTILES);
+        let mut pj = serde_json::Map::new();
+        for (p, v) in dist::PERCENTILES.iter().zip(&ps) {
+            pj.insert(format!("p{p}"), num(Some(*v)));
+        }
+        let mut v = json!({
+            "inputs": self.inputs,
+            "lines": self.lines,
+            "documents": self.documents,
+            "bad_lines": self.bad,
+            "empty_documents": self.empty,
+            "infinite_scores": self.infinite,
+            "sentences": self.main.sentences,
+            "predictions": self.main.predictions,
+            "model": self.main.to_json(probability),
+            "totals": self.main,
+            "score": if self.general.is_some() { "ce_difference" } else { "perplexity" },
+            "distribution": {
+                "count": d.count,
+                "mean": num(d.mean()),
+                "min": num(Some(d.min)),
+                "max": num(Some(d.max)),
+                "percentiles": pj,
+                "exact": d.is_exact(),
+                "scale": d.scale,
+                "bin_width": dist::BIN_WIDTH,
+                "bins": d.bins.iter().map(|(k, c)| json!([k, c])).collect::<Vec<_>>(),
+            },
+        });
+        if let Some(g) = &self.general {
+            v["general"] = g.to_json(probability);
+            v["general_totals"] = json!(g);
+        }
+        v
+    }
+}
