@@ -45,7 +45,8 @@ pub fn fault_input() -> Vec<PathBuf> {
 /// fallback. `scripts/test` repeats every such line in its last summary.
 pub fn notice(msg: &str) {
     use std::io::Write;
-    let _ = writeln!(std::io::stderr(), "NOTICE (quern tests): {msg}");
+    let line = format!("NOTICE (quern tests): {msg}\n");
+    let _ = std::io::stderr().write_all(line.as_bytes());
 }
 
 /// `python3`, which the tests run (scripts/setup installs it). Panics with
