@@ -477,3 +477,150 @@ fn model_sections(b: &[u8]) -> Vec<(u64, u64)> {
         .filter(|&(_, len)| len > 0)
         .collect()
 }
+
+fn run_json(args: &[&str], stdin: Option<&str>) -> Vec<serde_json::Value> {
+    use std::io::Write;
+    let mut c = Command::new(bin());
+    c.args(args)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped());
+    let mut child = c.spawn().unwrap();
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(stdin.unwrap_or("").as_bytes())
+        .unwrap();
+    let out = child.wait_with_output().unwrap();
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    if text.trim_start().starts_with('{') && text.lines().count() > 1 && text.contains("\n  ") {
+        vec![serde_json::from_str(&text).unwrap()]
+    } else {
+        text.lines()
+            .map(|l| serde_json::from_str(l).unwrap())
+            .collect()
+    }
+}
+
+/// `prob`, `next` and `score` with `--model` in place of `--store` give the
+/// same `--json` fields with the same values (within the stored precision;
+/// times apart).
+#[test]
+fn cli_model_answers_like_the_store() {
+    let store = train3().display().to_string();
+    let dir = scratch("cli");
+    let model = dir.join("kn.qm").display().to_string();
+    let st = Command::new(bin())
+        .args([
+            "freeze", "--store", &store, "--method", "kn", "--out", &model,
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        st.status.success(),
+        "{}",
+        String::from_utf8_lossy(&st.stderr)
+    );
+    let held = crate::query_fixtures::heldout_path().display().to_string();
+    let lines: String = std::fs::read_to_string(&held)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.trim().is_empty())
+        .take(300)
+        .flat_map(|l| {
+            let w: Vec<&str> = l.split_whitespace().collect();
+            (1..=w.len()).map(move |i| w[i.saturating_sub(3)..i].join(" ") + "\n")
+        })
+        .collect();
+    let a = run_json(
+        &["prob", "--store", &store, "--method", "kn", "--json"],
+        Some(&lines),
+    );
+    let b = run_json(&["prob", "--model", &model, "--json"], Some(&lines));
+    assert_eq!(a.len(), b.len());
+    assert!(a.len() > 1000);
+    let tol = bound(3);
+    for (x, y) in a.iter().zip(&b) {
+        let keys = |v: &serde_json::Value| -> Vec<String> {
+            v.as_object().unwrap().keys().cloned().collect()
+        };
+        assert_eq!(keys(x), keys(y));
+        for k in ["words", "order", "oov"] {
+            assert_eq!(x[k], y[k], "{k}: {x} vs {y}");
+        }
+        let (p, q) = (
+            x["probability"].as_f64().unwrap(),
+            y["probability"].as_f64().unwrap(),
+        );
+        assert!(close(p, q, tol), "{x} vs {y}");
+    }
+    for ctx in ["<s>", "Mr.", "she was", "zzqxw-not-in-austen"] {
+        let x = &run_json(
+            &[
+                "next", "--store", &store, "--method", "kn", "--json", "--top", "5", ctx,
+            ],
+            None,
+        )[0];
+        let y = &run_json(
+            &["next", "--model", &model, "--json", "--top", "5", ctx],
+            None,
+        )[0];
+        let keys = |v: &serde_json::Value| -> Vec<String> {
+            v.as_object().unwrap().keys().cloned().collect()
+        };
+        assert_eq!(keys(x), keys(y));
+        assert_eq!(x["context"], y["context"]);
+        for (i, j) in x["top"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .zip(y["top"].as_array().unwrap())
+        {
+            assert_eq!(i["word"], j["word"], "{ctx}");
+            assert!(close(
+                i["probability"].as_f64().unwrap(),
+                j["probability"].as_f64().unwrap(),
+                tol
+            ));
+        }
+    }
+    let x = &run_json(
+        &[
+            "score", "--store", &store, "--method", "kn", "--json", &held,
+        ],
+        None,
+    )[0];
+    let y = &run_json(&["score", "--model", &model, "--json", &held], None)[0];
+    let mut kx: Vec<&String> = x.as_object().unwrap().keys().collect();
+    let mut ky: Vec<&String> = y.as_object().unwrap().keys().collect();
+    kx.sort();
+    ky.sort();
+    assert_eq!(kx, ky);
+    for k in [
+        "sentences",
+        "predictions",
+        "oov",
+        "zero_probability",
+        "method",
+    ] {
+        assert_eq!(x[k], y[k], "{k}");
+    }
+    let (p, q) = (
+        x["perplexity"].as_f64().unwrap(),
+        y["perplexity"].as_f64().unwrap(),
+    );
+    assert!(close(p, q, 1e-6), "perplexity {p} vs {q}");
+    // A method other than the model's is refused.
+    let st = Command::new(bin())
+        .args(["prob", "--model", &model, "--method", "mkn", "she", "was"])
+        .output()
+        .unwrap();
+    assert!(!st.status.success());
+    assert!(String::from_utf8_lossy(&st.stderr).contains("frozen with kn"));
+}
