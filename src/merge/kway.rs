@@ -193,7 +193,7 @@ mod tests {
                     x = x
                         .wrapping_mul(6364136223846793005)
                         .wrapping_add(1442695040888963407);
-                    let key = vec![(x >> 40) % 7, (x >> 20) % 5];
+                    let key = [(x >> 40) % 7, (x >> 20) % 5];
                     let len = 1 + (x >> 62) as usize % 2;
                     let key = key[..len].to_vec();
                     m.insert(key.clone(), 1 + (x >> 50) % 3);
