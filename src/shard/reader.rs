@@ -142,11 +142,14 @@ impl RunFile {
                     .at(&self.path, "decompress")?;
             dec.window_log_max(ZSTD_WINDOW_LOG)
                 .at(&self.path, "decompress")?;
-            Some(BufReader::with_capacity(32 << 10, dec))
+            Some(dec)
         };
         Ok(SectionReader {
             path: self.path.clone(),
             inner,
+            buf: Vec::new(),
+            pos: 0,
+            end: 0,
             entry: e,
             width: self.width,
             seen: 0,
@@ -157,12 +160,25 @@ impl RunFile {
     }
 }
 
-type Decoder = BufReader<zstd::Decoder<'static, BufReader<std::io::Take<File>>>>;
+type Decoder = zstd::Decoder<'static, BufReader<std::io::Take<File>>>;
+
+/// Bytes of raw records decompressed at a time.
+const BLOCK: usize = 32 << 10;
+/// Longest raw record: order, shared, [`MAX_ORDER`] ids, [`MAX_VALUES`]
+/// varints of at most ten bytes.
+const MAX_RECORD: usize = 2 + 8 * MAX_ORDER + 10 * MAX_VALUES;
 
 /// Streams the records of one section, checking them as it goes.
+///
+/// Raw bytes are decompressed a block at a time into `buf` and hashed once
+/// per block; records are parsed from the buffer, which always holds a
+/// whole record (or the end of the section) before one is parsed.
 pub struct SectionReader {
     path: PathBuf,
     inner: Option<Decoder>,
+    buf: Vec<u8>,
+    pos: usize,
+    end: usize,
     entry: Entry,
     width: usize,
     seen: u64,
@@ -172,33 +188,52 @@ pub struct SectionReader {
 }
 
 impl SectionReader {
-    fn bytes(&mut self, buf: &mut [u8]) -> Result<()> {
-        let r = self.inner.as_mut().expect("open section");
-        r.read_exact(buf).map_err(|e| {
-            Error::corrupt(
-                &self.path,
-                format!(
-                    "section cut short after {} of {} raw bytes: {e}",
-                    self.read, self.entry.ulen
-                ),
-            )
-        })?;
-        self.read += buf.len() as u64;
-        self.hash.update(buf);
-        Ok(())
+    /// Makes sure at least [`MAX_RECORD`] bytes are buffered, or all that
+    /// is left of the section; `false` if nothing at all is left.
+    fn fill(&mut self) -> Result<bool> {
+        if self.end - self.pos >= MAX_RECORD {
+            return Ok(true);
+        }
+        if self.buf.is_empty() {
+            self.buf = vec![0; BLOCK];
+        }
+        self.buf.copy_within(self.pos..self.end, 0);
+        let have = self.end - self.pos;
+        let (mut end, r) = (have, self.inner.as_mut().expect("open section"));
+        while end < MAX_RECORD {
+            let n = match r.read(&mut self.buf[end..]) {
+                Ok(n) => n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+                Err(e) => {
+                    return Err(Error::corrupt(
+                        &self.path,
+                        format!(
+                            "section cut short after {} of {} raw bytes: {e}",
+                            self.read, self.entry.ulen
+                        ),
+                    ))
+                }
+            };
+            if n == 0 {
+                break;
+            }
+            end += n;
+        }
+        self.hash.update(&self.buf[have..end]);
+        self.read += (end - have) as u64;
+        self.pos = 0;
+        self.end = end;
+        Ok(end > 0)
     }
 
-    fn varint(&mut self) -> Result<u64> {
-        let mut v = 0u64;
-        for shift in (0..64).step_by(7) {
-            let mut b = [0u8];
-            self.bytes(&mut b)?;
-            v |= ((b[0] & 0x7f) as u64) << shift;
-            if b[0] < 0x80 {
-                return Ok(v);
-            }
-        }
-        Err(Error::corrupt(&self.path, "overlong varint"))
+    fn cut_short(&self) -> Error {
+        Error::corrupt(
+            &self.path,
+            format!(
+                "section cut short after {} of {} raw bytes",
+                self.read, self.entry.ulen
+            ),
+        )
     }
 
     /// The next record, or `None` at the end of the section (after its
@@ -214,12 +249,15 @@ impl SectionReader {
                     .read(&mut extra)
                     .unwrap_or(1);
                 if more != 0
+                    || self.pos != self.end
                     || self.read != self.entry.ulen
                     || self.hash.digest() != self.entry.hash
                 {
                     return Err(Error::corrupt(&self.path, "section checksum mismatch"));
                 }
                 self.inner = None;
+                self.buf = Vec::new();
+                (self.pos, self.end) = (0, 0);
             }
             return Ok(None);
         }
@@ -229,21 +267,29 @@ impl SectionReader {
                 "records claimed in an empty section",
             ));
         }
-        let mut head = [0u8; 2];
-        self.bytes(&mut head)?;
-        let (order, shared) = (head[0] as usize, head[1] as usize);
+        if !self.fill()? {
+            return Err(self.cut_short());
+        }
+        let b = &self.buf[self.pos..self.end];
+        if b.len() < 2 {
+            return Err(self.cut_short());
+        }
+        let (order, shared) = (b[0] as usize, b[1] as usize);
         if order == 0 || order > MAX_ORDER || shared > order || shared > self.prev.order() {
             return Err(Error::corrupt(
                 &self.path,
                 format!("bad record header {order}/{shared}"),
             ));
         }
+        let fresh = order - shared;
+        let mut at = 2 + 8 * fresh;
+        if b.len() < at {
+            return Err(self.cut_short());
+        }
         let mut ids = [0u64; MAX_ORDER];
         ids[..shared].copy_from_slice(&self.prev.ids()[..shared]);
-        for id in ids.iter_mut().take(order).skip(shared) {
-            let mut b = [0u8; 8];
-            self.bytes(&mut b)?;
-            *id = u64::from_le_bytes(b);
+        for (id, c) in ids[shared..order].iter_mut().zip(b[2..at].chunks_exact(8)) {
+            *id = u64::from_le_bytes(c.try_into().expect("8 bytes"));
         }
         let key = Key::new(&ids[..order]);
         if self.seen > 0 && key <= self.prev {
@@ -251,8 +297,19 @@ impl SectionReader {
         }
         let mut vals = [0u64; MAX_VALUES];
         for v in vals.iter_mut().take(self.width) {
-            *v = self.varint()?;
+            let mut rest = &b[at..];
+            match crate::varint::get(&mut rest) {
+                Some(x) => {
+                    *v = x;
+                    at = b.len() - rest.len();
+                }
+                None if b.len() - at >= 10 => {
+                    return Err(Error::corrupt(&self.path, "overlong varint"))
+                }
+                None => return Err(self.cut_short()),
+            }
         }
+        self.pos += at;
         self.seen += 1;
         self.prev = key;
         Ok(Some((key, vals)))
