@@ -28,8 +28,8 @@ pub use tables::{order_report, OrderReport};
 
 /// Version of the report's JSON schema (README.md, "Statistics").
 ///
-/// 2: `count_of_counts.adjusted` became `count_of_counts.left_type` (the
-/// TSV/CSV section `coc_adjusted` became `coc_left_type`), the earlier
+/// 2: the Kneser-Ney count-of-counts are `count_of_counts.left_type` and the
+/// TSV/CSV section `coc_left_type` (schema 1 used another word), the earlier
 /// `mkn_discounts` object was dropped (`discounts` holds each discount with
 /// why it is unusable), and a discount's reason is worded anew.
 pub const REPORT_SCHEMA: u32 = 2;
