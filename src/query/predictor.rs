@@ -33,6 +33,51 @@ pub trait Predictor {
     fn next(&self, context: &[WordId], k: usize) -> Result<Next>;
     /// P(· | context) over V, in id order.
     fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>>;
+
+    /// The `k` most probable next words that begin with `prefix` (Unicode
+    /// scalar values; lowercased first when [`Predictor::lowercase`]),
+    /// exact. `<s>` and `<unk>` are never suggested; `</s>` only when the
+    /// prefix is empty. `rest` is 1 − the sum shown, over all of V.
+    ///
+    /// This default scores all of V ([`Predictor::distribution`]): exact
+    /// but slow; implementations override it with a faster exact search.
+    fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        let prefix = if self.lowercase() {
+            prefix.to_lowercase()
+        } else {
+            prefix.to_string()
+        };
+        let (bos, unk, eos) = (
+            crate::words::bos_id(),
+            crate::words::unk_id(),
+            crate::words::eos_id(),
+        );
+        let dist = self.distribution(context)?;
+        let scored = dist.len();
+        let mut items = Vec::new();
+        for (w, p) in dist {
+            if w == bos || w == unk || (w == eos && !prefix.is_empty()) {
+                continue;
+            }
+            if !prefix.is_empty() {
+                match self.word(w)? {
+                    Some(text) if text.starts_with(prefix.as_str()) => {}
+                    _ => continue,
+                }
+            }
+            items.push((w, p));
+        }
+        items.sort_unstable_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+        items.truncate(k);
+        let shown: f64 = items.iter().map(|x| x.1).sum();
+        let ctx = self.next(context, 0)?.context;
+        Ok(Next {
+            context: ctx,
+            items,
+            rest: 1.0 - shown,
+            scored,
+        })
+    }
 }
 
 impl Predictor for Estimator<'_> {
