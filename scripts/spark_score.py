@@ -27,6 +27,13 @@ documents' scores with its percentiles, computed from the merged
 histograms (nearest rank, each within the documented bound of the exact
 value: 0.0115 % relative for a perplexity, see src/docs/dist.rs).
 
+The option --fault-kill NAME:POINT is for tests: it SIGKILLs the first
+attempt of the task of input NAME at POINT, `scoring` (the quern process,
+after its first batch of results) or `commit` (the task itself, after its
+done.json is written and before the rename). Spark retries the task; the
+retry starts afresh in a new temporary folder, and the driver removes the
+temporary folders that killed attempts left once every task has ended.
+
 Example:
 
   spark-submit --master yarn --files /opt/quern/bin/quern,/models/ref.qm \\
@@ -73,8 +80,15 @@ def parse_args(argv):
                    help="path of the quern binary on the executors (default: the file shipped "
                         "with --files, else `quern` on PATH)")
     p.add_argument("--report", default=None, help="also write the merged summary to this file")
+    p.add_argument("--fault-kill", action="append", default=[], metavar="NAME:POINT",
+                   help="tests: SIGKILL the first attempt of the task of input NAME at POINT "
+                        "(scoring or commit)")
     p.add_argument("inputs", nargs="+", help="files or directories of JSON lines")
-    return p.parse_args(argv)
+    a = p.parse_args(argv)
+    for spec in a.fault_kill:
+        if spec.rpartition(":")[2] not in ("scoring", "commit"):
+            p.error(f"--fault-kill {spec!r}: expected NAME:POINT with POINT scoring or commit")
+    return a
 
 
 # ---------------------------------------------------------------- executors
@@ -138,13 +152,23 @@ def score_one(conf, name, path):
     out = os.path.join(conf["out"], name)
     if finished(out):
         return {"name": name, "input": path, "outcome": "skipped"}
+    from pyspark import TaskContext
+    ctx = TaskContext.get()
+    attempt = ctx.attemptNumber() if ctx is not None else 0
+    kill = conf["kill"].get(name) if attempt == 0 else None
+    env = dict(os.environ)
+    env.pop("QUERN_KILL_AT", None)
+    if kill == "scoring":
+        env["QUERN_KILL_AT"] = "score-batch:1"
     quern = find_quern(conf["quern"])
     tmp = os.path.join(conf["out"], f".tmp-{name}-{uuid.uuid4().hex}")
     os.makedirs(tmp)
     cmd = [quern, "score"]
+    model_from = None
     if conf["model"]:
         model = conf["model"]
         local = shipped(os.path.basename(model))
+        model_from = "shipped" if local else "path"
         cmd += ["--model", local or model]
     else:
         cmd += ["--store", conf["store"], "--method", conf["method"], "--memory", conf["memory"]]
@@ -155,14 +179,17 @@ def score_one(conf, name, path):
             path]
     t0 = time.time()
     with open(os.path.join(tmp, "scores.jsonl"), "wb") as scores:
-        p = subprocess.run(cmd, stdout=scores, stderr=subprocess.PIPE, stdin=subprocess.DEVNULL)
+        p = subprocess.run(cmd, stdout=scores, stderr=subprocess.PIPE, stdin=subprocess.DEVNULL,
+                           env=env)
     err = p.stderr.decode("utf-8", "replace")
     if err:
         sys.stderr.write(err)  # lands in the executor's log
     if p.returncode != 0:
         shutil.rmtree(tmp, ignore_errors=True)
         detail = " | ".join(l for l in err.strip().splitlines() if l) or "no message"
-        raise RuntimeError(FAILED + f"{path}: exit status {p.returncode}: {detail}")
+        how = (f"killed by signal {-p.returncode}" if p.returncode < 0
+               else f"exit status {p.returncode}")
+        raise RuntimeError(FAILED + f"{path} (attempt {attempt}): {how}: {detail}")
     files = {}
     for f in ("scores.jsonl", "summary.json"):
         fp = os.path.join(tmp, f)
@@ -176,6 +203,8 @@ def score_one(conf, name, path):
         json.dump(done, f, sort_keys=True)
         f.flush()
         os.fsync(f.fileno())
+    if kill == "commit":
+        os.kill(os.getpid(), 9)
     # The commit: one rename. If a finished output is there already (another
     # copy won), ours is dropped; a damaged one is moved aside first.
     try:
@@ -190,8 +219,8 @@ def score_one(conf, name, path):
             os.rename(out, aside)
             os.rename(tmp, out)
             outcome = "scored (a damaged output moved aside)"
-    return {"name": name, "input": path, "outcome": outcome,
-            "seconds": round(time.time() - t0, 3)}
+    return {"name": name, "input": path, "outcome": outcome, "attempt": attempt,
+            "model": model_from, "seconds": round(time.time() - t0, 3)}
 
 
 # ------------------------------------------------------------------- driver
@@ -286,6 +315,7 @@ def main(argv):
         "text_field": a.text_field,
         "id_field": a.id_field,
         "threads": a.task_threads,
+        "kill": dict(spec.rsplit(":", 1) for spec in a.fault_kill),
     }
     sc = SparkContext(conf=SparkConf().setAppName(f"quern score into {out}"))
     sc.setJobDescription(f"quern score: {len(files)} file(s)")
@@ -301,6 +331,10 @@ def main(argv):
               file=sys.stderr)
         sc.stop()
         return 1
+    # Every task has ended: what is left of killed attempts goes.
+    for entry in os.listdir(out):
+        if entry.startswith(".tmp-"):
+            shutil.rmtree(os.path.join(out, entry), ignore_errors=True)
     summaries = []
     for name, _ in files:
         with open(os.path.join(out, name, "summary.json"), encoding="utf-8") as f:

@@ -4,8 +4,9 @@
 //! itself SIGKILL the n-th time (1-based) it reaches `point`. Without the
 //! variable a point costs one relaxed atomic load. Points: `spill`,
 //! `committed`, `merge`, `join`, `build` of the ingest, and
-//! `stage-written`, `stage-done` of a `quern stage` task (see
-//! DEVELOPERS.md).
+//! `stage-written`, `stage-done` of a `quern stage` task, and
+//! `score-batch` (a batch of scored documents handed to the output) of
+//! `quern score` (see DEVELOPERS.md).
 //!
 //! With `QUERN_FULL_AT=<point>:<n>`, [`full`] returns an out-of-space I/O
 //! error the n-th time and every later time it is reached at `point`, as a

@@ -622,6 +622,98 @@ mod spark {
         assert_eq!(redone.len(), 1, "{third}");
         assert!(std::fs::read(&victim).unwrap() == before[1]);
     }
+    /// scripts/spark_score.py with a frozen model shipped to the executors
+    /// by `spark-submit --files` (given to the driver by its bare name, so
+    /// that only the shipped copy can be found), one task's quern process
+    /// SIGKILLed after its first batch of results and another task itself
+    /// SIGKILLed between writing its done.json and its commit: Spark
+    /// retries both, every scored file equals the single-machine
+    /// `quern score --model` of its input byte for byte, the killed tasks
+    /// report a second attempt, and no temporary folder is left.
+    #[test]
+    fn shipped_model_and_killed_tasks_equal_single_machine() {
+        let submit = crate::spark::spark_submit();
+        let dir = tmp().join("spark-model");
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).unwrap();
+        }
+        let inputs = dir.join("crawl");
+        std::fs::create_dir_all(&inputs).unwrap();
+        let model = dir.join("ref3.qm");
+        run_ok(&[
+            "freeze",
+            "--store",
+            &s(train3()),
+            "--method",
+            "mkn",
+            "--out",
+            &s(&model),
+        ]);
+        // Three plain .jsonl files; the batches are small enough (2,048
+        // lines) that the first has more than one.
+        let lines = &input().0;
+        let mut files = Vec::new();
+        for (k, part) in lines.chunks(lines.len().div_ceil(3)).enumerate() {
+            let f = inputs.join(format!("part-{k}.jsonl"));
+            std::fs::write(&f, part.join("\n") + "\n").unwrap();
+            files.push(f);
+        }
+        let out = dir.join("scored");
+        let r = {
+            let _one = crate::spark::ONE_AT_A_TIME
+                .lock()
+                .unwrap_or_else(|e| e.into_inner());
+            std::process::Command::new(&submit)
+                .args(["--master", "local[2,4]", "--conf", "spark.ui.enabled=false"])
+                .args(["--driver-memory", "1g", "--files", &s(&model)])
+                .arg(crate::common::manifest_dir().join("scripts/spark_score.py"))
+                .args(["--quern", crate::common::bin(), "--model", "ref3.qm"])
+                .args(["--fault-kill", "part-0.jsonl:scoring"])
+                .args(["--fault-kill", "part-2.jsonl:commit"])
+                .args(["--out", &s(&out), &s(&inputs)])
+                .current_dir(&dir)
+                .env("PYSPARK_PYTHON", "python3")
+                .env("SPARK_LOCAL_IP", "127.0.0.1")
+                .stdin(std::process::Stdio::null())
+                .output()
+                .unwrap()
+        };
+        let text = String::from_utf8_lossy(&r.stdout).into_owned();
+        let err = String::from_utf8_lossy(&r.stderr);
+        assert!(r.status.success(), "spark_score.py failed:\n{text}\n{err}");
+        assert!(
+            err.contains("killed by signal 9"),
+            "the quern process of part-0 was not killed:\n{err}"
+        );
+        let merged: Value =
+            serde_json::from_str(text.lines().rfind(|l| l.starts_with('{')).unwrap()).unwrap();
+        for t in merged["tasks"].as_array().unwrap() {
+            assert_eq!(t["model"], json!("shipped"), "{t}");
+            let killed = t["name"] == json!("part-0.jsonl") || t["name"] == json!("part-2.jsonl");
+            assert_eq!(t["attempt"].as_u64().unwrap() > 0, killed, "{t}");
+        }
+        for f in &files {
+            let name = f.file_name().unwrap().to_string_lossy().into_owned();
+            let got = std::fs::read(out.join(&name).join("scores.jsonl")).unwrap();
+            let want = run_ok(&[
+                "score",
+                "--model",
+                &s(&model),
+                "--jsonl",
+                "--threads",
+                "1",
+                &s(f),
+            ])
+            .stdout;
+            assert!(got == want.as_bytes(), "{name}: Spark's output differs");
+        }
+        let left: Vec<String> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .filter(|n| n.starts_with(".tmp-"))
+            .collect();
+        assert!(left.is_empty(), "temporary folders left: {left:?}");
+    }
 }
 
 /// `--model`: a frozen model of the same store gives every document the
