@@ -12,6 +12,14 @@ random.Random, so the output is the same on every run and every machine:
     python3 scripts/make_demo_corpus.py > fixtures/demo/ferry-log.txt
     python3 scripts/make_demo_corpus.py -o fixtures/demo/ferry-log.txt
 
+With --crawl it writes instead an invented crawl of the cooperative's web
+message board as JSON lines (`{"url": ..., "text": ...}`, the text's lines
+being its sentences), the input of the README's crawl-filtering examples:
+posts written like the log (from another seed), shop and cookie boilerplate,
+keyword spam, and a last line cut off in the middle:
+
+    python3 scripts/make_demo_corpus.py --crawl -o fixtures/demo/ferry-board.jsonl
+
 One sentence per line. Common phrases repeat on purpose, so that n-grams
 repeat and queries on the demo store are interesting.
 
@@ -341,12 +349,53 @@ def build(rng):
     return log.lines
 
 
+BOILERPLATE = [
+    "We use cookies to improve your experience on our website.",
+    "Accept all cookies", "Manage cookie preferences", "Reject non-essential cookies",
+    "Add to basket", "Add to wishlist", "Quick view", "Compare products",
+    "Free delivery on orders over 40 pounds", "Sign up to our newsletter for 10% off",
+    "Follow us on social media", "Copyright 2026 All rights reserved",
+    "Terms and conditions", "Privacy policy", "Sort by price low to high",
+    "Showing 1 to 24 of 318 results", "Customers also bought", "Write a review",
+    "Your basket is empty", "Log in or create an account",
+]
+SPAM = [
+    "cheap", "ferry", "tickets", "best", "price", "online", "casino", "bonus", "win",
+    "crypto", "loans", "fast", "click", "here", "now", "deal", "discount", "free",
+]
+
+
+def crawl(rng):
+    """The invented board crawl: (url, text) pairs, text lines as sentences."""
+    posts = build(random.Random(rng.randrange(1 << 30)))[2:]
+    docs = []
+    i = 0
+    while i < len(posts) and len(docs) < 260:
+        n = rng.randint(2, 9)
+        docs.append("\n".join(posts[i:i + n]))
+        i += n + rng.randint(0, 12)
+    for _ in range(50):
+        docs.append("\n".join(rng.sample(BOILERPLATE, rng.randint(3, 8))))
+    for _ in range(20):
+        docs.append(" ".join(rng.choice(SPAM) for _ in range(rng.randint(8, 30))))
+    rng.shuffle(docs)
+    return [("https://skerrow-ferry.example/board/%d" % (1000 + k), t) for k, t in enumerate(docs)]
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("-o", "--output", help="write here instead of stdout")
     ap.add_argument("--seed", type=int, default=SEED, help="random seed (default %(default)s)")
+    ap.add_argument("--crawl", action="store_true",
+                    help="write the invented message-board crawl (JSON lines) instead")
     args = ap.parse_args(argv)
-    lines = build(random.Random(args.seed))
+    if args.crawl:
+        import json
+        docs = crawl(random.Random(args.seed + 1))
+        lines = [json.dumps({"url": u, "text": t}, ensure_ascii=False) for u, t in docs]
+        lines.append(lines[len(lines) // 2][:70])  # a line cut off in the middle
+    else:
+        lines = build(random.Random(args.seed))
     text = "".join(line + "\n" for line in lines)
     if args.output:
         with open(args.output, "w", encoding="utf-8", newline="\n") as f:
