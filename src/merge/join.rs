@@ -48,7 +48,7 @@ pub fn join_partition(
     let mut stats = PartitionStats {
         ngrams: vec![0; n],
         coc_raw: vec![BTreeMap::new(); n],
-        coc_adjusted: vec![BTreeMap::new(); n],
+        coc_left_type: vec![BTreeMap::new(); n],
         ..Default::default()
     };
     // open[j]: the n-gram of order j (1 ≤ j < N) whose children come next.
@@ -102,7 +102,7 @@ pub fn join_partition(
         stats.ngrams[k - 1] += 1;
         if !(k == 1 && starts_bos) {
             *stats.coc_raw[k - 1].entry(c).or_insert(0) += 1;
-            *stats.coc_adjusted[k - 1].entry(a).or_insert(0) += 1;
+            *stats.coc_left_type[k - 1].entry(a).or_insert(0) += 1;
         }
         if k == 1 && key.ids()[0] == unk {
             stats.unk_seen = true;

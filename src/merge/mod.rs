@@ -11,7 +11,7 @@
 //!    partitioned runs (the one shuffle quern needs).
 //! 2. [`join_partition`]: walks the partition's merged counts in key order
 //!    beside the merge of every continuation run's section for it, and
-//!    derives everything the store holds: `N1+(•g)`, the adjusted count
+//!    derives everything the store holds: `N1+(•g)`, the left-type count
 //!    `a(g)`, count-of-counts, and the context statistics. Because key order
 //!    visits a context right before all its extensions, one stack of open
 //!    contexts (one per length) is enough: memory O(N).

@@ -60,7 +60,7 @@ impl Estimator<'_> {
     }
 
     /// One step of an interpolated method at context length `j` (order
-    /// j + 1): P_{j+1}(w | h) from the raw and adjusted counts `c`, `a` of
+    /// j + 1): P_{j+1}(w | h) from the raw and left-type counts `c`, `a` of
     /// h·w, the statistics `ctx` of h (`None`: h has no children), c(h) as
     /// an n-gram `hc` and `lower` = P_j(w | h') (1/|V| at j = 0). For the
     /// other methods it returns `lower`.

@@ -40,7 +40,7 @@ use super::{DiscountPolicy, Level};
 
 /// The left-type count-of-counts n1..n4 of one order.
 pub fn left_type_n(o: &OrderStats) -> [u64; 4] {
-    [1, 2, 3, 4].map(|r| o.adjusted(r))
+    [1, 2, 3, 4].map(|r| o.left_type(r))
 }
 
 /// The raw count-of-counts n1..n4 of one order.
@@ -198,7 +198,7 @@ pub(crate) fn mkn(d: &[[f64; 3]], levels: &[Level], v: f64) -> f64 {
 #[inline]
 pub(crate) fn mkn_step(d: &[f64; 3], l: &Level, lower: f64) -> f64 {
     let Some(s) = l.ctx else { return lower };
-    if s.adjusted_sum == 0 {
+    if s.left_type_sum == 0 {
         return lower;
     }
     let [d1, d2, d3] = *d;
@@ -208,7 +208,7 @@ pub(crate) fn mkn_step(d: &[f64; 3], l: &Level, lower: f64) -> f64 {
         2 => d2,
         _ => d3,
     };
-    let a = s.adjusted_sum as f64;
+    let a = s.left_type_sum as f64;
     let gamma = (d1 * s.n1 as f64 + d2 * s.n2 as f64 + d3 * s.n3plus as f64) / a;
     (l.a as f64 - disc).max(0.0) / a + gamma * lower
 }
@@ -231,7 +231,7 @@ pub(crate) fn kn_step(dk: f64, l: &Level, raw: bool, lower: f64) -> f64 {
     let (count, sum, types) = if raw {
         (l.c, s.count_sum, s.types)
     } else {
-        (l.a, s.adjusted_sum, s.n1 + s.n2 + s.n3plus)
+        (l.a, s.left_type_sum, s.n1 + s.n2 + s.n3plus)
     };
     if sum == 0 {
         return lower;

@@ -50,14 +50,18 @@ pub struct OrderStats {
     pub ngrams: u64,
     /// Raw count-of-counts `(r, n_r)`, r ascending, `<s>` left out.
     pub coc_raw: Vec<(u64, u64)>,
-    /// Adjusted count-of-counts `(r, n_r)`, r ascending, `<s>` left out.
-    pub coc_adjusted: Vec<(u64, u64)>,
+    /// Count-of-counts of the left-type counts `(r, n_r)` (the counts the
+    /// lower orders of Kneser-Ney use: distinct left extensions, or the raw
+    /// count where the n-gram starts with `<s>`), r ascending, `<s>` left
+    /// out. Stores written before this name read it from `coc_adjusted`.
+    #[serde(alias = "coc_adjusted")]
+    pub coc_left_type: Vec<(u64, u64)>,
 }
 
 impl OrderStats {
-    /// n_r of the adjusted spectrum (0 where absent).
-    pub fn adjusted(&self, r: u64) -> u64 {
-        lookup(&self.coc_adjusted, r)
+    /// n_r of the left-type spectrum (0 where absent).
+    pub fn left_type(&self, r: u64) -> u64 {
+        lookup(&self.coc_left_type, r)
     }
 
     /// n_r of the raw spectrum (0 where absent).
@@ -96,4 +100,25 @@ pub struct GrowthCurve {
     /// sample point below T (20 per decade, see [`crate::growth`]) and then
     /// (T, types).
     pub points: Vec<(u64, u64)>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::OrderStats;
+
+    /// Metadata written before the rename (field `coc_adjusted`) still
+    /// reads, into the same record.
+    #[test]
+    fn the_old_field_name_still_reads() {
+        let o = OrderStats {
+            order: 2,
+            ngrams: 7,
+            coc_raw: vec![(1, 5), (2, 2)],
+            coc_left_type: vec![(1, 4), (3, 3)],
+        };
+        let new = serde_json::to_string(&o).unwrap();
+        assert!(new.contains("\"coc_left_type\""));
+        let old = new.replace("coc_left_type", "coc_adjusted");
+        assert_eq!(serde_json::from_str::<OrderStats>(&old).unwrap(), o);
+    }
 }

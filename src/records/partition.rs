@@ -14,23 +14,23 @@ pub struct ContextStats {
     pub count_sum: u64,
     /// T(h): number of children.
     pub types: u64,
-    /// A(h): sum of the children's adjusted counts.
-    pub adjusted_sum: u64,
-    /// N1(h): children with adjusted count 1.
+    /// A(h): sum of the children's left-type counts.
+    pub left_type_sum: u64,
+    /// N1(h): children with left-type count 1.
     pub n1: u64,
-    /// N2(h): children with adjusted count 2.
+    /// N2(h): children with left-type count 2.
     pub n2: u64,
-    /// N3+(h): children with adjusted count 3 or more.
+    /// N3+(h): children with left-type count 3 or more.
     pub n3plus: u64,
 }
 
 impl ContextStats {
-    /// Adds one child with raw count `c` and adjusted count `a`.
+    /// Adds one child with raw count `c` and left-type count `a`.
     #[inline]
     pub fn add_child(&mut self, c: u64, a: u64) {
         self.count_sum += c;
         self.types += 1;
-        self.adjusted_sum += a;
+        self.left_type_sum += a;
         match a {
             0 => {}
             1 => self.n1 += 1,
@@ -43,7 +43,7 @@ impl ContextStats {
     pub fn merge(&mut self, o: &ContextStats) {
         self.count_sum += o.count_sum;
         self.types += o.types;
-        self.adjusted_sum += o.adjusted_sum;
+        self.left_type_sum += o.left_type_sum;
         self.n1 += o.n1;
         self.n2 += o.n2;
         self.n3plus += o.n3plus;
@@ -92,8 +92,11 @@ pub struct PartitionStats {
     pub ngrams: Vec<u64>,
     /// Raw count-of-counts per order: count → number of n-grams.
     pub coc_raw: Vec<BTreeMap<u64, u64>>,
-    /// Adjusted count-of-counts per order.
-    pub coc_adjusted: Vec<BTreeMap<u64, u64>>,
+    /// Count-of-counts of the left-type counts per order (see
+    /// `OrderStats::coc_left_type`); read from `coc_adjusted` in records
+    /// written before this name.
+    #[serde(alias = "coc_adjusted")]
+    pub coc_left_type: Vec<BTreeMap<u64, u64>>,
     /// This partition's share of the empty context's statistics.
     pub root: ContextStats,
     /// True if the unigram `<unk>` is in this partition.
@@ -128,7 +131,7 @@ pub fn store_meta<'a>(
             for (r, c) in &s.coc_raw[k] {
                 *raw[k].entry(*r).or_insert(0) += c;
             }
-            for (r, c) in &s.coc_adjusted[k] {
+            for (r, c) in &s.coc_left_type[k] {
                 *adj[k].entry(*r).or_insert(0) += c;
             }
         }
@@ -151,7 +154,7 @@ pub fn store_meta<'a>(
             order: k + 1,
             ngrams: ngrams[k],
             coc_raw: raw[k].iter().map(|(a, b)| (*a, *b)).collect(),
-            coc_adjusted: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
+            coc_left_type: adj[k].iter().map(|(a, b)| (*a, *b)).collect(),
         })
         .collect();
     StoreMeta {

@@ -129,7 +129,7 @@ pub fn order_report(o: &OrderStats, katz_k: usize) -> OrderReport {
         singleton_share: (total > 0).then(|| n1 as f64 / total as f64),
         count_of_counts: Spectra {
             raw: o.coc_raw.clone(),
-            left_type: o.coc_adjusted.clone(),
+            left_type: o.coc_left_type.clone(),
         },
         discounts: Discounts {
             d1: Discount::from(modified(n, 1, "left-type")),
@@ -157,7 +157,7 @@ mod tests {
             order: 2,
             ngrams: 17,
             coc_raw: vec![(1, 10), (2, 4), (3, 2), (4, 1)],
-            coc_adjusted: vec![(1, 6), (2, 3), (4, 1)],
+            coc_left_type: vec![(1, 6), (2, 3), (4, 1)],
         };
         let r = order_report(&o, 2);
         assert_eq!(r.singletons, 10);

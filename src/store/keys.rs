@@ -86,7 +86,7 @@ pub fn encode_ngram(
     if let Some(st) = context.filter(|s| s.types > 0) {
         put_varint(out, zigzag(count as i128 - st.count_sum as i128));
         put_varint(out, st.types);
-        put_varint(out, zigzag(st.adjusted_sum as i128 - st.types as i128));
+        put_varint(out, zigzag(st.left_type_sum as i128 - st.types as i128));
         put_varint(out, st.n1);
         put_varint(out, st.n2);
         put_varint(out, st.n3plus);
@@ -112,11 +112,11 @@ pub fn decode_ngram(mut b: &[u8]) -> Option<NgramRecord> {
         *x = get_varint(&mut b)?;
     }
     let count_sum = u64::try_from(count as i128 - unzigzag(v[0])).ok()?;
-    let adjusted_sum = u64::try_from(v[1] as i128 + unzigzag(v[2])).ok()?;
+    let left_type_sum = u64::try_from(v[1] as i128 + unzigzag(v[2])).ok()?;
     r.context = Some(ContextStats {
         count_sum,
         types: v[1],
-        adjusted_sum,
+        left_type_sum,
         n1: v[3],
         n2: v[4],
         n3plus: v[5],
@@ -133,7 +133,7 @@ mod tests {
         let st = ContextStats {
             count_sum: 7,
             types: 3,
-            adjusted_sum: 2,
+            left_type_sum: 2,
             n1: 1,
             n2: 0,
             n3plus: 1,

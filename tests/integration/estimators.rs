@@ -74,7 +74,7 @@ fn ctx(c: u64, t: u64, a: u64, n1: u64, n2: u64, n3: u64) -> ContextStats {
     ContextStats {
         count_sum: c,
         types: t,
-        adjusted_sum: a,
+        left_type_sum: a,
         n1,
         n2,
         n3plus: n3,
@@ -109,7 +109,7 @@ fn the_tiny_store_holds_the_hand_counts() {
     assert_eq!(s.context(&id("a")).unwrap(), Some(ctx(2, 1, 2, 0, 1, 0)));
     assert_eq!(s.context(&id("b")).unwrap(), Some(ctx(1, 1, 1, 1, 0, 0)));
     assert_eq!(m.orders[0].coc_raw, vec![(1, 1), (2, 1), (4, 1), (5, 1)]);
-    assert_eq!(m.orders[0].coc_adjusted, vec![(1, 1), (2, 2), (3, 1)]);
+    assert_eq!(m.orders[0].coc_left_type, vec![(1, 1), (2, 2), (3, 1)]);
     assert_eq!(m.orders[1].coc_raw, vec![(1, 5), (2, 2), (3, 1)]);
 }
 
@@ -415,7 +415,7 @@ fn discount_formulas_on_made_up_counts() {
         order: 2,
         ngrams: 0,
         coc_raw: vec![(1, 10), (2, 4), (3, 2), (4, 1)],
-        coc_adjusted: vec![(1, 6), (2, 3), (3, 2), (4, 1)],
+        coc_left_type: vec![(1, 6), (2, 3), (3, 2), (4, 1)],
     };
     // Y = 6/12 = 0.5: D1 = 1 − 2·0.5·3/6 = 0.5, D2 = 2 − 3·0.5·2/3 = 1,
     // D3+ = 3 − 4·0.5·1/2 = 2.
@@ -553,12 +553,12 @@ fn stats_report_and_estimators_agree_on_discounts() {
 /// N1+(•w): a {d, a, <s>, b} = 4, b {<s>} = 1, c {b, d, <s>} = 3,
 /// d {c, <s>} = 2, </s> {c, a} = 2.
 ///
-/// Bigrams, raw / adjusted (N1+(•vw), or raw for those starting with <s>):
+/// Bigrams, raw / left-type (N1+(•vw), or raw for those starting with <s>):
 /// <s> a 1/1, <s> b 3/3, <s> c 1/1, <s> d 1/1, a a 5/4 ({d, <s>, a, b}),
 /// a </s> 4/2 ({a, b}), b a 2/1 ({<s>}), b c 1/1, c d 1/1, c </s> 2/2
 /// ({<s>, d}), d a 1/1, d c 1/1.
 ///
-/// Trigrams (top order: raw = adjusted): <s> a a 1, <s> b a 2, <s> b c 1,
+/// Trigrams (top order: raw = left-type): <s> a a 1, <s> b a 2, <s> b c 1,
 /// <s> c </s> 1, <s> d a 1, a a </s> 3, a a a 2, b a </s> 1, b a a 1,
 /// b c d 1, c d c 1, d a a 1, d c </s> 1.
 ///
@@ -567,8 +567,8 @@ fn stats_report_and_estimators_agree_on_discounts() {
 ///   b       3 2  2 2 0 0    c     3 2 3 1 1 0     a a   5 2 5 0 1 1
 ///   <s> b   3 2  3 1 1 0    d c   1 1 1 1 0 0
 ///
-/// Count-of-counts. Order 1 adjusted n1..n4 = 1, 2, 1, 1; raw n2 = 1,
-/// n3 = 2, n6 = 1, n9 = 1. Order 2 adjusted n1..n4 = 8, 2, 1, 1; raw
+/// Count-of-counts. Order 1 left-type n1..n4 = 1, 2, 1, 1; raw n2 = 1,
+/// n3 = 2, n6 = 1, n9 = 1. Order 2 left-type n1..n4 = 8, 2, 1, 1; raw
 /// n1..n5 = 7, 2, 1, 1, 1. Order 3 n1..n3 = 10, 2, 1 (n4 = 0).
 const CORPUS3: &str = "b c d c\nd a a a\nc\na a a\nb a\nb a a\n";
 
@@ -612,11 +612,11 @@ fn the_order3_store_holds_the_hand_counts() {
     }
     let m = s.meta();
     assert_eq!(
-        m.orders[0].coc_adjusted,
+        m.orders[0].coc_left_type,
         vec![(1, 1), (2, 2), (3, 1), (4, 1)]
     );
     assert_eq!(
-        m.orders[1].coc_adjusted,
+        m.orders[1].coc_left_type,
         vec![(1, 8), (2, 2), (3, 1), (4, 1)]
     );
     assert_eq!(
@@ -630,7 +630,7 @@ fn the_order3_store_holds_the_hand_counts() {
 /// "An empirical study of smoothing techniques for language modeling",
 /// eq. 17 (interpolation with γ(h) = (D1 N1(h) + D2 N2(h) + D3+ N3+(h))/A(h))
 /// and eq. 26 (Y = n1/(n1 + 2 n2), D_r = r − (r+1) Y n_{r+1}/n_r) over
-/// the adjusted counts of each order: continuation counts in the middle
+/// the left-type counts of each order: continuation counts in the middle
 /// order, raw counts at the top and for n-grams that start with <s>.
 #[test]
 fn mkn_by_hand_at_order_3() {
@@ -656,7 +656,7 @@ fn mkn_by_hand_at_order_3() {
     );
     assert_eq!(e.notes().len(), 1, "{:?}", e.notes());
     let v = 6.0;
-    // Order 1 (adjusted n1..n4 = 1, 2, 1, 1): Y = 1/5, D1 = 1 − 2(1/5)(2/1)
+    // Order 1 (left-type n1..n4 = 1, 2, 1, 1): Y = 1/5, D1 = 1 − 2(1/5)(2/1)
     // = 1/5, D2 = 2 − 3(1/5)(1/2) = 17/10, D3+ = 3 − 4(1/5)(1/1) = 11/5.
     let (a1, a2, a3) = (1.0 / 5.0, 17.0 / 10.0, 11.0 / 5.0);
     // Order 2 (8, 2, 1, 1): Y = 8/12 = 2/3, D1 = 1 − 2(2/3)(2/8) = 2/3,
@@ -675,7 +675,7 @@ fn mkn_by_hand_at_order_3() {
     close(p(&e, "a"), p1_a, "P(a)");
 
     // P(a | a a): trigram a a a 2 (D2 of order 3); a a has A = 5, N2 = 1
-    // (a a a), N3+ = 1 (a a </s> 3). Bigram a a: adjusted 4 (not its raw
+    // (a a a), N3+ = 1 (a a </s> 3). Bigram a a: left-type 4 (not its raw
     // 5), D3+ of order 2; a has A = 6 (a a 4, a </s> 2), N2 = 1, N3+ = 1.
     let g_a = (b2 * 1.0 + b3 * 1.0) / 6.0;
     let p2 = (4.0 - b3) / 6.0 + g_a * p1_a;
@@ -685,7 +685,7 @@ fn mkn_by_hand_at_order_3() {
     close(p(&e, "a a a"), (2.0 - c2) / 5.0 + g_aa * p2, "P(a | a a)");
 
     // P(a | <s> b): trigram <s> b a 2 (D2 of order 3); <s> b has A = 3,
-    // N1 = 1 (<s> b c), N2 = 1. Bigram b a: adjusted N1+(•b a) = 1 (only
+    // N1 = 1 (<s> b c), N2 = 1. Bigram b a: left-type N1+(•b a) = 1 (only
     // <s> b a; raw 2), D1 of order 2; b has A = 2 (b a 1, b c 1), N1 = 2.
     let g_b = b1 * 2.0 / 2.0;
     let p2_ab = (1.0 - b1) / 2.0 + g_b * p1_a;

@@ -162,7 +162,7 @@ impl Tables {
         g
     }
 
-    fn adjusted_coc(&self, k: usize, r: u64) -> f64 {
+    fn left_type_coc(&self, k: usize, r: u64) -> f64 {
         self.d.left_type_coc[k - 1].get(&r).copied().unwrap_or(0) as f64
     }
 
@@ -194,11 +194,11 @@ const KATZ_EPS: f64 = 1e-12;
 
 /// Modified Kneser-Ney discounts, Chen & Goodman (1998), eq. 26:
 /// Y = n1/(n1 + 2 n2), D_r = r − (r + 1) Y n_{r+1}/n_r (r = 1, 2, 3 for
-/// D3+), over the adjusted count-of-counts of the order; undefined where
+/// D3+), over the left-type count-of-counts of the order; undefined where
 /// n1, n2, n_r or n_{r+1} is 0 and unusable outside (0, r] (README, "Discounts": then the
 /// values of `--discounts estimate-or:...` are used).
 fn mkn_discounts(t: &Tables, k: usize) -> [f64; 3] {
-    let n = |r: u64| t.adjusted_coc(k, r);
+    let n = |r: u64| t.left_type_coc(k, r);
     let mut out = [0.0; 3];
     for r in 1..=3u64 {
         let rf = r as f64;
@@ -280,7 +280,7 @@ impl<'t> Independent<'t> {
             Method::Mkn => Model::Mkn((1..=n).map(|k| mkn_discounts(t, k)).collect()),
             Method::Kn => Model::Kn(
                 (1..=n)
-                    .map(|k| single_discount(t.adjusted_coc(k, 1), t.adjusted_coc(k, 2)))
+                    .map(|k| single_discount(t.left_type_coc(k, 1), t.left_type_coc(k, 2)))
                     .collect(),
             ),
             Method::Absolute => Model::Absolute(
@@ -358,7 +358,7 @@ impl<'t> Independent<'t> {
     }
 
     /// Interpolated Kneser-Ney with one discount (Ney, Essen & Kneser 1994)
-    /// over adjusted counts: max(a − D, 0)/A + D·(N1 + N2 + N3+)/A·P(w|h');
+    /// over left-type counts: max(a − D, 0)/A + D·(N1 + N2 + N3+)/A·P(w|h');
     /// absolute discounting (the same paper) over raw counts:
     /// max(c − D, 0)/C + D·T/C·P(w|h').
     fn kn(&self, d: &[f64], h: &[String], w: &str, raw: bool) -> f64 {

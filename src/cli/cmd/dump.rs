@@ -31,7 +31,7 @@ fn context_line(out: &mut impl Write, w: &str, s: &ContextStats) -> std::io::Res
     writeln!(
         out,
         "{w}\t{}\t{}\t{}\t{}\t{}\t{}",
-        s.count_sum, s.types, s.adjusted_sum, s.n1, s.n2, s.n3plus
+        s.count_sum, s.types, s.left_type_sum, s.n1, s.n2, s.n3plus
     )
 }
 
