@@ -245,11 +245,20 @@ pub struct NextArgs {
     /// How many words.
     #[arg(long, value_name = "K", default_value_t = 10)]
     pub top: usize,
-    /// One JSON object instead of a table. Default: a table.
+    /// Only words that begin with these characters (the start of a word
+    /// being typed; lowercased if the store was built with --lowercase).
+    /// `<s>` and `<unk>` are never shown, `</s>` only without a prefix.
+    /// In batch mode, the prefix of lines that give none. Default: none
+    /// (any word).
+    #[arg(long, value_name = "CHARS", default_value = "")]
+    pub prefix: String,
+    /// One JSON object instead of a table (in batch mode, one a line).
+    /// Default: a table (in batch mode, TSV with a header line).
     #[arg(long)]
     pub json: bool,
-    /// The context; none: the words most probable anywhere (the unigram
-    /// level). `<s>` means the sentence start.
+    /// The context (`<s>` means the sentence start); none: read one query
+    /// a line from standard input, the context words, then optionally a
+    /// tab and the prefix (an empty context asks for the unigram level).
     pub words: Vec<String>,
 }
 

@@ -35,6 +35,7 @@
 
 pub mod backoff;
 mod cache;
+pub mod complete;
 mod estimator;
 pub mod jelinek_mercer;
 pub mod katz;

@@ -63,6 +63,10 @@ mod query_normalisation;
 // queries; score JSON with infinite perplexity.
 mod query_next;
 
+// `next --prefix` (completion) equals a brute-force top K over V, for
+// stores and frozen models; batch `next` equals single queries.
+mod complete;
+
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
 // check), discount formulas, and a textbook add-one example (from memory).
 mod estimators;
