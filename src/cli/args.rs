@@ -34,6 +34,9 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Keystroke savings of word completion on held-out text: typing it
+    /// word by word with the top K completions shown.
+    Keystrokes(KeystrokesArgs),
     /// Write a method over a store as a read-only back-off model file (and
     /// ARPA text); or check a model file with --verify.
     Freeze(FreezeArgs),
@@ -260,6 +263,31 @@ pub struct NextArgs {
     /// a line from standard input, the context words, then optionally a
     /// tab and the prefix (an empty context asks for the unigram level).
     pub words: Vec<String>,
+}
+
+#[derive(Args, Debug)]
+pub struct KeystrokesArgs {
+    #[command(flatten)]
+    pub store: QuerySourceArgs,
+    #[command(flatten)]
+    pub method: MethodArgs,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// How many completions are shown: one or more K, comma-separated,
+    /// each at least 1.
+    #[arg(
+        long,
+        value_name = "K,...",
+        value_delimiter = ',',
+        default_value = "1,3,5"
+    )]
+    pub top: Vec<usize>,
+    /// One JSON object instead of a table. Default: a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Held-out text files (`-`: standard input), one sentence a line.
+    #[arg(required = true)]
+    pub heldout: Vec<PathBuf>,
 }
 
 #[derive(Args, Debug)]

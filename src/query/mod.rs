@@ -39,6 +39,7 @@ pub mod complete;
 mod estimator;
 pub mod jelinek_mercer;
 pub mod katz;
+pub mod keystrokes;
 pub mod kneser_ney;
 mod method;
 pub mod next;

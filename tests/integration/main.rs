@@ -67,6 +67,10 @@ mod query_next;
 // stores and frozen models; batch `next` equals single queries.
 mod complete;
 
+// `quern keystrokes`: a tiny case by hand, and an independent Python
+// simulation over batch `next --prefix` answers.
+mod keystrokes;
+
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
 // check), discount formulas, and a textbook add-one example (from memory).
 mod estimators;
