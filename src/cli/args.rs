@@ -389,6 +389,12 @@ pub struct IngestArgs {
     /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
+    /// A fixed vocabulary: FILE holds one word a line, and every other
+    /// token is counted as `<unk>` (lowercased first with --lowercase). The
+    /// store keeps the list; --append and a resume must give the same one.
+    /// Default: every token counts.
+    #[arg(long, value_name = "FILE")]
+    pub word_list: Option<PathBuf>,
     /// Skip (and report) lines longer than this many bytes.
     #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,

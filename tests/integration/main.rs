@@ -71,6 +71,10 @@ mod complete;
 // simulation over batch `next --prefix` answers.
 mod keystrokes;
 
+// `ingest --word-list`: counts against Python, kept by the store, the same
+// list required by --append and a resume.
+mod word_list;
+
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
 // check), discount formulas, and a textbook add-one example (from memory).
 mod estimators;
