@@ -52,7 +52,12 @@ pub fn lock(store: &Path) -> PathBuf {
     store.join("ingest.lock")
 }
 
-/// True when `store` holds a complete database.
+/// The fixed word list a store was counted with (`ingest --word-list`).
+pub fn word_list(store: &Path) -> PathBuf {
+    store.join("word-list.txt")
+}
+
+/// Whether the finished database is there.
 pub fn has_db(store: &Path) -> bool {
     db(store).join("CURRENT").exists()
 }

@@ -19,25 +19,68 @@ pub struct LineReport {
     pub invalid_utf8: bool,
     /// Number of literal tokens spelled like a marker (mapped to `<unk>`).
     pub marker_tokens: u64,
+    /// Number of tokens outside the word list (mapped to `<unk>`).
+    pub mapped_tokens: u64,
+}
+
+/// A fixed vocabulary (`ingest --word-list`): every other token is counted
+/// as `<unk>`. The words are as counted (lowercased by the caller when the
+/// ingest lowercases).
+#[derive(Debug, Default, Clone)]
+pub struct WordSet {
+    words: std::collections::HashSet<Box<str>>,
+}
+
+impl WordSet {
+    /// The set of `words`.
+    pub fn new<I: IntoIterator<Item = String>>(words: I) -> Self {
+        WordSet {
+            words: words.into_iter().map(String::into_boxed_str).collect(),
+        }
+    }
+
+    /// Whether `w` is in the list.
+    pub fn contains(&self, w: &str) -> bool {
+        self.words.contains(w)
+    }
+
+    /// Distinct words.
+    pub fn len(&self) -> usize {
+        self.words.len()
+    }
+
+    /// No words.
+    pub fn is_empty(&self) -> bool {
+        self.words.is_empty()
+    }
 }
 
 /// Turns lines into id sequences, remembering every word it saw.
-pub struct Tokenizer {
+pub struct Tokenizer<'w> {
     lowercase: bool,
+    list: Option<&'w WordSet>,
     bos: WordId,
     eos: WordId,
     unk: WordId,
 }
 
-impl Tokenizer {
+impl<'w> Tokenizer<'w> {
     /// A tokenizer; `lowercase` applies Unicode lowercasing to every token.
     pub fn new(lowercase: bool) -> Self {
         Tokenizer {
             lowercase,
+            list: None,
             bos: bos_id(),
             eos: eos_id(),
             unk: unk_id(),
         }
+    }
+
+    /// The same tokenizer, counting every token outside `list` (after
+    /// lowercasing) as `<unk>`.
+    pub fn with_word_list(mut self, list: Option<&'w WordSet>) -> Self {
+        self.list = list;
+        self
     }
 
     /// Writes the padded ids of `line` (without its line end) into `out`,
@@ -63,6 +106,11 @@ impl Tokenizer {
                 out.push(self.unk);
                 continue;
             }
+            if self.list.is_some_and(|l| !l.contains(&tok)) {
+                report.mapped_tokens += 1;
+                out.push(self.unk);
+                continue;
+            }
             let id = word_id(tok.as_bytes());
             dict.insert(id, &tok)?;
             out.push(id);
@@ -76,7 +124,7 @@ impl Tokenizer {
 
 /// A token as counted: Unicode-lowercased when `lowercase` (borrowed when
 /// that changes nothing).
-fn normalise(raw: &str, lowercase: bool) -> Cow<'_, str> {
+pub fn normalise(raw: &str, lowercase: bool) -> Cow<'_, str> {
     if lowercase && raw.chars().any(|c| c.is_uppercase() || !c.is_ascii()) {
         Cow::Owned(raw.to_lowercase())
     } else {

@@ -34,6 +34,9 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Keystroke savings of word completion on held-out text: typing it
+    /// word by word with the top K completions shown.
+    Keystrokes(KeystrokesArgs),
     /// Write a method over a store as a read-only back-off model file (and
     /// ARPA text); or check a model file with --verify.
     Freeze(FreezeArgs),
@@ -245,12 +248,46 @@ pub struct NextArgs {
     /// How many words.
     #[arg(long, value_name = "K", default_value_t = 10)]
     pub top: usize,
+    /// Only words that begin with these characters (the start of a word
+    /// being typed; lowercased if the store was built with --lowercase).
+    /// `<s>` and `<unk>` are never shown, `</s>` only without a prefix.
+    /// In batch mode, the prefix of lines that give none. Default: none
+    /// (any word).
+    #[arg(long, value_name = "CHARS", default_value = "")]
+    pub prefix: String,
+    /// One JSON object instead of a table (in batch mode, one a line).
+    /// Default: a table (in batch mode, TSV with a header line).
+    #[arg(long)]
+    pub json: bool,
+    /// The context (`<s>` means the sentence start); none: read one query
+    /// a line from standard input, the context words, then optionally a
+    /// tab and the prefix (an empty context asks for the unigram level).
+    pub words: Vec<String>,
+}
+
+#[derive(Args, Debug)]
+pub struct KeystrokesArgs {
+    #[command(flatten)]
+    pub store: QuerySourceArgs,
+    #[command(flatten)]
+    pub method: MethodArgs,
+    #[command(flatten)]
+    pub params: ParamArgs,
+    /// How many completions are shown: one or more K, comma-separated,
+    /// each at least 1.
+    #[arg(
+        long,
+        value_name = "K,...",
+        value_delimiter = ',',
+        default_value = "1,3,5"
+    )]
+    pub top: Vec<usize>,
     /// One JSON object instead of a table. Default: a table.
     #[arg(long)]
     pub json: bool,
-    /// The context; none: the words most probable anywhere (the unigram
-    /// level). `<s>` means the sentence start.
-    pub words: Vec<String>,
+    /// Held-out text files (`-`: standard input), one sentence a line.
+    #[arg(required = true)]
+    pub heldout: Vec<PathBuf>,
 }
 
 #[derive(Args, Debug)]
@@ -352,6 +389,12 @@ pub struct IngestArgs {
     /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
+    /// A fixed vocabulary: FILE holds one word a line, and every other
+    /// token is counted as `<unk>` (lowercased first with --lowercase). The
+    /// store keeps the list; --append and a resume must give the same one.
+    /// Default: every token counts.
+    #[arg(long, value_name = "FILE")]
+    pub word_list: Option<PathBuf>,
     /// Skip (and report) lines longer than this many bytes.
     #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,

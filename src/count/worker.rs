@@ -23,6 +23,8 @@ pub struct CountConfig<'a> {
     pub order: usize,
     /// Lowercase tokens.
     pub lowercase: bool,
+    /// Count every token outside this list as `<unk>`.
+    pub word_list: Option<&'a crate::tokenize::WordSet>,
     /// Longest line kept, in bytes.
     pub max_line_bytes: usize,
     /// Number of partitions.
@@ -150,7 +152,7 @@ impl<'a> Worker<'a> {
             span.end,
             self.cfg.max_line_bytes,
         );
-        let tok = Tokenizer::new(self.cfg.lowercase);
+        let tok = Tokenizer::new(self.cfg.lowercase).with_word_list(self.cfg.word_list);
         let mut line = Vec::new();
         let mut ids = Vec::new();
         let mut from = span.start;
@@ -178,6 +180,7 @@ impl<'a> Worker<'a> {
                         self.first.sentence(&ids, scan);
                         self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
                         self.totals.marker_tokens += r.marker_tokens;
+                        self.totals.mapped_tokens += r.mapped_tokens;
                         if !ids.is_empty() {
                             self.totals.sentences += 1;
                             for i in 0..ids.len() {

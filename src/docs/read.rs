@@ -114,7 +114,7 @@ fn open(path: &Path, max_line: usize) -> Result<LineReader> {
 
 /// One worker's tokenizer state.
 pub struct Worker {
-    tok: Tokenizer,
+    tok: Tokenizer<'static>,
     dict: Dictionary,
 }
 

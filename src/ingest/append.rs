@@ -24,6 +24,21 @@ pub(super) fn export_base(
 ) -> Result<Base> {
     let s = Store::open(store_dir)?;
     let have = s.meta().settings;
+    if have.word_list != settings.word_list {
+        let say = |w: &Option<crate::records::WordListInfo>| match w {
+            Some(w) => format!("a word list of {} words (xxh3 {:016x})", w.words, w.xxh3),
+            None => "no word list".to_string(),
+        };
+        return Err(Error::state(
+            store_dir,
+            format!(
+                "the store was built with {}, this command gives {}: --append must use the same --word-list (the store's is {})",
+                say(&have.word_list),
+                say(&settings.word_list),
+                crate::layout::word_list(store_dir).display()
+            ),
+        ));
+    }
     if have.order != settings.order || have.lowercase != settings.lowercase {
         return Err(Error::state(
             store_dir,
@@ -105,6 +120,7 @@ pub(super) fn export_base(
             skipped_lines: t.skipped_lines,
             invalid_utf8_lines: t.invalid_utf8_lines,
             marker_tokens: t.marker_tokens,
+            mapped_tokens: t.mapped_tokens,
             bytes: t.input_bytes,
         },
     })

@@ -21,6 +21,7 @@ mod space;
 mod start;
 mod status;
 mod verify;
+pub mod wordlist;
 
 pub use manifest::{Manifest, Phase};
 pub use options::{IngestOptions, IngestSummary, Progress, Silent};
@@ -83,10 +84,15 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     fsutil::create_dir(&opts.store)?;
     let _lock = lock(&opts.store)?;
     let dirs = WorkDirs::of(&opts.store);
+    let list = match &opts.word_list {
+        Some(p) => Some(wordlist::load(p, opts.lowercase)?),
+        None => None,
+    };
     let settings = Settings {
         order: opts.order,
         lowercase: opts.lowercase,
         max_line_bytes: opts.max_line_bytes,
+        word_list: list.as_ref().map(|l| l.info),
     };
     fsutil::remove_dir(&layout::work_new(&opts.store))?;
     if opts.restart {
@@ -140,10 +146,14 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
             )
         }
     };
+    if let Some(l) = &list {
+        fsutil::write_atomic(&layout::word_list(&opts.store), l.text.as_bytes())?;
+    }
     let mut run = Run {
         dirs: &dirs,
         plan,
         threads,
+        word_list: list.as_ref().map(|l| &l.set),
         progress,
         runs_written: 0,
         temp_bytes: 0,

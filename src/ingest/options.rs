@@ -24,6 +24,8 @@ pub struct IngestOptions {
     pub threads: usize,
     /// Lowercase every token.
     pub lowercase: bool,
+    /// A fixed vocabulary: every other token counts as `<unk>`.
+    pub word_list: Option<PathBuf>,
     /// Skip lines longer than this (bytes, without the line end).
     pub max_line_bytes: usize,
     /// Number of partitions (default: chosen from the thread count).
@@ -46,6 +48,7 @@ impl IngestOptions {
             memory: 1 << 30,
             threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
             lowercase: false,
+            word_list: None,
             max_line_bytes: 1 << 20,
             partitions: None,
             restart: false,

@@ -22,6 +22,20 @@ pub(super) fn check_resume(
     opts: &IngestOptions,
 ) -> Result<()> {
     let hint = "run the same command as the interrupted ingest to resume it, or add --restart to discard it";
+    if m.settings.word_list != settings.word_list {
+        let say = |w: &Option<crate::records::WordListInfo>| match w {
+            Some(w) => format!("a word list of {} words (xxh3 {:016x})", w.words, w.xxh3),
+            None => "no word list".to_string(),
+        };
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "an unfinished ingest here was started with {}; this command gives {}: {hint}",
+                say(&m.settings.word_list),
+                say(&settings.word_list)
+            ),
+        ));
+    }
     if m.settings != *settings {
         return Err(Error::state(
             &opts.store,

@@ -73,6 +73,7 @@
 //! 64 bits, so it is within about 3e-7 relative of the estimator's.
 
 pub mod arpa;
+pub mod complete;
 pub mod format;
 pub mod freeze;
 pub mod query;

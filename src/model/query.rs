@@ -23,7 +23,7 @@ use crate::key::MAX_ORDER;
 use crate::query::{Next, Prob};
 use crate::words::WordId;
 
-use super::reader::{u32_at, Model};
+use super::reader::Model;
 
 /// The kept suffixes of a context: what a prediction needs of it, and what
 /// it leaves for the next one in running text.
@@ -34,7 +34,7 @@ pub struct State {
     len: usize,
     /// `nodes[j − 1]`: the entry of order j of the context's last j words,
     /// for j = 1..=m.
-    nodes: [u32; MAX_ORDER],
+    pub(super) nodes: [u32; MAX_ORDER],
     m: usize,
 }
 
@@ -245,7 +245,7 @@ impl Model {
     /// before reaching it: a word whose longest kept n-gram ends at level j
     /// gets q at the first of these levels that is at most j, times its
     /// factor. Without skips these are all levels M, …, 0.
-    fn walk(&self, st: &State) -> Vec<(usize, f64)> {
+    pub(super) fn walk(&self, st: &State) -> Vec<(usize, f64)> {
         let mut f = if st.len > st.m {
             self.meta.default_backoff.powi((st.len - st.m) as i32)
         } else {
@@ -295,79 +295,11 @@ impl Model {
     /// outside V as `<unk>`), exact. Along the levels a word backs off
     /// through ([`Model::walk`]), every word whose value comes from level j
     /// is multiplied by the same factor, so within a level the order of q
-    /// is the order of P. The candidates: every child of the walked
-    /// contexts of two words or more (short lists), the best `k` children
-    /// of the last word that no longer walked context has, and the first
-    /// `k` words of the unigram ranking that no walked context has as a
-    /// child.
+    /// is the order of P. The candidates: at each walked level, the best
+    /// `k` of the words whose value comes from it (see
+    /// [`super::complete`], which does the search).
     pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
-        let st = self.state(context);
-        let walk = self.walk(&st);
-        let mut longer: std::collections::HashSet<u32> = Default::default();
-        let mut scored: Vec<(f64, u32)> = Vec::new();
-        let mut n_scored = 0;
-        let best = |a: &(f64, u32), b: &(f64, u32)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
-        let mut one = None;
-        for &(j, f) in &walk {
-            if j >= 2 {
-                for e in self.children(j, st.nodes[j - 1]) {
-                    let x = self.word_of(j + 1, e);
-                    if longer.insert(x) {
-                        scored.push((self.q(j + 1, e as u32) * f, x));
-                        n_scored += 1;
-                    }
-                }
-            } else if j == 1 {
-                one = Some(st.nodes[0]);
-                let mut level: Vec<(f64, u32)> = Vec::new();
-                for e in self.children(1, st.nodes[0]) {
-                    let x = self.word_of(2, e);
-                    if !longer.contains(&x) {
-                        level.push((self.q(2, e as u32) * f, x));
-                    }
-                }
-                n_scored += level.len();
-                if level.len() > k && k > 0 {
-                    level.select_nth_unstable_by(k - 1, best);
-                }
-                level.truncate(k);
-                scored.extend(level);
-            } else {
-                let rk = &self.map[self.ranking.clone()];
-                let mut taken = 0;
-                for i in 0..self.meta.vocabulary as usize {
-                    if taken == k {
-                        break;
-                    }
-                    let x = u32_at(rk, i);
-                    if longer.contains(&x) || one.is_some_and(|e| self.child(1, e, x).is_some()) {
-                        continue;
-                    }
-                    scored.push((self.q(1, x) * f, x));
-                    n_scored += 1;
-                    taken += 1;
-                }
-            }
-        }
-        if scored.len() > k && k > 0 {
-            scored.select_nth_unstable_by(k - 1, best);
-        }
-        scored.truncate(k);
-        scored.sort_unstable_by(best);
-        let sum: f64 = scored.iter().map(|x| x.0).sum();
-        let ctx = &context[context.len().saturating_sub(self.n - 1)..];
-        Ok(Next {
-            context: ctx
-                .iter()
-                .map(|&id| self.id_at(self.ctx_index(id)))
-                .collect(),
-            items: scored
-                .into_iter()
-                .map(|(p, x)| (self.id_at(x), p))
-                .collect(),
-            rest: 1.0 - sum,
-            scored: n_scored,
-        })
+        Ok(self.top_next(context, k))
     }
 }
 
@@ -404,6 +336,9 @@ impl crate::query::Predictor for Model {
     }
     fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
         Model::distribution(self, context)
+    }
+    fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        Model::complete(self, context, prefix, k)
     }
 }
 

@@ -103,6 +103,8 @@ pub struct Model {
     pub(crate) orders: Vec<OrderSections>,
     pub(crate) bos: u32,
     pub(crate) unk: u32,
+    /// Search structures built on first use (`super::complete`).
+    pub(crate) completion: Box<super::complete::Completion>,
 }
 
 impl Model {
@@ -253,6 +255,7 @@ impl Model {
             orders,
             bos: 0,
             unk: 0,
+            completion: Default::default(),
         };
         let need = |m: &Model, id: WordId, what: &str| {
             m.index_of(id)

@@ -46,6 +46,7 @@ pub struct Estimator<'s> {
     pub(super) word_cache: RefCell<IdMap<bool>>,
     pub(super) unigrams: OnceCell<Unigrams>,
     pub(super) ranking: OnceCell<Vec<WordId>>,
+    pub(super) text_index: OnceCell<super::complete::TextIndex>,
     pub(super) children: RefCell<(KeyMap<ChildMap>, usize)>,
     pub(super) katz_ctx: RefCell<KeyMap<katz::KatzCtx>>,
 }
@@ -118,6 +119,7 @@ impl<'s> Estimator<'s> {
             word_cache: RefCell::new(IdMap::default()),
             unigrams: OnceCell::new(),
             ranking: OnceCell::new(),
+            text_index: OnceCell::new(),
             children: RefCell::new((KeyMap::default(), 0)),
             katz_ctx: RefCell::new(KeyMap::default()),
         })

@@ -35,9 +35,11 @@
 
 pub mod backoff;
 mod cache;
+pub mod complete;
 mod estimator;
 pub mod jelinek_mercer;
 pub mod katz;
+pub mod keystrokes;
 pub mod kneser_ney;
 mod method;
 pub mod next;

@@ -114,4 +114,7 @@ impl Predictor for Estimator<'_> {
     fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
         Estimator::distribution(self, context)
     }
+    fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        Estimator::complete(self, context, prefix, k)
+    }
 }

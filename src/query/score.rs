@@ -89,7 +89,7 @@ pub struct SentenceScore {
 /// [`Predictor::prob_batch`] (a store's estimator or a frozen model).
 pub struct Scorer<'a> {
     est: &'a dyn Predictor,
-    tok: Tokenizer,
+    tok: Tokenizer<'static>,
     dict: Dictionary,
     batch: Vec<(u64, Vec<WordId>)>,
     batch_predictions: usize,

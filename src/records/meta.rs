@@ -16,6 +16,26 @@ pub struct Settings {
     pub lowercase: bool,
     /// Lines longer than this many bytes were skipped.
     pub max_line_bytes: usize,
+    /// Tokens outside a fixed word list were counted as `<unk>`
+    /// (`ingest --word-list`); absent in stores built without one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub word_list: Option<WordListInfo>,
+}
+
+/// The fixed word list a store was counted with: its size and a checksum
+/// of its words (as counted: lowercased with `--lowercase`, sorted by
+/// bytes, each followed by a line end). The words are in the store's
+/// folder, `word-list.txt`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct WordListInfo {
+    /// Distinct words in the list.
+    pub words: u64,
+    /// xxh3-64 of the words as described above.
+    pub xxh3: u64,
+}
+
+fn is_zero(x: &u64) -> bool {
+    *x == 0
 }
 
 /// Corpus-wide totals.
@@ -37,6 +57,10 @@ pub struct Totals {
     pub invalid_utf8_lines: u64,
     /// Literal tokens spelled like a marker, counted as `<unk>`.
     pub marker_tokens: u64,
+    /// Tokens outside the word list, counted as `<unk>` (0, and absent
+    /// from the JSON, without a word list).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub mapped_tokens: u64,
     /// Input bytes read (decompressed).
     pub input_bytes: u64,
 }

@@ -17,5 +17,5 @@
 mod meta;
 mod partition;
 
-pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
+pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
 pub use partition::{store_meta, ContextStats, Joined, Merged, PartitionStats, ReadTotals};

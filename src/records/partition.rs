@@ -61,8 +61,15 @@ pub struct ReadTotals {
     pub invalid_utf8_lines: u64,
     /// Literal tokens spelled like a marker (counted as `<unk>`).
     pub marker_tokens: u64,
+    /// Tokens outside the word list (counted as `<unk>`).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub mapped_tokens: u64,
     /// Input bytes read (decompressed).
     pub bytes: u64,
+}
+
+fn is_zero(x: &u64) -> bool {
+    *x == 0
 }
 
 impl ReadTotals {
@@ -72,6 +79,7 @@ impl ReadTotals {
         self.skipped_lines += o.skipped_lines;
         self.invalid_utf8_lines += o.invalid_utf8_lines;
         self.marker_tokens += o.marker_tokens;
+        self.mapped_tokens += o.mapped_tokens;
         self.bytes += o.bytes;
     }
 }
@@ -147,6 +155,7 @@ pub fn store_meta<'a>(
         skipped_lines: read.skipped_lines,
         invalid_utf8_lines: read.invalid_utf8_lines,
         marker_tokens: read.marker_tokens,
+        mapped_tokens: read.mapped_tokens,
         input_bytes: read.bytes,
     };
     let orders = (0..n)

@@ -192,6 +192,7 @@ mod tests {
                 order: 3,
                 lowercase: false,
                 max_line_bytes: 1 << 20,
+                word_list: None,
             },
             partitions: 5,
             map_tasks: 3,

@@ -118,6 +118,8 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             inputs: &job.inputs,
             order: job.settings.order,
             lowercase: job.settings.lowercase,
+            // `stage plan` takes no word list (see README).
+            word_list: None,
             max_line_bytes: job.settings.max_line_bytes,
             partitions: job.partitions,
             threads,

@@ -14,7 +14,9 @@ pub mod build;
 pub mod keys;
 pub mod ranks;
 
-pub use crate::records::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, STORE_VERSION};
+pub use crate::records::{
+    GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION,
+};
 pub use keys::{ContextStats, NgramRecord};
 pub use ranks::Ranks;
 

@@ -4,8 +4,14 @@
 //! interleaved; the model's open time; printed as JSON.
 //!
 //! ```sh
-//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3]
+//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next]
 //! ```
+//!
+//! Completion (`complete`, issue 16) is timed too, from the store and the
+//! model: after each `next` context, the prefixes of 1 and 2 characters of
+//! the word that follows it in the held-out text (and the empty prefix);
+//! the first pass builds the indexes (its time is reported apart, as
+//! `first_ms`), the second is timed. `--only next` skips the `prob` passes.
 //!
 //! The model must have been frozen from the store with the same method
 //! (`quern freeze`). Queries are every prediction of the held-out
@@ -47,6 +53,7 @@ fn main() {
     let (mut store, mut model, mut text) = (None, None, None);
     let (mut method, mut cache, mut contexts, mut passes) =
         ("mkn".to_string(), 256usize << 20, 1000usize, 3usize);
+    let mut only_next = false;
     let mut it = std::env::args().skip(1);
     while let Some(a) = it.next() {
         let v = it.next().unwrap_or_else(|| panic!("{a} needs a value"));
@@ -58,6 +65,7 @@ fn main() {
             "--cache" => cache = quern::memory::parse_size(&v).expect("size") as usize,
             "--contexts" => contexts = v.parse().expect("number"),
             "--passes" => passes = v.parse::<usize>().expect("number").max(2),
+            "--only" if v == "next" => only_next = true,
             _ => panic!("unknown flag {a}"),
         }
     }
@@ -83,7 +91,7 @@ fn main() {
     let mut store_cpu = Vec::new();
     let mut model_cpu = Vec::new();
     let mut check = (0.0f64, 0.0f64);
-    for _ in 0..passes {
+    for _ in 0..if only_next { 0 } else { passes } {
         let (t, c0) = (Instant::now(), thread_cpu());
         for c in queries.chunks(4096) {
             let r = est.prob_batch(c).expect("prob");
@@ -107,7 +115,12 @@ fn main() {
         model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
         model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
     }
-    let warm = |r: &[f64]| r[1..].iter().sum::<f64>() / (r.len() - 1) as f64;
+    let warm = |r: &[f64]| {
+        if r.len() < 2 {
+            return f64::NAN;
+        }
+        r[1..].iter().sum::<f64>() / (r.len() - 1) as f64
+    };
     let half = (contexts / 2).max(1);
     let ctxs: Vec<&[WordId]> = s
         .iter()
@@ -117,6 +130,57 @@ fn main() {
             [&x[..1], &x[(i + 1).saturating_sub(n)..=i]]
         })
         .collect();
+    // The word after each context (as text), for the completion prefixes.
+    let nexts: Vec<String> = s
+        .iter()
+        .step_by((s.len() / half).max(1))
+        .flat_map(|x| {
+            let i = x.len() / 2;
+            [x[1], x[(i + 1).min(x.len() - 1)]]
+        })
+        .map(|w| model.word(w).unwrap_or_default())
+        .collect();
+    let time_complete = |f: &dyn Fn(&[WordId], &str), chars: usize| {
+        let mut times = Vec::new();
+        let mut first = Vec::new();
+        for pass in 0..2 {
+            times.clear();
+            for (h, w) in ctxs.iter().zip(&nexts) {
+                let p: String = w.chars().take(chars).collect();
+                if p.chars().count() < chars {
+                    continue;
+                }
+                let t = Instant::now();
+                f(h, &p);
+                times.push(t.elapsed().as_secs_f64() * 1e3);
+            }
+            if pass == 0 {
+                first = times.clone();
+            }
+        }
+        times.sort_by(f64::total_cmp);
+        let q = |f: f64| times[((times.len() - 1) as f64 * f).round() as usize];
+        serde_json::json!({"queries": times.len(), "median_ms": q(0.5), "p99_ms": q(0.99), "max_ms": times[times.len() - 1], "first_ms": first.iter().sum::<f64>()})
+    };
+    let mut complete = serde_json::Map::new();
+    for chars in [0, 1, 2] {
+        let m = time_complete(
+            &|h, p| {
+                std::hint::black_box(model.complete(h, p, 10).expect("complete"));
+            },
+            chars,
+        );
+        let st = time_complete(
+            &|h, p| {
+                std::hint::black_box(est.complete(h, p, 10).expect("complete"));
+            },
+            chars,
+        );
+        complete.insert(
+            format!("prefix_{chars}_chars"),
+            serde_json::json!({"model": m, "store": st}),
+        );
+    }
     let time_next = |f: &dyn Fn(&[WordId])| {
         let mut times = Vec::new();
         for _ in 0..2 {
@@ -138,6 +202,7 @@ fn main() {
         std::hint::black_box(model.next(h, 10).expect("next"));
     });
     let ngrams: u64 = model.meta().ngrams.iter().sum();
+    let first = |r: &[f64]| r.first().copied().unwrap_or(f64::NAN);
     let out = serde_json::json!({
         "method": m.name(),
         "order": n,
@@ -147,18 +212,19 @@ fn main() {
         "bytes_per_ngram": model.file_bytes() as f64 / ngrams as f64,
         "model_open_ms": open_ms,
         "prob_per_second": {
-            "store": {"first": store_rates[0], "warm": warm(&store_rates)},
-            "model": {"first": model_rates[0], "warm": warm(&model_rates)},
+            "store": {"first": first(&store_rates), "warm": warm(&store_rates)},
+            "model": {"first": first(&model_rates), "warm": warm(&model_rates)},
             "model_over_store_warm": warm(&model_rates) / warm(&store_rates),
         },
         "prob_per_cpu_second": {
-            "store": {"first": store_cpu[0], "warm": warm(&store_cpu)},
-            "model": {"first": model_cpu[0], "warm": warm(&model_cpu)},
+            "store": {"first": first(&store_cpu), "warm": warm(&store_cpu)},
+            "model": {"first": first(&model_cpu), "warm": warm(&model_cpu)},
             "model_over_store_warm": warm(&model_cpu) / warm(&store_cpu),
         },
         "log10_sum_per_pass": {"store": check.0 / passes as f64, "model": check.1 / passes as f64},
         "next_contexts": ctxs.len(),
         "next_top10_warm": {"store": next_store, "model": next_model},
+        "complete_top10_warm": complete,
     });
     println!("{out}");
 }

@@ -63,6 +63,18 @@ mod query_normalisation;
 // queries; score JSON with infinite perplexity.
 mod query_next;
 
+// `next --prefix` (completion) equals a brute-force top K over V, for
+// stores and frozen models; batch `next` equals single queries.
+mod complete;
+
+// `quern keystrokes`: a tiny case by hand, and an independent Python
+// simulation over batch `next --prefix` answers.
+mod keystrokes;
+
+// `ingest --word-list`: counts against Python, kept by the store, the same
+// list required by --append and a resume.
+mod word_list;
+
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
 // check), discount formulas, and a textbook add-one example (from memory).
 mod estimators;

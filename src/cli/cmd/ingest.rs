@@ -21,6 +21,7 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
         o.threads = t;
     }
     o.lowercase = a.lowercase;
+    o.word_list = a.word_list.clone();
     o.max_line_bytes = a.max_line_bytes;
     o.partitions = a.partitions;
     o.restart = a.restart;
@@ -58,6 +59,13 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
             thousands(t.skipped_lines),
             thousands(t.invalid_utf8_lines),
             thousands(t.marker_tokens)
+        )?;
+    }
+    if a.word_list.is_some() {
+        writeln!(
+            out,
+            "  tokens outside the word list, counted as <unk>: {}",
+            thousands(t.mapped_tokens)
         )?;
     }
     for r in &s.repaired {

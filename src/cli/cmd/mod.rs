@@ -4,6 +4,7 @@ pub mod docs;
 pub mod dump;
 pub mod freeze;
 pub mod ingest;
+pub mod keystrokes;
 pub mod next;
 pub mod ngrams;
 pub mod prob;

@@ -1,8 +1,11 @@
-//! `quern next`: the most probable next words after a context.
+//! `quern next`: the most probable next words after a context, optionally
+//! only those that begin with a prefix; with no context words, one query a
+//! line from standard input.
 
-use std::io::Write;
+use std::io::{BufRead, BufWriter, Write};
 
-use quern::query::query_ids;
+use anyhow::Context;
+use quern::query::{query_ids, Next, Predictor};
 
 use super::prob::{jnum, log, num, open_source, predictor, words, ProbJson};
 use crate::cli::args::NextArgs;
@@ -21,7 +24,10 @@ struct Item<'a> {
 /// The answer as JSON, in the order written.
 #[derive(serde::Serialize)]
 struct NextJson<'a> {
+    #[serde(skip_serializing_if = "Option::is_none")]
+    line: Option<usize>,
     context: &'a str,
+    prefix: &'a str,
     method: &'static str,
     top: Vec<Item<'a>>,
     rest: serde_json::Value,
@@ -29,56 +35,81 @@ struct NextJson<'a> {
     seconds: f64,
 }
 
+/// The words of an answer.
+fn names(est: &dyn Predictor, next: &Next) -> anyhow::Result<Vec<String>> {
+    next.items.iter().map(|(w, _)| words(est, &[*w])).collect()
+}
+
+/// Writes one answer as a JSON line.
+#[allow(clippy::too_many_arguments)]
+fn write_json(
+    out: &mut impl Write,
+    est: &dyn Predictor,
+    line: Option<usize>,
+    context: &str,
+    prefix: &str,
+    next: &Next,
+    secs: f64,
+) -> anyhow::Result<()> {
+    let names = names(est, next)?;
+    let top = next
+        .items
+        .iter()
+        .zip(&names)
+        .map(|((_, p), w)| {
+            let j = ProbJson::new(w, est.method(), *p, None, None);
+            Item {
+                word: w,
+                probability: j.probability,
+                score: j.score,
+                log10: j.log10,
+            }
+        })
+        .collect();
+    let v = NextJson {
+        line,
+        context,
+        prefix,
+        method: est.method().name(),
+        top,
+        rest: if est.method().is_probability() {
+            jnum(next.rest)
+        } else {
+            serde_json::Value::Null
+        },
+        words_scored: next.scored,
+        seconds: secs,
+    };
+    serde_json::to_writer(&mut *out, &v)?;
+    writeln!(out)?;
+    Ok(())
+}
+
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
     let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
     let est = pred.get();
+    if a.words.is_empty() {
+        return batch(est, &a);
+    }
     let ids = query_ids(&a.words.join(" "), est.lowercase());
     let t = std::time::Instant::now();
-    let next = est.next(&ids, a.top)?;
+    let next = est.complete(&ids, &a.prefix, a.top)?;
     let secs = t.elapsed().as_secs_f64();
     let prob = est.method().is_probability();
     let mut out = std::io::stdout().lock();
     let context = words(est, &next.context)?;
     if a.json {
-        let names: Vec<String> = next
-            .items
-            .iter()
-            .map(|(w, _)| words(est, &[*w]))
-            .collect::<anyhow::Result<_>>()?;
-        let top = next
-            .items
-            .iter()
-            .zip(&names)
-            .map(|((_, p), w)| {
-                let j = ProbJson::new(w, est.method(), *p, None, None);
-                Item {
-                    word: w,
-                    probability: j.probability,
-                    score: j.score,
-                    log10: j.log10,
-                }
-            })
-            .collect();
-        let v = NextJson {
-            context: &context,
-            method: est.method().name(),
-            top,
-            rest: if prob {
-                jnum(next.rest)
-            } else {
-                serde_json::Value::Null
-            },
-            words_scored: next.scored,
-            seconds: secs,
-        };
-        return super::print_json(&mut out, &v);
+        return write_json(&mut out, est, None, &context, &a.prefix, &next, secs);
     }
-    let heading = if context.is_empty() {
+    let mut heading = if context.is_empty() {
         "with no context: the unigram level".to_string()
     } else {
         format!("after \"{context}\"")
     };
+    if !a.prefix.is_empty() {
+        heading.push_str(&format!(", words that begin with \"{}\"", a.prefix));
+    }
     writeln!(
         out,
         "{heading} ({}, {} of {} words scored)",
@@ -115,5 +146,67 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
             "(stupid back-off scores are not probabilities; no rest is shown)"
         )?;
     }
+    Ok(())
+}
+
+/// One query a line from standard input: the context words, then
+/// optionally a tab and the prefix (`--prefix` for lines without a tab).
+/// TSV out: a header line, then one row per word shown (`line` is the
+/// query's line number, from 1; a query with no word to show has no row);
+/// with `--json`, one object a line, one per query, in order.
+fn batch(est: &dyn Predictor, a: &NextArgs) -> anyhow::Result<()> {
+    let lc = est.lowercase();
+    let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    let what = if est.method().is_probability() {
+        "probability"
+    } else {
+        "score"
+    };
+    if !a.json {
+        writeln!(out, "line\tcontext\tprefix\trank\tword\t{what}\tlog10")?;
+    }
+    let stdin = std::io::stdin();
+    let mut reader = stdin.lock();
+    let mut buf = Vec::new();
+    let mut number = 0;
+    loop {
+        buf.clear();
+        let n = reader
+            .read_until(b'\n', &mut buf)
+            .context("reading standard input")?;
+        if n == 0 {
+            break;
+        }
+        number += 1;
+        let mut l = &buf[..];
+        l = l.strip_suffix(b"\n").unwrap_or(l);
+        l = l.strip_suffix(b"\r").unwrap_or(l);
+        let line = String::from_utf8_lossy(l);
+        let (ctx_text, prefix) = match line.split_once('\t') {
+            Some((c, p)) => (c, p),
+            None => (&line[..], a.prefix.as_str()),
+        };
+        let ids = query_ids(ctx_text, lc);
+        let t = std::time::Instant::now();
+        let next = est
+            .complete(&ids, prefix, a.top)
+            .with_context(|| format!("standard input, line {number}"))?;
+        let secs = t.elapsed().as_secs_f64();
+        let context = words(est, &next.context)?;
+        if a.json {
+            write_json(&mut out, est, Some(number), &context, prefix, &next, secs)?;
+            continue;
+        }
+        for (i, ((_, p), w)) in next.items.iter().zip(names(est, &next)?).enumerate() {
+            writeln!(
+                out,
+                "{number}\t{context}\t{prefix}\t{}\t{w}\t{}\t{}",
+                i + 1,
+                num(*p),
+                log(p.log10())
+            )?;
+        }
+    }
+    out.flush()?;
     Ok(())
 }

@@ -18,6 +18,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                 settings: Settings {
                     order: a.order,
                     lowercase: a.lowercase,
+                    word_list: None,
                     max_line_bytes: a.max_line_bytes,
                 },
                 partitions: a.partitions,

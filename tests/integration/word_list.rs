@@ -1,0 +1,243 @@
+//! `ingest --word-list FILE`: every token outside the list is counted as
+//! `<unk>`. Checked against Python's `collections.Counter` over
+//! `str.split()` tokens of fixtures/gutenberg (the same split as ingest on
+//! these files: no whitespace there that the two treat differently); the
+//! store keeps the list, `--append` and a resume insist on the same list,
+//! and an interrupted ingest resumed with it equals an uninterrupted one.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use crate::common::{
+    dump_map, gutenberg_dir, ingest_args, python3, run, run_env, run_ok, SMALL_BUDGET,
+};
+
+fn scratch(name: &str) -> PathBuf {
+    let d = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
+        .join("word-list")
+        .join(name);
+    if d.exists() {
+        std::fs::remove_dir_all(&d).unwrap();
+    }
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+/// Python's counts: the unigram counts of the list's words, how many
+/// tokens fall outside the list, and the token total.
+fn python_counts(inputs: &[PathBuf], list: &Path, lowercase: bool) -> serde_json::Value {
+    let prog = r#"
+import collections, json, sys
+lower = sys.argv[1] == "1"
+words = {w.strip() for w in open(sys.argv[2], encoding="utf-8") if w.strip()}
+if lower:
+    words = {w.lower() for w in words}
+c = collections.Counter()
+outside = total = 0
+for p in sys.argv[3:]:
+    for line in open(p, encoding="utf-8"):
+        for t in line.split():
+            t = t.lower() if lower else t
+            total += 1
+            if t in words:
+                c[t] += 1
+            else:
+                outside += 1
+print(json.dumps({"in": c, "outside": outside, "tokens": total}))
+"#;
+    let out = Command::new(python3())
+        .arg("-c")
+        .arg(prog)
+        .arg(if lowercase { "1" } else { "0" })
+        .arg(list)
+        .args(inputs)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// A list of the 300 most frequent tokens of two novels, plus words that
+/// never occur, in mixed case (with --lowercase, "The" and "the" are one).
+fn write_list(d: &Path) -> PathBuf {
+    let text = std::fs::read_to_string(gutenberg_dir().join("emma.txt")).unwrap();
+    let mut c: BTreeMap<&str, u64> = BTreeMap::new();
+    for t in text.split_whitespace() {
+        *c.entry(t).or_insert(0) += 1;
+    }
+    let mut v: Vec<(&str, u64)> = c.into_iter().collect();
+    v.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(b.0)));
+    let mut list: Vec<String> = v[..300].iter().map(|x| x.0.to_string()).collect();
+    list.extend([
+        "Zyzzogeton".to_string(),
+        "  spaced  ".to_string(),
+        String::new(),
+    ]);
+    let p = d.join("list.txt");
+    std::fs::write(&p, list.join("\n")).unwrap();
+    p
+}
+
+fn summary(store: &Path, list: &Path, extra: &[&str], inputs: &[PathBuf]) -> serde_json::Value {
+    let mut a = ingest_args(store, extra, inputs);
+    a.extend([
+        "--json".to_string(),
+        "--word-list".to_string(),
+        list.display().to_string(),
+    ]);
+    serde_json::from_str(&run_ok(&a).stdout).unwrap()
+}
+
+fn check_counts(store: &Path, want: &serde_json::Value, mapped: u64) {
+    assert_eq!(
+        mapped,
+        want["outside"].as_u64().unwrap(),
+        "tokens mapped to <unk>"
+    );
+    let dump = dump_map(store);
+    let unigrams: BTreeMap<&str, u64> = dump
+        .iter()
+        .filter(|(k, _)| !k.contains(' '))
+        .map(|(k, v)| (k.as_str(), v.0))
+        .collect();
+    let inl = want["in"].as_object().unwrap();
+    for (w, c) in &unigrams {
+        match *w {
+            "<s>" | "</s>" => {}
+            "<unk>" => assert_eq!(*c, want["outside"].as_u64().unwrap(), "<unk>"),
+            _ => assert_eq!(Some(*c), inl.get(*w).and_then(|x| x.as_u64()), "{w}"),
+        }
+    }
+    // Every list word that occurs is a unigram, and nothing else is.
+    assert_eq!(unigrams.len(), inl.len() + 3);
+}
+
+#[test]
+fn counts_outside_the_list_as_unk() {
+    let d = scratch("counts");
+    let list = write_list(&d);
+    let inputs = vec![
+        gutenberg_dir().join("persuasion.txt"),
+        gutenberg_dir().join("northangerabbey.txt"),
+    ];
+    for lowercase in [false, true] {
+        let store = d.join(format!("store-{lowercase}"));
+        let mut extra = vec!["--order", "3", "--quiet"];
+        if lowercase {
+            extra.push("--lowercase");
+        }
+        let s = summary(&store, &list, &extra, &inputs);
+        let want = python_counts(&inputs, &list, lowercase);
+        assert_eq!(
+            s["totals"]["tokens"].as_u64().unwrap(),
+            want["tokens"].as_u64().unwrap() + s["totals"]["sentences"].as_u64().unwrap()
+        );
+        check_counts(
+            &store,
+            &want,
+            s["totals"]["mapped_tokens"].as_u64().unwrap(),
+        );
+        // The store keeps the list (canonical: as counted, sorted, one a line).
+        let kept = std::fs::read_to_string(store.join("word-list.txt")).unwrap();
+        let mut canon: Vec<String> = std::fs::read_to_string(&list)
+            .unwrap()
+            .lines()
+            .map(|w| w.trim())
+            .filter(|w| !w.is_empty())
+            .map(|w| {
+                if lowercase {
+                    w.to_lowercase()
+                } else {
+                    w.to_string()
+                }
+            })
+            .collect();
+        canon.sort();
+        canon.dedup();
+        assert_eq!(kept.lines().collect::<Vec<_>>(), canon);
+        // The text summary says how many tokens were mapped.
+        let text = run_ok(&{
+            let mut a = ingest_args(&d.join(format!("text-{lowercase}")), &extra, &inputs[..1]);
+            a.extend(["--word-list".to_string(), list.display().to_string()]);
+            a.retain(|x| x != "--quiet");
+            a
+        })
+        .stdout;
+        let one = python_counts(&inputs[..1], &list, lowercase);
+        let n = one["outside"].as_u64().unwrap();
+        let shown = text
+            .lines()
+            .find(|l| l.contains("tokens outside the word list"))
+            .unwrap_or_else(|| panic!("no word-list line in {text}"));
+        assert!(shown.ends_with(&crate_thousands(n)), "{shown} against {n}");
+    }
+}
+
+fn crate_thousands(n: u64) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, ch) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(ch);
+    }
+    out
+}
+
+#[test]
+fn append_and_resume_insist_on_the_same_list() {
+    let d = scratch("append");
+    let list = write_list(&d);
+    let other = d.join("other.txt");
+    std::fs::write(&other, "the\nof\n").unwrap();
+    let a = vec![gutenberg_dir().join("persuasion.txt")];
+    let b = vec![gutenberg_dir().join("northangerabbey.txt")];
+    let both: Vec<PathBuf> = a.iter().chain(&b).cloned().collect();
+    let once = d.join("once");
+    summary(&once, &list, &["--order", "3", "--quiet"], &both);
+    let store = d.join("appended");
+    summary(&store, &list, &["--order", "3", "--quiet"], &a);
+    // Without the list, or with another one: refused, the store untouched.
+    let mut no_list = ingest_args(&store, &["--order", "3", "--quiet", "--append"], &b);
+    let r = run(&no_list);
+    r.assert_failure();
+    assert!(
+        r.stderr.contains("--append must use the same --word-list"),
+        "{}",
+        r.stderr
+    );
+    no_list.extend(["--word-list".to_string(), other.display().to_string()]);
+    run(&no_list).assert_failure();
+    // With it: the same store as counting both at once.
+    let s = summary(&store, &list, &["--order", "3", "--quiet", "--append"], &b);
+    assert_eq!(dump_map(&store), dump_map(&once));
+    let want = python_counts(&both, &list, false);
+    check_counts(
+        &store,
+        &want,
+        s["totals"]["mapped_tokens"].as_u64().unwrap(),
+    );
+
+    // Killed after its first spill, an ingest resumes only with its list.
+    let killed = d.join("killed");
+    let mut args = ingest_args(&killed, SMALL_BUDGET, &both);
+    args.extend(["--word-list".to_string(), list.display().to_string()]);
+    let r = run_env(&args, &[("QUERN_KILL_AT", "committed:1")]);
+    assert!(!r.status.success(), "the kill point was not reached");
+    let plain = ingest_args(&killed, SMALL_BUDGET, &both);
+    let r = run(&plain);
+    r.assert_failure();
+    assert!(r.stderr.contains("word list"), "{}", r.stderr);
+    run_ok(&args);
+    let full = d.join("full");
+    let mut fargs = ingest_args(&full, SMALL_BUDGET, &both);
+    fargs.extend(["--word-list".to_string(), list.display().to_string()]);
+    run_ok(&fargs);
+    assert_eq!(dump_map(&killed), dump_map(&full));
+}
