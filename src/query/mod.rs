@@ -37,6 +37,7 @@ pub mod backoff;
 mod cache;
 mod estimator;
 pub mod jelinek_mercer;
+pub mod json;
 pub mod katz;
 pub mod kneser_ney;
 mod method;
@@ -52,6 +53,7 @@ pub mod witten_bell;
 
 pub use crate::tokenize::query_ids;
 pub use estimator::Estimator;
+pub use json::{jnum, ProbJson, WordJson};
 pub use method::Method;
 pub use next::Next;
 pub use ngrams::{prefix_page, Page};
