@@ -355,6 +355,7 @@ pub fn info(src: Source<'_>, path: &str) -> Value {
                 "methods": [meta.method.name()],
                 "vocabulary_size": meta.vocabulary,
                 "ngrams": meta.ngrams,
+                "store_ngrams": meta.store_ngrams,
                 "lowercase": meta.lowercase,
                 "probabilities": meta.probabilities,
                 "counts": false,
