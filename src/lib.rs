@@ -36,6 +36,8 @@
 //!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
 //!   manifest, so that an interrupted ingest resumes where it stopped.
+//! * [`serve`] answers queries over HTTP (JSON) from one shared store or
+//!   model, and serves a page to explore it.
 //! * [`stage`] runs the same stages as separate, idempotent tasks over a
 //!   shared directory, for a cluster scheduler (`scripts/spark_ingest.py`).
 //!
@@ -82,6 +84,8 @@ pub mod pool;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;
+#[cfg(feature = "serve")]
+pub mod serve;
 pub mod shard;
 #[cfg(feature = "store")]
 pub mod stage;

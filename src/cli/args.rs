@@ -44,6 +44,25 @@ pub enum Command {
     /// cluster; see scripts/spark_ingest.py).
     #[command(subcommand)]
     Stage(StageCommand),
+    /// Answer queries over HTTP with JSON (and serve a page to explore the
+    /// model) until SIGTERM or Ctrl-C.
+    Serve(ServeArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct ServeArgs {
+    #[command(flatten)]
+    pub store: QuerySourceArgs,
+    /// Address and port to listen on (port 0: any free port; the address
+    /// taken is printed).
+    #[arg(long, value_name = "ADDR:PORT", default_value = "127.0.0.1:7207")]
+    pub listen: std::net::SocketAddr,
+    /// Query threads. Default: one per core.
+    #[arg(long, value_name = "N")]
+    pub threads: Option<usize>,
+    /// Largest request body (larger: 413). SIZE as for --memory.
+    #[arg(long, value_name = "SIZE", default_value = "1MiB")]
+    pub max_request_bytes: String,
 }
 
 /// The stages of a staged ingest. Each prints one JSON line describing

@@ -41,5 +41,6 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),
         args::Command::Freeze(a) => cmd::freeze::run(a),
         args::Command::Stage(c) => cmd::stage::run(c),
+        args::Command::Serve(a) => cmd::serve::run(a),
     }
 }

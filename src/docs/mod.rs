@@ -59,6 +59,7 @@ use crate::query::{Predictor, Prob};
 use crate::words::WordId;
 
 pub use dist::Distribution;
+pub use read::{RawLine, Worker};
 pub use run::score_inputs;
 
 /// What scores a sentence: any [`Predictor`] (the store's estimator, a

@@ -38,6 +38,7 @@ mod cache;
 pub mod complete;
 mod estimator;
 pub mod jelinek_mercer;
+pub mod json;
 pub mod katz;
 pub mod keystrokes;
 pub mod kneser_ney;
@@ -54,6 +55,7 @@ pub mod witten_bell;
 
 pub use crate::tokenize::query_ids;
 pub use estimator::Estimator;
+pub use json::{jnum, ProbJson, WordJson};
 pub use method::Method;
 pub use next::Next;
 pub use ngrams::{prefix_page, Page};

@@ -108,3 +108,12 @@ mod spark;
 // independent Python reader (sums to 1, closure, same probabilities);
 // count pruning stays normalised; add-k/mle refused; damaged files refused.
 mod freeze;
+
+// `quern serve`: every endpoint equals the CLI's answer on the Gutenberg
+// fixtures (store and frozen model), bad requests get 4xx JSON errors,
+// SIGTERM stops it; a bounded load test on loopback; the page in headless
+// Chromium shows the CLI's words.
+mod http_client;
+mod serve;
+mod serve_load;
+mod serve_page;

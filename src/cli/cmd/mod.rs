@@ -9,6 +9,7 @@ pub mod next;
 pub mod ngrams;
 pub mod prob;
 pub mod score;
+pub mod serve;
 pub mod stage;
 pub mod stats;
 pub mod status;

@@ -10,7 +10,6 @@ use quern::model::Model;
 use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
 use quern::store::Store;
 use quern::words::WordId;
-use serde_json::json;
 
 use crate::cli::args::{ParamArgs, ProbArgs, QuerySourceArgs, QueryStoreArgs};
 
@@ -196,60 +195,8 @@ pub fn log(x: f64) -> String {
     }
 }
 
-/// A finite number as JSON, anything else as `null`.
-pub fn jnum(x: f64) -> serde_json::Value {
-    if x.is_finite() {
-        json!(x)
-    } else {
-        serde_json::Value::Null
-    }
-}
-
-/// A probability (or, for `stupid`, a score) as JSON, in the order written.
-#[derive(serde::Serialize)]
-pub struct ProbJson<'a> {
-    /// The words of the query.
-    pub words: &'a str,
-    /// The probability.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub probability: Option<serde_json::Value>,
-    /// The score of `stupid`.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub score: Option<serde_json::Value>,
-    /// log10 of it (`null` for −∞).
-    pub log10: serde_json::Value,
-    /// The order of the longest stored n-gram ending in the word.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub order: Option<usize>,
-    /// The word is outside V.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub oov: Option<bool>,
-}
-
-impl<'a> ProbJson<'a> {
-    /// `p` under `method`, with the order and OOV flag if given.
-    pub fn new(
-        words: &'a str,
-        method: Method,
-        p: f64,
-        order: Option<usize>,
-        oov: Option<bool>,
-    ) -> Self {
-        let (probability, score) = if method.is_probability() {
-            (Some(jnum(p)), None)
-        } else {
-            (None, Some(jnum(p)))
-        };
-        ProbJson {
-            words,
-            probability,
-            score,
-            log10: jnum(p.log10()),
-            order,
-            oov,
-        }
-    }
-}
+/// The JSON shapes shared with the service (defined in the library).
+pub use quern::query::{jnum, ProbJson};
 
 fn write_one(
     out: &mut impl Write,

@@ -1,0 +1,40 @@
+//! `quern serve`: the HTTP query service over a store or a frozen model
+//! (the service itself is `quern::serve`).
+
+use std::io::Write;
+
+use quern::memory::parse_size;
+use quern::serve::{Options, Source};
+
+use super::prob::{open_source, Source as Opened};
+use crate::cli::args::ServeArgs;
+
+pub fn run(a: ServeArgs) -> anyhow::Result<()> {
+    let opened = open_source(&a.store)?;
+    let (src, path) = match &opened {
+        Opened::Store(s) => (Source::Store(s), s.dir().display().to_string()),
+        Opened::Model(m) => (Source::Model(m), m.path().display().to_string()),
+    };
+    let mut opts = Options::new(a.listen);
+    if let Some(t) = a.threads {
+        if t == 0 {
+            anyhow::bail!("--threads must be at least 1");
+        }
+        opts.threads = t;
+    }
+    opts.max_request_bytes = parse_size(&a.max_request_bytes)? as usize;
+    let what = match src {
+        Source::Store(_) => "store",
+        Source::Model(_) => "model",
+    };
+    let served = quern::serve::run(src, &path, &opts, |addr| {
+        // Scripts and tests wait for this line (and read the port from it).
+        eprintln!("quern: serving the {what} {path} on http://{addr}/ ({} query threads); SIGTERM or Ctrl-C stops", opts.threads);
+        let _ = std::io::stderr().flush();
+    })?;
+    eprintln!(
+        "quern: stopped after {} requests",
+        super::thousands(served.requests)
+    );
+    Ok(())
+}

@@ -1,0 +1,365 @@
+//! The answers of the service, as JSON, computed on a query thread from a
+//! parsed request. No HTTP here: [`super`] parses the body, hands the
+//! request to a query thread and writes what comes back.
+//!
+//! The shapes are the command line's: `/prob` answers what `quern prob
+//! --json` writes ([`ProbJson`]), `/next` lists its words as `quern next
+//! --json` does ([`WordJson`]), and `/score` gives each text the record of
+//! a scored document ([`crate::docs::DocResult::record`]).
+
+use serde::{Deserialize, Serialize};
+use serde_json::{json, Value};
+
+use super::pool::{Local, Source};
+use crate::docs::{Format, Options, RawLine, Record, Worker};
+use crate::error::Error;
+use crate::query::{jnum, prefix_page, query_ids, Method, Predictor, ProbJson, WordJson};
+use crate::words::WordId;
+
+/// Most words `/next` lists.
+pub const MAX_TOP: usize = 1000;
+/// Most n-grams `/ngrams` lists.
+pub const MAX_NGRAMS: usize = 1000;
+
+/// A request refused, or a query that failed: the HTTP status and the
+/// message of `{"error": ...}`.
+#[derive(Debug)]
+pub struct Fail {
+    /// HTTP status (4xx for the client's mistakes, 5xx for ours).
+    pub status: u16,
+    /// What went wrong.
+    pub message: String,
+}
+
+impl Fail {
+    /// A bad request (400).
+    pub fn bad(message: impl Into<String>) -> Fail {
+        Fail {
+            status: 400,
+            message: message.into(),
+        }
+    }
+}
+
+impl From<Error> for Fail {
+    /// A configuration error (an unknown method, a parameter the data do
+    /// not allow, an order out of range) is the request's fault (400);
+    /// anything else, reading the store or the model, is the server's (500).
+    fn from(e: Error) -> Fail {
+        Fail {
+            status: if matches!(e, Error::Config(_)) {
+                400
+            } else {
+                500
+            },
+            message: e.to_string(),
+        }
+    }
+}
+
+/// What a query thread computes: JSON text (its keys in the order the
+/// shapes declare them), or why not.
+pub type Answer = std::result::Result<String, Fail>;
+
+fn to_text(v: &impl Serialize) -> Answer {
+    serde_json::to_string(v).map_err(|e| Fail {
+        status: 500,
+        message: e.to_string(),
+    })
+}
+
+/// The answer of `/next`, in the order written.
+#[derive(Serialize)]
+struct NextAnswer<'a> {
+    context: String,
+    prefix: &'a str,
+    method: &'static str,
+    words: Vec<WordJson<'a>>,
+    rest: Value,
+    words_scored: usize,
+}
+
+/// The answer of `/score`.
+#[derive(Serialize)]
+struct ScoreAnswer<'a> {
+    method: &'static str,
+    results: Vec<Record<'a>>,
+}
+
+/// One n-gram of `/ngrams`.
+#[derive(Serialize)]
+struct NgramAnswer {
+    words: String,
+    count: u64,
+    continuation: Option<u64>,
+}
+
+/// The answer of `/ngrams`.
+#[derive(Serialize)]
+struct NgramsAnswer {
+    order: usize,
+    ngrams: Vec<NgramAnswer>,
+    more: bool,
+}
+
+/// `POST /prob`.
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ProbRequest {
+    /// The words before (may be empty).
+    #[serde(default)]
+    pub context: String,
+    /// The word.
+    pub word: String,
+    /// The method (a store only; default `mkn`).
+    #[serde(default)]
+    pub method: Option<String>,
+}
+
+/// `POST /next`.
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NextRequest {
+    /// The words before (may be empty).
+    #[serde(default)]
+    pub context: String,
+    /// The start of the word being typed (may be empty).
+    #[serde(default)]
+    pub prefix: String,
+    /// How many words (default 10, at most [`MAX_TOP`]).
+    #[serde(default = "ten")]
+    pub top: usize,
+    /// The method (a store only; default `mkn`).
+    #[serde(default)]
+    pub method: Option<String>,
+}
+
+fn ten() -> usize {
+    10
+}
+
+/// `POST /score`.
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ScoreRequest {
+    /// The texts: each a document, its lines the sentences.
+    pub texts: Vec<String>,
+    /// The method (a store only; default `mkn`).
+    #[serde(default)]
+    pub method: Option<String>,
+}
+
+/// `POST /ngrams` (a store only).
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NgramsRequest {
+    /// The words the n-grams begin with (may be empty).
+    #[serde(default)]
+    pub words: String,
+    /// The order (default: one more than the words given).
+    #[serde(default)]
+    pub order: Option<usize>,
+    /// How many (default 20, at most [`MAX_NGRAMS`]).
+    #[serde(default = "twenty")]
+    pub limit: usize,
+}
+
+fn twenty() -> usize {
+    20
+}
+
+fn method(src: Source<'_>, name: &Option<String>) -> Result<Method, Fail> {
+    match name {
+        None => Ok(src.default_method()),
+        Some(n) => Ok(n.parse::<Method>()?),
+    }
+}
+
+/// The words of `ids`, space-separated (`#` and the hex id for a word
+/// the store does not name).
+fn words(p: &dyn Predictor, ids: &[WordId]) -> Result<String, Fail> {
+    let mut out = Vec::with_capacity(ids.len());
+    for &id in ids {
+        out.push(match p.word(id)? {
+            Some(w) => w,
+            None => format!("#{id:016x}"),
+        });
+    }
+    Ok(out.join(" "))
+}
+
+/// `/prob`: P(word | context), as `quern prob --json CONTEXT WORD` writes it.
+pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
+    let m = method(l.source(), &q.method)?;
+    let lent = l.get(m)?;
+    let p = lent.pred();
+    if q.word.split_whitespace().count() != 1 {
+        return Err(Fail::bad(format!(
+            "word: {:?} is not one word (the words before it go in context)",
+            q.word
+        )));
+    }
+    let line = format!("{} {}", q.context, q.word);
+    let ids = query_ids(&line, p.lowercase());
+    let (&w, ctx) = ids.split_last().expect("the word is one token");
+    let r = p.prob(ctx, w)?;
+    let text = line.split_whitespace().collect::<Vec<_>>().join(" ");
+    to_text(&ProbJson::new(
+        &text,
+        p.method(),
+        r.p,
+        Some(r.order),
+        Some(r.oov),
+    ))
+}
+
+/// `/next`: the top words after the context that begin with the prefix.
+pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
+    let m = method(l.source(), &q.method)?;
+    if q.top == 0 || q.top > MAX_TOP {
+        return Err(Fail::bad(format!(
+            "top: {} is not from 1 to {MAX_TOP}",
+            q.top
+        )));
+    }
+    if q.prefix.chars().any(char::is_whitespace) {
+        return Err(Fail::bad(format!(
+            "prefix: {:?} is not the start of one word (no spaces)",
+            q.prefix
+        )));
+    }
+    let lent = l.get(m)?;
+    let p = lent.pred();
+    let ids = query_ids(&q.context, p.lowercase());
+    let next = if q.prefix.is_empty() {
+        p.next(&ids, q.top)?
+    } else {
+        p.complete(&ids, &q.prefix, q.top)?
+    };
+    let names = next
+        .items
+        .iter()
+        .map(|(w, _)| words(p, &[*w]))
+        .collect::<Result<Vec<_>, _>>()?;
+    let list: Vec<WordJson> = names
+        .iter()
+        .zip(&next.items)
+        .map(|(w, (_, pr))| WordJson::new(w, p.method(), *pr))
+        .collect();
+    to_text(&NextAnswer {
+        context: words(p, &next.context)?,
+        prefix: &q.prefix,
+        method: p.method().name(),
+        words: list,
+        rest: if p.method().is_probability() {
+            jnum(next.rest)
+        } else {
+            Value::Null
+        },
+        words_scored: next.scored,
+    })
+}
+
+/// `/score`: one scored-document record per text, in order.
+pub fn score(l: &mut dyn Local, q: ScoreRequest) -> Answer {
+    let m = method(l.source(), &q.method)?;
+    let lent = l.get(m)?;
+    let p = lent.pred();
+    let batch: Vec<RawLine> = q
+        .texts
+        .into_iter()
+        .enumerate()
+        .map(|(i, t)| RawLine {
+            file: 0,
+            line: i as u64 + 1,
+            bytes: t.into_bytes(),
+            too_long: false,
+        })
+        .collect();
+    let mut opts = Options::new(Format::Lines);
+    opts.threads = 1;
+    let results = Worker::new(p.lowercase()).score(&opts, lent.doc(), None, &batch)?;
+    let probability = p.method().is_probability();
+    to_text(&ScoreAnswer {
+        method: p.method().name(),
+        results: results
+            .iter()
+            .map(|r| r.record(probability, None))
+            .collect(),
+    })
+}
+
+/// `/ngrams`: the stored n-grams that begin with some words, with their
+/// counts (a store only: a frozen model keeps probabilities, not counts).
+pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
+    let Source::Store(store) = l.source() else {
+        return Err(Fail::bad(
+            "a frozen model keeps probabilities and back-off weights, not counts: \
+             serve a store (--store) to list n-grams with their counts",
+        ));
+    };
+    if q.limit == 0 || q.limit > MAX_NGRAMS {
+        return Err(Fail::bad(format!(
+            "limit: {} is not from 1 to {MAX_NGRAMS}",
+            q.limit
+        )));
+    }
+    let prefix = query_ids(&q.words, store.meta().settings.lowercase);
+    let order = q.order.unwrap_or(prefix.len() + 1);
+    let page = prefix_page(store, &prefix, order, q.limit, None)?;
+    let mut list = Vec::with_capacity(page.items.len());
+    for (k, c, cont) in &page.items {
+        let mut ws = Vec::new();
+        for &id in k.ids() {
+            ws.push(store.word(id)?.unwrap_or_else(|| format!("#{id:016x}")));
+        }
+        list.push(NgramAnswer {
+            words: ws.join(" "),
+            count: *c,
+            continuation: *cont,
+        });
+    }
+    to_text(&NgramsAnswer {
+        order,
+        ngrams: list,
+        more: page.next.is_some(),
+    })
+}
+
+/// `/info`: what is served.
+pub fn info(src: Source<'_>, path: &str) -> Value {
+    match src {
+        Source::Store(s) => {
+            let meta = s.meta();
+            json!({
+                "source": "store",
+                "path": path,
+                "order": meta.settings.order,
+                "method": src.default_method().name(),
+                "methods": Method::ALL.map(|m| m.name()),
+                "vocabulary_size": meta.totals.vocabulary,
+                "ngrams": meta.orders.iter().map(|o| o.ngrams).collect::<Vec<_>>(),
+                "lowercase": meta.settings.lowercase,
+                "tokens": meta.totals.tokens,
+                "sentences": meta.totals.sentences,
+                "counts": true,
+            })
+        }
+        Source::Model(m) => {
+            let meta = m.meta();
+            json!({
+                "source": "model",
+                "path": path,
+                "order": meta.order,
+                "method": meta.method.name(),
+                "methods": [meta.method.name()],
+                "vocabulary_size": meta.vocabulary,
+                "ngrams": meta.ngrams,
+                "store_ngrams": meta.store_ngrams,
+                "lowercase": meta.lowercase,
+                "probabilities": meta.probabilities,
+                "counts": false,
+            })
+        }
+    }
+}
