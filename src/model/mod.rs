@@ -75,8 +75,11 @@
 pub mod arpa;
 pub mod format;
 pub mod freeze;
+pub(crate) mod prune;
+pub(crate) mod quantize;
 pub mod query;
 pub mod reader;
+pub(crate) mod reduce;
 pub mod writer;
 
 pub use format::ModelMeta;

@@ -359,6 +359,7 @@ fn pruned_by_count_stays_normalised() {
             &path,
             &FreezeOptions {
                 min_counts: vec![1, 2, 3],
+                ..Default::default()
             },
         )
         .unwrap();
