@@ -96,3 +96,6 @@ mod spark;
 // independent Python reader (sums to 1, closure, same probabilities);
 // count pruning stays normalised; add-k/mle refused; damaged files refused.
 mod freeze;
+
+// Frozen models reduced: relative-entropy pruning and quantization.
+mod freeze_reduce;
