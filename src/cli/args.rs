@@ -600,6 +600,19 @@ pub struct FreezeArgs {
     /// k-th value (comma-separated, orders 1..N; the first must be 1).
     #[arg(long, value_delimiter = ',')]
     pub min_counts: Option<Vec<u64>>,
+    /// Relative-entropy pruning (Stolcke 1998): drop the n-grams whose
+    /// removal changes the model's relative entropy by less than THETA
+    /// nats, and recompute the back-off weights.
+    #[arg(long, value_name = "THETA", conflicts_with = "max_ngrams")]
+    pub relative_entropy: Option<f64>,
+    /// A size target: prune by relative entropy at the smallest threshold
+    /// that keeps at most N n-grams in all (unigrams included).
+    #[arg(long, value_name = "N")]
+    pub max_ngrams: Option<u64>,
+    /// Quantize the probabilities of orders 2..N to B bits (2..16), fitted
+    /// per order; the back-off weights are recomputed after.
+    #[arg(long, value_name = "B")]
+    pub bits: Option<u32>,
     /// Held-out text: report its perplexity under the store and the model.
     #[arg(long)]
     pub heldout: Vec<PathBuf>,

@@ -163,4 +163,8 @@ pub struct ModelMeta {
     pub value_bits: u32,
     /// The count thresholds applied per order (1 = none).
     pub min_counts: Vec<u64>,
+    /// The relative-entropy threshold the model was pruned at (nats), if
+    /// it was.
+    #[serde(default)]
+    pub relative_entropy: Option<f64>,
 }

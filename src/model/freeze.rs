@@ -34,7 +34,10 @@ use crate::store::NgramRecord;
 use crate::words::{bos_id, unk_id, WordId};
 
 use super::format::{ModelMeta, SectionKind};
-use super::reader::{find_word, map_read_only, u32_at};
+use super::prune;
+use super::quantize::quantize;
+use super::reader::{find_word, map_read_only, u32_at, Model};
+use super::reduce::{suffix_links, write_reduced, Reduction};
 use super::writer::{ArrayFile, ModelWriter};
 
 /// What to freeze.
@@ -43,6 +46,23 @@ pub struct FreezeOptions {
     /// Count thresholds per order (index k − 1; missing orders and 0 mean
     /// 1, keep everything). The unigrams are always all kept.
     pub min_counts: Vec<u64>,
+    /// Relative-entropy pruning (Stolcke 1998): drop the n-grams whose
+    /// removal changes the model's relative entropy by less than this (in
+    /// nats); see [`crate::model`]'s pruning notes.
+    pub relative_entropy: Option<f64>,
+    /// A size target: the smallest relative-entropy threshold that keeps
+    /// at most this many n-grams (unigrams included).
+    pub max_ngrams: Option<u64>,
+    /// Quantize q of orders 2..N to this many bits (2..=16) per value.
+    pub bits: Option<u32>,
+}
+
+impl FreezeOptions {
+    /// Whether the model is reduced after freezing (pruned by relative
+    /// entropy or quantized).
+    fn reduces(&self) -> bool {
+        self.relative_entropy.is_some() || self.max_ngrams.is_some() || self.bits.is_some()
+    }
 }
 
 /// What a freeze wrote.
@@ -56,6 +76,14 @@ pub struct FreezeReport {
     pub file_bytes: u64,
     /// Notes of the method and of freezing.
     pub notes: Vec<String>,
+    /// The relative-entropy threshold applied (given, or picked for
+    /// `max_ngrams`).
+    pub threshold: Option<f64>,
+    /// Kept n-grams per order before relative-entropy pruning (after the
+    /// count thresholds).
+    pub ngrams_unpruned: Vec<u64>,
+    /// Bits per value of orders 2..N (32: not quantized).
+    pub value_bits: u32,
 }
 
 /// A file's bytes, memory-mapped (or empty).
@@ -150,6 +178,15 @@ impl Drop for TempDir {
     }
 }
 
+/// Katz's contexts that back off past h' (all orders; and whether the
+/// current order has one), and those it cannot represent.
+#[derive(Default)]
+struct KatzTally {
+    skips: u64,
+    order_skips: bool,
+    unrepresentable: u64,
+}
+
 /// Sums over the kept children of one context.
 #[derive(Default)]
 struct Acc {
@@ -174,6 +211,34 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         return Err(Error::Config(
             "the unigrams are always kept (every word of V needs a probability): the first count threshold must be 1".into(),
         ));
+    }
+    if let Some(b) = opts.bits {
+        if !(2..=16).contains(&b) {
+            return Err(Error::Config(format!(
+                "--bits {b}: quantization takes 2 to 16 bits per value"
+            )));
+        }
+    }
+    if opts.relative_entropy.is_some() && opts.max_ngrams.is_some() {
+        return Err(Error::Config(
+            "give either a relative-entropy threshold or a size target (--max-ngrams), not both"
+                .into(),
+        ));
+    }
+    if let Some(t) = opts.relative_entropy {
+        if !(t >= 0.0 && t.is_finite()) {
+            return Err(Error::Config(format!(
+                "--relative-entropy {t}: the threshold must be a finite number ≥ 0"
+            )));
+        }
+    }
+    if (opts.relative_entropy.is_some() || opts.max_ngrams.is_some())
+        && !est.method().is_probability()
+    {
+        return Err(Error::Config(format!(
+            "relative-entropy pruning needs probabilities; {} gives scores that do not sum to 1",
+            est.method()
+        )));
     }
     let pruning = (1..=n).any(|k| min(k) > 1);
     let parent_dir = match out.parent() {
@@ -254,8 +319,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     };
     // Which store n-grams of the previous order were kept (by position).
     let mut kept_prev: Vec<u64> = Vec::new();
-    let mut katz_unrepresentable = 0u64;
-    let mut katz_skips = 0u64;
+    let mut tally = KatzTally::default();
 
     // ---- orders 2..N ----------------------------------------------------------
     let default_beta = match kind {
@@ -264,7 +328,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     };
     for k in 2..=n {
         let lower_q = map(&q64_prev)?;
-        let mut any_skip = false;
+        tally.order_skips = false;
         let mut w_file = ArrayFile::create(tpath(format!("w{k}")))?;
         let mut q_file = ArrayFile::create(tpath(format!("q{k}")))?;
         let mut q64_file = ArrayFile::create(tpath(format!("q64-{k}")))?;
@@ -333,6 +397,34 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 parents.next_kept(&kept_prev)
             }
         };
+        // Writes the children start and β of a finished kept context.
+        let finish = |cur: &Option<(Key, NgramRecord, Option<u32>)>,
+                      acc: &Acc,
+                      written: u64,
+                      built: &mut Built,
+                      ctx_out: &mut ContextOut,
+                      tally: &mut KatzTally|
+         -> Result<()> {
+            let Some((pk, prec, Some(p))) = cur else {
+                return Ok(());
+            };
+            let (beta, skip) = match beta_of(prec, acc) {
+                Some(b) => (b, 1),
+                None => katz_deep(
+                    est,
+                    pk.ids(),
+                    prec,
+                    built,
+                    &q64_maps,
+                    &index,
+                    &mut tally.unrepresentable,
+                    (acc.pruned, 1.0 - acc.sum_q, min(k)),
+                )?,
+            };
+            tally.order_skips |= skip > 1;
+            tally.skips += u64::from(skip > 1);
+            ctx_out.put(*p, written - acc.kept, beta, skip)
+        };
         for (pos, item) in store.scan_records(k, &[], None)?.enumerate() {
             let (g, rec) = item?;
             store_n += 1;
@@ -340,24 +432,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             let h = &gi[..k - 1];
             // Move to the parent h, finishing the ones passed.
             while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
-                if let Some((pk, prec, Some(p))) = &cur {
-                    let (beta, skip) = match beta_of(prec, &acc) {
-                        Some(b) => (b, 1),
-                        None => katz_deep(
-                            est,
-                            pk.ids(),
-                            prec,
-                            &mut built,
-                            &q64_maps,
-                            &index,
-                            &mut katz_unrepresentable,
-                            (acc.pruned, 1.0 - acc.sum_q, min(k)),
-                        )?,
-                    };
-                    any_skip |= skip > 1;
-                    katz_skips += u64::from(skip > 1);
-                    ctx_out.put(*p, written - acc.kept, beta, skip)?;
-                }
+                finish(&cur, &acc, written, &mut built, &mut ctx_out, &mut tally)?;
                 acc = Acc::default();
                 let Some(p) = parents.it.next() else {
                     return Err(Error::corrupt(
@@ -459,24 +534,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             acc.sum_q += q;
             acc.sum_lower += lower;
         }
-        if let Some((pk, prec, Some(p))) = &cur {
-            let (beta, skip) = match beta_of(prec, &acc) {
-                Some(b) => (b, 1),
-                None => katz_deep(
-                    est,
-                    pk.ids(),
-                    prec,
-                    &mut built,
-                    &q64_maps,
-                    &index,
-                    &mut katz_unrepresentable,
-                    (acc.pruned, 1.0 - acc.sum_q, min(k)),
-                )?,
-            };
-            any_skip |= skip > 1;
-            katz_skips += u64::from(skip > 1);
-            ctx_out.put(*p, written - acc.kept, beta, skip)?;
-        }
+        finish(&cur, &acc, written, &mut built, &mut ctx_out, &mut tally)?;
         // Every later context has no kept child.
         let n_prev = kept_counts[k - 2];
         ctx_out.fill_to(n_prev as u32, written)?;
@@ -490,7 +548,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         weight_paths.push(ctx_out.b.close()?);
         child_paths.push(ctx_out.f.close()?);
         let sp = ctx_out.s.close()?;
-        skip_paths.push(any_skip.then_some(sp));
+        skip_paths.push(tally.order_skips.then_some(sp));
         q64_prev = q64_file.close()?;
         q64_maps.push(map(&q64_prev)?);
         kept_prev = kept_now;
@@ -501,14 +559,16 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         built.path_x.clear();
         built.path_e.clear();
     }
-    if katz_skips > 0 {
+    if tally.skips > 0 {
         notes.push(format!(
-            "katz: {katz_skips} contexts pass their freed mass past their next shorter context (their children take all of its probability): the model records how far; ARPA text cannot, so there the ARPA file gives their unseen words almost nothing"
+            "katz: {} contexts pass their freed mass past their next shorter context (their children take all of its probability): the model records how far; ARPA text cannot, so there the ARPA file gives their unseen words almost nothing",
+            tally.skips
         ));
     }
-    if katz_unrepresentable > 0 {
+    if tally.unrepresentable > 0 {
         notes.push(format!(
-            "katz: {katz_unrepresentable} contexts give their freed mass to the uniform distribution (their children take all the probability of every shorter context); the model gives their unseen words 0"
+            "katz: {} contexts give their freed mass to the uniform distribution (their children take all the probability of every shorter context); the model gives their unseen words 0",
+            tally.unrepresentable
         ));
     }
 
@@ -548,8 +608,12 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         store_ngrams: store_counts.clone(),
         value_bits: 32,
         min_counts: (1..=n).map(min).collect(),
+        relative_entropy: None,
     };
-    let mut w = ModelWriter::create(out)?;
+    // A model to be reduced is written whole first, into the temporary
+    // folder.
+    let full = tmp.path().join("full.model");
+    let mut w = ModelWriter::create(if opts.reduces() { &full } else { out })?;
     w.section(
         SectionKind::Meta,
         0,
@@ -580,12 +644,87 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     }
     drop(built);
     let file_bytes = w.finish()?;
-    Ok(FreezeReport {
+    let report = FreezeReport {
+        ngrams_unpruned: kept_counts.clone(),
         ngrams: kept_counts,
         store_ngrams: store_counts,
         file_bytes,
         notes,
-    })
+        threshold: None,
+        value_bits: 32,
+    };
+    if opts.reduces() {
+        return reduce_model(&full, out, opts, report);
+    }
+    Ok(report)
+}
+
+/// Prunes by relative entropy and/or quantizes the model just written at
+/// `full` into `out`.
+fn reduce_model(
+    full: &Path,
+    out: &Path,
+    opts: &FreezeOptions,
+    mut report: FreezeReport,
+) -> Result<FreezeReport> {
+    let m = Model::open(full)?;
+    let links = suffix_links(&m)?;
+    let threshold = match (opts.relative_entropy, opts.max_ngrams) {
+        (None, None) => None,
+        (theta, max) => {
+            let d = prune::criterion(&m, &links)?;
+            let theta = match (theta, max) {
+                (Some(t), _) => Some(t),
+                (None, Some(max)) => prune::threshold_for(&m, &links, &d, max)?,
+                (None, None) => unreachable!(),
+            };
+            theta.map(|t| (t, prune::select(&m, &links, &d, t).0))
+        }
+    };
+    let (theta, keep) = match threshold {
+        Some((t, keep)) => (Some(t), keep),
+        None => (None, Vec::new()),
+    };
+    let mut meta = m.meta().clone();
+    let (values, moved) = match opts.bits {
+        Some(b) => {
+            let (v, moved) = quantize(&m, &keep, b);
+            meta.value_bits = b;
+            (v, moved)
+        }
+        None => (Vec::new(), 0),
+    };
+    if let Some(t) = theta {
+        meta.notes.push(format!(
+            "relative-entropy pruning (Stolcke 1998) at θ = {t:e} nats: the n-grams whose removal changes the model by less were dropped (but the contexts and suffixes of kept ones), and the back-off weights recomputed"
+        ));
+    }
+    if let Some(b) = opts.bits {
+        meta.notes.push(format!(
+            "q of orders 2..{} quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln q; Whittaker & Raj 2001), the back-off weights recomputed after; the unigrams and the back-off weights are 32-bit{}",
+            m.order(),
+            if moved > 0 {
+                format!("; {moved} quantized values were moved one bin down so that their context's children stay within 1")
+            } else {
+                String::new()
+            }
+        ));
+    }
+    meta.relative_entropy = theta;
+    let mut r = Reduction { keep, values, meta };
+    let done = write_reduced(&m, &links, &mut r, out)?;
+    if done.unnormalised > 0 {
+        r.meta.notes.push(format!(
+            "{} contexts cannot be normalised after reducing (their kept children take all the mass of the context they back off to): their back-off weight is 0",
+            done.unnormalised
+        ));
+    }
+    report.notes = r.meta.notes.clone();
+    report.ngrams = done.ngrams;
+    report.file_bytes = done.file_bytes;
+    report.threshold = theta;
+    report.value_bits = r.meta.value_bits;
+    Ok(report)
 }
 
 fn too_many(k: usize) -> Error {

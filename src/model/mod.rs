@@ -17,6 +17,17 @@
 //! and h'·w are kept. See [`crate::query::backoff`] for how each method's
 //! q and β are computed.
 //!
+//! # Reductions
+//!
+//! A model can be made smaller after it is frozen ([`FreezeOptions`]):
+//! relative-entropy pruning (Stolcke 1998; `prune`), with a threshold or
+//! a size target, and quantization of the probabilities to B-bit bins
+//! (Whittaker & Raj 2001; `quantize`). Both work model to model (`reduce`):
+//! the whole model is written first, then the kept entries are written
+//! again, renumbered, and the back-off weight of every context whose
+//! distribution changed is recomputed so that it sums to 1. This version
+//! of the layout stores quantized values as their bins' 32-bit numbers.
+//!
 //! # Byte layout (version 1)
 //!
 //! Little-endian throughout; sections start at multiples of 8 bytes.
@@ -76,8 +87,11 @@ pub mod arpa;
 pub mod complete;
 pub mod format;
 pub mod freeze;
+pub(crate) mod prune;
+pub(crate) mod quantize;
 pub mod query;
 pub mod reader;
+pub(crate) mod reduce;
 pub mod writer;
 
 pub use format::ModelMeta;

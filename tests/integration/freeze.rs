@@ -38,7 +38,7 @@ const FREEZABLE: [Method; 7] = [
     Method::Stupid,
 ];
 
-fn scratch(name: &str) -> PathBuf {
+pub(crate) fn scratch(name: &str) -> PathBuf {
     let d = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
         .join("freeze")
         .join(name);
@@ -71,7 +71,7 @@ fn params_for(m: Method, n: usize, bucketed: bool) -> Params {
 
 /// Contexts of length N − 1 (and shorter) from the held-out text, taken
 /// evenly, plus the awkward ones: empty, `<s>`, `</s>`, OOV words.
-fn sample_contexts(n: usize, count: usize) -> Vec<Vec<WordId>> {
+pub(crate) fn sample_contexts(n: usize, count: usize) -> Vec<Vec<WordId>> {
     let mut all = Vec::new();
     for s in heldout_sentences() {
         for i in 1..s.len() {
@@ -210,7 +210,7 @@ fn frozen_equals_store_order5() {
 
 /// Runs the Python reader on an ARPA file; returns its answers to the
 /// queries and its report.
-fn python_check(
+pub(crate) fn python_check(
     arpa: &Path,
     queries: Option<&Path>,
     model: &Model,
@@ -359,6 +359,7 @@ fn pruned_by_count_stays_normalised() {
             &path,
             &FreezeOptions {
                 min_counts: vec![1, 2, 3],
+                ..Default::default()
             },
         )
         .unwrap();

@@ -117,3 +117,6 @@ mod http_client;
 mod serve;
 mod serve_load;
 mod serve_page;
+
+// Frozen models reduced: relative-entropy pruning and quantization.
+mod freeze_reduce;

@@ -88,6 +88,9 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     est.backoff_kind()?;
     let opts = FreezeOptions {
         min_counts: a.min_counts.clone().unwrap_or_default(),
+        relative_entropy: a.relative_entropy,
+        max_ngrams: a.max_ngrams,
+        bits: a.bits,
     };
     if opts.min_counts.len() > store.order() {
         anyhow::bail!(
@@ -148,7 +151,9 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             "model": a.out.as_ref().map(|p| p.display().to_string()),
             "model_bytes": file_bytes,
             "bytes_per_ngram": file_bytes.map(|b| b as f64 / kept.max(1) as f64),
-            "value_bits": 32,
+            "value_bits": report.value_bits,
+            "relative_entropy": report.threshold,
+            "ngrams_before_pruning": report.ngrams_unpruned,
             "arpa": a.arpa.as_ref().map(|p| p.display().to_string()),
             "arpa_bytes": arpa_bytes,
             "ngrams_kept": report.ngrams,
@@ -184,6 +189,14 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             "  the values are stupid back-off scores, not probabilities (so marked in the file)"
         )?;
     }
+    if let Some(t) = report.threshold {
+        writeln!(
+            o,
+            "  relative-entropy pruning at {t:.3e} nats: {} of {} n-grams kept",
+            thousands(kept),
+            thousands(report.ngrams_unpruned.iter().sum())
+        )?;
+    }
     writeln!(o, "  order   store n-grams     kept  min count")?;
     for (k, (s, kk)) in report.store_ngrams.iter().zip(&report.ngrams).enumerate() {
         writeln!(
@@ -196,9 +209,17 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         )?;
     }
     if let Some(b) = file_bytes {
+        let values = if report.value_bits == 32 {
+            "32-bit values".to_string()
+        } else {
+            format!(
+                "probabilities quantized to {} bits, stored as 32-bit bin values by this format version",
+                report.value_bits
+            )
+        };
         writeln!(
             o,
-            "  model {} ({:.2} bytes per n-gram, 32-bit values)",
+            "  model {} ({:.2} bytes per n-gram, {values})",
             bytes(b),
             b as f64 / kept.max(1) as f64
         )?;
