@@ -48,6 +48,7 @@ pub mod plot;
 mod read;
 mod run;
 pub mod split;
+mod texts;
 
 use std::path::PathBuf;
 
@@ -60,6 +61,7 @@ use crate::words::WordId;
 
 pub use dist::Distribution;
 pub use run::score_inputs;
+pub use texts::{score_text, score_texts};
 
 /// What scores a sentence: any [`Predictor`] (the store's estimator, a
 /// frozen model), or a shared one through [`Shared`].
