@@ -68,7 +68,7 @@ struct Owned {
 /// A smoothing method over a store, made by `Store.estimator(...)`.
 ///
 /// It keeps caches that are not thread-safe, so it belongs to the thread
-/// that made it (another thread that uses it gets a RuntimeError): make
+/// that made it (PyO3 refuses it on another thread with a PanicException): make
 /// one per thread. `score_many` makes its own per worker thread.
 #[pyclass(name = "Estimator", module = "quern", unsendable)]
 pub struct PyEstimator {
