@@ -6,14 +6,14 @@
 //! native module (`quern._quern`) and `_quern.pyi` describes it for
 //! editors. Classes:
 //!
-//! * `Store(path, memory="256MiB")` ([`store::PyStore`]): totals,
+//! * `Store(path, memory="256MiB")` (`store::PyStore`): totals,
 //!   settings, the statistics report as a dict (the content of
 //!   `quern stats --json`), `count`, paged `ngrams`, and `estimator(method,
 //!   **params)`.
-//! * `Estimator` ([`predictor::PyEstimator`]): a method over a store. It
+//! * `Estimator` (`predictor::PyEstimator`): a method over a store. It
 //!   keeps caches that are not thread-safe, so it is bound to the thread
 //!   that made it (PyO3's `unsendable`).
-//! * `Model(path)` ([`predictor::PyModel`]): a frozen model, memory-mapped,
+//! * `Model(path)` (`predictor::PyModel`): a frozen model, memory-mapped,
 //!   shared by any number of threads.
 //!
 //! Both predictors have `prob`, `log10`, `next`, `score` and `score_many`;
@@ -21,7 +21,7 @@
 //! ([`crate::docs::score_texts`]). Nothing copies a store or a model: the
 //! Python objects hold them behind an `Arc`. Library errors become Python
 //! exceptions whose message is the command line's (after its
-//! `quern: error: `): see [`convert::error`].
+//! `quern: error: `): see `convert::error`.
 
 mod convert;
 mod predictor;
