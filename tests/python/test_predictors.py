@@ -152,3 +152,17 @@ def test_a_model_is_shared_by_threads_an_estimator_is_not(built):
     # PyO3 refuses an `unsendable` object on another thread with its
     # PanicException (a BaseException), before any of quern's code runs.
     assert len(errors) == 1 and "unsendable" in str(errors[0]), errors
+
+
+def test_constants_and_notes_equal_quern_score_json(preds, held_out_lines, cli, tmp_path):
+    f = tmp_path / "held.txt"
+    f.write_text("\n".join(held_out_lines[:50]) + "\n", encoding="utf-8")
+    for name, p, flags in preds:
+        report = cli.json("score", *flags, "--json", f)
+        assert p.constants == report["constants"], name
+        # The command line adds one note of its own for stupid back-off.
+        extra = [n for n in report["notes"] if n not in p.notes]
+        assert all(n in report["notes"] for n in p.notes), name
+        assert extra == ([] if p.is_probability else
+                         ["stupid back-off scores are not probabilities: no perplexity"]), name
+        assert p.method == report["method"]
