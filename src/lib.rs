@@ -81,6 +81,8 @@ pub mod merge;
 #[cfg(feature = "store")]
 pub mod model;
 pub mod pool;
+#[cfg(feature = "python")]
+pub mod python;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;

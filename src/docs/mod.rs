@@ -41,6 +41,10 @@
 //! input order. At most a fixed number of batches is in flight, so memory
 //! is bounded whatever the input size. The batches do not depend on the
 //! number of threads, so neither do the results.
+//!
+//! [`score_texts`] does the same for documents held in memory (a
+//! program's strings, as the Python module's `score_many` passes them), in
+//! the same batches; [`score_text`] scores one on the calling thread.
 
 pub mod dist;
 #[cfg(feature = "plot")]
@@ -48,6 +52,7 @@ pub mod plot;
 mod read;
 mod run;
 pub mod split;
+mod texts;
 
 use std::path::PathBuf;
 
@@ -61,6 +66,7 @@ use crate::words::WordId;
 pub use dist::Distribution;
 pub use read::{RawLine, Worker};
 pub use run::score_inputs;
+pub use texts::{score_text, score_texts};
 
 /// What scores a sentence: any [`Predictor`] (the store's estimator, a
 /// frozen model), or a shared one through [`Shared`].

@@ -1,0 +1,426 @@
+//! `quern.Estimator` (a method over a store) and `quern.Model` (a frozen
+//! model): the same methods on both, over [`Predictor`].
+
+use std::path::PathBuf;
+use std::sync::Arc;
+
+use pyo3::exceptions::{PyTypeError, PyValueError};
+use pyo3::intern;
+use pyo3::prelude::*;
+use pyo3::types::{PyDict, PyList, PyString};
+
+use super::convert::{error, json_to_py, words_text, QuernError};
+use crate::docs::{self, BoxedModel, DocResult, Models, Outcome, Shared};
+use crate::model::Model;
+use crate::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
+use crate::store::Store;
+use crate::words::WordId;
+
+/// The parameters of `method`: the file `tuned` (if given), then the
+/// values given on top, as the command line's parameter flags do.
+pub fn params(
+    method: Method,
+    tuned: Option<PathBuf>,
+    k: Option<f64>,
+    alpha: Option<f64>,
+    lambdas: Option<Vec<f64>>,
+    katz_k: Option<usize>,
+    discounts: Option<&str>,
+) -> PyResult<Params> {
+    let mut p = Params::default();
+    if let Some(f) = &tuned {
+        let pf = ParamsFile::load(f).map_err(error)?;
+        if pf.method != method {
+            return Err(PyValueError::new_err(format!(
+                "{}: the parameters were fitted for {}, not {method}",
+                f.display(),
+                pf.method
+            )));
+        }
+        p = pf.params;
+    }
+    if let Some(k) = k {
+        p.k = k;
+    }
+    if let Some(a) = alpha {
+        p.alpha = a;
+    }
+    if let Some(l) = lambdas {
+        p.lambdas = Some(l);
+        p.bucket_lambdas = None;
+    }
+    if let Some(k) = katz_k {
+        p.katz_k = k;
+    }
+    if let Some(d) = discounts {
+        p.discounts = d.parse().map_err(error)?;
+    }
+    Ok(p)
+}
+
+/// An estimator with the store it borrows.
+struct Owned {
+    /// Declared before `store`, so dropped before it.
+    est: Estimator<'static>,
+    store: Arc<Store>,
+}
+
+/// A smoothing method over a store, made by `Store.estimator(...)`.
+///
+/// It keeps caches that are not thread-safe, so it belongs to the thread
+/// that made it (PyO3 refuses it on another thread with a PanicException): make
+/// one per thread. `score_many` makes its own per worker thread.
+#[pyclass(name = "Estimator", module = "quern", unsendable)]
+pub struct PyEstimator {
+    inner: Owned,
+    method: Method,
+    params: Params,
+}
+
+impl PyEstimator {
+    /// `method` with `params` over `store`.
+    pub fn new(store: Arc<Store>, method: Method, params: Params) -> PyResult<PyEstimator> {
+        #[allow(unsafe_code)]
+        // SAFETY: the estimator borrows the store inside the `Arc`, whose
+        // heap address does not change while any clone of the `Arc` lives.
+        // `Owned` keeps a clone in the field after `est`, and fields drop
+        // in declaration order, so the store outlives the estimator. The
+        // `'static` borrow never leaves `Owned`: the estimator is lent out
+        // only as `&dyn Predictor` tied to `&self`, and its `store()` is
+        // never called here.
+        let s: &'static Store = unsafe { &*Arc::as_ptr(&store) };
+        let est = Estimator::new(s, method, params.clone()).map_err(error)?;
+        Ok(PyEstimator {
+            inner: Owned { est, store },
+            method,
+            params,
+        })
+    }
+
+    fn pred(&self) -> &dyn Predictor {
+        &self.inner.est
+    }
+
+    fn score_parallel(
+        &self,
+        py: Python<'_>,
+        texts: Vec<String>,
+        threads: usize,
+    ) -> PyResult<Vec<DocResult>> {
+        let (store, method, params) = (self.inner.store.clone(), self.method, self.params.clone());
+        py.detach(move || {
+            let make = || -> crate::Result<BoxedModel<'_>> {
+                Ok(Box::new(Estimator::new(&store, method, params.clone())?))
+            };
+            docs::score_texts(
+                texts,
+                threads,
+                false,
+                &Models {
+                    main: &make,
+                    general: None,
+                },
+            )
+        })
+        .map_err(error)
+    }
+}
+
+/// A frozen model written by `quern freeze`: `Model(path)`.
+///
+/// The file is memory-mapped and never copied; one model serves any
+/// number of threads.
+#[pyclass(name = "Model", module = "quern", frozen)]
+pub struct PyModel {
+    model: Arc<Model>,
+}
+
+impl PyModel {
+    fn pred(&self) -> &dyn Predictor {
+        &*self.model
+    }
+
+    fn score_parallel(
+        &self,
+        py: Python<'_>,
+        texts: Vec<String>,
+        threads: usize,
+    ) -> PyResult<Vec<DocResult>> {
+        let model = self.model.clone();
+        py.detach(move || {
+            let make = || -> crate::Result<BoxedModel<'_>> { Ok(Box::new(Shared(&*model))) };
+            docs::score_texts(
+                texts,
+                threads,
+                false,
+                &Models {
+                    main: &make,
+                    general: None,
+                },
+            )
+        })
+        .map_err(error)
+    }
+}
+
+/// The ids of a context.
+fn context_ids(p: &dyn Predictor, context: &Bound<'_, PyAny>) -> PyResult<Vec<WordId>> {
+    Ok(query_ids(&words_text("context", context)?, p.lowercase()))
+}
+
+/// The id of one word.
+fn word_id(p: &dyn Predictor, word: &str) -> PyResult<WordId> {
+    match query_ids(word, p.lowercase())[..] {
+        [w] => Ok(w),
+        ref ids => Err(PyValueError::new_err(format!(
+            "word={word:?}: one word is predicted, not {}",
+            ids.len()
+        ))),
+    }
+}
+
+fn prob_of(p: &dyn Predictor, context: &Bound<'_, PyAny>, word: &str) -> PyResult<Prob> {
+    let ctx = context_ids(p, context)?;
+    let w = word_id(p, word)?;
+    p.prob(&ctx, w).map_err(error)
+}
+
+/// A word's text (`#` and its id in hex if unknown, as the command line
+/// writes it).
+fn word_text(p: &dyn Predictor, id: WordId) -> PyResult<String> {
+    Ok(p.word(id)
+        .map_err(error)?
+        .unwrap_or_else(|| format!("#{id:016x}")))
+}
+
+fn next_of(
+    p: &dyn Predictor,
+    context: &Bound<'_, PyAny>,
+    top: usize,
+    prefix: &str,
+) -> PyResult<Vec<(String, f64)>> {
+    let ctx = context_ids(p, context)?;
+    let next = if prefix.is_empty() {
+        p.next(&ctx, top)
+    } else {
+        p.complete(&ctx, prefix, top)
+    }
+    .map_err(error)?;
+    next.items
+        .iter()
+        .map(|&(w, pr)| Ok((word_text(p, w)?, pr)))
+        .collect()
+}
+
+/// The texts of an iterable of strings.
+fn texts_of(texts: &Bound<'_, PyAny>) -> PyResult<Vec<String>> {
+    if texts.is_instance_of::<PyString>() {
+        return Err(PyTypeError::new_err(
+            "texts: expected an iterable of strings, not one string (use score for one text)",
+        ));
+    }
+    let mut out = Vec::new();
+    for (i, t) in texts.try_iter()?.enumerate() {
+        let t = t?;
+        let Ok(s) = t.cast::<PyString>() else {
+            return Err(PyTypeError::new_err(format!(
+                "texts: item {i} is {}, not a string",
+                t.get_type().name()?
+            )));
+        };
+        out.push(s.to_str()?.to_owned());
+    }
+    Ok(out)
+}
+
+/// One document's result as a dict (the fields of `quern score --lines`
+/// but `id` and `line`).
+fn doc_dict<'py>(
+    py: Python<'py>,
+    r: &DocResult,
+    probability: bool,
+) -> PyResult<Bound<'py, PyDict>> {
+    let d = match &r.outcome {
+        Outcome::Scored(d) => d,
+        Outcome::Bad(e) => return Err(QuernError::new_err(format!("text {}: {e}", r.line))),
+    };
+    let t = &d.main;
+    let finite = |x: Option<f64>| x.filter(|v| v.is_finite());
+    let out = PyDict::new(py);
+    out.set_item(intern!(py, "sentences"), t.sentences)?;
+    out.set_item(intern!(py, "predictions"), t.predictions)?;
+    out.set_item(intern!(py, "outside_vocabulary"), t.oov)?;
+    out.set_item(intern!(py, "probability_zero"), t.zero)?;
+    out.set_item(intern!(py, "log10_sum"), finite(t.log10_prob()))?;
+    out.set_item(
+        intern!(py, "perplexity"),
+        if probability {
+            finite(t.perplexity())
+        } else {
+            None
+        },
+    )?;
+    Ok(out)
+}
+
+fn threads_of(threads: usize) -> usize {
+    if threads == 0 {
+        std::thread::available_parallelism().map_or(1, |n| n.get())
+    } else {
+        threads
+    }
+}
+
+/// The methods that `Estimator` and `Model` share, with their docstrings.
+macro_rules! predictor_methods {
+    ($ty:ty { $($extra:tt)* }) => {
+        #[pymethods]
+        impl $ty {
+            $($extra)*
+
+            /// The method's name (`mkn`, `kn`, …).
+            #[getter]
+            fn method(&self) -> &'static str {
+                self.pred().method().name()
+            }
+
+            /// The highest order N.
+            #[getter]
+            fn order(&self) -> usize {
+                self.pred().order()
+            }
+
+            /// |V|: the words a distribution is over.
+            #[getter]
+            fn vocabulary_size(&self) -> u64 {
+                self.pred().vocabulary_size()
+            }
+
+            /// Whether words are lowercased before lookup (the store was
+            /// built with `--lowercase`).
+            #[getter]
+            fn lowercase(&self) -> bool {
+                self.pred().lowercase()
+            }
+
+            /// Whether the scores are probabilities (false for `stupid`).
+            #[getter]
+            fn is_probability(&self) -> bool {
+                self.pred().method().is_probability()
+            }
+
+            /// The notes the command line prints on standard error
+            /// (discounts replaced, Katz's K lowered, …).
+            #[getter]
+            fn notes(&self) -> Vec<String> {
+                self.pred().notes().to_vec()
+            }
+
+            /// The per-order constants in use (discounts, weights, …), as
+            /// a dict: `constants` of `quern score --json`.
+            #[getter]
+            fn constants(&self, py: Python<'_>) -> PyResult<Py<PyAny>> {
+                json_to_py(py, &self.pred().constants())
+            }
+
+            /// P(word | context): `context` is a string of words or an
+            /// iterable of words (`<s>` is the start of a sentence), `word`
+            /// one word. For `stupid`, the score. As `quern prob`.
+            fn prob(&self, context: &Bound<'_, PyAny>, word: &str) -> PyResult<f64> {
+                Ok(prob_of(self.pred(), context, word)?.p)
+            }
+
+            /// log10 P(word | context) (`-inf` for probability 0).
+            fn log10(&self, context: &Bound<'_, PyAny>, word: &str) -> PyResult<f64> {
+                Ok(prob_of(self.pred(), context, word)?.log10)
+            }
+
+            /// The `top` most probable next words after `context`, as
+            /// `(word, probability)` pairs, most probable first (ties by
+            /// id), exact: as `quern next --top`. With a `prefix`, only
+            /// words that begin with it (lowercased first when the store
+            /// is), never `<s>`, `<unk>` or `</s>`.
+            #[pyo3(signature = (context, top = 10, prefix = ""))]
+            fn next(
+                &self,
+                context: &Bound<'_, PyAny>,
+                top: usize,
+                prefix: &str,
+            ) -> PyResult<Vec<(String, f64)>> {
+                next_of(self.pred(), context, top, prefix)
+            }
+
+            /// The score of one text (a document; each of its lines is a
+            /// sentence), as a dict: `sentences`, `predictions`,
+            /// `outside_vocabulary`, `probability_zero`, `log10_sum`
+            /// (`None` for -infinity) and `perplexity` (`None` when
+            /// infinite, undefined or not a probability): the fields of
+            /// `quern score --lines` for that line.
+            fn score<'py>(&self, py: Python<'py>, text: &str) -> PyResult<Bound<'py, PyDict>> {
+                let p = self.pred();
+                let r = docs::score_text(p, text.to_owned(), false).map_err(error)?;
+                doc_dict(py, &r, p.method().is_probability())
+            }
+
+            /// The scores of many texts, in their order (a list of the
+            /// dicts of `score`), on `threads` worker threads (0: one per
+            /// core) with the GIL released. The results do not depend on
+            /// the number of threads.
+            #[pyo3(signature = (texts, threads = 0))]
+            fn score_many<'py>(
+                &self,
+                py: Python<'py>,
+                texts: &Bound<'py, PyAny>,
+                threads: usize,
+            ) -> PyResult<Bound<'py, PyList>> {
+                let texts = texts_of(texts)?;
+                let probability = self.pred().method().is_probability();
+                let results = self.score_parallel(py, texts, threads_of(threads))?;
+                let out = PyList::empty(py);
+                for r in &results {
+                    out.append(doc_dict(py, r, probability)?)?;
+                }
+                Ok(out)
+            }
+        }
+    };
+}
+
+predictor_methods!(PyEstimator {
+    fn __repr__(&self) -> String {
+        format!(
+            "quern.Estimator({:?}, method={:?}, order={})",
+            self.inner.store.dir().display().to_string(),
+            self.method.name(),
+            self.pred().order()
+        )
+    }
+});
+
+predictor_methods!(PyModel {
+    /// Opens the model file at `path` (checks its header, directory and
+    /// the checksums of its small sections; `quern freeze --verify` checks
+    /// every byte).
+    #[new]
+    fn new(py: Python<'_>, path: PathBuf) -> PyResult<Self> {
+        let model = py.detach(|| Model::open(&path)).map_err(error)?;
+        Ok(PyModel {
+            model: Arc::new(model),
+        })
+    }
+
+    /// The model file.
+    #[getter]
+    fn path(&self) -> PathBuf {
+        self.model.path().to_path_buf()
+    }
+
+    fn __repr__(&self) -> String {
+        format!(
+            "quern.Model({:?}, method={:?}, order={})",
+            self.model.path().display().to_string(),
+            self.pred().method().name(),
+            self.pred().order()
+        )
+    }
+});

@@ -1,0 +1,168 @@
+"""quern.Estimator (a method over the store) and quern.Model (a frozen
+model) against the command line on the same store and models: `quern prob
+--json`, `quern next --json`, `quern score --jsonl`; score_many with many
+threads against one thread."""
+
+import json
+import threading
+
+import pytest
+import quern
+
+
+def sources(built):
+    """(name, Python predictor, the CLI flags naming the same one)."""
+    store = quern.Store(str(built["store"]))
+    out = []
+    for method in ("mkn", "witten-bell", "katz", "stupid"):
+        out.append((f"store {method}", store.estimator(method),
+                    ["--store", built["store"], "--method", method]))
+    for method, path in built["models"].items():
+        out.append((f"model {method}", quern.Model(str(path)), ["--model", path]))
+    return out
+
+
+@pytest.fixture(scope="module")
+def preds(built):
+    return sources(built)
+
+
+@pytest.fixture(scope="module")
+def queries(held_out_lines):
+    """Word sequences (the context, then the word) from the held-out novel:
+    every length from 1 to 5 words, `<s>` starts, words outside V."""
+    qs = []
+    for i, line in enumerate(held_out_lines[::40]):
+        words = ["<s>"] + line.split() + ["</s>"]
+        n = 1 + i % 5
+        for j in range(1, len(words), 3):
+            qs.append(words[max(0, j + 1 - n): j + 1])
+    return qs
+
+
+def test_prob_and_log10_equal_quern_prob(preds, queries, cli):
+    assert len(queries) > 300
+    stdin = "".join(" ".join(q) + "\n" for q in queries)
+    for name, p, flags in preds:
+        rows = cli.json_lines("prob", *flags, "--json", input=stdin)
+        assert len(rows) == len(queries)
+        key = "probability" if p.is_probability else "score"
+        for q, row in zip(queries, rows):
+            assert p.prob(q[:-1], q[-1]) == row[key], (name, q)
+            lg = p.log10(" ".join(q[:-1]), q[-1])
+            assert (lg if lg != float("-inf") else None) == row["log10"], (name, q)
+
+
+def test_next_equals_quern_next(preds, cli):
+    contexts = ["", "it was", "<s> she", "Mr.", "the whole of the", "xyzzy unknown"]
+    for name, p, flags in preds:
+        for ctx in contexts:
+            got = p.next(ctx, top=12)
+            want = cli.json("next", *flags, "--json", "--top", 12, *ctx.split())
+            key = "probability" if p.is_probability else "score"
+            assert got == [(x["word"], x[key]) for x in want["top"]], (name, ctx)
+            assert len(got) == 12
+
+
+def test_next_with_prefix_is_the_full_ranking_filtered(preds, cli):
+    # The words beginning with a prefix, best first: `quern next` over all of
+    # V, kept where the word begins with it (never <s>, <unk> or </s>).
+    for name, p, flags in preds[:1] + preds[-2:-1]:
+        for ctx, prefix in [("it was", "th"), ("<s>", "A"), ("of", "zz")]:
+            full = cli.json("next", *flags, "--json", "--top", 10 ** 6, *ctx.split())["top"]
+            want = [(x["word"], x["probability"]) for x in full
+                    if x["word"].startswith(prefix) and x["word"] not in ("<s>", "<unk>", "</s>")][:7]
+            got = p.next(ctx.split(), top=7, prefix=prefix)
+            assert [w for w, _ in got] == [w for w, _ in want], (name, ctx, prefix)
+            for (_, a), (_, b) in zip(got, want):
+                assert a == pytest.approx(b, rel=1e-12, abs=0), (name, ctx, prefix)
+
+
+def cli_documents(cli, flags, texts, tmp_path):
+    f = tmp_path / "docs.jsonl"
+    f.write_text("".join(json.dumps({"text": t}) + "\n" for t in texts), encoding="utf-8")
+    rows = cli.json_lines("score", *flags, "--jsonl", "--threads", 2, f)
+    for r in rows:
+        del r["id"], r["line"]
+    return rows
+
+
+def test_score_and_score_many_equal_quern_score_jsonl(preds, paragraphs, cli, tmp_path):
+    assert len(paragraphs) > 1000
+    for name, p, flags in preds:
+        want = cli_documents(cli, flags, paragraphs, tmp_path)
+        assert p.score_many(paragraphs, threads=2) == want, name
+        for i in list(range(0, len(paragraphs), 97)) + [len(paragraphs) - 2, len(paragraphs) - 1]:
+            assert p.score(paragraphs[i]) == want[i], (name, i)
+    # The documents without a token: no perplexity.
+    assert want[-1]["predictions"] == 0 and want[-1]["perplexity"] is None
+
+
+def test_score_many_threads_give_the_same_results(preds, held_out_lines):
+    # More texts than one batch (2,048), so the threads share the work.
+    texts = held_out_lines + held_out_lines[:500]
+    assert len(texts) > 3 * 2048
+    for name, p, _ in preds[:1] + preds[-2:-1]:
+        one = p.score_many(texts, threads=1)
+        assert len(one) == len(texts)
+        for t in (2, 3, 0):
+            assert p.score_many(iter(texts), threads=t) == one, (name, t)
+
+
+def test_score_many_releases_the_gil(built, held_out_lines):
+    model = quern.Model(str(built["models"]["mkn"]))
+    texts = held_out_lines * 3
+    ticks = [0]
+    stop = threading.Event()
+
+    def tick():
+        while not stop.is_set():
+            ticks[0] += 1
+
+    t = threading.Thread(target=tick)
+    t.start()
+    try:
+        before = ticks[0]
+        model.score_many(texts, threads=1)
+        during = ticks[0] - before
+    finally:
+        stop.set()
+        t.join()
+    # Holding the GIL for the whole call would leave the other thread at
+    # (nearly) no ticks.
+    assert during > 10_000, during
+
+
+def test_a_model_is_shared_by_threads_an_estimator_is_not(built):
+    model = quern.Model(str(built["models"]["mkn"]))
+    est = quern.Store(str(built["store"])).estimator("mkn")
+    results, errors = [], []
+
+    def use(p):
+        try:
+            results.append(p.prob("it was", "a"))
+        except BaseException as e:  # noqa: BLE001 (PyO3's PanicException)
+            errors.append(e)
+
+    for p in (model, est):
+        t = threading.Thread(target=use, args=(p,))
+        t.start()
+        t.join()
+    assert results == [model.prob("it was", "a")]
+    # PyO3 refuses an `unsendable` object on another thread with its
+    # PanicException (a BaseException), before any of quern's code runs.
+    assert len(errors) == 1 and "unsendable" in str(errors[0]), errors
+
+
+def test_constants_and_notes_equal_quern_score_json(preds, held_out_lines, cli, tmp_path):
+    f = tmp_path / "held.txt"
+    f.write_text("\n".join(held_out_lines[:50]) + "\n", encoding="utf-8")
+    for name, p, flags in preds:
+        report = cli.json("score", *flags, "--json", f)
+        assert p.constants == report["constants"], name
+        # The command line adds one note of its own for stupid back-off.
+        extra = [n for n in report["notes"] if n not in p.notes]
+        assert all(n in report["notes"] for n in p.notes), name
+        assert extra == ([] if p.is_probability else
+                         ["stupid back-off scores are not probabilities: no perplexity"]), name
+        assert p.method == report["method"]
