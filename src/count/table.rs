@@ -162,7 +162,8 @@ impl Table {
                 }
                 return;
             }
-            if len == key.len() && &rec[..len] == key {
+            // Compared word by word: a slice `==` calls `bcmp` for a few words.
+            if len == key.len() && rec[..len].iter().zip(key).all(|(a, b)| a == b) {
                 for (s, a) in rec[w..].iter_mut().zip(add) {
                     *s += a;
                 }
@@ -292,7 +293,15 @@ impl Table {
             .map(move |rec| {
                 let mut vals = [0u64; MAX_VALUES];
                 vals[..v].copy_from_slice(&rec[w..w + v]);
-                (Key::new(&rec[..rec[w + v] as usize]), vals)
+                // Copied as a padded array (the padding is zero): no
+                // copy of a variable length.
+                let mut ids = [0u64; MAX_ORDER];
+                for (i, id) in ids.iter_mut().enumerate() {
+                    if i < w {
+                        *id = rec[i];
+                    }
+                }
+                (Key::from_padded(ids, rec[w + v] as usize), vals)
             })
     }
 
