@@ -34,6 +34,17 @@ impl Key {
         k
     }
 
+    /// The key of the first `len` of `ids`, whose other entries must be 0
+    /// (the padding every key keeps).
+    #[inline]
+    pub fn from_padded(ids: [WordId; MAX_ORDER], len: usize) -> Self {
+        debug_assert!(len <= MAX_ORDER && ids[len..].iter().all(|&x| x == 0));
+        Key {
+            len: len as u8,
+            ids,
+        }
+    }
+
     /// The ids.
     #[inline]
     pub fn ids(&self) -> &[WordId] {

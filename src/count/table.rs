@@ -162,7 +162,8 @@ impl Table {
                 }
                 return;
             }
-            if len == key.len() && &rec[..len] == key {
+            // Compared word by word: a slice `==` calls `bcmp` for a few words.
+            if len == key.len() && rec[..len].iter().zip(key).all(|(a, b)| a == b) {
                 for (s, a) in rec[w..].iter_mut().zip(add) {
                     *s += a;
                 }
@@ -292,7 +293,15 @@ impl Table {
             .map(move |rec| {
                 let mut vals = [0u64; MAX_VALUES];
                 vals[..v].copy_from_slice(&rec[w..w + v]);
-                (Key::new(&rec[..rec[w + v] as usize]), vals)
+                // Copied as a padded array (the padding is zero): no
+                // copy of a variable length.
+                let mut ids = [0u64; MAX_ORDER];
+                for (i, id) in ids.iter_mut().enumerate() {
+                    if i < w {
+                        *id = rec[i];
+                    }
+                }
+                (Key::from_padded(ids, rec[w + v] as usize), vals)
             })
     }
 
@@ -334,15 +343,60 @@ fn sort_by_hash<const N: usize>(flat: &mut [u64], lenpos: usize) {
 
 /// Sorts records of `N` u64s whose first `width` are padded ids and whose
 /// last is the key length.
+///
+/// Large arrays are first distributed by the top bits of their first id
+/// (one counting pass, then an in-place permutation, as in an American flag
+/// sort): that is the first comparison of the key order, so each bucket is
+/// then sorted on its own by comparison, with about 16 records per bucket
+/// for uniform ids (a frequent first word keeps a larger bucket).
 fn sort_records<const N: usize>(flat: &mut [u64], width: usize) {
     let (recs, rest) = flat.as_chunks_mut::<N>();
     debug_assert!(rest.is_empty());
-    recs.sort_unstable_by(|a, b| -> Ordering {
+    let cmp = |a: &[u64; N], b: &[u64; N]| -> Ordering {
         a[..width]
             .cmp(&b[..width])
             .then_with(|| a[N - 1].cmp(&b[N - 1]))
-    });
+    };
+    let n = recs.len();
+    if n < RADIX_MIN {
+        recs.sort_unstable_by(cmp);
+        return;
+    }
+    let bits = (usize::BITS - 1 - (n / 16).leading_zeros()).clamp(8, 16);
+    let shift = 64 - bits;
+    let buckets = 1usize << bits;
+    let mut start = vec![0u32; buckets + 1];
+    for r in recs.iter() {
+        start[(r[0] >> shift) as usize + 1] += 1;
+    }
+    for b in 0..buckets {
+        start[b + 1] += start[b];
+    }
+    let mut next = start[..buckets].to_vec();
+    for b in 0..buckets {
+        let end = start[b + 1] as usize;
+        let mut i = next[b] as usize;
+        while i < end {
+            let d = (recs[i][0] >> shift) as usize;
+            if d == b {
+                i += 1;
+            } else {
+                // Send the record to the next free place of its bucket;
+                // the one found there is placed in the next round.
+                recs.swap(i, next[d] as usize);
+                next[d] += 1;
+            }
+        }
+        next[b] = end as u32;
+    }
+    for b in 0..buckets {
+        recs[start[b] as usize..start[b + 1] as usize].sort_unstable_by(cmp);
+    }
 }
+
+/// Fewest records for which [`sort_records`] distributes by the first id
+/// before sorting.
+const RADIX_MIN: usize = 1 << 12;
 
 #[cfg(test)]
 mod tests {
@@ -375,6 +429,39 @@ mod tests {
             t.add(&key, &[1]);
             *m.entry(key).or_insert(0u64) += 1;
         }
+        let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
+        let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
+        assert_eq!(got, want);
+    }
+
+    #[test]
+    fn large_tables_sort_like_a_btreemap() {
+        // Enough records for the distribution by the first id's top bits:
+        // first words over the whole 64-bit range, one of them frequent
+        // (a large bucket), and short keys whose zero padding must sort
+        // before longer keys with the same words. Checked against a BTreeMap.
+        let mut t = Table::with_budget(4, 1, Table::slot_bytes(4, 1) << 17);
+        let mut m = BTreeMap::new();
+        let words: Vec<u64> = (0..3000u64)
+            .map(|i| (i + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15))
+            .collect();
+        let mut x = 5u64;
+        while !t.is_full() {
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let len = 1 + (x >> 62) as usize;
+            let first = if x.is_multiple_of(5) {
+                words[7]
+            } else {
+                words[(x >> 20) as usize % 3000]
+            };
+            let mut key = vec![first];
+            key.extend((1..len).map(|j| words[(x >> (j * 9)) as usize % 40]));
+            t.add(&key, &[1]);
+            *m.entry(key).or_insert(0u64) += 1;
+        }
+        assert!(t.len() > RADIX_MIN);
         let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
         let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
         assert_eq!(got, want);
