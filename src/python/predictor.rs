@@ -200,12 +200,9 @@ fn next_of(
     prefix: &str,
 ) -> PyResult<Vec<(String, f64)>> {
     let ctx = context_ids(p, context)?;
-    let next = if prefix.is_empty() {
-        p.next(&ctx, top)
-    } else {
-        p.complete(&ctx, prefix, top)
-    }
-    .map_err(error)?;
+    // As `quern next`: always through completion (an empty prefix is all
+    // of V), which never suggests `<s>` or `<unk>`.
+    let next = p.complete(&ctx, prefix, top).map_err(error)?;
     next.items
         .iter()
         .map(|&(w, pr)| Ok((word_text(p, w)?, pr)))

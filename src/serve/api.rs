@@ -231,11 +231,9 @@ pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
     let lent = l.get(m)?;
     let p = lent.pred();
     let ids = query_ids(&q.context, p.lowercase());
-    let next = if q.prefix.is_empty() {
-        p.next(&ids, q.top)?
-    } else {
-        p.complete(&ids, &q.prefix, q.top)?
-    };
+    // As `quern next`: always through completion (an empty prefix is all
+    // of V), which never suggests `<s>` or `<unk>`.
+    let next = p.complete(&ids, &q.prefix, q.top)?;
     let names = next
         .items
         .iter()

@@ -198,6 +198,13 @@ pub fn cli_next(model: bool, method: Option<&str>, context: &str, top: usize) ->
     if let Some(m) = method {
         a.extend(["--method".into(), m.into()]);
     }
+    if context.split_whitespace().next().is_none() {
+        // No context words: `next` reads its queries from standard input,
+        // and an empty line asks after the empty context.
+        let r = run_with_stdin(&a, b"\n");
+        r.assert_success();
+        return parse(r.stdout.lines().next().unwrap_or(""));
+    }
     a.push("--".into());
     a.extend(context.split_whitespace().map(String::from));
     parse(&run_ok(&a).stdout)
