@@ -49,6 +49,16 @@ pub fn notice(msg: &str) {
     let _ = std::io::stderr().write_all(line.as_bytes());
 }
 
+/// Prints a measurement (a load test's rate and latencies) past the test
+/// harness's capture, like [`notice`] but with its own prefix: it reports
+/// a figure of a check that ran in full, so `scripts/test` does not count
+/// it among the checks that ran reduced.
+pub fn report(msg: &str) {
+    use std::io::Write;
+    let line = format!("REPORT (quern tests): {msg}\n");
+    let _ = std::io::stderr().write_all(line.as_bytes());
+}
+
 /// `python3`, which the tests run (scripts/setup installs it). Panics with
 /// that advice when it is missing: a Python check is never skipped quietly.
 pub fn python3() -> &'static str {

@@ -9,7 +9,7 @@ use std::time::{Duration, Instant};
 
 use serde_json::{json, Value};
 
-use crate::common::{notice, run_with_stdin};
+use crate::common::{report, run_with_stdin};
 use crate::serve::{cli_next, next_contexts, prob_queries, source_args, strs, Conn, Server};
 
 /// One request and the answer it must get.
@@ -103,7 +103,7 @@ fn load(model: bool, clients: usize, per_client: usize, deadline: Duration) {
         )),
         "{err}"
     );
-    notice(&format!(
+    report(&format!(
         "serve load ({}): {clients} clients x {per_client} requests (prob and next), {sent} answers equal to the CLI's in {:.2} s, {:.0} requests/s; latency p50 {:.3} ms, p99 {:.3} ms, max {:.3} ms",
         if model { "model" } else { "store" },
         wall.as_secs_f64(),
