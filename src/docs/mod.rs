@@ -131,6 +131,24 @@ pub struct Models<'a> {
     pub general: Option<&'a MakeModel<'a>>,
 }
 
+impl<'a> Models<'a> {
+    /// One worker's models: the main one and the general one, if any,
+    /// refused when the two tokenize differently.
+    pub fn make(&self) -> Result<(BoxedModel<'a>, Option<BoxedModel<'a>>)> {
+        let main = (self.main)()?;
+        let general = self.general.map(|g| g()).transpose()?;
+        if let Some(g) = &general {
+            if g.lowercase() != main.lowercase() {
+                return Err(crate::error::Error::Config(
+                    "the two models tokenize differently (one was built with --lowercase, the other not)"
+                        .into(),
+                ));
+            }
+        }
+        Ok((main, general))
+    }
+}
+
 /// How input lines hold documents.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub enum Format {

@@ -41,20 +41,7 @@ pub fn score_inputs(
         let Some(done_tx) = senders[i].lock().ok().and_then(|mut s| s.take()) else {
             return Ok(());
         };
-        let made = (|| {
-            let main = (models.main)()?;
-            let general = models.general.map(|g| g()).transpose()?;
-            if let Some(g) = &general {
-                if g.lowercase() != main.lowercase() {
-                    return Err(Error::Config(
-                        "the two models tokenize differently (one was built with --lowercase, the other not)"
-                            .into(),
-                    ));
-                }
-            }
-            Ok((main, general))
-        })();
-        let (main, general) = match made {
+        let (main, general) = match models.make() {
             Ok(m) => m,
             Err(e) => {
                 let _ = done_tx.send((usize::MAX, Err(e), Vec::new()));

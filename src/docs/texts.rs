@@ -61,16 +61,7 @@ pub fn score_texts(
         batches.iter().map(|_| Mutex::new(None)).collect();
     let next = AtomicUsize::new(0);
     let worker = || -> Result<()> {
-        let main = (models.main)()?;
-        let general = models.general.map(|g| g()).transpose()?;
-        if let Some(g) = &general {
-            if g.lowercase() != main.lowercase() {
-                return Err(Error::Config(
-                    "the two models tokenize differently (one was built with --lowercase, the other not)"
-                        .into(),
-                ));
-            }
-        }
+        let (main, general) = models.make()?;
         let mut w = Worker::new(main.lowercase());
         loop {
             let i = next.fetch_add(1, Ordering::Relaxed);
