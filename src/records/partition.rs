@@ -14,7 +14,9 @@ pub struct ContextStats {
     pub count_sum: u64,
     /// T(h): number of children.
     pub types: u64,
-    /// A(h): sum of the children's left-type counts.
+    /// A(h): sum of the children's left-type counts (read from
+    /// `adjusted_sum` in metadata written before the rename).
+    #[serde(alias = "adjusted_sum")]
     pub left_type_sum: u64,
     /// N1(h): children with left-type count 1.
     pub n1: u64,
@@ -173,5 +175,23 @@ pub fn store_meta<'a>(
         orders,
         root,
         growth: None,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::ContextStats;
+
+    /// Store metadata written before the rename (field `adjusted_sum`)
+    /// still reads, into the same record.
+    #[test]
+    fn the_old_field_name_still_reads() {
+        let mut s = ContextStats::default();
+        s.add_child(5, 2);
+        s.add_child(1, 1);
+        let new = serde_json::to_string(&s).unwrap();
+        assert!(new.contains("\"left_type_sum\":3"));
+        let old = new.replace("left_type_sum", "adjusted_sum");
+        assert_eq!(serde_json::from_str::<ContextStats>(&old).unwrap(), s);
     }
 }
