@@ -613,6 +613,11 @@ pub struct FreezeArgs {
     /// per order; the back-off weights are recomputed after.
     #[arg(long, value_name = "B")]
     pub bits: Option<u32>,
+    /// Quantize the back-off weights to W bits (2..16), fitted per order:
+    /// a smaller file, but a context then sums to 1 only within the
+    /// rounding of its weight (the summary gives the largest error).
+    #[arg(long, value_name = "W")]
+    pub weight_bits: Option<u32>,
     /// Held-out text: report its perplexity under the store and the model.
     #[arg(long)]
     pub heldout: Vec<PathBuf>,

@@ -11,7 +11,7 @@ pub const MAGIC: [u8; 8] = *b"qrnmodl\x1a";
 /// The last 8 bytes of every model file.
 pub const END_MAGIC: [u8; 8] = *b"\x1aldomnrq";
 /// The layout version this build writes and reads.
-pub const MODEL_VERSION: u32 = 1;
+pub const MODEL_VERSION: u32 = 2;
 /// Header: magic, version (u32), reserved (u32, 0).
 pub const HEADER_BYTES: usize = 16;
 /// Trailer: directory offset (u64), entries (u64), xxh3 of the directory
@@ -37,8 +37,9 @@ pub enum SectionKind {
     /// The word indices of V (u32), most probable after the empty context
     /// first, ties by index.
     Ranking = 5,
-    /// Per order k ≥ 2: the last word's index (u32) of every kept n-gram,
-    /// in key order (by context, then word).
+    /// Per order k ≥ 2: the last word's index of every kept n-gram, in
+    /// key order (by context, then word), bit-packed at the width of the
+    /// largest word index ([`super::packed`]).
     Words = 16,
     /// Per order: q, the probability (f32) of every kept n-gram's last
     /// word given its context.
@@ -47,13 +48,25 @@ pub enum SectionKind {
     /// as a context.
     Weights = 18,
     /// Per order k < N: where every kept n-gram's children start among the
-    /// n-grams of order k + 1 (u32), plus one entry for the end.
+    /// n-grams of order k + 1, plus one entry for the end, coded
+    /// Elias–Fano ([`super::packed`]).
     Children = 19,
     /// Per order k < N, `katz` only, and only where some context needs
     /// it: how many words (u8) a context drops when it backs off (1: to
     /// h'; Katz passes a context's mass further down where its children
     /// take all of h''s probability).
     Skips = 20,
+    /// Per order k ≥ 2 of a quantized model, in place of `Probs`: the code
+    /// of every q, bit-packed at `value_bits`.
+    ProbCodes = 21,
+    /// Per order k ≥ 2 of a quantized model: the value (f32) of every
+    /// code, ascending.
+    ProbBins = 22,
+    /// Per order k < N of a model whose weights are quantized, in place of
+    /// `Weights`: the code of every β, bit-packed at `weight_bits`.
+    WeightCodes = 23,
+    /// The value (f32) of every β code, ascending.
+    WeightBins = 24,
 }
 
 impl SectionKind {
@@ -70,6 +83,10 @@ impl SectionKind {
             18 => SectionKind::Weights,
             19 => SectionKind::Children,
             20 => SectionKind::Skips,
+            21 => SectionKind::ProbCodes,
+            22 => SectionKind::ProbBins,
+            23 => SectionKind::WeightCodes,
+            24 => SectionKind::WeightBins,
             _ => return None,
         })
     }
@@ -87,6 +104,10 @@ impl SectionKind {
             SectionKind::Weights => "back-off weights",
             SectionKind::Children => "children index",
             SectionKind::Skips => "back-off skips",
+            SectionKind::ProbCodes => "probability codes",
+            SectionKind::ProbBins => "probability bins",
+            SectionKind::WeightCodes => "back-off weight codes",
+            SectionKind::WeightBins => "back-off weight bins",
         }
     }
 }
@@ -159,12 +180,21 @@ pub struct ModelMeta {
     pub ngrams: Vec<u64>,
     /// The store's n-grams of every order.
     pub store_ngrams: Vec<u64>,
-    /// Bits per stored probability and weight.
+    /// Bits per stored probability of orders 2..N (32: f32 values;
+    /// fewer: codes into per-order bins).
     pub value_bits: u32,
+    /// Bits per stored back-off weight (32: f32 values; fewer: codes into
+    /// per-order bins).
+    #[serde(default = "bits32")]
+    pub weight_bits: u32,
     /// The count thresholds applied per order (1 = none).
     pub min_counts: Vec<u64>,
     /// The relative-entropy threshold the model was pruned at (nats), if
     /// it was.
     #[serde(default)]
     pub relative_entropy: Option<f64>,
+}
+
+fn bits32() -> u32 {
+    32
 }

@@ -34,6 +34,7 @@ use crate::store::NgramRecord;
 use crate::words::{bos_id, unk_id, WordId};
 
 use super::format::{ModelMeta, SectionKind};
+use super::packed::{ef_encode, width_for};
 use super::prune;
 use super::quantize::quantize;
 use super::reader::{find_word, map_read_only, u32_at, Model};
@@ -55,13 +56,20 @@ pub struct FreezeOptions {
     pub max_ngrams: Option<u64>,
     /// Quantize q of orders 2..N to this many bits (2..=16) per value.
     pub bits: Option<u32>,
+    /// Quantize the back-off weights to this many bits (2..=16) per
+    /// value. Their contexts then sum to 1 only within the rounding of β
+    /// (reported in [`FreezeReport::weight_error`]).
+    pub weight_bits: Option<u32>,
 }
 
 impl FreezeOptions {
     /// Whether the model is reduced after freezing (pruned by relative
     /// entropy or quantized).
     fn reduces(&self) -> bool {
-        self.relative_entropy.is_some() || self.max_ngrams.is_some() || self.bits.is_some()
+        self.relative_entropy.is_some()
+            || self.max_ngrams.is_some()
+            || self.bits.is_some()
+            || self.weight_bits.is_some()
     }
 }
 
@@ -84,6 +92,11 @@ pub struct FreezeReport {
     pub ngrams_unpruned: Vec<u64>,
     /// Bits per value of orders 2..N (32: not quantized).
     pub value_bits: u32,
+    /// Bits per back-off weight (32: not quantized).
+    pub weight_bits: u32,
+    /// With quantized back-off weights, the largest |Σ_w P(w | h) − 1|
+    /// over the contexts (0 otherwise).
+    pub weight_error: f64,
 }
 
 /// A file's bytes, memory-mapped (or empty).
@@ -212,11 +225,13 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             "the unigrams are always kept (every word of V needs a probability): the first count threshold must be 1".into(),
         ));
     }
-    if let Some(b) = opts.bits {
-        if !(2..=16).contains(&b) {
-            return Err(Error::Config(format!(
-                "--bits {b}: quantization takes 2 to 16 bits per value"
-            )));
+    for (flag, bits) in [("--bits", opts.bits), ("--weight-bits", opts.weight_bits)] {
+        if let Some(b) = bits {
+            if !(2..=16).contains(&b) {
+                return Err(Error::Config(format!(
+                    "{flag} {b}: quantization takes 2 to 16 bits per value"
+                )));
+            }
         }
     }
     if opts.relative_entropy.is_some() && opts.max_ngrams.is_some() {
@@ -607,6 +622,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         ngrams: kept_counts.clone(),
         store_ngrams: store_counts.clone(),
         value_bits: 32,
+        weight_bits: 32,
         min_counts: (1..=n).map(min).collect(),
         relative_entropy: None,
     };
@@ -629,14 +645,23 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         let mut f = File::open(p).at(p, "open")?;
         w.section_from(kind, k, &mut f, p)
     };
+    let width = width_for(nw as u64 - 1);
     for k in 1..=n {
         if let Some(p) = &word_paths[k - 1] {
-            copy(&mut w, SectionKind::Words, k, p)?;
+            let a = map(p)?;
+            w.packed(
+                SectionKind::Words,
+                k,
+                width,
+                (0..a.len() / 4).map(|i| u32_at(&a, i) as u64),
+            )?;
         }
         copy(&mut w, SectionKind::Probs, k, &q_paths[k - 1])?;
         if k < n {
             copy(&mut w, SectionKind::Weights, k, &weight_paths[k - 1])?;
-            copy(&mut w, SectionKind::Children, k, &child_paths[k - 1])?;
+            let a = map(&child_paths[k - 1])?;
+            let ef = ef_encode((0..a.len() / 4).map(|i| u32_at(&a, i) as u64));
+            w.section(SectionKind::Children, k, &ef)?;
             if let Some(p) = &skip_paths[k - 1] {
                 copy(&mut w, SectionKind::Skips, k, p)?;
             }
@@ -652,6 +677,8 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         notes,
         threshold: None,
         value_bits: 32,
+        weight_bits: 32,
+        weight_error: 0.0,
     };
     if opts.reduces() {
         return reduce_model(&full, out, opts, report);
@@ -701,7 +728,7 @@ fn reduce_model(
     }
     if let Some(b) = opts.bits {
         meta.notes.push(format!(
-            "q of orders 2..{} quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln q; Whittaker & Raj 2001), the back-off weights recomputed after; the unigrams and the back-off weights are 32-bit{}",
+            "q of orders 2..{} quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln q; Whittaker & Raj 2001), the back-off weights recomputed after; the unigrams are 32-bit{}",
             m.order(),
             if moved > 0 {
                 format!("; {moved} quantized values were moved one bin down so that their context's children stay within 1")
@@ -711,6 +738,12 @@ fn reduce_model(
         ));
     }
     meta.relative_entropy = theta;
+    if let Some(b) = opts.weight_bits {
+        meta.weight_bits = b;
+        meta.notes.push(format!(
+            "back-off weights quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln β): a context sums to 1 only within the rounding of its β"
+        ));
+    }
     let mut r = Reduction { keep, values, meta };
     let done = write_reduced(&m, &links, &mut r, out)?;
     if done.unnormalised > 0 {
@@ -723,7 +756,16 @@ fn reduce_model(
     report.ngrams = done.ngrams;
     report.file_bytes = done.file_bytes;
     report.threshold = theta;
+    if opts.weight_bits.is_some() {
+        r.meta.notes.push(format!(
+            "with its quantized back-off weights every context sums to 1 within {:.1e}",
+            done.weight_error
+        ));
+        report.notes = r.meta.notes.clone();
+    }
     report.value_bits = r.meta.value_bits;
+    report.weight_bits = r.meta.weight_bits;
+    report.weight_error = done.weight_error;
     Ok(report)
 }
 

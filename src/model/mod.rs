@@ -25,16 +25,18 @@
 //! (Whittaker & Raj 2001; `quantize`). Both work model to model (`reduce`):
 //! the whole model is written first, then the kept entries are written
 //! again, renumbered, and the back-off weight of every context whose
-//! distribution changed is recomputed so that it sums to 1. This version
-//! of the layout stores quantized values as their bins' 32-bit numbers.
+//! distribution changed is recomputed so that it sums to 1. Quantized
+//! values are stored as B-bit codes into per-order bins; the back-off
+//! weights can be quantized too (`weight_bits`), at the cost of exact
+//! normalisation (the freeze reports the largest error).
 //!
-//! # Byte layout (version 1)
+//! # Byte layout (version 2)
 //!
 //! Little-endian throughout; sections start at multiples of 8 bytes.
 //!
 //! ```text
 //! header     8  magic "qrnmodl\x1a"
-//!            4  version (u32) = 1
+//!            4  version (u32) = 2
 //!            4  reserved (0)
 //! sections   one after another, in this order (see SectionKind):
 //!            Meta         JSON: method, parameters, constants, notes,
@@ -48,15 +50,28 @@
 //!            WordText     the words' UTF-8 bytes
 //!            Ranking      u32 × |V|: V by q of the unigram, best first
 //!            per order k = 1..N:
-//!              Words      (k ≥ 2) u32 × n_k: the last word of each kept
-//!                         n-gram; the n-grams are in key order, i.e.
-//!                         grouped by context (in the context's own order
-//!                         among the n-grams of order k − 1), then by word
-//!              Probs      f32 × n_k: q (entry i of order 1 is word i)
-//!              Weights    (k < N) f32 × n_k: β of each n-gram as a context
-//!              Children   (k < N) u32 × (n_k + 1): the children of entry
-//!                         i of order k are entries Children[i] ..
-//!                         Children[i + 1] of order k + 1
+//!              Words      (k ≥ 2) n_k word indices bit-packed at
+//!                         ⌈log2 W⌉ bits into u64 words (one spare word
+//!                         at the end); the last word of each kept n-gram;
+//!                         the n-grams are in key order, i.e. grouped by
+//!                         context (in the context's own order among the
+//!                         n-grams of order k − 1), then by word
+//!              Probs      f32 × n_k: q (entry i of order 1 is word i);
+//!                         or, for k ≥ 2 of a quantized model,
+//!              ProbCodes  n_k codes bit-packed at value_bits, and
+//!              ProbBins   f32 × (at most 2^value_bits): each code's q
+//!              Weights    (k < N) f32 × n_k: β of each n-gram as a
+//!                         context; or WeightCodes and WeightBins, as
+//!                         for q, at weight_bits
+//!              Children   (k < N) n_k + 1 increasing starts, Elias–Fano
+//!                         coded: u64 header (count, low bits l, upper
+//!                         words, samples), the low l bits of each start
+//!                         bit-packed, the upper bits (start >> l) as
+//!                         unary gaps, and the position of every 64th set
+//!                         upper bit; the children of entry i of order k
+//!                         are entries start[i] .. start[i + 1] of
+//!                         order k + 1
+//!              Skips      (k < N, katz only, where needed) u8 × n_k
 //! directory  32 bytes per section: kind (u32), order (u32), offset (u64),
 //!            length (u64), xxh3-64 of the section (u64)
 //! trailer    directory offset (u64), entry count (u64), xxh3-64 of the
@@ -74,10 +89,16 @@
 //! In running text the next context's kept suffixes are exactly the entries
 //! just found, so a [`State`] carries them and no context is looked up
 //! twice. Structure of arrays (words apart from values) keeps the searched
-//! bytes dense. Byte-aligned u32/f32 arrays cost 8 bytes per top-order
-//! n-gram and 16 below it; the checksummed directory lets a reader refuse
-//! a truncated or damaged file without reading the arrays, so opening takes
-//! milliseconds whatever the size; [`Model::verify`] reads everything.
+//! bytes dense. Words take ⌈log2 W⌉ bits rather than 32, and a children
+//! start about 2 + log2(n_{k+1} / n_k) bits rather than 32 (Elias–Fano:
+//! the starts increase by the number of children, mostly 1 to 3): a
+//! top-order n-gram costs ⌈log2 W⌉ + 32 bits and a lower one about
+//! ⌈log2 W⌉ + 67, against 64 and 128 for byte-aligned arrays. Reading a
+//! word is one two-word load and a shift; finding a children range is a
+//! sampled select over the upper bits, a few popcounts. The checksummed
+//! directory lets a reader refuse a truncated or damaged file without
+//! reading the arrays, so opening takes milliseconds whatever the size;
+//! [`Model::verify`] reads everything.
 //!
 //! Precision: q and β are stored as 32-bit floats (relative error below
 //! 6e-8 each); a probability is a product of at most N of them, computed in
@@ -87,6 +108,7 @@ pub mod arpa;
 pub mod complete;
 pub mod format;
 pub mod freeze;
+pub mod packed;
 pub(crate) mod prune;
 pub(crate) mod quantize;
 pub mod query;

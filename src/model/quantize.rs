@@ -40,12 +40,17 @@ impl Codebook {
             d
         };
         if centers.len() > slots {
-            // Equal-count bins to start, then Lloyd's iterations: each
-            // centre the mean of the values nearest to it.
+            // Equal-count bins over the distinct values to start (over all
+            // values, a value repeated many times, such as the weight of
+            // every context seen once, would take many bins that collapse
+            // into one and leave the rest of the range coarse), then
+            // Lloyd's iterations over all values: each centre the mean of
+            // the values nearest to it.
+            let d = centers;
             centers = (0..slots)
                 .map(|i| {
-                    let (a, z) = (i * x.len() / slots, (i + 1) * x.len() / slots);
-                    x[a..z.max(a + 1)].iter().sum::<f64>() / (z.max(a + 1) - a) as f64
+                    let (a, z) = (i * d.len() / slots, (i + 1) * d.len() / slots);
+                    d[a..z.max(a + 1)].iter().sum::<f64>() / (z.max(a + 1) - a) as f64
                 })
                 .collect();
             centers.dedup();
@@ -81,6 +86,41 @@ impl Codebook {
             logs.push(f64::NEG_INFINITY);
         }
         logs.extend(centers);
+        let cuts = logs.windows(2).map(|w| (w[0] + w[1]) / 2.0).collect();
+        Codebook { logs, cuts, zero }
+    }
+
+    /// Bins spread over the whole range of `values` (all ≥ 0) rather than
+    /// fitted to where they are dense: half at even steps of ln v between
+    /// the least and the greatest positive value, half at even steps of v
+    /// up to the greatest, so that no value is rounded by more than half a
+    /// ln step relative, nor by more than half a step absolute. For the
+    /// back-off weights, whose every rounding moves a context's sum.
+    pub(crate) fn spread(values: &[f64], bits: u32) -> Codebook {
+        let zero = values.iter().any(|&x| x <= 0.0);
+        let (mut lo, mut hi) = (f64::INFINITY, 0.0f64);
+        for &v in values.iter().filter(|&&v| v > 0.0) {
+            lo = lo.min(v);
+            hi = hi.max(v);
+        }
+        let mut logs: Vec<f64> = Vec::new();
+        if hi > 0.0 {
+            let slots = (1usize << bits) - usize::from(zero);
+            let half = slots / 2;
+            let (a, z) = (lo.ln(), hi.ln());
+            for i in 0..half.max(1) {
+                logs.push(a + (z - a) * i as f64 / (half.max(2) - 1) as f64);
+            }
+            for i in 1..=slots - half.max(1) {
+                logs.push((hi * i as f64 / (slots - half.max(1)) as f64).ln());
+            }
+            logs.retain(|l| l.is_finite());
+            logs.sort_by(f64::total_cmp);
+            logs.dedup();
+        }
+        if zero {
+            logs.insert(0, f64::NEG_INFINITY);
+        }
         let cuts = logs.windows(2).map(|w| (w[0] + w[1]) / 2.0).collect();
         Codebook { logs, cuts, zero }
     }

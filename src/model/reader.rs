@@ -24,6 +24,7 @@ use super::format::{
     Entry, ModelMeta, SectionKind, END_MAGIC, ENTRY_BYTES, HEADER_BYTES, MAGIC, MODEL_VERSION,
     TRAILER_BYTES,
 };
+use super::packed::{width_for, EliasFano, Packed};
 
 /// Maps `file` (opened read-only) into memory.
 ///
@@ -69,19 +70,49 @@ pub(crate) fn u64_at(b: &[u8], i: usize) -> u64 {
     u64::from_le_bytes(b[8 * i..8 * i + 8].try_into().expect("8 bytes"))
 }
 
+/// Stored values (q or β) of one order: 32-bit floats, or codes into
+/// bins.
+#[derive(Clone, Debug, Default)]
+pub(crate) enum Values {
+    /// None stored (β at the top order).
+    #[default]
+    None,
+    /// One f32 a value.
+    F32(Range<usize>),
+    /// One packed code a value, and the value of every code (f32).
+    Coded { codes: Packed, bins: Range<usize> },
+}
+
+impl Values {
+    /// Value `i` (`b` is the whole map); a code past the bins reads as the
+    /// last bin.
+    #[inline(always)]
+    pub(crate) fn get(&self, b: &[u8], i: usize) -> f32 {
+        match self {
+            Values::F32(r) => f32_at(&b[r.clone()], i),
+            Values::Coded { codes, bins } => {
+                let bins = &b[bins.clone()];
+                let c = (codes.get(b, i) as usize).min(bins.len() / 4 - 1);
+                f32_at(bins, c)
+            }
+            Values::None => 1.0,
+        }
+    }
+}
+
 /// The sections of one order.
 #[derive(Clone, Debug, Default)]
 pub(crate) struct OrderSections {
     /// Kept n-grams.
     pub len: usize,
     /// Last words (empty at order 1, where entry i is word i).
-    pub words: Range<usize>,
+    pub words: Packed,
     /// q values.
-    pub probs: Range<usize>,
-    /// β values (empty at the top order).
-    pub weights: Range<usize>,
+    pub probs: Values,
+    /// β values (none at the top order).
+    pub weights: Values,
     /// Child starts, len + 1 of them (empty at the top order).
-    pub children: Range<usize>,
+    pub children: EliasFano,
     /// Words dropped on backing off, one byte each (empty: 1 for all).
     pub skips: Range<usize>,
 }
@@ -216,24 +247,89 @@ impl Model {
         want(&ids, meta.ngrams[0] * 8, "word ids")?;
         want(&offsets, (nw as u64 + 1) * 8, "word offsets")?;
         want(&ranking, meta.vocabulary * 4, "unigram ranking")?;
+        let width = width_for(nw.saturating_sub(1) as u64);
+        let values = |kind: SectionKind,
+                      codes: SectionKind,
+                      bins: SectionKind,
+                      k: usize,
+                      bits: u32,
+                      len: u64|
+         -> Result<Values> {
+            if bits >= 32 {
+                let r = find(kind, k)?;
+                want(&r, len * 4, kind.name())?;
+                return Ok(Values::F32(r));
+            }
+            if !(1..=16).contains(&bits) {
+                return Err(bad(format!("{bits} bits a value")));
+            }
+            let c = find(codes, k)?;
+            want(&c, Packed::bytes(len as usize, bits) as u64, codes.name())?;
+            let bins = checked(bins, k)?;
+            if bins.is_empty() || bins.len() % 4 != 0 || bins.len() / 4 > 1 << bits {
+                return Err(bad(format!(
+                    "order {k}: {} bytes of {}",
+                    bins.len(),
+                    SectionKind::name(bins_kind(kind))
+                )));
+            }
+            Ok(Values::Coded {
+                codes: Packed {
+                    at: c,
+                    width: bits,
+                    len: len as usize,
+                },
+                bins,
+            })
+        };
         let mut orders = Vec::with_capacity(n);
         for k in 1..=n {
             let len = meta.ngrams[k - 1];
+            let pbits = if k == 1 { 32 } else { meta.value_bits };
             let mut o = OrderSections {
                 len: len as usize,
-                probs: find(SectionKind::Probs, k)?,
+                probs: values(
+                    SectionKind::Probs,
+                    SectionKind::ProbCodes,
+                    SectionKind::ProbBins,
+                    k,
+                    pbits,
+                    len,
+                )?,
                 ..Default::default()
             };
-            want(&o.probs, len * 4, "probabilities")?;
             if k > 1 {
-                o.words = find(SectionKind::Words, k)?;
-                want(&o.words, len * 4, "n-gram words")?;
+                let r = find(SectionKind::Words, k)?;
+                want(
+                    &r,
+                    Packed::bytes(len as usize, width) as u64,
+                    "n-gram words",
+                )?;
+                o.words = Packed {
+                    at: r,
+                    width,
+                    len: len as usize,
+                };
             }
             if k < n {
-                o.weights = find(SectionKind::Weights, k)?;
-                want(&o.weights, len * 4, "back-off weights")?;
-                o.children = find(SectionKind::Children, k)?;
-                want(&o.children, (len + 1) * 4, "children index")?;
+                o.weights = values(
+                    SectionKind::Weights,
+                    SectionKind::WeightCodes,
+                    SectionKind::WeightBins,
+                    k,
+                    meta.weight_bits,
+                    len,
+                )?;
+                let r = find(SectionKind::Children, k)?;
+                o.children = match EliasFano::open(b, r) {
+                    Some(ef) if ef.len as u64 == len + 1 => ef,
+                    _ => {
+                        return Err(bad(format!(
+                            "order {k}: the children index does not hold {} starts",
+                            len + 1
+                        )))
+                    }
+                };
                 if let Ok(r) = find(SectionKind::Skips, k) {
                     want(&r, len, "back-off skips")?;
                     o.skips = r;
@@ -324,17 +420,15 @@ impl Model {
         }
         for k in 1..=self.n {
             let o = &self.orders[k - 1];
-            let probs = &b[o.probs.clone()];
             for i in 0..o.len {
-                let q = f32_at(probs, i);
+                let q = o.probs.get(b, i);
                 if !(q.is_finite() && q >= 0.0 && (q <= 1.0 || !self.meta.probabilities)) {
                     return Err(bad(format!("order {k}: value {q} of n-gram {i}")));
                 }
             }
             if k < self.n {
-                let w = &b[o.weights.clone()];
                 for i in 0..o.len {
-                    let x = f32_at(w, i);
+                    let x = o.weights.get(b, i);
                     if !(x.is_finite() && x >= 0.0) {
                         return Err(bad(format!("order {k}: back-off weight {x} of n-gram {i}")));
                     }
@@ -345,12 +439,10 @@ impl Model {
                         return Err(bad(format!("order {k}: back-off skip {sk} of n-gram {i}")));
                     }
                 }
-                let c = &b[o.children.clone()];
                 let next = &self.orders[k];
-                let words = &b[next.words.clone()];
-                let mut prev = 0u32;
+                let mut prev = 0u64;
                 for i in 0..=o.len {
-                    let s = u32_at(c, i);
+                    let s = o.children.get(b, i);
                     if s < prev || (i == 0 && s != 0) || (i == o.len && s as usize != next.len) {
                         return Err(bad(format!(
                             "order {k}: the children index is broken at {i}"
@@ -358,9 +450,9 @@ impl Model {
                     }
                     if i > 0 {
                         for e in prev as usize..s as usize {
-                            let x = u32_at(words, e);
+                            let x = next.words.get(b, e);
                             if x as usize >= self.nw
-                                || (e > prev as usize && u32_at(words, e - 1) >= x)
+                                || (e > prev as usize && next.words.get(b, e - 1) >= x)
                             {
                                 return Err(bad(format!(
                                     "order {}: the words of the children of n-gram {} are not increasing",
@@ -437,13 +529,13 @@ impl Model {
     /// q of entry `e` of order `k`.
     #[inline]
     pub(crate) fn q(&self, k: usize, e: u32) -> f64 {
-        f32_at(&self.map[self.orders[k - 1].probs.clone()], e as usize) as f64
+        self.orders[k - 1].probs.get(&self.map, e as usize) as f64
     }
 
     /// β of entry `e` of order `k` (k < N).
     #[inline]
     pub(crate) fn beta(&self, k: usize, e: u32) -> f64 {
-        f32_at(&self.map[self.orders[k - 1].weights.clone()], e as usize) as f64
+        self.orders[k - 1].weights.get(&self.map, e as usize) as f64
     }
 
     /// How many words entry `e` of order `k` (k < N) drops when it backs
@@ -479,11 +571,14 @@ impl Model {
     /// of order k + 1, clamped to it.
     #[inline]
     pub(crate) fn children(&self, k: usize, e: u32) -> Range<usize> {
-        let c = &self.map[self.orders[k - 1].children.clone()];
+        let o = &self.orders[k - 1];
         let n = self.orders[k].len;
-        let lo = (u32_at(c, e as usize) as usize).min(n);
-        let hi = (u32_at(c, e as usize + 1) as usize).clamp(lo, n);
-        lo..hi
+        if e as usize >= o.len {
+            return n..n;
+        }
+        let (lo, hi) = o.children.pair(&self.map, e as usize);
+        let lo = (lo as usize).min(n);
+        lo..(hi as usize).clamp(lo, n)
     }
 
     /// The last word of entry `e` of order `k`.
@@ -492,7 +587,7 @@ impl Model {
         if k == 1 {
             e as u32
         } else {
-            u32_at(&self.map[self.orders[k - 1].words.clone()], e)
+            self.orders[k - 1].words.get(&self.map, e) as u32
         }
     }
 
@@ -501,24 +596,38 @@ impl Model {
     #[inline]
     pub(crate) fn child(&self, k: usize, e: u32, w: u32) -> Option<u32> {
         let r = self.children(k, e);
-        find_word(&self.map[self.orders[k].words.clone()], r.start, r.end, w).map(|i| i as u32)
+        let words = &self.orders[k].words;
+        find_by(|i| words.get(&self.map, i) as u32, r.start, r.end, w).map(|i| i as u32)
     }
 }
 
-/// The position of `w` among the increasing u32 words `words[lo..hi]`.
+/// The bins section that goes with a values section.
+fn bins_kind(kind: SectionKind) -> SectionKind {
+    match kind {
+        SectionKind::Probs => SectionKind::ProbBins,
+        _ => SectionKind::WeightBins,
+    }
+}
+
+/// The position of `w` among the increasing words `at(lo..hi)`.
 #[inline]
-pub(crate) fn find_word(words: &[u8], mut lo: usize, mut hi: usize, w: u32) -> Option<usize> {
+pub(crate) fn find_by(
+    at: impl Fn(usize) -> u32,
+    mut lo: usize,
+    mut hi: usize,
+    w: u32,
+) -> Option<usize> {
     // Word indices are ranks of hashes: spread evenly, so interpolation
     // finds a word in a long list in a few probes; bisection steps keep
     // the worst case logarithmic.
     while hi - lo > 16 {
-        let a = u32_at(words, lo);
-        let z = u32_at(words, hi - 1);
+        let a = at(lo);
+        let z = at(hi - 1);
         if w < a || w > z {
             return None;
         }
         let m = lo + ((w - a) as u64 * (hi - 1 - lo) as u64 / ((z - a) as u64).max(1)) as usize;
-        let x = u32_at(words, m);
+        let x = at(m);
         if x == w {
             return Some(m);
         }
@@ -529,7 +638,7 @@ pub(crate) fn find_word(words: &[u8], mut lo: usize, mut hi: usize, w: u32) -> O
         }
         if hi - lo > 16 {
             let mid = lo + (hi - lo) / 2;
-            let x = u32_at(words, mid);
+            let x = at(mid);
             if x == w {
                 return Some(mid);
             }
@@ -540,5 +649,12 @@ pub(crate) fn find_word(words: &[u8], mut lo: usize, mut hi: usize, w: u32) -> O
             }
         }
     }
-    (lo..hi).find(|&i| u32_at(words, i) == w)
+    (lo..hi).find(|&i| at(i) == w)
+}
+
+/// The position of `w` among the increasing u32 words `words[lo..hi]`
+/// (little-endian bytes).
+#[inline]
+pub(crate) fn find_word(words: &[u8], lo: usize, hi: usize, w: u32) -> Option<usize> {
+    find_by(|i| u32_at(words, i), lo, hi, w)
 }

@@ -25,6 +25,8 @@ use crate::error::{Error, Result};
 use crate::query::katz::EPS;
 
 use super::format::{ModelMeta, SectionKind};
+use super::packed::{ef_encode, width_for};
+use super::quantize::Codebook;
 use super::reader::Model;
 use super::writer::ModelWriter;
 
@@ -96,6 +98,62 @@ pub(crate) struct Reduced {
     /// back off to, while some mass is left for the others: they cannot
     /// be normalised (β = 0).
     pub unnormalised: u64,
+    /// With quantized back-off weights: a bound on |Σ_w P(w | h) − 1| over
+    /// the contexts, from rounding β to its bin: for a context of order k,
+    /// |β̂ − β|·(1 − Σ q(h_s·v)) plus β̂ times the bound of the orders below
+    /// (the distribution it backs off to is off by that much).
+    pub weight_error: f64,
+}
+
+/// One section of a reduced model, before it is coded.
+enum Payload {
+    Bytes(SectionKind, usize, Vec<u8>),
+    Words(usize, Vec<u32>),
+    Children(usize, Vec<u32>),
+    /// `Probs` or `Weights`, order, values, bits a value.
+    Values(SectionKind, usize, Vec<f32>, u32),
+}
+
+/// Writes values as f32 (32 bits) or as codes into their distinct values
+/// (at most 2^bits of them: they were fitted to that many bins).
+fn write_values(
+    w: &mut ModelWriter,
+    kind: SectionKind,
+    k: usize,
+    vals: &[f32],
+    bits: u32,
+) -> Result<()> {
+    if bits >= 32 {
+        let bytes: Vec<u8> = vals.iter().flat_map(|x| x.to_le_bytes()).collect();
+        return w.section(kind, k, &bytes);
+    }
+    let mut bins: Vec<f32> = vals.to_vec();
+    bins.sort_by(f32::total_cmp);
+    bins.dedup();
+    if bins.is_empty() {
+        bins.push(0.0);
+    }
+    if bins.len() > 1 << bits {
+        return Err(Error::Config(format!(
+            "order {k}: {} distinct values do not fit {bits}-bit codes",
+            bins.len()
+        )));
+    }
+    let (codes, bins_kind) = match kind {
+        SectionKind::Probs => (SectionKind::ProbCodes, SectionKind::ProbBins),
+        _ => (SectionKind::WeightCodes, SectionKind::WeightBins),
+    };
+    w.packed(
+        codes,
+        k,
+        bits,
+        vals.iter().map(|v| {
+            bins.binary_search_by(|b| b.total_cmp(v))
+                .expect("a value among the bins") as u64
+        }),
+    )?;
+    let bytes: Vec<u8> = bins.iter().flat_map(|x| x.to_le_bytes()).collect();
+    w.section(bins_kind, k, &bytes)
 }
 
 impl Reduction {
@@ -123,35 +181,38 @@ pub(crate) fn write_reduced(
     let b = &m.map[..];
     let probabilities = m.meta.probabilities;
     let any_values = r.values.iter().any(|v| v.is_some());
+    let weight_bits = r.meta.weight_bits;
     let mut unnormalised = 0u64;
+    let mut worst = 0.0f64;
     let mut ngrams = Vec::with_capacity(n);
-    // Per order: words, values, then (k < N) weights, children, skips.
-    let mut sections: Vec<(SectionKind, usize, Vec<u8>)> = Vec::new();
+    let mut sections: Vec<Payload> = Vec::new();
     for k in 1..=n {
         let len = m.orders[k - 1].len;
-        let mut words = Vec::new();
-        let mut probs = Vec::new();
-        let mut kept = 0u64;
+        let mut words: Vec<u32> = Vec::new();
+        let mut probs: Vec<f32> = Vec::new();
         for e in 0..len {
             if !r.kept(k, e) {
                 continue;
             }
-            kept += 1;
             if k > 1 {
-                words.extend_from_slice(&m.word_of(k, e).to_le_bytes());
+                words.push(m.word_of(k, e));
             }
-            probs.extend_from_slice(&(r.value(m, k, e as u32) as f32).to_le_bytes());
+            probs.push(r.value(m, k, e as u32) as f32);
         }
-        ngrams.push(kept);
+        ngrams.push(probs.len() as u64);
         if k > 1 {
-            sections.push((SectionKind::Words, k, words));
+            sections.push(Payload::Words(k, words));
         }
-        sections.push((SectionKind::Probs, k, probs));
+        let pbits = if k == 1 { 32 } else { r.meta.value_bits };
+        sections.push(Payload::Values(SectionKind::Probs, k, probs, pbits));
         if k == n {
             continue;
         }
-        let mut weights = Vec::new();
-        let mut children = Vec::new();
+        let mut weights: Vec<f64> = Vec::new();
+        // 1 − Σ q(h_s·v) of every context, where β was computed from it
+        // (NaN where it was not): what an error in β costs its sum.
+        let mut dens: Vec<f64> = Vec::new();
+        let mut children: Vec<u32> = Vec::new();
         let mut skips = Vec::new();
         let has_skips = !m.orders[k - 1].skips.is_empty();
         // Kept entries of order k + 1 before the current position.
@@ -167,13 +228,12 @@ pub(crate) fn write_reduced(
             if !r.kept(k, p) {
                 continue;
             }
-            children.extend_from_slice(&below.to_le_bytes());
+            children.push(below);
             let s = m.skip(k, p as u32);
             let dropped = kids.clone().any(|c| !r.kept(k + 1, c));
-            let beta = if !probabilities || !(dropped || any_values) {
-                m.beta(k, p as u32)
-            } else {
-                let (mut sum_q, mut sum_lower, mut any) = (0.0, 0.0, false);
+            let recompute = probabilities && (dropped || any_values);
+            let (mut sum_q, mut sum_lower, mut any) = (0.0, 0.0, false);
+            if recompute || weight_bits < 32 {
                 for c in kids.clone() {
                     if !r.kept(k + 1, c) {
                         continue;
@@ -183,21 +243,24 @@ pub(crate) fn write_reduced(
                     let (lk, le) = drop_words(links, k + 1, c as u32, s);
                     sum_lower += r.value(m, lk, le);
                 }
-                let (num, den) = (1.0 - sum_q, 1.0 - sum_lower);
-                if !any {
-                    1.0
-                } else if num <= 0.0 {
-                    0.0
-                } else if den <= EPS {
-                    if num > 1e-9 {
-                        unnormalised += 1;
-                    }
-                    0.0
-                } else {
-                    num / den
+            }
+            let (num, den) = (1.0 - sum_q, 1.0 - sum_lower);
+            let beta = if !recompute {
+                m.beta(k, p as u32)
+            } else if !any {
+                1.0
+            } else if num <= 0.0 {
+                0.0
+            } else if den <= EPS {
+                if num > 1e-9 {
+                    unnormalised += 1;
                 }
+                0.0
+            } else {
+                num / den
             };
-            weights.extend_from_slice(&(beta as f32).to_le_bytes());
+            weights.push(beta);
+            dens.push(if any { den.max(0.0) } else { 0.0 });
             if has_skips {
                 skips.push(s as u8);
             }
@@ -206,11 +269,37 @@ pub(crate) fn write_reduced(
             below += u32::from(r.kept(k + 1, pos));
             pos += 1;
         }
-        children.extend_from_slice(&below.to_le_bytes());
-        sections.push((SectionKind::Weights, k, weights));
-        sections.push((SectionKind::Children, k, children));
+        children.push(below);
+        let mut order_worst = worst;
+        let weights: Vec<f32> = if weight_bits < 32 {
+            let book = Codebook::spread(&weights, weight_bits);
+            weights
+                .iter()
+                .zip(&dens)
+                .map(|(&w, &den)| {
+                    let q = book.value(book.code(w));
+                    if probabilities {
+                        // Its own rounding, plus what the distribution it
+                        // backs off to may be off by, scaled by β.
+                        order_worst =
+                            order_worst.max((q as f64 - w).abs() * den + q as f64 * worst);
+                    }
+                    q
+                })
+                .collect()
+        } else {
+            weights.iter().map(|&w| w as f32).collect()
+        };
+        worst = order_worst;
+        sections.push(Payload::Values(
+            SectionKind::Weights,
+            k,
+            weights,
+            weight_bits,
+        ));
+        sections.push(Payload::Children(k, children));
         if has_skips {
-            sections.push((SectionKind::Skips, k, skips));
+            sections.push(Payload::Bytes(SectionKind::Skips, k, skips));
         }
     }
     r.meta.ngrams = ngrams.clone();
@@ -224,13 +313,29 @@ pub(crate) fn write_reduced(
     w.section(SectionKind::WordOffsets, 0, &b[m.offsets.clone()])?;
     w.section(SectionKind::WordText, 0, &b[m.text.clone()])?;
     w.section(SectionKind::Ranking, 0, &b[m.ranking.clone()])?;
-    for (kind, k, bytes) in &sections {
-        w.section(*kind, *k, bytes)?;
+    let width = width_for(m.nw as u64 - 1);
+    for p in &sections {
+        match p {
+            Payload::Bytes(kind, k, bytes) => w.section(*kind, *k, bytes)?,
+            Payload::Words(k, words) => w.packed(
+                SectionKind::Words,
+                *k,
+                width,
+                words.iter().map(|&x| x as u64),
+            )?,
+            Payload::Children(k, starts) => w.section(
+                SectionKind::Children,
+                *k,
+                &ef_encode(starts.iter().map(|&x| x as u64)),
+            )?,
+            Payload::Values(kind, k, vals, bits) => write_values(&mut w, *kind, *k, vals, *bits)?,
+        }
     }
     let file_bytes = w.finish()?;
     Ok(Reduced {
         ngrams,
         file_bytes,
         unnormalised,
+        weight_error: worst,
     })
 }

@@ -12,6 +12,7 @@ use xxhash_rust::xxh3::Xxh3;
 use crate::error::{Error, IoContext, Result};
 
 use super::format::{Entry, SectionKind, ALIGN, END_MAGIC, MAGIC, MODEL_VERSION};
+use super::packed::BitPacker;
 
 /// Writes one model file.
 pub struct ModelWriter {
@@ -68,26 +69,71 @@ impl ModelWriter {
         r: &mut impl Read,
         what: &Path,
     ) -> Result<()> {
-        self.pad()?;
-        let offset = self.pos;
-        let mut h = Xxh3::new();
+        let mut s = self.begin(kind, order)?;
         let mut buf = vec![0u8; 1 << 20];
         loop {
             let n = r.read(&mut buf).at(what, "read")?;
             if n == 0 {
                 break;
             }
-            h.update(&buf[..n]);
-            self.raw(&buf[..n])?;
+            self.put(&mut s, &buf[..n])?;
         }
-        self.entries.push(Entry {
-            kind: kind as u32,
-            order: order as u32,
-            offset,
-            len: self.pos - offset,
-            hash: h.digest(),
-        });
+        self.end(s);
         Ok(())
+    }
+
+    /// Adds a section of `width`-bit values packed into u64 words (see
+    /// [`super::packed`]).
+    pub fn packed(
+        &mut self,
+        kind: SectionKind,
+        order: usize,
+        width: u32,
+        values: impl Iterator<Item = u64>,
+    ) -> Result<()> {
+        let mut s = self.begin(kind, order)?;
+        let mut p = BitPacker::new(width);
+        let mut buf: Vec<u8> = Vec::with_capacity(1 << 16);
+        let mut out = |w: u64| -> Result<()> {
+            buf.extend_from_slice(&w.to_le_bytes());
+            if buf.len() >= 1 << 16 {
+                self.put(&mut s, &buf)?;
+                buf.clear();
+            }
+            Ok(())
+        };
+        for x in values {
+            p.push(x, &mut out)?;
+        }
+        p.finish(&mut out)?;
+        self.put(&mut s, &buf)?;
+        self.end(s);
+        Ok(())
+    }
+
+    fn begin(&mut self, kind: SectionKind, order: usize) -> Result<Open> {
+        self.pad()?;
+        Ok(Open {
+            kind,
+            order,
+            offset: self.pos,
+            hash: Xxh3::new(),
+        })
+    }
+
+    fn put(&mut self, s: &mut Open, b: &[u8]) -> Result<()> {
+        s.hash.update(b);
+        self.raw(b)
+    }
+
+    fn end(&mut self, s: Open) {
+        self.entries.push(Entry {
+            kind: s.kind as u32,
+            order: s.order as u32,
+            offset: s.offset,
+            len: self.pos - s.offset,
+            hash: s.hash.digest(),
+        });
     }
 
     /// Writes the directory and the trailer, syncs and renames the file
@@ -116,6 +162,14 @@ impl ModelWriter {
         std::fs::rename(&self.tmp, &self.path).at(&self.path, "rename into place")?;
         Ok(size)
     }
+}
+
+/// A section being written.
+struct Open {
+    kind: SectionKind,
+    order: usize,
+    offset: u64,
+    hash: Xxh3,
 }
 
 /// Little-endian arrays written to a temporary file one value at a time.

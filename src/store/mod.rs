@@ -345,9 +345,21 @@ impl Store {
             None
         };
         let pb = pb.unwrap_or_default();
+        // A scan of a whole order (freezing, exporting) reads every block
+        // once: it reads ahead and keeps its blocks out of the cache, which
+        // stays for the lookups.
+        let whole = prefix.is_empty() && after.is_none();
         let it = cf.map(|cf| {
-            self.db
-                .iterator_cf(cf, IteratorMode::From(&start, rocksdb::Direction::Forward))
+            let mut ro = rocksdb::ReadOptions::default();
+            if whole {
+                ro.fill_cache(false);
+                ro.set_readahead_size(4 << 20);
+            }
+            self.db.iterator_cf_opt(
+                cf,
+                ro,
+                IteratorMode::From(&start, rocksdb::Direction::Forward),
+            )
         });
         Ok(it
             .into_iter()

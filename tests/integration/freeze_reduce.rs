@@ -270,3 +270,74 @@ fn quantized_models_stay_normalised() {
         );
     }
 }
+
+/// Distinct back-off weights (the third column) of every order below N in
+/// ARPA text.
+fn distinct_weights(arpa: &Path) -> Vec<usize> {
+    let text = std::fs::read_to_string(arpa).unwrap();
+    let mut out: Vec<HashSet<String>> = Vec::new();
+    for line in text.lines() {
+        if line.starts_with('\\') && line.ends_with("-grams:") {
+            out.push(HashSet::new());
+        } else if let (Some(set), Some(w)) = (out.last_mut(), line.split('\t').nth(2)) {
+            set.insert(w.to_string());
+        }
+    }
+    out.iter().map(|s| s.len()).collect()
+}
+
+/// `--weight-bits`: at most 2^W back-off weights per order, and every
+/// context sums to 1 within the error the freeze reports, which is not 0
+/// (so the check is not vacuous) but small; the file is smaller than with
+/// 32-bit weights.
+#[test]
+fn quantized_weights_stay_within_their_reported_error() {
+    let store = Store::open(train3()).unwrap();
+    let dir = scratch("weight-bits");
+    let (_, full) = frozen(&store, Method::Mkn, &FreezeOptions::default(), &dir, "full");
+    let full_weights = distinct_weights(&dir.join("full.arpa"));
+    let q8 = FreezeOptions {
+        bits: Some(8),
+        ..Default::default()
+    };
+    let (rep32, _) = frozen(&store, Method::Mkn, &q8, &dir, "b8");
+    assert_eq!((rep32.weight_bits, rep32.weight_error), (32, 0.0));
+    let opts = FreezeOptions {
+        bits: Some(8),
+        weight_bits: Some(8),
+        ..Default::default()
+    };
+    let (rep, model) = frozen(&store, Method::Mkn, &opts, &dir, "b8w8");
+    assert_eq!((rep.weight_bits, model.meta().weight_bits), (8, 8));
+    let weights = distinct_weights(&dir.join("b8w8.arpa"));
+    for k in 0..2 {
+        assert!(full_weights[k] > 256, "order {}: {full_weights:?}", k + 1);
+        assert!(weights[k] <= 256, "order {}: {weights:?}", k + 1);
+    }
+    let err = rep.weight_error;
+    // 256 bins spread over ln β and over β: the rounding moves a context's
+    // sum by well under 2 % (our expectation from the bins' spacing).
+    assert!(err > 0.0 && err < 0.02, "reported error {err}");
+    let mut worst: f64 = 0.0;
+    for h in sample_contexts(model.order(), 40) {
+        let sum: f64 = model.distribution(&h).unwrap().iter().map(|x| x.1).sum();
+        worst = worst.max((sum - 1.0).abs());
+        assert!(
+            (sum - 1.0).abs() <= err + 1e-6,
+            "sums to {sum} after {h:x?}, beyond the reported {err}"
+        );
+    }
+    assert!(worst > 1e-7, "the sampled sums show the rounding: {worst}");
+    assert!(
+        rep.file_bytes < rep32.file_bytes,
+        "{} bytes with 8-bit weights, {} with 32-bit",
+        rep.file_bytes,
+        rep32.file_bytes
+    );
+    let (p_full, p) = (perplexity(&full), perplexity(&model));
+    assert!(p <= p_full * 1.02, "perplexity {p} against {p_full}");
+    eprintln!(
+        "8-bit q and β: {} bytes (32-bit β: {}), largest |sum − 1| {err:.2e} (sampled {worst:.2e}), perplexity {p:.3} (unquantized {p_full:.3})",
+        rep.file_bytes, rep32.file_bytes
+    );
+}

@@ -91,6 +91,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         relative_entropy: a.relative_entropy,
         max_ngrams: a.max_ngrams,
         bits: a.bits,
+        weight_bits: a.weight_bits,
     };
     if opts.min_counts.len() > store.order() {
         anyhow::bail!(
@@ -152,6 +153,8 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             "model_bytes": file_bytes,
             "bytes_per_ngram": file_bytes.map(|b| b as f64 / kept.max(1) as f64),
             "value_bits": report.value_bits,
+            "weight_bits": report.weight_bits,
+            "weight_error": report.weight_error,
             "relative_entropy": report.threshold,
             "ngrams_before_pruning": report.ngrams_unpruned,
             "arpa": a.arpa.as_ref().map(|p| p.display().to_string()),
@@ -209,13 +212,11 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         )?;
     }
     if let Some(b) = file_bytes {
-        let values = if report.value_bits == 32 {
-            "32-bit values".to_string()
-        } else {
-            format!(
-                "probabilities quantized to {} bits, stored as 32-bit bin values by this format version",
-                report.value_bits
-            )
+        let values = match (report.value_bits, report.weight_bits) {
+            (32, 32) => "32-bit values".to_string(),
+            (q, 32) => format!("probabilities in {q}-bit codes, back-off weights 32-bit"),
+            (32, w) => format!("probabilities 32-bit, back-off weights in {w}-bit codes"),
+            (q, w) => format!("probabilities in {q}-bit and back-off weights in {w}-bit codes"),
         };
         writeln!(
             o,
