@@ -731,7 +731,11 @@ fn reduce_model(
             "q of orders 2..{} quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln q; Whittaker & Raj 2001), the back-off weights recomputed after; the unigrams are 32-bit{}",
             m.order(),
             if moved > 0 {
-                format!("; {moved} quantized values were moved one bin down so that their context's children stay within 1")
+                format!(
+                    "; {moved} quantized {} moved one bin down so that {} context's children stay within 1",
+                    if moved == 1 { "value was" } else { "values were" },
+                    if moved == 1 { "its" } else { "their" }
+                )
             } else {
                 String::new()
             }
@@ -741,7 +745,7 @@ fn reduce_model(
     if let Some(b) = opts.weight_bits {
         meta.weight_bits = b;
         meta.notes.push(format!(
-            "back-off weights quantized to {b} bits (2^{b} values per order fitted by Lloyd's algorithm to ln β): a context sums to 1 only within the rounding of its β"
+            "back-off weights quantized to {b} bits (2^{b} values per order spread over the range of β, half at even steps of ln β and half at even steps of β): a context sums to 1 only within the rounding of its β"
         ));
     }
     let mut r = Reduction { keep, values, meta };

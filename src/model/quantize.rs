@@ -40,17 +40,12 @@ impl Codebook {
             d
         };
         if centers.len() > slots {
-            // Equal-count bins over the distinct values to start (over all
-            // values, a value repeated many times, such as the weight of
-            // every context seen once, would take many bins that collapse
-            // into one and leave the rest of the range coarse), then
-            // Lloyd's iterations over all values: each centre the mean of
-            // the values nearest to it.
-            let d = centers;
+            // Equal-count bins to start, then Lloyd's iterations: each
+            // centre the mean of the values nearest to it.
             centers = (0..slots)
                 .map(|i| {
-                    let (a, z) = (i * d.len() / slots, (i + 1) * d.len() / slots);
-                    d[a..z.max(a + 1)].iter().sum::<f64>() / (z.max(a + 1) - a) as f64
+                    let (a, z) = (i * x.len() / slots, (i + 1) * x.len() / slots);
+                    x[a..z.max(a + 1)].iter().sum::<f64>() / (z.max(a + 1) - a) as f64
                 })
                 .collect();
             centers.dedup();
