@@ -57,6 +57,10 @@ def parse_args(argv):
     p.add_argument("--store", required=True, help="store directory to build (on the shared storage)")
     p.add_argument("--order", type=int, default=5, help="highest n-gram order N (default 5)")
     p.add_argument("--lowercase", action="store_true", help="lowercase every token (default: off)")
+    p.add_argument("--word-list", default=None, metavar="FILE",
+                   help="a fixed vocabulary, one word a line, on the shared storage (the plan task "
+                        "reads it and keeps a copy in --dir); every other token counts as <unk> "
+                        "(default: every token counts)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one reduce and one join task each (default 64)")
@@ -227,6 +231,8 @@ def main(argv):
                  "--partitions", a.partitions, "--map-tasks", map_tasks]
     if a.lowercase:
         plan_args.append("--lowercase")
+    if a.word_list:
+        plan_args += ["--word-list", os.path.abspath(a.word_list)]
     plan_args += [os.path.abspath(i) for i in a.inputs]
     plan = run_stage("plan", [0], lambda t: plan_args)[0]["reports"][0]
     log.info(f"plan {plan['job']}: {plan['inputs']} input file(s), {plan['input_bytes']} bytes, "

@@ -32,6 +32,8 @@
 //!   threads, one result each in input order, with the distribution of
 //!   their perplexities and a split into kept and dropped ones (filtering
 //!   a crawl).
+//! * [`wordlist`] reads a fixed vocabulary (`--word-list`) and the copy a
+//!   store or a staged plan keeps of it.
 //! * [`growth`] records where each word is first seen while counting, and
 //!   turns that into the vocabulary growth curve kept in the store.
 //! * [`ingest`] drives the stages and records each durable step in a
@@ -97,6 +99,7 @@ pub mod stats;
 pub mod store;
 pub mod tokenize;
 pub mod varint;
+pub mod wordlist;
 pub mod words;
 
 pub use error::{Error, Result};

@@ -102,6 +102,12 @@ pub struct StagePlanArgs {
     /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
+    /// A fixed vocabulary, as for `quern ingest --word-list`: FILE holds
+    /// one word a line, and every other token is counted as `<unk>`. The
+    /// plan keeps a copy in DIR for the tasks, and the store keeps it.
+    /// Default: every token counts.
+    #[arg(long, value_name = "FILE")]
+    pub word_list: Option<PathBuf>,
     /// Skip (and report) lines longer than this many bytes.
     #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,

@@ -21,7 +21,6 @@ mod space;
 mod start;
 mod status;
 mod verify;
-pub mod wordlist;
 
 pub use manifest::{Manifest, Phase};
 pub use options::{IngestOptions, IngestSummary, Progress, Silent};
@@ -38,6 +37,7 @@ use crate::layout::{self, WorkDirs};
 use crate::memory::{peak_rss, Plan};
 use crate::records::Settings;
 use crate::store::Store;
+use crate::wordlist;
 use manifest::Mode;
 use phases::Run;
 use std::path::Path;
@@ -147,7 +147,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         }
     };
     if let Some(l) = &list {
-        fsutil::write_atomic(&layout::word_list(&opts.store), l.text.as_bytes())?;
+        l.keep(&opts.store)?;
     }
     let mut run = Run {
         dirs: &dirs,

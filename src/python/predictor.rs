@@ -10,53 +10,11 @@ use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList, PyString};
 
 use super::convert::{error, json_to_py, words_text, QuernError};
-use crate::docs::{self, BoxedModel, DocResult, Models, Outcome, Shared};
+use crate::docs::{self, BoxedModel, DocResult, MakeModel, Models, Outcome, Shared};
 use crate::model::Model;
-use crate::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
+use crate::query::{query_ids, Estimator, Method, Params, Predictor, Prob};
 use crate::store::Store;
 use crate::words::WordId;
-
-/// The parameters of `method`: the file `tuned` (if given), then the
-/// values given on top, as the command line's parameter flags do.
-pub fn params(
-    method: Method,
-    tuned: Option<PathBuf>,
-    k: Option<f64>,
-    alpha: Option<f64>,
-    lambdas: Option<Vec<f64>>,
-    katz_k: Option<usize>,
-    discounts: Option<&str>,
-) -> PyResult<Params> {
-    let mut p = Params::default();
-    if let Some(f) = &tuned {
-        let pf = ParamsFile::load(f).map_err(error)?;
-        if pf.method != method {
-            return Err(PyValueError::new_err(format!(
-                "{}: the parameters were fitted for {}, not {method}",
-                f.display(),
-                pf.method
-            )));
-        }
-        p = pf.params;
-    }
-    if let Some(k) = k {
-        p.k = k;
-    }
-    if let Some(a) = alpha {
-        p.alpha = a;
-    }
-    if let Some(l) = lambdas {
-        p.lambdas = Some(l);
-        p.bucket_lambdas = None;
-    }
-    if let Some(k) = katz_k {
-        p.katz_k = k;
-    }
-    if let Some(d) = discounts {
-        p.discounts = d.parse().map_err(error)?;
-    }
-    Ok(p)
-}
 
 /// An estimator with the store it borrows.
 struct Owned {
@@ -112,15 +70,7 @@ impl PyEstimator {
             let make = || -> crate::Result<BoxedModel<'_>> {
                 Ok(Box::new(Estimator::new(&store, method, params.clone())?))
             };
-            docs::score_texts(
-                texts,
-                threads,
-                false,
-                &Models {
-                    main: &make,
-                    general: None,
-                },
-            )
+            score_with(texts, threads, &make)
         })
         .map_err(error)
     }
@@ -149,18 +99,24 @@ impl PyModel {
         let model = self.model.clone();
         py.detach(move || {
             let make = || -> crate::Result<BoxedModel<'_>> { Ok(Box::new(Shared(&*model))) };
-            docs::score_texts(
-                texts,
-                threads,
-                false,
-                &Models {
-                    main: &make,
-                    general: None,
-                },
-            )
+            score_with(texts, threads, &make)
         })
         .map_err(error)
     }
+}
+
+/// `score_many`'s work (the GIL already released): `texts` scored on
+/// `threads` workers, each with its own model made by `make`.
+fn score_with<'a>(
+    texts: Vec<String>,
+    threads: usize,
+    make: &'a MakeModel<'a>,
+) -> crate::Result<Vec<DocResult>> {
+    let models = Models {
+        main: make,
+        general: None,
+    };
+    docs::score_texts(texts, threads, false, &models)
 }
 
 /// The ids of a context.

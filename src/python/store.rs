@@ -8,11 +8,10 @@ use pyo3::prelude::*;
 use pyo3::types::PyDict;
 
 use super::convert::{error, to_py, words_text};
-use super::predictor::{params, PyEstimator};
-use crate::query::{prefix_page, query_ids, Method};
+use super::predictor::PyEstimator;
+use crate::query::{cursor, parse_cursor, prefix_page, query_ids, Method, Params, ParamsFile};
 use crate::stats::{report, ReportOptions};
 use crate::store::Store;
-use crate::words::WordId;
 
 /// A finished store, opened read-only: `Store(path, memory="256MiB")`.
 ///
@@ -22,22 +21,6 @@ use crate::words::WordId;
 #[pyclass(name = "Store", module = "quern", frozen)]
 pub struct PyStore {
     pub(super) store: Arc<Store>,
-}
-
-/// A cursor of `ngrams`: the ids of the last n-gram of a page, 16 hex
-/// digits each (the command line's `--after`).
-fn cursor(ids: &[WordId]) -> String {
-    ids.iter().map(|i| format!("{i:016x}")).collect()
-}
-
-fn parse_cursor(s: &str) -> PyResult<Vec<WordId>> {
-    let bad = || PyValueError::new_err(format!("after={s:?}: not a cursor returned by ngrams"));
-    if s.is_empty() || !s.len().is_multiple_of(16) || !s.is_ascii() {
-        return Err(bad());
-    }
-    (0..s.len() / 16)
-        .map(|i| u64::from_str_radix(&s[i * 16..i * 16 + 16], 16).map_err(|_| bad()))
-        .collect()
 }
 
 #[pymethods]
@@ -146,7 +129,12 @@ impl PyStore {
         };
         let prefix = query_ids(&text, self.store.meta().settings.lowercase);
         let order = order.unwrap_or(prefix.len() + 1);
-        let after = after.map(parse_cursor).transpose()?;
+        let after = match after {
+            None => None,
+            Some(s) => Some(parse_cursor(s).ok_or_else(|| {
+                PyValueError::new_err(format!("after={s:?}: not a cursor returned by ngrams"))
+            })?),
+        };
         if limit == 0 {
             return Err(PyValueError::new_err("limit must be at least 1"));
         }
@@ -204,7 +192,36 @@ impl PyStore {
         discounts: Option<&str>,
     ) -> PyResult<PyEstimator> {
         let m: Method = method.parse().map_err(error)?;
-        let p = params(m, tuned, k, alpha, lambdas, katz_k, discounts)?;
+        // The file `tuned` (if given), then the values given on top, as the
+        // command line's parameter flags do.
+        let mut p = Params::default();
+        if let Some(f) = &tuned {
+            let pf = ParamsFile::load(f).map_err(error)?;
+            if pf.method != m {
+                return Err(PyValueError::new_err(format!(
+                    "{}: the parameters were fitted for {}, not {m}",
+                    f.display(),
+                    pf.method
+                )));
+            }
+            p = pf.params;
+        }
+        if let Some(k) = k {
+            p.k = k;
+        }
+        if let Some(a) = alpha {
+            p.alpha = a;
+        }
+        if let Some(l) = lambdas {
+            p.lambdas = Some(l);
+            p.bucket_lambdas = None;
+        }
+        if let Some(k) = katz_k {
+            p.katz_k = k;
+        }
+        if let Some(d) = discounts {
+            p.discounts = d.parse().map_err(error)?;
+        }
         PyEstimator::new(self.store.clone(), m, p)
     }
 

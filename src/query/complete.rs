@@ -119,11 +119,8 @@ impl Estimator<'_> {
                 .get(&w)
                 .is_some_and(|&p| (p as usize) >= lo && (p as usize) < hi),
         };
-        let ctx = self.map_context_ids(context)?;
-        let cl = self.context_levels(&ctx)?;
-        let l = ctx.len();
-        let child_of =
-            |from: usize, w: &WordId| cl.maps[from..].iter().flatten().any(|m| m.contains(*w));
+        let cl = self.raw_context_levels(context)?;
+        let l = cl.ctx.len();
         let mut buf = Vec::new();
         let mut scored: Vec<(f64, WordId)> = Vec::new();
         let best = |a: &(f64, WordId), b: &(f64, WordId)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
@@ -138,7 +135,7 @@ impl Estimator<'_> {
             for j in (lowest..=l).rev() {
                 let Some(m) = &cl.maps[j] else { continue };
                 for &(w, at, uni) in &m.list {
-                    if !ok(w) || (j < l && child_of(j + 1, &w)) {
+                    if !ok(w) || (j < l && cl.child_from(j + 1, w)) {
                         continue;
                     }
                     scored.push((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w));
@@ -147,7 +144,7 @@ impl Estimator<'_> {
         }
         let mut n_scored = scored.len();
         if k > 0 && lowest == 2 && l >= 1 && cl.maps[1].is_some() {
-            if let Some(m) = self.ranked_children(ctx[l - 1])? {
+            if let Some(m) = self.ranked_children(cl.ctx[l - 1])? {
                 let mut level = Vec::new();
                 match filter {
                     Filter::Range { ix, lo, hi } if (hi - lo) * 8 < m.list.len() => {
@@ -155,7 +152,7 @@ impl Estimator<'_> {
                             let Ok(i) = m.list.binary_search_by_key(&w, |e| e.0) else {
                                 continue;
                             };
-                            if child_of(2, &w) {
+                            if cl.child_from(2, w) {
                                 continue;
                             }
                             let (_, at, uni) = m.list[i];
@@ -169,7 +166,7 @@ impl Estimator<'_> {
                             if level.len() == k {
                                 break;
                             }
-                            if !ok(w) || child_of(2, &w) {
+                            if !ok(w) || cl.child_from(2, w) {
                                 continue;
                             }
                             level.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w));
@@ -184,7 +181,7 @@ impl Estimator<'_> {
             let ranking = self.unigram_ranking()?;
             let mut taken = 0;
             let mut take = |w: WordId| -> Result<bool> {
-                if child_of(1, &w) {
+                if cl.child_from(1, w) {
                     return Ok(false);
                 }
                 scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
@@ -233,7 +230,7 @@ impl Estimator<'_> {
         scored.sort_unstable_by(best);
         let sum: f64 = scored.iter().map(|x| x.0).sum();
         Ok(Next {
-            context: ctx,
+            context: cl.ctx,
             items: scored.into_iter().map(|(p, w)| (w, p)).collect(),
             rest: 1.0 - sum,
             scored: n_scored,

@@ -58,7 +58,7 @@ pub use estimator::Estimator;
 pub use json::{jnum, ProbJson, WordJson};
 pub use method::Method;
 pub use next::Next;
-pub use ngrams::{prefix_page, Page};
+pub use ngrams::{cursor, parse_cursor, prefix_page, Page};
 pub use params::{DiscountPolicy, Params, ParamsFile};
 pub use predictor::Predictor;
 pub(crate) use probability::Level;

@@ -68,11 +68,8 @@ impl Estimator<'_> {
     /// - the first `k` words of the unigram ranking that are children of no
     ///   suffix.
     pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
-        let ctx = self.map_context_ids(context)?;
-        let cl = self.context_levels(&ctx)?;
-        let l = ctx.len();
-        let child_of =
-            |from: usize, w: &WordId| cl.maps[from..].iter().flatten().any(|m| m.contains(*w));
+        let cl = self.raw_context_levels(context)?;
+        let l = cl.ctx.len();
         let mut buf = Vec::new();
         let mut scored: Vec<(f64, WordId)> = Vec::new();
         // Katz backs off past a level whose denominator vanishes, so there
@@ -82,20 +79,20 @@ impl Estimator<'_> {
         for j in (lowest..=l).rev() {
             let Some(m) = &cl.maps[j] else { continue };
             for &(w, at, uni) in &m.list {
-                if j < l && child_of(j + 1, &w) {
+                if j < l && cl.child_from(j + 1, w) {
                     continue;
                 }
                 scored.push((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w));
             }
         }
         if lowest == 2 && l >= 1 && cl.maps[1].is_some() {
-            if let Some(m) = self.ranked_children(ctx[l - 1])? {
+            if let Some(m) = self.ranked_children(cl.ctx[l - 1])? {
                 let mut taken = 0;
                 for &(w, at, uni) in m.ranked.get().expect("ranked by ranked_children") {
                     if taken == k {
                         break;
                     }
-                    if child_of(2, &w) {
+                    if cl.child_from(2, w) {
                         continue;
                     }
                     scored.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w));
@@ -108,7 +105,7 @@ impl Estimator<'_> {
             if taken == k {
                 break;
             }
-            if child_of(1, &w) {
+            if cl.child_from(1, w) {
                 continue;
             }
             scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
@@ -123,7 +120,7 @@ impl Estimator<'_> {
         scored.sort_unstable_by(best);
         let sum: f64 = scored.iter().map(|x| x.0).sum();
         Ok(Next {
-            context: ctx,
+            context: cl.ctx,
             items: scored.into_iter().map(|(p, w)| (w, p)).collect(),
             rest: 1.0 - sum,
             scored: n_scored,

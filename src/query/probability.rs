@@ -193,6 +193,12 @@ impl Estimator<'_> {
         })
     }
 
+    /// [`Self::context_levels`] of a raw context (cut to N − 1, unknown
+    /// words as `<unk>` by [`Self::map_context_ids`]).
+    pub(crate) fn raw_context_levels(&self, context: &[WordId]) -> Result<ContextLevels> {
+        self.context_levels(&self.map_context_ids(context)?)
+    }
+
     /// The probability of `w` (in V) after the context of `cl`, from the
     /// children lists (no point reads).
     pub(crate) fn eval_mapped(
@@ -258,8 +264,7 @@ impl Estimator<'_> {
     /// The whole distribution P(· | context) over V, in id order (|V|
     /// evaluations from the children lists of the context's suffixes).
     pub fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
-        let ctx = self.map_context_ids(context)?;
-        let cl = self.context_levels(&ctx)?;
+        let cl = self.raw_context_levels(context)?;
         let vocab = &self.unigrams()?.vocab;
         let mut full = Vec::new();
         let mut out = Vec::with_capacity(vocab.len());
@@ -275,4 +280,12 @@ pub(crate) struct ContextLevels {
     pub(crate) ctx: Vec<WordId>,
     pub(crate) infos: Vec<CtxInfo>,
     pub(crate) maps: Vec<Option<ChildMap>>,
+}
+
+impl ContextLevels {
+    /// Whether `w` is a child of the suffix of `from` words or of a longer
+    /// one (the levels `from..`).
+    pub(crate) fn child_from(&self, from: usize, w: WordId) -> bool {
+        self.maps[from..].iter().flatten().any(|m| m.contains(w))
+    }
 }

@@ -13,7 +13,9 @@ use serde_json::{json, Value};
 use super::pool::{Local, Source};
 use crate::docs::{Format, Options, RawLine, Record, Worker};
 use crate::error::Error;
-use crate::query::{jnum, prefix_page, query_ids, Method, Predictor, ProbJson, WordJson};
+use crate::query::{
+    cursor, jnum, parse_cursor, prefix_page, query_ids, Method, Predictor, ProbJson, WordJson,
+};
 use crate::words::WordId;
 
 /// Most words `/next` lists.
@@ -100,6 +102,7 @@ struct NgramsAnswer {
     order: usize,
     ngrams: Vec<NgramAnswer>,
     more: bool,
+    next: Option<String>,
 }
 
 /// `POST /prob`.
@@ -162,6 +165,10 @@ pub struct NgramsRequest {
     /// How many (default 20, at most [`MAX_NGRAMS`]).
     #[serde(default = "twenty")]
     pub limit: usize,
+    /// The cursor of the page before (its answer's `next`, as `quern
+    /// ngrams --after` takes it): this page starts after that n-gram.
+    #[serde(default)]
+    pub after: Option<String>,
 }
 
 fn twenty() -> usize {
@@ -302,9 +309,19 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
             q.limit
         )));
     }
+    let after = match q.after.as_deref().map(parse_cursor) {
+        None => None,
+        Some(Some(ids)) => Some(ids),
+        Some(None) => {
+            return Err(Fail::bad(format!(
+                "after: {:?} is not a cursor (the `next` of an answer of /ngrams)",
+                q.after.unwrap_or_default()
+            )))
+        }
+    };
     let prefix = query_ids(&q.words, store.meta().settings.lowercase);
     let order = q.order.unwrap_or(prefix.len() + 1);
-    let page = prefix_page(store, &prefix, order, q.limit, None)?;
+    let page = prefix_page(store, &prefix, order, q.limit, after.as_deref())?;
     let mut list = Vec::with_capacity(page.items.len());
     for (k, c, cont) in &page.items {
         let mut ws = Vec::new();
@@ -321,6 +338,7 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
         order,
         ngrams: list,
         more: page.next.is_some(),
+        next: page.next.map(|k| cursor(k.ids())),
     })
 }
 

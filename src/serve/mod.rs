@@ -10,7 +10,7 @@
 //! | `POST /prob` `{"context", "word", "method"?}` | the fields of `quern prob --json` |
 //! | `POST /next` `{"context", "prefix"?, "top"?, "method"?}` | `{"context", "prefix", "method", "words": [{"word", "probability", "log10"}…], "rest", "words_scored"}` |
 //! | `POST /score` `{"texts": […], "method"?}` | `{"method", "results": […]}`, one scored-document record per text |
-//! | `POST /ngrams` `{"words", "order"?, "limit"?}` | a store's n-grams that begin with the words, with counts |
+//! | `POST /ngrams` `{"words", "order"?, "limit"?, "after"?}` | `{"order", "ngrams": [{"words", "count", "continuation"}…], "more", "next"}`: a store's n-grams that begin with the words, with counts, a page at a time (`next` is the cursor to pass as `after`, as `quern ngrams --after` takes it) |
 //! | `GET /stats.svg` | a store's statistics figure (as `quern stats --plot`) |
 //! | `GET /` | the page |
 //!

@@ -81,6 +81,10 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
     let work = store_dir.join(format!(".assemble.{u}.tmp"));
     let db_new = store_dir.join(format!(".db.{u}.tmp"));
     let r = (|| {
+        // The store keeps the plan's word list, as the ingest's does.
+        if let Some(l) = job.word_list(dir)? {
+            l.keep(store_dir)?;
+        }
         let ssts: Vec<(String, PathBuf)> = joined
             .iter()
             .flat_map(|(j, d)| d.ssts.iter().map(|(cf, f)| (cf.clone(), j.join(f))))

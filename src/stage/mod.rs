@@ -9,6 +9,7 @@
 //!
 //! ```text
 //! DIR/job.json            the plan: settings, partitions, inputs, map tasks
+//! DIR/word-list.txt       the fixed vocabulary, if the plan was given one
 //! DIR/map/m000007/        map task 7: count runs + dictionaries + done.json
 //! DIR/reduce/p0003/       partition 3 merged: counts + continuation runs + done.json
 //! DIR/join/p0003/         partition 3 joined: SST files + statistics in done.json

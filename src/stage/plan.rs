@@ -1,6 +1,7 @@
 //! The plan of a staged ingest: the inputs listed, cut into line-aligned
 //! chunks and packed into map tasks of about equal bytes, written once to
-//! `DIR/job.json`.
+//! `DIR/job.json` (with the word list, if any, beside it in
+//! `DIR/word-list.txt`).
 
 use std::path::PathBuf;
 
@@ -13,6 +14,7 @@ use crate::error::{Error, Result};
 use crate::fsutil;
 use crate::key::MAX_ORDER;
 use crate::records::Settings;
+use crate::wordlist::{self, WordList};
 use std::path::Path;
 
 /// The plan of a staged ingest, written once to `DIR/job.json`.
@@ -53,6 +55,17 @@ impl Job {
         format!("{:016x}", xxhash_rust::xxh3::xxh3_64(&body))
     }
 
+    /// The fixed word list of the plan in `dir` (kept in
+    /// `DIR/word-list.txt` and checked against the settings), or `None`
+    /// when every token counts.
+    pub fn word_list(&self, dir: &Path) -> Result<Option<WordList>> {
+        self.settings
+            .word_list
+            .as_ref()
+            .map(|info| wordlist::load_kept(dir, info))
+            .transpose()
+    }
+
     /// Input bytes of map task `t` (a span to the end counts the whole file).
     pub fn task_bytes(&self, t: usize) -> u64 {
         self.map_tasks[t]
@@ -75,8 +88,12 @@ pub struct PlanOptions {
     pub dir: PathBuf,
     /// Files or directories (walked recursively, sorted).
     pub inputs: Vec<PathBuf>,
-    /// Counting settings.
+    /// Counting settings (their `word_list` is set from [`Self::word_list`]).
     pub settings: Settings,
+    /// A fixed vocabulary, as `quern ingest --word-list` takes it: every
+    /// token outside it is counted as `<unk>`. The plan keeps a copy, so
+    /// the tasks need not see this file.
+    pub word_list: Option<PathBuf>,
     /// Number of partitions.
     pub partitions: u32,
     /// Number of map tasks wanted (fewer when there are fewer chunks).
@@ -101,6 +118,14 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     if o.inputs.is_empty() {
         return Err(Error::Config("no inputs given".into()));
     }
+    let list = match &o.word_list {
+        Some(p) => Some(wordlist::load(p, o.settings.lowercase)?),
+        None => None,
+    };
+    let settings = Settings {
+        word_list: list.as_ref().map(|l| l.info),
+        ..o.settings
+    };
     let inputs = corpus::discover(&o.inputs)?;
     if let Some(f) = inputs.iter().find(|f| f.is_stdin()) {
         return Err(Error::Input {
@@ -137,7 +162,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
         .collect();
     let job = Job {
         format_version: STAGE_VERSION,
-        settings: o.settings,
+        settings,
         partitions: o.partitions,
         inputs,
         map_tasks,
@@ -150,12 +175,18 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
             return Err(Error::state(
                 &o.dir,
                 format!(
-                    "{} holds another plan (other settings, partitions, map tasks or inputs, or an input changed since): give another --dir, or delete this one",
+                    "{} holds another plan (other settings, word list, partitions, map tasks or inputs, or an input changed since): give another --dir, or delete this one",
                     path.display()
                 ),
             ));
         }
+        // The list kept beside it must be there and whole.
+        old.word_list(&o.dir)?;
         return Ok((old, Outcome::Skipped));
+    }
+    // The list first: a plan in place always has its list beside it.
+    if let Some(l) = &list {
+        l.keep(&o.dir)?;
     }
     // Unique temporary name, then rename: two planners at once write the
     // same plan, so whichever rename lands last is as good as the first.
@@ -194,6 +225,7 @@ mod tests {
                 max_line_bytes: 1 << 20,
                 word_list: None,
             },
+            word_list: None,
             partitions: 5,
             map_tasks: 3,
         };

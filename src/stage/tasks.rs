@@ -108,6 +108,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             });
         }
     }
+    let list = job.word_list(dir)?;
     let threads = threads.max(1);
     let plan = Plan::new(memory, threads)?;
     let tmp = temp_dir_for(&out)?;
@@ -118,8 +119,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             inputs: &job.inputs,
             order: job.settings.order,
             lowercase: job.settings.lowercase,
-            // `stage plan` takes no word list (see README).
-            word_list: None,
+            word_list: list.as_ref().map(|l| &l.set),
             max_line_bytes: job.settings.max_line_bytes,
             partitions: job.partitions,
             threads,

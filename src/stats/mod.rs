@@ -41,6 +41,16 @@ pub struct ReportSettings {
     pub order: usize,
     /// Tokens were lowercased.
     pub lowercase: bool,
+    /// The fixed word list the store was counted with (`--word-list`);
+    /// `None` (JSON `null`) when every token counted.
+    pub word_list: Option<ReportWordList>,
+}
+
+/// A store's fixed word list, as the report shows it.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportWordList {
+    /// Distinct words in the list (the markers are not among them).
+    pub words: u64,
 }
 
 /// Corpus-wide totals.
@@ -58,6 +68,9 @@ pub struct ReportTotals {
     pub type_token_ratio: Option<f64>,
     /// Literal marker tokens counted as `<unk>`.
     pub marker_tokens: u64,
+    /// Tokens outside the word list counted as `<unk>`; `None` (JSON
+    /// `null`) for a store without a word list.
+    pub mapped_tokens: Option<u64>,
     /// Lines skipped for their length.
     pub skipped_lines: u64,
     /// Lines with invalid UTF-8.
@@ -149,6 +162,10 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
         settings: ReportSettings {
             order: meta.settings.order,
             lowercase: meta.settings.lowercase,
+            word_list: meta
+                .settings
+                .word_list
+                .map(|w| ReportWordList { words: w.words }),
         },
         totals: ReportTotals {
             sentences: t.sentences,
@@ -157,6 +174,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
             types: t.types,
             type_token_ratio: (t.tokens > 0).then(|| t.types as f64 / t.tokens as f64),
             marker_tokens: t.marker_tokens,
+            mapped_tokens: meta.settings.word_list.map(|_| t.mapped_tokens),
             skipped_lines: t.skipped_lines,
             invalid_utf8_lines: t.invalid_utf8_lines,
         },

@@ -415,6 +415,56 @@ fn store_endpoints_equal_the_cli() {
         );
         assert_eq!(got["more"], json!(!want["next"].is_null()));
     }
+    // Paging: the endpoint's pages (`after` = the page before's `next`) are
+    // `quern ngrams --json --after` pages, item for item and cursor for
+    // cursor, to the last page; together they are every n-gram once.
+    for (words, order) in [("of", None), ("I", Some(3)), ("I am", Some(3))] {
+        let ngrams_args = |limit: usize, after: Option<&str>| {
+            let mut a = vec!["ngrams".to_string(), "--json".into(), "--limit".into()];
+            a.push(limit.to_string());
+            a.extend(["--store".into(), store.display().to_string()]);
+            if let Some(k) = order {
+                a.extend(["--order".into(), k.to_string()]);
+            }
+            if let Some(c) = after {
+                a.extend(["--after".into(), c.to_string()]);
+            }
+            a.push("--".into());
+            a.extend(words.split_whitespace().map(String::from));
+            a
+        };
+        let all = parse(&run_ok(&ngrams_args(1_000_000, None)).stdout);
+        assert!(all["next"].is_null());
+        let total = all["ngrams"].as_array().unwrap().len();
+        assert!(total >= 3, "{words:?}: {total} n-grams");
+        // About four pages (at most 1000 a page), the last one short.
+        let limit = total.div_ceil(4).min(1000);
+        let mut cursor = Value::Null;
+        let mut pages = Vec::new();
+        loop {
+            let want = parse(&run_ok(&ngrams_args(limit, cursor.as_str())).stdout);
+            let mut body = json!({ "words": words, "limit": limit, "after": cursor });
+            if let Some(k) = order {
+                body["order"] = json!(k);
+            }
+            let (st, got) = srv.post("/ngrams", &body);
+            assert_eq!(st, 200, "{body}: {got}");
+            assert_eq!(got["ngrams"], want["ngrams"], "{body}");
+            assert_eq!(got["next"], want["next"], "{body}");
+            assert_eq!(got["order"], want["order"], "{body}");
+            assert_eq!(got["more"], json!(!got["next"].is_null()));
+            pages.extend(got["ngrams"].as_array().unwrap().iter().cloned());
+            cursor = got["next"].clone();
+            if cursor.is_null() {
+                break;
+            }
+        }
+        assert_eq!(
+            Value::Array(pages),
+            all["ngrams"],
+            "{words:?}: the pages joined"
+        );
+    }
 
     // /stats.svg: the figure `quern stats --plot` draws, byte for byte.
     let svg = store.parent().unwrap().join("stats-cli.svg");
@@ -546,6 +596,20 @@ fn bad_requests_get_4xx_json_errors() {
             Some(r#"{"words": "I", "order": 9}"#),
             400,
             "order 9",
+        ),
+        (
+            "POST",
+            "/ngrams",
+            Some(r#"{"words": "I", "after": "zz"}"#),
+            400,
+            "is not a cursor",
+        ),
+        (
+            "POST",
+            "/ngrams",
+            Some(r#"{"words": "I", "after": "0000000000000001"}"#),
+            400,
+            "does not belong to this prefix",
         ),
         ("GET", "/prob", None, 405, "does not take GET"),
         ("POST", "/health", Some("{}"), 405, "does not take POST"),

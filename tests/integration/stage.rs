@@ -76,6 +76,17 @@ fn stage_ok(args: &[String]) -> Value {
 }
 
 fn plan(dir: &Path, partitions: u32, tasks: usize, inputs: &[PathBuf]) -> Value {
+    plan_with(dir, partitions, tasks, &[], inputs)
+}
+
+/// [`plan`] with more flags (`extra`) before the inputs.
+fn plan_with(
+    dir: &Path,
+    partitions: u32,
+    tasks: usize,
+    extra: &[String],
+    inputs: &[PathBuf],
+) -> Value {
     let mut a = vec![
         "plan".to_string(),
         "--dir".into(),
@@ -87,6 +98,7 @@ fn plan(dir: &Path, partitions: u32, tasks: usize, inputs: &[PathBuf]) -> Value 
         "--map-tasks".into(),
         tasks.to_string(),
     ];
+    a.extend(extra.iter().cloned());
     a.extend(inputs.iter().map(|p| s(p)));
     stage_ok(&a)
 }
@@ -166,6 +178,100 @@ fn stages_by_hand_equal_the_single_machine_ingest_and_rerun_is_skipped() {
     let p1 = plan(&dir1, 1, 1, &inputs);
     run_all(&dir1, &store1, &p1);
     assert_raw_eq("stages, 1 partition", &expected, &raw_view(&store1));
+}
+
+/// `stage plan --word-list`: the store equals `ingest --word-list` of the
+/// same inputs (with and without --lowercase), keeps the same canonical
+/// list, and the tasks read the plan's copy, not the file given to the plan;
+/// a damaged copy stops a map task (and a second plan) naming it, and no
+/// list or another list in the same directory is another plan.
+#[test]
+fn stages_with_a_word_list_equal_ingest_with_it() {
+    let inputs = gutenberg_files(2);
+    let tmp = tempfile::tempdir().unwrap();
+    // Frequent words of the first novel in mixed case, and one that never occurs.
+    let text = std::fs::read_to_string(&inputs[0]).unwrap();
+    let mut c = std::collections::BTreeMap::new();
+    for t in text.split_whitespace() {
+        *c.entry(t).or_insert(0u64) += 1;
+    }
+    let mut words: Vec<(&str, u64)> = c.into_iter().collect();
+    words.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(b.0)));
+    let mut list: Vec<&str> = words[..400].iter().map(|w| w.0).collect();
+    list.push("Zyzzogeton");
+    let file = tmp.path().join("list.txt");
+    std::fs::write(&file, list.join("\n")).unwrap();
+
+    for lowercase in [false, true] {
+        let mut flags = vec!["--word-list".to_string(), s(&file)];
+        if lowercase {
+            flags.push("--lowercase".into());
+        }
+        let single = tmp.path().join(format!("single-{lowercase}"));
+        let mut extra: Vec<&str> = vec!["--order", "5", "--quiet"];
+        extra.extend(flags.iter().map(String::as_str));
+        ingest_ok(&single, &extra, &inputs);
+        let expected = raw_view(&single);
+        let stats: Value = serde_json::from_str(&expected.stats).unwrap();
+        assert!(
+            stats["totals"]["mapped_tokens"].as_u64().unwrap() > 0,
+            "the list maps no token: {}",
+            expected.stats
+        );
+
+        let dir = tmp.path().join(format!("shared-{lowercase}"));
+        let store = tmp.path().join(format!("store-{lowercase}"));
+        let p = plan_with(&dir, 3, 2, &flags, &inputs);
+        // The tasks must use the plan's copy: the given file goes away.
+        let moved = tmp.path().join("list-moved.txt");
+        std::fs::rename(&file, &moved).unwrap();
+        run_all(&dir, &store, &p);
+        std::fs::rename(&moved, &file).unwrap();
+        assert_raw_eq(
+            &format!("stages with a word list, lowercase {lowercase}"),
+            &expected,
+            &raw_view(&store),
+        );
+        assert_eq!(
+            std::fs::read(store.join("word-list.txt")).unwrap(),
+            std::fs::read(single.join("word-list.txt")).unwrap(),
+            "the store keeps the list as ingest does"
+        );
+    }
+
+    // A damaged copy in the plan's directory: the map task names it.
+    let dir = tmp.path().join("shared-false");
+    std::fs::remove_dir_all(dir.join("map")).unwrap();
+    let kept = dir.join("word-list.txt");
+    let mut bytes = std::fs::read(&kept).unwrap();
+    bytes[0] ^= 0x20;
+    std::fs::write(&kept, bytes).unwrap();
+    let r = run(&[&["stage".to_string()][..], &task_args("map", &dir, 0)].concat());
+    r.assert_failure();
+    assert!(
+        r.stderr.contains(&s(&kept)) && r.stderr.contains("not the word list"),
+        "{}",
+        r.describe()
+    );
+    // Planning again: with the same list, the damaged copy is named; without
+    // the list, or with another one, it is another plan.
+    let other = tmp.path().join("other.txt");
+    std::fs::write(&other, "the\nof\n").unwrap();
+    for (list, want) in [
+        (Some(&file), s(&kept)),
+        (None, "holds another plan".to_string()),
+        (Some(&other), "holds another plan".to_string()),
+    ] {
+        let mut a = vec!["stage".to_string(), "plan".into(), "--dir".into(), s(&dir)];
+        a.extend(["--order", "5", "--partitions", "3", "--map-tasks", "2"].map(String::from));
+        if let Some(l) = list {
+            a.extend(["--word-list".to_string(), s(l)]);
+        }
+        a.extend(inputs.iter().map(|p| s(p)));
+        let r = run(&a);
+        r.assert_failure();
+        assert!(r.stderr.contains(&want), "{}", r.describe());
+    }
 }
 
 /// Two copies of one task at once: exactly one writes the output, the other

@@ -307,6 +307,30 @@ fn csv_tsv_and_json_hold_the_same_values() {
         files.push(p);
     }
     let json: Value = serde_json::from_str(&std::fs::read_to_string(&files[0]).unwrap()).unwrap();
+    // Without a word list: null in the JSON, empty values with a note in
+    // CSV/TSV, "none" in the table (tests/integration/word_list.rs checks a
+    // store with one).
+    assert!(
+        json["settings"]["word_list"].is_null(),
+        "{}",
+        json["settings"]
+    );
+    assert!(
+        json["totals"]["mapped_tokens"].is_null(),
+        "{}",
+        json["totals"]
+    );
+    let csv_text = std::fs::read_to_string(&files[1]).unwrap();
+    for name in ["word_list_words", "mapped_tokens"] {
+        let row = format!("totals,,,{name},,no word list");
+        assert!(csv_text.lines().any(|l| l == row), "no row {row:?}");
+    }
+    let table = stats(store, &[]);
+    assert!(
+        table.lines().next().unwrap().ends_with("word list none"),
+        "{table}"
+    );
+    assert!(!table.contains("tokens outside the word list"), "{table}");
     for (i, delim) in [(1, b','), (2, b'\t')] {
         let mut rd = csv::ReaderBuilder::new()
             .delimiter(delim)

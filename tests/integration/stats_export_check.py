@@ -19,6 +19,8 @@ def expected_rows(j):
     out = {}
     for k, v in j["totals"].items():
         out[("totals", "", "", k)] = v
+    wl = j["settings"]["word_list"]
+    out[("totals", "", "", "word_list_words")] = None if wl is None else wl["words"]
     for o in j["orders"]:
         k = str(o["order"])
         out[("order", k, "", "ngrams")] = o["ngrams"]

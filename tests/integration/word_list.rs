@@ -160,6 +160,12 @@ fn counts_outside_the_list_as_unk() {
         canon.sort();
         canon.dedup();
         assert_eq!(kept.lines().collect::<Vec<_>>(), canon);
+        // `stats` shows the list's size and the tokens it mapped, in every format.
+        check_stats(
+            &store,
+            canon.len() as u64,
+            want["outside"].as_u64().unwrap(),
+        );
         // The text summary says how many tokens were mapped.
         let text = run_ok(&{
             let mut a = ingest_args(&d.join(format!("text-{lowercase}")), &extra, &inputs[..1]);
@@ -175,6 +181,38 @@ fn counts_outside_the_list_as_unk() {
             .find(|l| l.contains("tokens outside the word list"))
             .unwrap_or_else(|| panic!("no word-list line in {text}"));
         assert!(shown.ends_with(&crate_thousands(n)), "{shown} against {n}");
+    }
+}
+
+/// `quern stats` of a store counted with a list of `words` words that
+/// mapped `mapped` tokens: JSON, text and CSV say so.
+fn check_stats(store: &Path, words: u64, mapped: u64) {
+    let s = store.display().to_string();
+    let json: serde_json::Value =
+        serde_json::from_str(&run_ok(&["stats", "--store", &s, "--json"]).stdout).unwrap();
+    assert_eq!(json["settings"]["word_list"]["words"].as_u64(), Some(words));
+    assert_eq!(json["totals"]["mapped_tokens"].as_u64(), Some(mapped));
+    let text = run_ok(&["stats", "--store", &s]).stdout;
+    let head = text.lines().next().unwrap();
+    assert!(
+        head.ends_with(&format!("word list {} words", crate_thousands(words))),
+        "{head}"
+    );
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("mapped "))
+        .unwrap_or_else(|| panic!("no mapped line in {text}"));
+    assert!(
+        line.contains(&format!(
+            " {}   (tokens outside the word list",
+            crate_thousands(mapped)
+        )),
+        "{line}"
+    );
+    let csv = run_ok(&["stats", "--store", &s, "--format", "csv"]).stdout;
+    for (name, v) in [("word_list_words", words), ("mapped_tokens", mapped)] {
+        let row = format!("totals,,,{name},{v},");
+        assert!(csv.lines().any(|l| l == row), "no row {row:?} in the CSV");
     }
 }
 

@@ -5,21 +5,10 @@
 use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::Context;
-use quern::query::{query_ids, Next, Predictor};
+use quern::query::{query_ids, Next, Predictor, WordJson};
 
-use super::prob::{jnum, log, num, open_source, predictor, words, ProbJson};
+use super::prob::{jnum, log, num, open_source, predictor, words};
 use crate::cli::args::NextArgs;
-
-/// One word of the answer.
-#[derive(serde::Serialize)]
-struct Item<'a> {
-    word: &'a str,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    probability: Option<serde_json::Value>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    score: Option<serde_json::Value>,
-    log10: serde_json::Value,
-}
 
 /// The answer as JSON, in the order written.
 #[derive(serde::Serialize)]
@@ -29,7 +18,7 @@ struct NextJson<'a> {
     context: &'a str,
     prefix: &'a str,
     method: &'static str,
-    top: Vec<Item<'a>>,
+    top: Vec<WordJson<'a>>,
     rest: serde_json::Value,
     words_scored: usize,
     seconds: f64,
@@ -56,15 +45,7 @@ fn write_json(
         .items
         .iter()
         .zip(&names)
-        .map(|((_, p), w)| {
-            let j = ProbJson::new(w, est.method(), *p, None, None);
-            Item {
-                word: w,
-                probability: j.probability,
-                score: j.score,
-                log10: j.log10,
-            }
-        })
+        .map(|((_, p), w)| WordJson::new(w, est.method(), *p))
         .collect();
     let v = NextJson {
         line,

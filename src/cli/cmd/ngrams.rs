@@ -2,8 +2,8 @@
 
 use std::io::Write;
 
-use anyhow::{bail, Context};
-use quern::query::{prefix_page, query_ids};
+use anyhow::bail;
+use quern::query::{cursor, parse_cursor, prefix_page, query_ids};
 use quern::words::WordId;
 
 use super::prob::{estimator, log, num, open_store, store_words, ProbJson};
@@ -31,28 +31,18 @@ struct PageJson {
     next: Option<String>,
 }
 
-/// A cursor: the ids of the last n-gram shown, 16 hex digits each.
-fn cursor(ids: &[WordId]) -> String {
-    ids.iter().map(|i| format!("{i:016x}")).collect()
-}
-
-fn parse_cursor(s: &str) -> anyhow::Result<Vec<WordId>> {
-    if s.is_empty() || !s.len().is_multiple_of(16) {
-        bail!("--after {s:?}: not a cursor printed by quern ngrams");
+fn parse_after(s: &str) -> anyhow::Result<Vec<WordId>> {
+    match parse_cursor(s) {
+        Some(ids) => Ok(ids),
+        None => bail!("--after {s:?}: not a cursor printed by quern ngrams"),
     }
-    (0..s.len() / 16)
-        .map(|i| {
-            u64::from_str_radix(&s[i * 16..i * 16 + 16], 16)
-                .with_context(|| format!("--after {s:?}: not a cursor printed by quern ngrams"))
-        })
-        .collect()
 }
 
 pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
     let prefix = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
     let order = a.order.unwrap_or(prefix.len() + 1);
-    let after = a.after.as_deref().map(parse_cursor).transpose()?;
+    let after = a.after.as_deref().map(parse_after).transpose()?;
     if a.limit == 0 {
         bail!("--limit must be at least 1");
     }

@@ -21,6 +21,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     word_list: None,
                     max_line_bytes: a.max_line_bytes,
                 },
+                word_list: a.word_list,
                 partitions: a.partitions,
                 map_tasks: a.map_tasks,
             };

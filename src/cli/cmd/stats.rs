@@ -155,6 +155,18 @@ fn rows(out: &mut impl Write, delim: u8, r: &Report) -> anyhow::Result<()> {
     ] {
         put("totals", None, None, name, v.to_string(), "")?;
     }
+    // Empty, with a note, for a store counted without a word list.
+    let list_words = r.settings.word_list.as_ref().map(|l| l.words);
+    for (name, v) in [
+        ("word_list_words", list_words),
+        ("mapped_tokens", t.mapped_tokens),
+    ] {
+        let (value, note) = match v {
+            Some(x) => (x.to_string(), ""),
+            None => (String::new(), "no word list"),
+        };
+        put("totals", None, None, name, value, note)?;
+    }
     put(
         "totals",
         None,
@@ -271,9 +283,16 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
     let t = &r.totals;
     writeln!(
         out,
-        "store {dir}   order {}   lowercase {}",
+        "store {dir}   order {}   lowercase {}   word list {}",
         r.settings.order,
-        if r.settings.lowercase { "yes" } else { "no" }
+        if r.settings.lowercase { "yes" } else { "no" },
+        r.settings
+            .word_list
+            .as_ref()
+            .map_or("none".to_string(), |l| format!(
+                "{} words",
+                thousands(l.words)
+            ))
     )?;
     writeln!(out, "sentences  {:>14}", thousands(t.sentences))?;
     writeln!(
@@ -288,6 +307,13 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
     )?;
     writeln!(out, "vocabulary {:>14}", thousands(t.vocabulary))?;
     writeln!(out, "types/tokens {:>12}", fixed(t.type_token_ratio, 4))?;
+    if let Some(m) = t.mapped_tokens {
+        writeln!(
+            out,
+            "mapped     {:>14}   (tokens outside the word list, counted as <unk>)",
+            thousands(m)
+        )?;
+    }
     match r.growth.as_ref() {
         None => writeln!(out, "growth     none kept (the store was built before growth curves)")?,
         Some(g) => match &g.heaps {

@@ -1,11 +1,14 @@
 //! `--word-list FILE`: a fixed vocabulary. Every token outside the list is
 //! counted as `<unk>`; the store keeps the list (`word-list.txt` in its
 //! folder) and its size and checksum in its settings, so that `--append`
-//! and a resume can insist on the same list.
+//! and a resume can insist on the same list. A staged plan keeps it the
+//! same way in its shared directory, for the map tasks on other machines.
 
 use std::path::Path;
 
 use crate::error::{Error, Result};
+use crate::fsutil;
+use crate::layout;
 use crate::records::WordListInfo;
 use crate::tokenize::{normalise, WordSet};
 use crate::words::{BOS, EOS, UNK};
@@ -19,6 +22,42 @@ pub struct WordList {
     pub info: WordListInfo,
     /// The canonical text, written into the store.
     pub text: String,
+}
+
+impl WordList {
+    /// Writes the canonical list into folder `dir` (a store, or a staged
+    /// plan's shared directory) as `word-list.txt`, atomically.
+    pub fn keep(&self, dir: &Path) -> Result<()> {
+        fsutil::write_atomic(&layout::word_list(dir), self.text.as_bytes())
+    }
+}
+
+/// Reads the list kept in folder `dir` by [`WordList::keep`] and checks it
+/// against `info` (the settings that name it): a missing file, or one whose
+/// size or checksum differ, is an error naming the file.
+pub fn load_kept(dir: &Path, info: &WordListInfo) -> Result<WordList> {
+    let path = layout::word_list(dir);
+    let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, "read", e))?;
+    let sum = xxhash_rust::xxh3::xxh3_64(&bytes);
+    let text = String::from_utf8(bytes).ok().filter(|_| sum == info.xxh3);
+    let words: Option<Vec<String>> = text
+        .as_ref()
+        .map(|t| t.lines().map(str::to_owned).collect())
+        .filter(|w: &Vec<String>| w.len() as u64 == info.words);
+    match (text, words) {
+        (Some(text), Some(words)) => Ok(WordList {
+            set: WordSet::new(words),
+            info: *info,
+            text,
+        }),
+        _ => Err(Error::corrupt(
+            &path,
+            format!(
+                "this is not the word list recorded in the settings ({} words, xxh3 {:016x})",
+                info.words, info.xxh3
+            ),
+        )),
+    }
 }
 
 /// Reads `path`: one word a line (surrounding whitespace ignored, empty
