@@ -37,7 +37,7 @@ use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
 use super::prune;
 use super::quantize::quantize;
-use super::reader::{find_word, map_read_only, u32_at, Model};
+use super::reader::{find_id, map_read_only, u32_at, Model};
 use super::reduce::{suffix_links, write_reduced, Reduction};
 use super::writer::{ArrayFile, ModelWriter};
 
@@ -131,6 +131,12 @@ struct Built {
     /// Cached path of the last lookup: word indices and entries.
     path_x: Vec<u32>,
     path_e: Vec<u32>,
+    /// Where the last search of each level ended (the entry found, or
+    /// where the word would be), and under which parent entry: the
+    /// n-grams of one context come in word order, so their suffixes are
+    /// children of one entry in increasing order, and the next search
+    /// gallops forward from there.
+    hint: Vec<(u32, usize)>,
 }
 
 impl Built {
@@ -142,6 +148,9 @@ impl Built {
         }
         self.path_x.truncate(same);
         self.path_e.truncate(same);
+        if self.hint.len() < xs.len() {
+            self.hint.resize(xs.len(), (u32::MAX, 0));
+        }
         for t in same..xs.len() {
             let e = if t == 0 {
                 xs[0]
@@ -150,15 +159,59 @@ impl Built {
                 let c = &self.children[t - 1];
                 let w = &self.words[t];
                 let n = w.len() / 4;
-                let p = self.path_e[t - 1] as usize;
-                let lo = (u32_at(c, p) as usize).min(n);
-                let hi = (u32_at(c, p + 1) as usize).clamp(lo, n);
-                find_word(w, lo, hi, xs[t])? as u32
+                let p = self.path_e[t - 1];
+                let lo = (u32_at(c, p as usize) as usize).min(n);
+                let hi = (u32_at(c, p as usize + 1) as usize).clamp(lo, n);
+                let (hp, hpos) = self.hint[t];
+                let from = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
+                    hpos
+                } else {
+                    lo
+                };
+                match gallop(w, from, hi, xs[t]) {
+                    Ok(i) => {
+                        self.hint[t] = (p, i + 1);
+                        i as u32
+                    }
+                    Err(i) => {
+                        self.hint[t] = (p, i);
+                        return None;
+                    }
+                }
             };
             self.path_x.push(xs[t]);
             self.path_e.push(e);
         }
         self.path_e.last().copied()
+    }
+}
+
+/// The position of `w` among the increasing u32 words `words[lo..hi]`
+/// (little-endian bytes), or where it would be: galloping from `lo`
+/// (1, 2, 4, … ahead), then bisecting, so that a word near `lo` costs few
+/// reads.
+fn gallop(words: &[u8], lo: usize, hi: usize, w: u32) -> std::result::Result<usize, usize> {
+    let (mut a, mut step) = (lo, 1usize);
+    let mut b = lo;
+    while b < hi && u32_at(words, b) < w {
+        a = b + 1;
+        b = lo + step;
+        step *= 2;
+    }
+    let b = b.min(hi);
+    let (mut a, mut b) = (a.min(b), b);
+    while a < b {
+        let m = a + (b - a) / 2;
+        if u32_at(words, m) < w {
+            a = m + 1;
+        } else {
+            b = m;
+        }
+    }
+    if a < hi && u32_at(words, a) == w {
+        Ok(a)
+    } else {
+        Err(a)
     }
 }
 
@@ -276,7 +329,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         ids.insert(at, unk_id());
     }
     let nw = ids.len();
-    let index = |id: WordId| ids.binary_search(&id).ok().map(|i| i as u32);
+    let index = |id: WordId| find_id(|i| ids[i], ids.len(), id);
     let bos_x = index(bos).ok_or_else(|| Error::corrupt(store.dir(), "the store has no <s>"))?;
     let mut q1 = vec![0.0f64; nw];
     let mut q_file = ArrayFile::create(tpath("q1".into()))?;
@@ -331,6 +384,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         children: Vec::new(),
         path_x: Vec::new(),
         path_e: Vec::new(),
+        hint: Vec::new(),
     };
     // Which store n-grams of the previous order were kept (by position).
     let mut kept_prev: Vec<u64> = Vec::new();
@@ -367,6 +421,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         let mut spread_f = 0.0;
         let mut written: u64 = 0;
         let mut xs: Vec<u32> = Vec::with_capacity(k);
+        let mut xs_ids: Vec<WordId> = Vec::with_capacity(k);
         let mut store_n: u64 = 0;
         // β of a finished context; `None`: Katz must look past h'.
         let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
@@ -486,11 +541,20 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             if kept.is_none() {
                 continue;
             }
-            xs.clear();
-            for &id in &gi[1..] {
+            // The word indices of h'·w: consecutive n-grams share their
+            // leading words, so only those after the shared ones are looked
+            // up.
+            let mut same = 0;
+            while same < xs.len() && same + 1 < k && xs_ids[same] == gi[same + 1] {
+                same += 1;
+            }
+            xs.truncate(same);
+            xs_ids.truncate(same);
+            for &id in &gi[same + 1..] {
                 xs.push(index(id).ok_or_else(|| {
                     Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
                 })?);
+                xs_ids.push(id);
             }
             let lower_e = if k == 2 {
                 Some(xs[0])
@@ -573,6 +637,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         built.children.push(map(&child_paths[k - 2])?);
         built.path_x.clear();
         built.path_e.clear();
+        built.hint.clear();
     }
     if tally.skips > 0 {
         notes.push(format!(

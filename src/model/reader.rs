@@ -474,42 +474,7 @@ impl Model {
     /// The word index of `id`, if the model has it (`<s>` included).
     pub(crate) fn index_of(&self, id: WordId) -> Option<u32> {
         let ids = &self.map[self.ids.clone()];
-        let (mut lo, mut hi) = (0usize, self.nw);
-        // Interpolation search: ids are hashes, spread evenly.
-        while hi - lo > 8 {
-            let a = u64_at(ids, lo);
-            let z = u64_at(ids, hi - 1);
-            if id < a || id > z {
-                return None;
-            }
-            let span = (z - a) as u128;
-            let mut m = lo + (((id - a) as u128 * (hi - 1 - lo) as u128) / span.max(1)) as usize;
-            m = m.clamp(lo, hi - 1);
-            let x = u64_at(ids, m);
-            if x == id {
-                return Some(m as u32);
-            }
-            if x < id {
-                lo = m + 1;
-            } else {
-                hi = m;
-            }
-            // One bisection step as well, so that a skewed range still
-            // halves.
-            if hi - lo > 8 {
-                let mid = lo + (hi - lo) / 2;
-                let x = u64_at(ids, mid);
-                if x == id {
-                    return Some(mid as u32);
-                }
-                if x < id {
-                    lo = mid + 1;
-                } else {
-                    hi = mid;
-                }
-            }
-        }
-        (lo..hi).find(|&i| u64_at(ids, i) == id).map(|i| i as u32)
+        find_id(|i| u64_at(ids, i), self.nw, id)
     }
 
     /// The id of word index `x`.
@@ -652,9 +617,43 @@ pub(crate) fn find_by(
     (lo..hi).find(|&i| at(i) == w)
 }
 
-/// The position of `w` among the increasing u32 words `words[lo..hi]`
-/// (little-endian bytes).
+/// The position of `id` among `n` increasing ids `at(0..n)`.
 #[inline]
-pub(crate) fn find_word(words: &[u8], lo: usize, hi: usize, w: u32) -> Option<usize> {
-    find_by(|i| u32_at(words, i), lo, hi, w)
+pub(crate) fn find_id(at: impl Fn(usize) -> u64, n: usize, id: WordId) -> Option<u32> {
+    let (mut lo, mut hi) = (0usize, n);
+    // Interpolation search: ids are hashes, spread evenly.
+    while hi - lo > 8 {
+        let a = at(lo);
+        let z = at(hi - 1);
+        if id < a || id > z {
+            return None;
+        }
+        let span = (z - a) as u128;
+        let mut m = lo + (((id - a) as u128 * (hi - 1 - lo) as u128) / span.max(1)) as usize;
+        m = m.clamp(lo, hi - 1);
+        let x = at(m);
+        if x == id {
+            return Some(m as u32);
+        }
+        if x < id {
+            lo = m + 1;
+        } else {
+            hi = m;
+        }
+        // One bisection step as well, so that a skewed range still
+        // halves.
+        if hi - lo > 8 {
+            let mid = lo + (hi - lo) / 2;
+            let x = at(mid);
+            if x == id {
+                return Some(mid as u32);
+            }
+            if x < id {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+    }
+    (lo..hi).find(|&i| at(i) == id).map(|i| i as u32)
 }
