@@ -98,10 +98,10 @@ pub(crate) struct Reduced {
     /// back off to, while some mass is left for the others: they cannot
     /// be normalised (β = 0).
     pub unnormalised: u64,
-    /// With quantized back-off weights: a bound on |Σ_w P(w | h) − 1| over
-    /// the contexts, from rounding β to its bin: for a context of order k,
-    /// |β̂ − β|·(1 − Σ q(h_s·v)) plus β̂ times the bound of the orders below
-    /// (the distribution it backs off to is off by that much).
+    /// With quantized back-off weights: the largest |Σ_w P(w | h) − 1| over
+    /// the kept contexts, from rounding β to its bin (each β is computed
+    /// against what the distribution it backs off to really sums to, so
+    /// this is one rounding, not a sum over the orders).
     pub weight_error: f64,
 }
 
@@ -184,6 +184,9 @@ pub(crate) fn write_reduced(
     let weight_bits = r.meta.weight_bits;
     let mut unnormalised = 0u64;
     let mut worst = 0.0f64;
+    // With quantized weights: by order and entry, how far the kept
+    // context's distribution is from summing to 1.
+    let mut eps: Vec<Vec<f32>> = Vec::new();
     let mut ngrams = Vec::with_capacity(n);
     let mut sections: Vec<Payload> = Vec::new();
     for k in 1..=n {
@@ -209,12 +212,13 @@ pub(crate) fn write_reduced(
             continue;
         }
         let mut weights: Vec<f64> = Vec::new();
-        // 1 − Σ q(h_s·v) of every context, where β was computed from it
-        // (NaN where it was not): what an error in β costs its sum.
-        let mut dens: Vec<f64> = Vec::new();
+        // With quantized weights, per kept context: its entry, Σ q(h·v)
+        // and the back-off mass β multiplies, as the model will hold them.
+        let mut sums: Vec<(usize, f64, f64)> = Vec::new();
         let mut children: Vec<u32> = Vec::new();
         let mut skips = Vec::new();
         let has_skips = !m.orders[k - 1].skips.is_empty();
+        let coded = probabilities && weight_bits < 32;
         // Kept entries of order k + 1 before the current position.
         let mut below = 0u32;
         let mut pos = 0usize;
@@ -231,9 +235,9 @@ pub(crate) fn write_reduced(
             children.push(below);
             let s = m.skip(k, p as u32);
             let dropped = kids.clone().any(|c| !r.kept(k + 1, c));
-            let recompute = probabilities && (dropped || any_values);
+            let recompute = probabilities && (dropped || any_values || coded);
             let (mut sum_q, mut sum_lower, mut any) = (0.0, 0.0, false);
-            if recompute || weight_bits < 32 {
+            if recompute {
                 for c in kids.clone() {
                     if !r.kept(k + 1, c) {
                         continue;
@@ -244,10 +248,19 @@ pub(crate) fn write_reduced(
                     sum_lower += r.value(m, lk, le);
                 }
             }
-            let (num, den) = (1.0 - sum_q, 1.0 - sum_lower);
+            // With quantized weights, the distribution h backs off to sums
+            // to 1 + ε (its own weight was rounded): β is computed against
+            // what it really holds, so errors do not add up order by order.
+            let lower_eps = if coded && s < k {
+                let (lk, le) = drop_words(links, k, p as u32, s);
+                eps[lk - 1][le as usize] as f64
+            } else {
+                0.0
+            };
+            let (num, den) = (1.0 - sum_q, 1.0 + lower_eps - sum_lower);
             let beta = if !recompute {
                 m.beta(k, p as u32)
-            } else if !any {
+            } else if !any && !coded {
                 1.0
             } else if num <= 0.0 {
                 0.0
@@ -260,7 +273,9 @@ pub(crate) fn write_reduced(
                 num / den
             };
             weights.push(beta);
-            dens.push(if any { den.max(0.0) } else { 0.0 });
+            if coded {
+                sums.push((p, sum_q, den.max(0.0)));
+            }
             if has_skips {
                 skips.push(s as u8);
             }
@@ -270,27 +285,22 @@ pub(crate) fn write_reduced(
             pos += 1;
         }
         children.push(below);
-        let mut order_worst = worst;
         let weights: Vec<f32> = if weight_bits < 32 {
             let book = Codebook::spread(&weights, weight_bits);
-            weights
-                .iter()
-                .zip(&dens)
-                .map(|(&w, &den)| {
-                    let q = book.value(book.code(w));
-                    if probabilities {
-                        // Its own rounding, plus what the distribution it
-                        // backs off to may be off by, scaled by β.
-                        order_worst =
-                            order_worst.max((q as f64 - w).abs() * den + q as f64 * worst);
-                    }
-                    q
-                })
-                .collect()
+            let mut now = vec![0f32; if coded { len } else { 0 }];
+            let w: Vec<f32> = weights.iter().map(|&w| book.value(book.code(w))).collect();
+            for (&(p, sum_q, den), &b) in sums.iter().zip(&w) {
+                // What the context really sums to, less 1.
+                let e = sum_q + b as f64 * den - 1.0;
+                worst = worst.max(e.abs());
+                now[p] = e as f32;
+            }
+            eps.push(now);
+            w
         } else {
+            eps.push(Vec::new());
             weights.iter().map(|&w| w as f32).collect()
         };
-        worst = order_worst;
         sections.push(Payload::Values(
             SectionKind::Weights,
             k,
