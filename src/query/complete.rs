@@ -25,6 +25,7 @@ use std::collections::BinaryHeap;
 use crate::error::Result;
 use crate::words::{eos_id, IdMap, WordId};
 
+use super::next::best;
 use super::{Estimator, Method, Next};
 
 /// V without the markers in text order, with a tree of the unigram ranks.
@@ -123,7 +124,6 @@ impl Estimator<'_> {
         let l = cl.ctx.len();
         let mut buf = Vec::new();
         let mut scored: Vec<(f64, WordId)> = Vec::new();
-        let best = |a: &(f64, WordId), b: &(f64, WordId)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
         let keep = |v: &mut Vec<(f64, WordId)>| {
             if v.len() > k && k > 0 {
                 v.select_nth_unstable_by(k - 1, best);
@@ -227,13 +227,6 @@ impl Estimator<'_> {
             n_scored += taken;
         }
         keep(&mut scored);
-        scored.sort_unstable_by(best);
-        let sum: f64 = scored.iter().map(|x| x.0).sum();
-        Ok(Next {
-            context: cl.ctx,
-            items: scored.into_iter().map(|(p, w)| (w, p)).collect(),
-            rest: 1.0 - sum,
-            scored: n_scored,
-        })
+        Ok(Next::from_scored(cl.ctx, scored, n_scored))
     }
 }

@@ -31,6 +31,30 @@ pub struct Next {
     pub scored: usize,
 }
 
+/// Best first: higher probability, then lower id.
+pub(crate) fn best(a: &(f64, WordId), b: &(f64, WordId)) -> std::cmp::Ordering {
+    b.0.total_cmp(&a.0).then(a.1.cmp(&b.1))
+}
+
+impl Next {
+    /// The answer from the chosen `(probability, word)` pairs (in any
+    /// order) and how many words were scored to find them.
+    pub(crate) fn from_scored(
+        context: Vec<WordId>,
+        mut scored: Vec<(f64, WordId)>,
+        n_scored: usize,
+    ) -> Next {
+        scored.sort_unstable_by(best);
+        let sum: f64 = scored.iter().map(|x| x.0).sum();
+        Next {
+            context,
+            items: scored.into_iter().map(|(p, w)| (w, p)).collect(),
+            rest: 1.0 - sum,
+            scored: n_scored,
+        }
+    }
+}
+
 impl Estimator<'_> {
     /// V ordered by the method's probability after the empty context (most
     /// probable first, ties by id); computed once per estimator.
@@ -112,18 +136,10 @@ impl Estimator<'_> {
             taken += 1;
         }
         let n_scored = scored.len();
-        let best = |a: &(f64, WordId), b: &(f64, WordId)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
         if scored.len() > k && k > 0 {
             scored.select_nth_unstable_by(k - 1, best);
         }
         scored.truncate(k);
-        scored.sort_unstable_by(best);
-        let sum: f64 = scored.iter().map(|x| x.0).sum();
-        Ok(Next {
-            context: cl.ctx,
-            items: scored.into_iter().map(|(p, w)| (w, p)).collect(),
-            rest: 1.0 - sum,
-            scored: n_scored,
-        })
+        Ok(Next::from_scored(cl.ctx, scored, n_scored))
     }
 }
