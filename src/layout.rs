@@ -47,6 +47,12 @@ pub fn work_new(store: &Path) -> PathBuf {
     store.join("work.new")
 }
 
+/// The work folder of a finished ingest, moved aside in one step before
+/// it is removed.
+pub fn work_done(store: &Path) -> PathBuf {
+    store.join("work.done")
+}
+
 /// The lock file an ingest holds.
 pub fn lock(store: &Path) -> PathBuf {
     store.join("ingest.lock")

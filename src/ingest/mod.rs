@@ -95,6 +95,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         word_list: list.as_ref().map(|l| l.info),
     };
     fsutil::remove_dir(&layout::work_new(&opts.store))?;
+    fsutil::remove_dir(&layout::work_done(&opts.store))?;
     if opts.restart {
         fsutil::remove_dir(&dirs.work)?;
         fsutil::remove_dir(&layout::db_new(&opts.store))?;

@@ -317,8 +317,14 @@ impl Run<'_> {
             })?;
         }
         if m.phase == Phase::Done {
-            fsutil::remove_dir(&self.dirs.work)?;
+            // Moved aside in one step, then removed: a kill while it is being
+            // removed must not leave a work folder without its manifest,
+            // which would look like an ingest that never started.
+            let done = crate::layout::work_done(&self.dirs.store);
+            fsutil::remove_dir(&done)?;
+            std::fs::rename(&self.dirs.work, &done).at(&self.dirs.work, "move aside")?;
             fsutil::sync_dir(&self.dirs.store)?;
+            fsutil::remove_dir(&done)?;
         }
         Ok(())
     }
