@@ -419,8 +419,23 @@ fn damaged_models_refused() {
     let store = Store::open(train3()).unwrap();
     let dir = scratch("damage");
     let est = Estimator::new(&store, Method::Kn, Params::default()).unwrap();
-    let good = dir.join("good.model");
-    freeze(&est, &good, &FreezeOptions::default()).unwrap();
+    // A model of 32-bit values, and one whose q and β are codes into bins
+    // (the sections of format 2 that only quantized models have).
+    let coded = FreezeOptions {
+        bits: Some(8),
+        weight_bits: Some(8),
+        ..Default::default()
+    };
+    for (name, opts) in [("good", FreezeOptions::default()), ("coded", coded)] {
+        damaged_model_refused(&est, &dir, name, &opts);
+    }
+}
+
+/// Freezes `est` with `opts`, then damages the file in every way the test
+/// above lists and checks each is refused, naming the file.
+fn damaged_model_refused(est: &Estimator<'_>, dir: &Path, name: &str, opts: &FreezeOptions) {
+    let good = dir.join(format!("{name}.model"));
+    freeze(est, &good, opts).unwrap();
     let bytes = std::fs::read(&good).unwrap();
     let (ok, text) = verify_cli(&good);
     assert!(ok, "{text}");
@@ -456,12 +471,12 @@ fn damaged_models_refused() {
         if on_open {
             let e = opened
                 .err()
-                .unwrap_or_else(|| panic!("{what}: opened"))
+                .unwrap_or_else(|| panic!("{name}, {what}: opened"))
                 .to_string();
             assert!(e.contains(&p.display().to_string()), "{what}: {e}");
         }
         let (ok, text) = verify_cli(&p);
-        assert!(!ok, "{what}: --verify passed a damaged file");
+        assert!(!ok, "{name}, {what}: --verify passed a damaged file");
         assert!(text.contains(&p.display().to_string()), "{what}: {text}");
     }
 }
