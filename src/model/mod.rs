@@ -119,4 +119,4 @@ pub mod writer;
 pub use format::ModelMeta;
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
 pub use query::State;
-pub use reader::Model;
+pub use reader::{Model, Residence};

@@ -95,6 +95,13 @@ pub struct Packed {
 }
 
 impl Packed {
+    /// The byte (in the map) where value `i` starts: what to prefetch
+    /// before reading it.
+    #[inline(always)]
+    pub fn byte_of(&self, i: usize) -> usize {
+        self.at.start + 8 * (i * self.width as usize / 64)
+    }
+
     /// The bytes a packed array of `len` values of `width` bits takes.
     pub fn bytes(len: usize, width: u32) -> usize {
         8 * packed_words(len as u64, width) as usize
@@ -216,6 +223,34 @@ impl EliasFano {
             upper: u..sm,
             samples: sm..sm + 8 * ns as usize,
         })
+    }
+
+    /// The byte (in the map) of the sample that the search for value `i`
+    /// starts from: the first read of [`EliasFano::pair`], to prefetch.
+    #[inline(always)]
+    pub fn sample_byte(&self, i: usize) -> usize {
+        (self.samples.start + 8 * (i / EF_SAMPLE)).min(self.samples.end.saturating_sub(1))
+    }
+
+    /// The byte (in the map) of the upper bits where the search for value
+    /// `i` starts: the second read of [`EliasFano::pair`], to prefetch
+    /// once [`EliasFano::sample_byte`] is in the cache.
+    #[inline(always)]
+    pub fn scan_byte(&self, b: &[u8], i: usize) -> usize {
+        let s = i / EF_SAMPLE;
+        let from = b[self.samples.clone()]
+            .get(8 * s..8 * s + 8)
+            .map_or(0, |x| {
+                u64::from_le_bytes(x.try_into().expect("8 bytes")) as usize
+            });
+        (self.upper.start + 8 * (from / 64)).min(self.upper.end.saturating_sub(1))
+    }
+
+    /// The byte (in the map) of value `i`'s low bits: the last read of
+    /// [`EliasFano::pair`], to prefetch.
+    #[inline(always)]
+    pub fn low_byte(&self, i: usize) -> usize {
+        self.low.byte_of(i)
     }
 
     /// The position in the upper bits of set bit `i` (past the end if a

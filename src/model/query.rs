@@ -23,7 +23,7 @@ use crate::key::MAX_ORDER;
 use crate::query::{Next, Prob};
 use crate::words::WordId;
 
-use super::reader::Model;
+use super::reader::{bracket, find_by, first_probe, prefetch, Model};
 
 /// The kept suffixes of a context: what a prediction needs of it, and what
 /// it leaves for the next one in running text.
@@ -37,6 +37,46 @@ pub struct State {
     pub(super) nodes: [u32; MAX_ORDER],
     m: usize,
 }
+
+/// One prediction being searched by [`Model::extend`].
+struct Job<'a> {
+    /// The state of its context.
+    st: &'a State,
+    /// The word (raw id), its index (`<unk>`'s outside V), and whether it
+    /// is outside V.
+    word: WordId,
+    x: u32,
+    oov: bool,
+    /// What the search finds: x and the entries of h_j·x, j = 1..=matched.
+    nodes: [u32; MAX_ORDER],
+    matched: usize,
+    /// The children range of each level and its first probe.
+    ranges: [(usize, usize); MAX_ORDER],
+    probes: [Option<usize>; MAX_ORDER],
+}
+
+impl<'a> Job<'a> {
+    /// The job of predicting `word` (index `index`, if in the model) after
+    /// the context of `st`.
+    fn new(m: &Model, st: &'a State, word: WordId, index: Option<u32>) -> Job<'a> {
+        let in_v = index.filter(|&x| x != m.bos);
+        Job {
+            st,
+            word,
+            x: in_v.unwrap_or(m.unk),
+            oov: in_v.is_none(),
+            nodes: [0; MAX_ORDER],
+            matched: 0,
+            ranges: [(0, 0); MAX_ORDER],
+            probes: [None; MAX_ORDER],
+        }
+    }
+}
+
+/// Predictions searched together by [`Model::prob_batch`]: a batch is cut
+/// into this many runs of consecutive queries, which go in step, so that
+/// the cache misses of one run overlap those of the others.
+const RUNS: usize = 4;
 
 impl Model {
     /// Highest order N.
@@ -138,26 +178,117 @@ impl Model {
         self.state(context)
     }
 
+    /// Finds, for each job, the kept n-grams h_j·x for the kept suffixes
+    /// h_j of its context (j = 1..=M): sets `nodes[0..=matched]` to x and
+    /// their entries, and `matched` to the longest j with h_j·x kept (every
+    /// shorter one is then kept too: the model is closed under suffixes).
+    ///
+    /// The searches of the levels, and of the jobs, do not depend on one
+    /// another, and in a model larger than the CPU cache each is a chain of
+    /// cache misses (the children index's sample, its upper bits, its low
+    /// bits, then the probes among the children). So they go in stages:
+    /// each stage computes, for every job and level, the address that the
+    /// next read needs and prefetches it, and the next stage reads them;
+    /// the misses overlap instead of following one another. Every level is
+    /// prepared, also past the first that will miss: the wasted reads cost
+    /// little next to a wait.
+    #[inline]
+    fn extend(&self, jobs: &mut [Job<'_>]) {
+        let b = &self.map[..];
+        let u = self.nw as u64;
+        let levels = |job: &Job<'_>| job.st.m.min(self.n - 1);
+        // 1. What each context's entry leads to: the children index's
+        // sample and low bits, and its back-off weight; and q of the word.
+        for job in jobs.iter_mut() {
+            job.nodes[0] = job.x;
+            prefetch(b, self.orders[0].probs.byte_of(job.x as usize));
+            for j in 1..=levels(job) {
+                let (o, e) = (&self.orders[j - 1], job.st.nodes[j - 1] as usize);
+                prefetch(b, o.children.sample_byte(e));
+                prefetch(b, o.children.low_byte(e));
+                prefetch(b, o.weights.byte_of(e));
+            }
+        }
+        // 2. The upper bits, found from the sample.
+        for job in jobs.iter() {
+            for j in 1..=levels(job) {
+                let (o, e) = (&self.orders[j - 1], job.st.nodes[j - 1] as usize);
+                // The scan from the sample may run into the next line.
+                let at = o.children.scan_byte(b, e);
+                prefetch(b, at);
+                prefetch(b, at + 64);
+            }
+        }
+        // 3. The children ranges, and the first probe of each.
+        for job in jobs.iter_mut() {
+            for j in 1..=levels(job) {
+                let r = self.children(j, job.st.nodes[j - 1]);
+                job.probes[j] = first_probe(r.start, r.end, job.x, u);
+                let words = &self.orders[j].words;
+                match job.probes[j] {
+                    Some(p) => prefetch(b, words.byte_of(p)),
+                    // A short range is scanned whole: its first and last
+                    // lines.
+                    None if r.start < r.end => {
+                        prefetch(b, words.byte_of(r.start));
+                        prefetch(b, words.byte_of(r.end - 1));
+                    }
+                    None => {}
+                }
+                job.ranges[j] = (r.start, r.end);
+            }
+        }
+        // 4. The two probes that bracket the word, from the first.
+        for job in jobs.iter() {
+            for j in 1..=levels(job) {
+                let Some(p) = job.probes[j] else { continue };
+                let words = &self.orders[j].words;
+                let (lo, hi) = job.ranges[j];
+                let y = words.get(b, p) as u32;
+                if y != job.x {
+                    if let Some((_, _, a, z)) = bracket(lo, hi, job.x, u, p, y) {
+                        prefetch(b, words.byte_of(a));
+                        prefetch(b, words.byte_of(z));
+                    }
+                }
+            }
+        }
+        // 5. The searches, on lines now in the cache, up to the first
+        // level that misses; q of what is found is prefetched.
+        for job in jobs.iter_mut() {
+            job.matched = 0;
+            for j in 1..=levels(job) {
+                let words = &self.orders[j].words;
+                let (lo, hi) = job.ranges[j];
+                match find_by(|i| words.get(b, i) as u32, lo, hi, job.x, u) {
+                    Some(e) => {
+                        prefetch(b, self.orders[j].probs.byte_of(e));
+                        job.nodes[j] = e as u32;
+                        job.matched = j;
+                    }
+                    None => break,
+                }
+            }
+        }
+    }
+
     /// P(word | the context of `st`), and the state of the context that
     /// follows (the context and the word, cut to N − 1).
     pub fn predict(&self, st: &State, word: WordId) -> (Prob, State) {
-        let in_v = self.index_of(word).filter(|&x| x != self.bos);
-        let oov = in_v.is_none();
-        let x = in_v.unwrap_or(self.unk);
-        let mut next = State::default();
-        next.nodes[0] = x;
-        let mut q = self.q(1, x);
-        let mut matched = 0;
-        for j in 1..=st.m {
-            match self.child(j, st.nodes[j - 1], x) {
-                Some(e) => {
-                    next.nodes[j] = e;
-                    q = self.q(j + 1, e);
-                    matched = j;
-                }
-                None => break,
-            }
-        }
+        let mut job = [Job::new(self, st, word, self.index_of(word))];
+        self.extend(&mut job);
+        self.finish(&job[0])
+    }
+
+    /// The probability of a job that [`Model::extend`] has searched, and
+    /// the state that follows it.
+    fn finish(&self, job: &Job<'_>) -> (Prob, State) {
+        let (st, x, matched) = (job.st, job.x, job.matched);
+        let mut next = State {
+            nodes: job.nodes,
+            ..State::default()
+        };
+        let q = self.q(matched + 1, next.nodes[matched]);
         let mut p = if st.len > st.m && self.meta.default_backoff != 1.0 {
             self.meta.default_backoff.powi((st.len - st.m) as i32)
         } else {
@@ -188,7 +319,7 @@ impl Model {
         let keep = st.len.min(self.n.saturating_sub(2));
         next.ctx[..keep].copy_from_slice(&st.ctx[st.len - keep..st.len]);
         if self.n > 1 {
-            next.ctx[keep] = word;
+            next.ctx[keep] = job.word;
             next.len = keep + 1;
         }
         let order = if matched == 0 && x == self.unk && !self.meta.unk_seen {
@@ -201,8 +332,9 @@ impl Model {
                 p,
                 log10: p.log10(),
                 order,
-                oov,
-                word: self.id_at(x),
+                oov: job.oov,
+                // The word itself when in V (its index was found from it).
+                word: if job.oov { self.id_at(x) } else { job.word },
             },
             next,
         )
@@ -218,26 +350,84 @@ impl Model {
     /// Consecutive queries of running text (each context the previous
     /// query's n-gram, or a suffix of it) reuse the matched context.
     pub fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
-        let mut out = Vec::with_capacity(queries.len());
-        let mut st = State::default();
-        let mut first = true;
+        let mut words = Vec::with_capacity(queries.len());
         for q in queries {
-            let Some((&w, ctx)) = q.split_last() else {
+            let Some(&w) = q.last() else {
                 return Err(Error::Config(
                     "a query needs at least the predicted word".into(),
                 ));
             };
-            st = if first {
-                self.state(ctx)
-            } else {
-                self.state_after(&st, ctx)
-            };
-            first = false;
-            let (p, next) = self.predict(&st, w);
-            out.push(p);
-            st = next;
+            words.push(w);
         }
-        Ok(out)
+        // The predicted words are looked up first, all together: these
+        // lookups do not depend on one another, so the bucket of the word
+        // 16 ahead and the ids of the word 8 ahead are prefetched while
+        // the current one is found, and their cache misses overlap.
+        let mut found = Vec::with_capacity(words.len());
+        for i in 0..words.len() {
+            if let Some(&w) = words.get(i + 16) {
+                self.prefetch_bucket(w);
+            }
+            if let Some(&w) = words.get(i + 8) {
+                self.prefetch_ids(w);
+            }
+            found.push(self.index_of(words[i]));
+        }
+        // The batch is cut into RUNS runs of consecutive queries that go in
+        // step. Each run starts from a state found from scratch, and
+        // within a run each query reuses the state the previous one left
+        // (when its context is a suffix of it), so the answers are those
+        // of one query after another.
+        let n = queries.len();
+        let len = n.div_ceil(RUNS).max(1);
+        let mut out: Vec<Option<Prob>> = vec![None; n];
+        let mut states = [State::default(); RUNS];
+        for t in 0..len {
+            let mut live = [0usize; RUNS];
+            let mut g = 0;
+            for (r, st) in states.iter_mut().enumerate() {
+                let i = r * len + t;
+                if i >= n {
+                    continue;
+                }
+                let q = queries[i];
+                let ctx = &q[..q.len() - 1];
+                *st = if t == 0 {
+                    self.state(ctx)
+                } else {
+                    self.state_after(st, ctx)
+                };
+                live[g] = i;
+                g += 1;
+            }
+            let mut group: [Job<'_>; RUNS] = std::array::from_fn(|r| {
+                let i = r * len + t;
+                match (i < n).then(|| (words[i], found[i])) {
+                    Some((w, x)) => Job::new(self, &states[r], w, x),
+                    None => Job::new(self, &states[r], 0, None),
+                }
+            });
+            let group = &mut group[..g];
+            self.extend(group);
+            let mut next = [State::default(); RUNS];
+            for (slot, job) in group.iter().enumerate() {
+                let (p, st) = self.finish(job);
+                out[live[slot]] = Some(p);
+                next[slot] = st;
+            }
+            // Runs that are still going keep their order in `states`.
+            let mut slot = 0;
+            for (r, st) in states.iter_mut().enumerate() {
+                if r * len + t < n {
+                    *st = next[slot];
+                    slot += 1;
+                }
+            }
+        }
+        Ok(out
+            .into_iter()
+            .map(|p| p.expect("every query answered"))
+            .collect())
     }
 
     /// The levels a word backs off through after the context of `st`,

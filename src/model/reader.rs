@@ -52,6 +52,43 @@ pub(crate) fn map_read_only(file: &File, path: &Path) -> Result<Mmap> {
     unsafe { Mmap::map(file) }.at(path, "memory-map")
 }
 
+/// Reads `file` whole into anonymous memory that the kernel is asked to
+/// back with huge pages (`MADV_HUGEPAGE`, where transparent huge pages are
+/// enabled for it), then makes it read-only. No `unsafe`: the memory
+/// belongs to this process alone, so nothing can change it behind us.
+///
+/// A model much larger than the CPU caches spends a large part of each
+/// lookup walking page tables for 4 KiB pages of a mapped file; with 2 MiB
+/// pages the page table entries of the whole model fit in the caches.
+pub(crate) fn load_read_only(file: &mut File, path: &Path, size: u64) -> Result<Mmap> {
+    use std::io::Read;
+    let len = usize::try_from(size)
+        .map_err(|_| Error::corrupt(path, format!("{size} bytes do not fit in memory")))?;
+    let mut m = memmap2::MmapMut::map_anon(len.max(1)).at(path, "allocate memory for")?;
+    #[cfg(target_os = "linux")]
+    {
+        // Advice only: a kernel without transparent huge pages keeps 4 KiB
+        // pages, which is still correct.
+        let _ = m.advise(memmap2::Advice::HugePage);
+    }
+    file.read_exact(&mut m[..len]).at(path, "read")?;
+    let m = m.make_read_only().at(path, "protect")?;
+    Ok(m)
+}
+
+/// How a model's bytes are reached.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Residence {
+    /// Memory-mapped: opened in milliseconds whatever its size; pages are
+    /// read on first use and shared with other processes that map it.
+    #[default]
+    Mapped,
+    /// Read whole into this process's memory, on huge pages where the
+    /// system allows: opening reads the whole file (seconds a gigabyte),
+    /// and lookups in a model far larger than the CPU cache are faster.
+    Loaded,
+}
+
 /// Reads the u32 at index `i` of little-endian bytes.
 #[inline(always)]
 pub(crate) fn u32_at(b: &[u8], i: usize) -> u32 {
@@ -68,6 +105,36 @@ pub(crate) fn f32_at(b: &[u8], i: usize) -> f32 {
 #[inline(always)]
 pub(crate) fn u64_at(b: &[u8], i: usize) -> u64 {
     u64::from_le_bytes(b[8 * i..8 * i + 8].try_into().expect("8 bytes"))
+}
+
+/// Asks the CPU to bring the cache line of `b[at]` in, without waiting
+/// for it (nothing at all where there is no such instruction). A lookup
+/// that knows the addresses of several independent reads ahead of time
+/// issues them together this way, so their cache misses overlap instead of
+/// following one another. `at` is clamped to `b`.
+#[inline(always)]
+pub(crate) fn prefetch(b: &[u8], at: usize) {
+    #[cfg(target_arch = "x86_64")]
+    if let Some(x) = b.get(at.min(b.len().saturating_sub(1))) {
+        prefetch_line(x);
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (b, at);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[allow(unsafe_code)]
+#[inline(always)]
+fn prefetch_line<T>(x: &T) {
+    // SAFETY: `_mm_prefetch` is unsafe only as an intrinsic with a target
+    // feature (SSE, part of every x86-64 CPU). A prefetch is a hint: it
+    // never faults and changes no memory, and the address is that of a
+    // live reference (into the map or the id directory).
+    unsafe {
+        std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(
+            x as *const T as *const i8,
+        )
+    }
 }
 
 /// Stored values (q or β) of one order: 32-bit floats, or codes into
@@ -96,6 +163,16 @@ impl Values {
                 f32_at(bins, c)
             }
             Values::None => 1.0,
+        }
+    }
+
+    /// The byte (in the map) where value `i` lies, to prefetch.
+    #[inline(always)]
+    pub(crate) fn byte_of(&self, i: usize) -> usize {
+        match self {
+            Values::F32(r) => r.start + 4 * i,
+            Values::Coded { codes, .. } => codes.byte_of(i),
+            Values::None => 0,
         }
     }
 }
@@ -134,6 +211,11 @@ pub struct Model {
     pub(crate) orders: Vec<OrderSections>,
     pub(crate) bos: u32,
     pub(crate) unk: u32,
+    /// Where each bucket of word ids starts in the sorted ids: bucket b
+    /// holds the ids whose top bits are b (`id >> id_shift`), so a word is
+    /// found among a few ids (about 16) instead of all of them.
+    pub(crate) id_dir: Vec<u32>,
+    pub(crate) id_shift: u32,
     /// Search structures built on first use (`super::complete`).
     pub(crate) completion: Box<super::complete::Completion>,
 }
@@ -144,7 +226,12 @@ impl Model {
     /// sections. A truncated or damaged file is refused with an error that
     /// names it.
     pub fn open(path: &Path) -> Result<Model> {
-        let f = File::open(path).at(path, "open")?;
+        Model::open_as(path, Residence::Mapped)
+    }
+
+    /// [`Model::open`], with the bytes reached as `residence` says.
+    pub fn open_as(path: &Path, residence: Residence) -> Result<Model> {
+        let mut f = File::open(path).at(path, "open")?;
         let size = f.metadata().at(path, "stat")?.len();
         let bad = |d: String| Error::corrupt(path, format!("not a usable quern model: {d}"));
         if size < (HEADER_BYTES + TRAILER_BYTES) as u64 {
@@ -152,7 +239,10 @@ impl Model {
                 "{size} bytes, shorter than a header and a trailer (truncated?)"
             )));
         }
-        let map = map_read_only(&f, path)?;
+        let map = match residence {
+            Residence::Mapped => map_read_only(&f, path)?,
+            Residence::Loaded => load_read_only(&mut f, path, size)?,
+        };
         let b = &map[..];
         if b[..8] != MAGIC {
             return Err(bad("the file does not start with the model magic".into()));
@@ -337,7 +427,10 @@ impl Model {
             }
             orders.push(o);
         }
+        let (id_dir, id_shift) = id_directory(&b[ids.clone()], nw);
         let mut m = Model {
+            id_dir,
+            id_shift,
             path: path.to_path_buf(),
             map,
             meta,
@@ -474,7 +567,32 @@ impl Model {
     /// The word index of `id`, if the model has it (`<s>` included).
     pub(crate) fn index_of(&self, id: WordId) -> Option<u32> {
         let ids = &self.map[self.ids.clone()];
-        find_id(|i| u64_at(ids, i), self.nw, id)
+        let b = (id >> self.id_shift) as usize;
+        let (lo, hi) = (self.id_dir[b] as usize, self.id_dir[b + 1] as usize);
+        find_id_in(|i| u64_at(ids, i), lo, hi.max(lo), id)
+    }
+
+    /// Prefetches the bucket of the directory that [`Model::index_of`]
+    /// reads first for `id`.
+    #[inline(always)]
+    pub(crate) fn prefetch_bucket(&self, id: WordId) {
+        let b = (id >> self.id_shift) as usize;
+        if let Some(x) = self.id_dir.get(b) {
+            #[cfg(target_arch = "x86_64")]
+            prefetch_line(x);
+            #[cfg(not(target_arch = "x86_64"))]
+            let _ = x;
+        }
+    }
+
+    /// Prefetches the ids that [`Model::index_of`] searches for `id` (its
+    /// bucket of the directory should be in the cache).
+    #[inline(always)]
+    pub(crate) fn prefetch_ids(&self, id: WordId) {
+        let b = (id >> self.id_shift) as usize;
+        if let Some(&lo) = self.id_dir.get(b) {
+            prefetch(&self.map, self.ids.start + 8 * lo as usize);
+        }
     }
 
     /// The id of word index `x`.
@@ -562,7 +680,14 @@ impl Model {
     pub(crate) fn child(&self, k: usize, e: u32, w: u32) -> Option<u32> {
         let r = self.children(k, e);
         let words = &self.orders[k].words;
-        find_by(|i| words.get(&self.map, i) as u32, r.start, r.end, w).map(|i| i as u32)
+        find_by(
+            |i| words.get(&self.map, i) as u32,
+            r.start,
+            r.end,
+            w,
+            self.nw as u64,
+        )
+        .map(|i| i as u32)
     }
 }
 
@@ -574,17 +699,83 @@ fn bins_kind(kind: SectionKind) -> SectionKind {
     }
 }
 
-/// The position of `w` among the increasing words `at(lo..hi)`.
+/// Where [`find_by`] reads first among `lo..hi`: a guess from
+/// `w / universe` alone, for a range long enough to need one.
+#[inline(always)]
+pub(crate) fn first_probe(lo: usize, hi: usize, w: u32, universe: u64) -> Option<usize> {
+    if hi - lo > 32 && (w as u64) < universe {
+        Some(lo + ((w as u64 * (hi - lo) as u64) / universe) as usize)
+    } else {
+        None
+    }
+}
+
+/// After the first probe at `p` read `x` (not `w`): the range left
+/// (`None` if empty) and the two positions [`find_by`] reads next, which
+/// bracket where `w` should be, at a margin of a few standard deviations
+/// of the distance the first probe was off.
+#[inline(always)]
+pub(crate) fn bracket(
+    mut lo: usize,
+    mut hi: usize,
+    w: u32,
+    universe: u64,
+    p: usize,
+    x: u32,
+) -> Option<(usize, usize, usize, usize)> {
+    let n = (hi - lo) as u64;
+    let d = ((x.abs_diff(w) as u64 * n) / universe) as usize;
+    let margin = 2 * d.isqrt() + 8;
+    if x < w {
+        lo = p + 1;
+    } else {
+        hi = p;
+    }
+    if lo >= hi {
+        return None;
+    }
+    let centre = if x < w { p + d } else { p.saturating_sub(d) };
+    let a = centre.saturating_sub(margin).clamp(lo, hi - 1);
+    let b = (centre + margin).clamp(lo, hi - 1);
+    Some((lo, hi, a, b))
+}
+
+/// The position of `w` among the increasing words `at(lo..hi)`, all
+/// below `universe`.
+///
+/// Word indices are ranks of hashes, so the children of a context are
+/// spread evenly over `0..universe` whatever the words' frequencies: the
+/// first probe is placed from `w / universe` alone (no read of the range's
+/// ends, which in a long list are two more cache misses), and the second
+/// pair of probes brackets `w` from the distance the first one was off,
+/// with a margin of a few standard deviations. What is left is searched by
+/// interpolation with bisection steps, which keeps the worst case
+/// logarithmic.
 #[inline]
 pub(crate) fn find_by(
     at: impl Fn(usize) -> u32,
     mut lo: usize,
     mut hi: usize,
     w: u32,
+    universe: u64,
 ) -> Option<usize> {
-    // Word indices are ranks of hashes: spread evenly, so interpolation
-    // finds a word in a long list in a few probes; bisection steps keep
-    // the worst case logarithmic.
+    if let Some(p) = first_probe(lo, hi, w, universe) {
+        let x = at(p);
+        if x == w {
+            return Some(p);
+        }
+        let (l, h, a, b) = bracket(lo, hi, w, universe, p, x)?;
+        (lo, hi) = (l, h);
+        let (xa, xb) = (at(a), at(b));
+        if w < xa {
+            hi = a;
+        } else if w > xb {
+            lo = b + 1;
+        } else {
+            lo = a;
+            hi = b + 1;
+        }
+    }
     while hi - lo > 16 {
         let a = at(lo);
         let z = at(hi - 1);
@@ -620,7 +811,17 @@ pub(crate) fn find_by(
 /// The position of `id` among `n` increasing ids `at(0..n)`.
 #[inline]
 pub(crate) fn find_id(at: impl Fn(usize) -> u64, n: usize, id: WordId) -> Option<u32> {
-    let (mut lo, mut hi) = (0usize, n);
+    find_id_in(at, 0, n, id)
+}
+
+/// The position of `id` among the increasing ids `at(lo..hi)`.
+#[inline]
+pub(crate) fn find_id_in(
+    at: impl Fn(usize) -> u64,
+    mut lo: usize,
+    mut hi: usize,
+    id: WordId,
+) -> Option<u32> {
     // Interpolation search: ids are hashes, spread evenly.
     while hi - lo > 8 {
         let a = at(lo);
@@ -656,4 +857,27 @@ pub(crate) fn find_id(at: impl Fn(usize) -> u64, n: usize, id: WordId) -> Option
         }
     }
     (lo..hi).find(|&i| at(i) == id).map(|i| i as u32)
+}
+
+/// The bucket directory of the sorted word ids `ids` (`nw` of them):
+/// `dir[b]` is the first index whose id's top bits are at least `b`, with
+/// about 16 ids a bucket, and the shift that gives an id's bucket. Built
+/// on open from the ids section (one pass; a few megabytes read for
+/// millions of words). On a damaged file whose ids do not increase it is
+/// still a valid (non-decreasing) directory: lookups give wrong answers,
+/// never a read outside the section.
+fn id_directory(ids: &[u8], nw: usize) -> (Vec<u32>, u32) {
+    let bits = (usize::BITS - (nw / 16).max(1).leading_zeros()).clamp(1, 18);
+    let shift = 64 - bits;
+    let buckets = 1usize << bits;
+    let mut dir = Vec::with_capacity(buckets + 1);
+    let mut i = 0usize;
+    for b in 0..buckets {
+        while i < nw && ((u64_at(ids, i) >> shift) as usize) < b {
+            i += 1;
+        }
+        dir.push(i as u32);
+    }
+    dir.push(nw as u32);
+    (dir, shift)
 }

@@ -4,7 +4,7 @@
 //! interleaved; the model's open time; printed as JSON.
 //!
 //! ```sh
-//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next]
+//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next|model-prob] [--residence mapped|loaded]
 //! ```
 //!
 //! Completion (`complete`, issue 16) is timed too, from the store and the
@@ -54,6 +54,8 @@ fn main() {
     let (mut method, mut cache, mut contexts, mut passes) =
         ("mkn".to_string(), 256usize << 20, 1000usize, 3usize);
     let mut only_next = false;
+    let mut only_model = false;
+    let mut residence = quern::model::Residence::Mapped;
     let mut it = std::env::args().skip(1);
     while let Some(a) = it.next() {
         let v = it.next().unwrap_or_else(|| panic!("{a} needs a value"));
@@ -66,11 +68,14 @@ fn main() {
             "--contexts" => contexts = v.parse().expect("number"),
             "--passes" => passes = v.parse::<usize>().expect("number").max(2),
             "--only" if v == "next" => only_next = true,
+            "--only" if v == "model-prob" => only_model = true,
+            "--residence" if v == "mapped" => residence = quern::model::Residence::Mapped,
+            "--residence" if v == "loaded" => residence = quern::model::Residence::Loaded,
             _ => panic!("unknown flag {a}"),
         }
     }
     let t = Instant::now();
-    let model = Model::open(&model.expect("--model")).expect("open model");
+    let model = Model::open_as(&model.expect("--model"), residence).expect("open model");
     let open_ms = t.elapsed().as_secs_f64() * 1e3;
     let store = Store::open_with_cache(&store.expect("--store"), cache).expect("open store");
     let m: Method = method.parse().expect("method");
@@ -92,17 +97,19 @@ fn main() {
     let mut model_cpu = Vec::new();
     let mut check = (0.0f64, 0.0f64);
     for _ in 0..if only_next { 0 } else { passes } {
-        let (t, c0) = (Instant::now(), thread_cpu());
-        for c in queries.chunks(4096) {
-            let r = est.prob_batch(c).expect("prob");
-            check.0 += r
-                .iter()
-                .map(|p| p.log10)
-                .filter(|x| x.is_finite())
-                .sum::<f64>();
+        if !only_model {
+            let (t, c0) = (Instant::now(), thread_cpu());
+            for c in queries.chunks(4096) {
+                let r = est.prob_batch(c).expect("prob");
+                check.0 += r
+                    .iter()
+                    .map(|p| p.log10)
+                    .filter(|x| x.is_finite())
+                    .sum::<f64>();
+            }
+            store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
+            store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
         }
-        store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
-        store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
         let (t, c0) = (Instant::now(), thread_cpu());
         for c in queries.chunks(4096) {
             let r = model.prob_batch(c).expect("prob");
@@ -121,6 +128,18 @@ fn main() {
         }
         r[1..].iter().sum::<f64>() / (r.len() - 1) as f64
     };
+    if only_model {
+        let out = serde_json::json!({
+            "predictions": queries.len(),
+            "residence": format!("{residence:?}"),
+            "model_open_ms": open_ms,
+            "model_prob_per_second": model_rates,
+            "model_prob_per_cpu_second": model_cpu,
+            "log10_sum_per_pass": check.1 / passes as f64,
+        });
+        println!("{out}");
+        return;
+    }
     let half = (contexts / 2).max(1);
     let ctxs: Vec<&[WordId]> = s
         .iter()

@@ -19,8 +19,8 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use quern::model::{arpa, freeze, FreezeOptions, Model};
-use quern::query::{prediction, Estimator, Method, Params};
+use quern::model::{arpa, freeze, FreezeOptions, Model, Residence};
+use quern::query::{prediction, Estimator, Method, Params, Prob};
 use quern::store::Store;
 use quern::words::{bos_id, eos_id, unk_id, word_id, WordId};
 
@@ -182,6 +182,26 @@ fn check_exact(store_dir: &Path, name: &str, contexts: usize) {
                     "{m}: {q:x?}"
                 );
             }
+            // The batch is searched as several runs in step: cut into
+            // batches of any size, read into memory instead of mapped, or
+            // shuffled (no running text: each query's context found from
+            // scratch), it answers the same, bit for bit.
+            let loaded = Model::open_as(&path, Residence::Loaded).unwrap();
+            assert_eq!(loaded.prob_batch(&qs).unwrap(), pm, "{m}: loaded");
+            for size in [1, 2, 3, 5, 8, 13] {
+                let cut: Vec<Prob> = qs
+                    .chunks(size)
+                    .flat_map(|c| model.prob_batch(c).unwrap())
+                    .collect();
+                assert_eq!(cut, pm, "{m}: batches of {size}");
+            }
+            let mut shuffled: Vec<(usize, &[WordId])> = qs.iter().copied().enumerate().collect();
+            shuffled.sort_by_key(|&(i, _)| (i as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15));
+            let sq: Vec<&[WordId]> = shuffled.iter().map(|&(_, q)| q).collect();
+            for ((i, q), b) in shuffled.iter().zip(model.prob_batch(&sq).unwrap()) {
+                assert_eq!(b, pm[*i], "{m}: shuffled {q:x?}");
+            }
+            assert!(model.prob_batch(&[]).unwrap().is_empty());
             // Single queries, a few.
             for q in qs.iter().step_by(997) {
                 let a = est.prob(&q[..q.len() - 1], q[q.len() - 1]).unwrap();

@@ -7,7 +7,6 @@ use anyhow::{bail, Context};
 use quern::docs::{
     self, split::ScoreFile, split::Split, BoxedModel, Format, Models, Options, Shared, Summary,
 };
-use quern::model::Model;
 use quern::query::Estimator;
 use serde_json::json;
 
@@ -50,9 +49,15 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         (Some(dir), _) => Some(open_source(&QuerySourceArgs {
             store: Some(dir.clone()),
             model: None,
+            load_model: false,
             memory: a.store.memory.clone(),
         })?),
-        (_, Some(m)) => Some(Source::Model(Model::open(m)?)),
+        (_, Some(m)) => Some(open_source(&QuerySourceArgs {
+            store: None,
+            model: Some(m.clone()),
+            load_model: a.store.load_model,
+            memory: a.store.memory.clone(),
+        })?),
         _ => None,
     };
     if let Some(g) = &general {

@@ -6,7 +6,7 @@ use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::{bail, Context};
 use quern::memory::parse_size;
-use quern::model::Model;
+use quern::model::{Model, Residence};
 use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
 use quern::store::Store;
 use quern::words::WordId;
@@ -31,7 +31,12 @@ pub enum Source {
 /// or `--model`.
 pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
     if let Some(m) = &a.model {
-        return Ok(Source::Model(Model::open(m)?));
+        let residence = if a.load_model {
+            Residence::Loaded
+        } else {
+            Residence::Mapped
+        };
+        return Ok(Source::Model(Model::open_as(m, residence)?));
     }
     let dir = a.store.as_ref().expect("clap requires --store or --model");
     let mem = parse_size(&a.memory)?;
