@@ -579,6 +579,22 @@ fn cli_model_answers_like_the_store() {
         Some(&lines),
     );
     let b = run_json(&["prob", "--model", &model, "--json"], Some(&lines));
+    // Read into memory instead of mapped: the same output.
+    let loaded = run_json(
+        &["prob", "--model", &model, "--load-model", "--json"],
+        Some(&lines),
+    );
+    assert_eq!(b, loaded, "--load-model");
+    let st = Command::new(bin())
+        .args(["prob", "--store", &store, "--load-model", "a b"])
+        .output()
+        .unwrap();
+    assert!(!st.status.success());
+    assert!(
+        String::from_utf8_lossy(&st.stderr).contains("--load-model reads a model file"),
+        "{}",
+        String::from_utf8_lossy(&st.stderr)
+    );
     assert_eq!(a.len(), b.len());
     assert!(a.len() > 1000);
     let tol = bound(3);

@@ -30,6 +30,9 @@ pub enum Source {
 /// Opens `--store` (with a block cache of three quarters of `--memory`)
 /// or `--model`.
 pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
+    if a.load_model && a.model.is_none() {
+        bail!("--load-model reads a model file into memory: it goes with --model, not --store");
+    }
     if let Some(m) = &a.model {
         let residence = if a.load_model {
             Residence::Loaded
