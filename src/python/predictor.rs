@@ -11,7 +11,7 @@ use pyo3::types::{PyDict, PyList, PyString};
 
 use super::convert::{error, json_to_py, words_text, QuernError};
 use crate::docs::{self, BoxedModel, DocResult, MakeModel, Models, Outcome, Shared};
-use crate::model::Model;
+use crate::model::{Model, Residence};
 use crate::query::{query_ids, Estimator, Method, Params, Predictor, Prob};
 use crate::store::Store;
 use crate::words::WordId;
@@ -353,10 +353,20 @@ predictor_methods!(PyEstimator {
 predictor_methods!(PyModel {
     /// Opens the model file at `path` (checks its header, directory and
     /// the checksums of its small sections; `quern freeze --verify` checks
-    /// every byte).
+    /// every byte). Mapped, or with `load=True` read whole into memory on
+    /// huge pages (as `--load-model`: slower to open, faster lookups in a
+    /// model far larger than the CPU cache).
     #[new]
-    fn new(py: Python<'_>, path: PathBuf) -> PyResult<Self> {
-        let model = py.detach(|| Model::open(&path)).map_err(error)?;
+    #[pyo3(signature = (path, load = false))]
+    fn new(py: Python<'_>, path: PathBuf, load: bool) -> PyResult<Self> {
+        let residence = if load {
+            Residence::Loaded
+        } else {
+            Residence::Mapped
+        };
+        let model = py
+            .detach(|| Model::open_as(&path, residence))
+            .map_err(error)?;
         Ok(PyModel {
             model: Arc::new(model),
         })

@@ -112,6 +112,9 @@ class Model(_Predictor):
     """A frozen model written by `quern freeze`, memory-mapped; shared by
     any number of threads."""
 
-    def __init__(self, path: Union[str, os.PathLike[str]]) -> None: ...
+    def __init__(self, path: Union[str, os.PathLike[str]], load: bool = False) -> None:
+        """Opens a model file: memory-mapped, or with `load=True` read whole
+        into memory on huge pages (as `--load-model`)."""
+        ...
     @property
     def path(self) -> pathlib.Path: ...
