@@ -4,7 +4,7 @@
 //! interleaved; the model's open time; printed as JSON.
 //!
 //! ```sh
-//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next|model-prob] [--residence mapped|loaded]
+//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next|model-prob] [--residence mapped|loaded|both]
 //! ```
 //!
 //! Completion (`complete`, issue 16) is timed too, from the store and the
@@ -56,6 +56,7 @@ fn main() {
     let mut only_next = false;
     let mut only_model = false;
     let mut residence = quern::model::Residence::Mapped;
+    let mut both = false;
     let mut it = std::env::args().skip(1);
     while let Some(a) = it.next() {
         let v = it.next().unwrap_or_else(|| panic!("{a} needs a value"));
@@ -71,12 +72,21 @@ fn main() {
             "--only" if v == "model-prob" => only_model = true,
             "--residence" if v == "mapped" => residence = quern::model::Residence::Mapped,
             "--residence" if v == "loaded" => residence = quern::model::Residence::Loaded,
+            "--residence" if v == "both" => both = true,
             _ => panic!("unknown flag {a}"),
         }
     }
     let t = Instant::now();
-    let model = Model::open_as(&model.expect("--model"), residence).expect("open model");
+    let path = model.expect("--model");
+    let model = Model::open_as(&path, residence).expect("open model");
     let open_ms = t.elapsed().as_secs_f64() * 1e3;
+    // `--residence both`: the same file also read into memory, its passes
+    // interleaved with the mapped one's (a side-by-side in one run).
+    let t = Instant::now();
+    let loaded =
+        both.then(|| Model::open_as(&path, quern::model::Residence::Loaded).expect("load model"));
+    let load_ms = t.elapsed().as_secs_f64() * 1e3;
+    let mut loaded_cpu = Vec::new();
     let store = Store::open_with_cache(&store.expect("--store"), cache).expect("open store");
     let m: Method = method.parse().expect("method");
     assert_eq!(
@@ -111,16 +121,32 @@ fn main() {
             store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
         }
         let (t, c0) = (Instant::now(), thread_cpu());
+        let mut pass_sum = 0.0;
         for c in queries.chunks(4096) {
             let r = model.prob_batch(c).expect("prob");
-            check.1 += r
+            pass_sum += r
                 .iter()
                 .map(|p| p.log10)
                 .filter(|x| x.is_finite())
                 .sum::<f64>();
         }
+        check.1 += pass_sum;
         model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
         model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+        if let Some(l) = &loaded {
+            let c0 = thread_cpu();
+            let mut sum = 0.0;
+            for c in queries.chunks(4096) {
+                let r = l.prob_batch(c).expect("prob");
+                sum += r
+                    .iter()
+                    .map(|p| p.log10)
+                    .filter(|x| x.is_finite())
+                    .sum::<f64>();
+            }
+            loaded_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+            assert_eq!(sum, pass_sum, "loaded and mapped answer the same");
+        }
     }
     let warm = |r: &[f64]| {
         if r.len() < 2 {
@@ -135,6 +161,8 @@ fn main() {
             "model_open_ms": open_ms,
             "model_prob_per_second": model_rates,
             "model_prob_per_cpu_second": model_cpu,
+            "loaded_open_ms": both.then_some(load_ms),
+            "loaded_prob_per_cpu_second": loaded_cpu,
             "log10_sum_per_pass": check.1 / passes as f64,
         });
         println!("{out}");
