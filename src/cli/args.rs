@@ -198,8 +198,8 @@ pub struct QuerySourceArgs {
     pub model: Option<PathBuf>,
     /// With --model: read the model whole into memory (on huge pages where
     /// the system allows) instead of mapping it. Opening then takes about
-    /// a second a gigabyte and the file's size in memory; lookups in a
-    /// model far larger than the CPU cache get about twice as fast. For
+    /// 2 to 4 seconds a gigabyte and the file's size in memory; lookups in a
+    /// model far larger than the CPU cache get about 1.5 times faster. For
     /// long scoring jobs and services.
     #[arg(long)]
     pub load_model: bool,
