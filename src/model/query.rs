@@ -23,7 +23,7 @@ use crate::key::MAX_ORDER;
 use crate::query::{Next, Prob};
 use crate::words::WordId;
 
-use super::reader::{bracket, find_by, first_probe, prefetch, Model};
+use super::reader::{prefetch, Model, Seek};
 
 /// The kept suffixes of a context: what a prediction needs of it, and what
 /// it leaves for the next one in running text.
@@ -50,9 +50,8 @@ struct Job<'a> {
     /// What the search finds: x and the entries of h_j·x, j = 1..=matched.
     nodes: [u32; MAX_ORDER],
     matched: usize,
-    /// The children range of each level and its first probe.
-    ranges: [(usize, usize); MAX_ORDER],
-    probes: [Option<usize>; MAX_ORDER],
+    /// Where the search of each level stands.
+    seeks: [Seek; MAX_ORDER],
 }
 
 impl<'a> Job<'a> {
@@ -67,8 +66,22 @@ impl<'a> Job<'a> {
             oov: in_v.is_none(),
             nodes: [0; MAX_ORDER],
             matched: 0,
-            ranges: [(0, 0); MAX_ORDER],
-            probes: [None; MAX_ORDER],
+            seeks: [Seek::Absent; MAX_ORDER],
+        }
+    }
+
+    /// Prefetches what the next step of each of the first `levels`
+    /// searches reads.
+    #[inline(always)]
+    fn prefetch_seeks(&self, m: &Model, levels: usize) {
+        for j in 1..=levels {
+            if let Some((a, z)) = self.seeks[j].next_read() {
+                let words = &m.orders[j].words;
+                prefetch(&m.map, words.byte_of(a));
+                if let Some(z) = z {
+                    prefetch(&m.map, words.byte_of(z));
+                }
+            }
         }
     }
 }
@@ -219,48 +232,31 @@ impl Model {
                 prefetch(b, at + 64);
             }
         }
-        // 3. The children ranges, and the first probe of each.
+        // 3. The children ranges, and the first read of each search.
         for job in jobs.iter_mut() {
             for j in 1..=levels(job) {
                 let r = self.children(j, job.st.nodes[j - 1]);
-                job.probes[j] = first_probe(r.start, r.end, job.x, u);
-                let words = &self.orders[j].words;
-                match job.probes[j] {
-                    Some(p) => prefetch(b, words.byte_of(p)),
-                    // A short range is scanned whole: its first and last
-                    // lines.
-                    None if r.start < r.end => {
-                        prefetch(b, words.byte_of(r.start));
-                        prefetch(b, words.byte_of(r.end - 1));
-                    }
-                    None => {}
-                }
-                job.ranges[j] = (r.start, r.end);
+                job.seeks[j] = Seek::start(r.start, r.end, job.x, u);
             }
+            job.prefetch_seeks(self, levels(job));
         }
-        // 4. The two probes that bracket the word, from the first.
-        for job in jobs.iter() {
+        // 4. The first probe gives the bracket of the word (a long range).
+        for job in jobs.iter_mut() {
             for j in 1..=levels(job) {
-                let Some(p) = job.probes[j] else { continue };
-                let words = &self.orders[j].words;
-                let (lo, hi) = job.ranges[j];
-                let y = words.get(b, p) as u32;
-                if y != job.x {
-                    if let Some((_, _, a, z)) = bracket(lo, hi, job.x, u, p, y) {
-                        prefetch(b, words.byte_of(a));
-                        prefetch(b, words.byte_of(z));
-                    }
+                if let Seek::Probe { .. } = job.seeks[j] {
+                    let words = &self.orders[j].words;
+                    job.seeks[j] = job.seeks[j].step(|i| words.get(b, i) as u32, job.x, u);
                 }
             }
+            job.prefetch_seeks(self, levels(job));
         }
-        // 5. The searches, on lines now in the cache, up to the first
-        // level that misses; q of what is found is prefetched.
+        // 5. The searches finished, on lines now in the cache, up to the
+        // first level that misses; q of what is found is prefetched.
         for job in jobs.iter_mut() {
             job.matched = 0;
             for j in 1..=levels(job) {
                 let words = &self.orders[j].words;
-                let (lo, hi) = job.ranges[j];
-                match find_by(|i| words.get(b, i) as u32, lo, hi, job.x, u) {
+                match job.seeks[j].finish(|i| words.get(b, i) as u32, job.x, u) {
                     Some(e) => {
                         prefetch(b, self.orders[j].probs.byte_of(e));
                         job.nodes[j] = e as u32;
