@@ -974,7 +974,7 @@ mod tests {
                 let at = |i: usize| v[i];
                 let (lo, hi) = (v.len() / 5, v.len() - v.len() / 7);
                 for _ in 0..400 {
-                    let w = if next(&mut s) % 2 == 0 && !v.is_empty() {
+                    let w = if next(&mut s).is_multiple_of(2) && !v.is_empty() {
                         v[(next(&mut s) % v.len() as u64) as usize]
                     } else {
                         (next(&mut s) % universe) as u32
