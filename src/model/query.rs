@@ -379,46 +379,34 @@ impl Model {
         let mut out: Vec<Option<Prob>> = vec![None; n];
         let mut states = [State::default(); RUNS];
         for t in 0..len {
-            let mut live = [0usize; RUNS];
-            let mut g = 0;
-            for (r, st) in states.iter_mut().enumerate() {
-                let i = r * len + t;
-                if i >= n {
-                    continue;
-                }
-                let q = queries[i];
+            // The runs still going at step t: a prefix of them, the last
+            // run being the shortest.
+            let g = (0..RUNS).take_while(|r| r * len + t < n).count();
+            for (r, st) in states[..g].iter_mut().enumerate() {
+                let q = queries[r * len + t];
                 let ctx = &q[..q.len() - 1];
                 *st = if t == 0 {
                     self.state(ctx)
                 } else {
                     self.state_after(st, ctx)
                 };
-                live[g] = i;
-                g += 1;
             }
             let mut group: [Job<'_>; RUNS] = std::array::from_fn(|r| {
                 let i = r * len + t;
-                match (i < n).then(|| (words[i], found[i])) {
-                    Some((w, x)) => Job::new(self, &states[r], w, x),
-                    None => Job::new(self, &states[r], 0, None),
+                if r < g {
+                    Job::new(self, &states[r], words[i], found[i])
+                } else {
+                    Job::new(self, &states[r], 0, None)
                 }
             });
-            let group = &mut group[..g];
-            self.extend(group);
+            self.extend(&mut group[..g]);
             let mut next = [State::default(); RUNS];
-            for (slot, job) in group.iter().enumerate() {
+            for (r, job) in group[..g].iter().enumerate() {
                 let (p, st) = self.finish(job);
-                out[live[slot]] = Some(p);
-                next[slot] = st;
+                out[r * len + t] = Some(p);
+                next[r] = st;
             }
-            // Runs that are still going keep their order in `states`.
-            let mut slot = 0;
-            for (r, st) in states.iter_mut().enumerate() {
-                if r * len + t < n {
-                    *st = next[slot];
-                    slot += 1;
-                }
-            }
+            states[..g].copy_from_slice(&next[..g]);
         }
         Ok(out
             .into_iter()
