@@ -38,7 +38,10 @@
 //! header     8  magic "qrnmodl\x1a"
 //!            4  version (u32) = 2
 //!            4  reserved (0)
-//! sections   one after another, in this order (see SectionKind):
+//! sections   one after another, each found through the directory (a
+//!            freeze writes them in this order; a reduced model writes the
+//!            orders' sections first and the five small ones last, since
+//!            the metadata needs the kept counts) (see SectionKind):
 //!            Meta         JSON: method, parameters, constants, notes,
 //!                         order N, |V|, n-grams kept per order, value
 //!                         bits, whether the values are probabilities,

@@ -24,22 +24,31 @@ pub(crate) struct Codebook {
 }
 
 impl Codebook {
-    /// Fits at most 2^bits values to `values` (all ≥ 0).
-    pub(crate) fn fit(values: &[f64], bits: u32) -> Codebook {
-        let zero = values.iter().any(|&x| x <= 0.0);
+    /// Fits at most 2^bits values to `values` (all ≥ 0). Holds one f64 a
+    /// positive value (their logarithms, sorted), nothing more of their
+    /// size: the values are read from the iterator once.
+    pub(crate) fn fit(values: impl Iterator<Item = f64>, bits: u32) -> Codebook {
+        let mut zero = false;
         let mut x: Vec<f64> = values
-            .iter()
-            .filter(|&&v| v > 0.0)
+            .filter(|&v| {
+                zero |= v <= 0.0;
+                v > 0.0
+            })
             .map(|v| v.ln())
             .collect();
         x.sort_unstable_by(f64::total_cmp);
         let slots = (1usize << bits) - usize::from(zero);
-        let mut centers: Vec<f64> = {
-            let mut d = x.clone();
-            d.dedup();
-            d
-        };
-        if centers.len() > slots {
+        // Few distinct values: each its own bin (counted without a copy).
+        let distinct = 1 + x.windows(2).filter(|w| w[0] != w[1]).take(slots).count();
+        let mut centers: Vec<f64>;
+        if x.is_empty() || distinct <= slots {
+            centers = Vec::with_capacity(distinct);
+            for &v in &x {
+                if centers.last() != Some(&v) {
+                    centers.push(v);
+                }
+            }
+        } else {
             // Equal-count bins to start, then Lloyd's iterations: each
             // centre the mean of the values nearest to it.
             centers = (0..slots)
@@ -151,12 +160,10 @@ pub(crate) fn quantize(m: &Model, keep: &[Vec<bool>], bits: u32) -> (Vec<Option<
     let mut moved = 0u64;
     for k in 2..=n {
         let len = m.orders[k - 1].len;
-        let vals: Vec<f64> = (0..len)
-            .filter(|&e| kept(k, e))
-            .map(|e| m.q(k, e as u32))
-            .collect();
-        let book = Codebook::fit(&vals, bits);
-        drop(vals);
+        let book = Codebook::fit(
+            (0..len).filter(|&e| kept(k, e)).map(|e| m.q(k, e as u32)),
+            bits,
+        );
         let mut codes: Vec<u32> = (0..len)
             .map(|e| {
                 if kept(k, e) {

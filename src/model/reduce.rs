@@ -105,15 +105,6 @@ pub(crate) struct Reduced {
     pub weight_error: f64,
 }
 
-/// One section of a reduced model, before it is coded.
-enum Payload {
-    Bytes(SectionKind, usize, Vec<u8>),
-    Words(usize, Vec<u32>),
-    Children(usize, Vec<u32>),
-    /// `Probs` or `Weights`, order, values, bits a value.
-    Values(SectionKind, usize, Vec<f32>, u32),
-}
-
 /// Writes values as f32 (32 bits) or as codes into their distinct values
 /// (at most 2^bits of them: they were fitted to that many bins).
 fn write_values(
@@ -127,17 +118,22 @@ fn write_values(
         let bytes: Vec<u8> = vals.iter().flat_map(|x| x.to_le_bytes()).collect();
         return w.section(kind, k, &bytes);
     }
-    let mut bins: Vec<f32> = vals.to_vec();
-    bins.sort_by(f32::total_cmp);
-    bins.dedup();
+    // The distinct values, sorted (a few thousand at most: no copy of
+    // the values).
+    let mut bins: Vec<f32> = Vec::new();
+    for v in vals {
+        if let Err(i) = bins.binary_search_by(|b| b.total_cmp(v)) {
+            if bins.len() == 1 << bits {
+                return Err(Error::Config(format!(
+                    "order {k}: more than {} distinct values do not fit {bits}-bit codes",
+                    1u64 << bits
+                )));
+            }
+            bins.insert(i, *v);
+        }
+    }
     if bins.is_empty() {
         bins.push(0.0);
-    }
-    if bins.len() > 1 << bits {
-        return Err(Error::Config(format!(
-            "order {k}: {} distinct values do not fit {bits}-bit codes",
-            bins.len()
-        )));
     }
     let (codes, bins_kind) = match kind {
         SectionKind::Probs => (SectionKind::ProbCodes, SectionKind::ProbBins),
@@ -188,7 +184,11 @@ pub(crate) fn write_reduced(
     // context's distribution is from summing to 1.
     let mut eps: Vec<Vec<f32>> = Vec::new();
     let mut ngrams = Vec::with_capacity(n);
-    let mut sections: Vec<Payload> = Vec::new();
+    // Each order's sections are written as soon as they are made (the
+    // directory at the end says where they are), and the metadata, which
+    // needs the kept counts, last: nothing of an order outlives it.
+    let mut w = ModelWriter::create(out)?;
+    let width = width_for(m.nw as u64 - 1);
     for k in 1..=n {
         let len = m.orders[k - 1].len;
         let mut words: Vec<u32> = Vec::new();
@@ -204,10 +204,17 @@ pub(crate) fn write_reduced(
         }
         ngrams.push(probs.len() as u64);
         if k > 1 {
-            sections.push(Payload::Words(k, words));
+            w.packed(
+                SectionKind::Words,
+                k,
+                width,
+                words.iter().map(|&x| x as u64),
+            )?;
         }
+        drop(words);
         let pbits = if k == 1 { 32 } else { r.meta.value_bits };
-        sections.push(Payload::Values(SectionKind::Probs, k, probs, pbits));
+        write_values(&mut w, SectionKind::Probs, k, &probs, pbits)?;
+        drop(probs);
         if k == n {
             continue;
         }
@@ -301,19 +308,17 @@ pub(crate) fn write_reduced(
             eps.push(Vec::new());
             weights.iter().map(|&w| w as f32).collect()
         };
-        sections.push(Payload::Values(
-            SectionKind::Weights,
+        write_values(&mut w, SectionKind::Weights, k, &weights, weight_bits)?;
+        w.section(
+            SectionKind::Children,
             k,
-            weights,
-            weight_bits,
-        ));
-        sections.push(Payload::Children(k, children));
+            &ef_encode(children.iter().map(|&x| x as u64)),
+        )?;
         if has_skips {
-            sections.push(Payload::Bytes(SectionKind::Skips, k, skips));
+            w.section(SectionKind::Skips, k, &skips)?;
         }
     }
     r.meta.ngrams = ngrams.clone();
-    let mut w = ModelWriter::create(out)?;
     w.section(
         SectionKind::Meta,
         0,
@@ -323,24 +328,6 @@ pub(crate) fn write_reduced(
     w.section(SectionKind::WordOffsets, 0, &b[m.offsets.clone()])?;
     w.section(SectionKind::WordText, 0, &b[m.text.clone()])?;
     w.section(SectionKind::Ranking, 0, &b[m.ranking.clone()])?;
-    let width = width_for(m.nw as u64 - 1);
-    for p in &sections {
-        match p {
-            Payload::Bytes(kind, k, bytes) => w.section(*kind, *k, bytes)?,
-            Payload::Words(k, words) => w.packed(
-                SectionKind::Words,
-                *k,
-                width,
-                words.iter().map(|&x| x as u64),
-            )?,
-            Payload::Children(k, starts) => w.section(
-                SectionKind::Children,
-                *k,
-                &ef_encode(starts.iter().map(|&x| x as u64)),
-            )?,
-            Payload::Values(kind, k, vals, bits) => write_values(&mut w, *kind, *k, vals, *bits)?,
-        }
-    }
     let file_bytes = w.finish()?;
     Ok(Reduced {
         ngrams,

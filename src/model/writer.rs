@@ -18,7 +18,8 @@ use super::packed::BitPacker;
 pub struct ModelWriter {
     path: PathBuf,
     tmp: PathBuf,
-    out: BufWriter<File>,
+    /// `None` once finished.
+    out: Option<BufWriter<File>>,
     pos: u64,
     entries: Vec<Entry>,
 }
@@ -33,7 +34,7 @@ impl ModelWriter {
         let mut w = ModelWriter {
             path: path.to_path_buf(),
             tmp,
-            out: BufWriter::with_capacity(1 << 20, f),
+            out: Some(BufWriter::with_capacity(1 << 20, f)),
             pos: 0,
             entries: Vec::new(),
         };
@@ -46,7 +47,11 @@ impl ModelWriter {
     }
 
     fn raw(&mut self, b: &[u8]) -> Result<()> {
-        self.out.write_all(b).at(&self.tmp, "write")?;
+        self.out
+            .as_mut()
+            .expect("not finished")
+            .write_all(b)
+            .at(&self.tmp, "write")?;
         self.pos += b.len() as u64;
         Ok(())
     }
@@ -155,12 +160,25 @@ impl ModelWriter {
         let size = self.pos;
         let f = self
             .out
+            .take()
+            .expect("not finished")
             .into_inner()
             .map_err(|e| Error::io(&self.tmp, "write", e.into_error()))?;
         f.sync_all().at(&self.tmp, "sync")?;
         drop(f);
         std::fs::rename(&self.tmp, &self.path).at(&self.path, "rename into place")?;
         Ok(size)
+    }
+}
+
+/// A writer dropped before [`ModelWriter::finish`] (an error on the way)
+/// removes its temporary file: no half-written `.tmp` is left beside the
+/// output.
+impl Drop for ModelWriter {
+    fn drop(&mut self) {
+        if self.out.take().is_some() {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
     }
 }
 
@@ -220,5 +238,29 @@ impl ArrayFile {
     pub fn close(mut self) -> Result<PathBuf> {
         self.out.flush().at(&self.path, "write")?;
         Ok(self.path)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A writer given up before `finish` leaves neither the model nor its
+    /// temporary file; a finished one leaves the model only.
+    #[test]
+    fn unfinished_writer_leaves_nothing() {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("m.qm");
+        let tmp = dir.path().join("m.qm.tmp");
+        {
+            let mut w = ModelWriter::create(&out).unwrap();
+            w.section(SectionKind::Ids, 0, &[1, 2, 3]).unwrap();
+            assert!(tmp.exists());
+        }
+        assert!(!tmp.exists() && !out.exists());
+        let mut w = ModelWriter::create(&out).unwrap();
+        w.section(SectionKind::Ids, 0, &[1, 2, 3]).unwrap();
+        w.finish().unwrap();
+        assert!(out.exists() && !tmp.exists());
     }
 }

@@ -460,7 +460,7 @@ fn damaged_model_refused(est: &Estimator<'_>, dir: &Path, name: &str, opts: &Fre
     let (ok, text) = verify_cli(&good);
     assert!(ok, "{text}");
     let model = Model::open(&good).unwrap();
-    let arrays: Vec<(u64, u64)> = model_sections(&bytes);
+    let arrays: Vec<(u32, u64, u64)> = model_sections(&bytes);
     drop(model);
     let mut cases: Vec<(String, Vec<u8>, bool)> = Vec::new();
     for cut in [0, 7, 16, 100, bytes.len() / 2, bytes.len() - 1] {
@@ -475,15 +475,22 @@ fn damaged_model_refused(est: &Estimator<'_>, dir: &Path, name: &str, opts: &Fre
     cases.push(("version".into(), flip(8), true));
     cases.push(("trailer".into(), flip(bytes.len() - 3), true));
     cases.push(("directory".into(), flip(bytes.len() - 40), true));
-    for (i, &(off, len)) in arrays.iter().enumerate() {
-        // The first five sections (metadata, vocabulary, ranking) are
-        // checked on open; the n-gram arrays by --verify.
+    for (i, &(kind, off, len)) in arrays.iter().enumerate() {
+        // The small sections (kinds 1 to 5: metadata, word ids, offsets
+        // and text, ranking) are checked on open, wherever they lie in the
+        // file (a reduced model writes its metadata last); the n-gram
+        // arrays by --verify.
         cases.push((
-            format!("section {i}"),
+            format!("section {i} (kind {kind})"),
             flip((off + len / 2) as usize),
-            i < 5,
+            (1..=5).contains(&kind),
         ));
     }
+    assert_eq!(
+        arrays.iter().filter(|a| (1..=5).contains(&a.0)).count(),
+        5,
+        "{name}: the five small sections"
+    );
     for (what, b, on_open) in cases {
         let p = dir.join("bad.model");
         std::fs::write(&p, &b).unwrap();
@@ -501,16 +508,21 @@ fn damaged_model_refused(est: &Estimator<'_>, dir: &Path, name: &str, opts: &Fre
     }
 }
 
-/// (offset, length) of every section, from the directory (read here from
-/// the layout documented in `quern::model`, independently of the reader).
-fn model_sections(b: &[u8]) -> Vec<(u64, u64)> {
+/// (kind, offset, length) of every section, from the directory (read here
+/// from the layout documented in `quern::model`, independently of the
+/// reader).
+fn model_sections(b: &[u8]) -> Vec<(u32, u64, u64)> {
     let u64_at = |i: usize| u64::from_le_bytes(b[i..i + 8].try_into().unwrap());
+    let u32_at = |i: usize| u32::from_le_bytes(b[i..i + 4].try_into().unwrap());
     let t = b.len() - 32;
     let dir = u64_at(t) as usize;
     let count = u64_at(t + 8) as usize;
     (0..count)
-        .map(|i| (u64_at(dir + 32 * i + 8), u64_at(dir + 32 * i + 16)))
-        .filter(|&(_, len)| len > 0)
+        .map(|i| {
+            let e = dir + 32 * i;
+            (u32_at(e), u64_at(e + 8), u64_at(e + 16))
+        })
+        .filter(|&(_, _, len)| len > 0)
         .collect()
 }
 
