@@ -149,8 +149,8 @@ fn describe(p: &Path, meta: &std::fs::Metadata) -> Result<InputFile> {
 /// (bytes, at least 1) in the environment makes [`plan_chunks`] cut plain
 /// files into chunks of about n bytes, whatever size its caller asked for,
 /// so that tests cut small fixtures into many chunks (the ingest's default
-/// is 16 MiB, a staged plan's at least 1 MiB). Not for users: it is
-/// documented in DEVELOPERS.md only.
+/// is 16 MiB, less for small inputs; a staged plan's at least 1 MiB). Not
+/// for users: it is documented in DEVELOPERS.md only.
 pub const CHUNK_BYTES_VAR: &str = "QUERN_CHUNK_BYTES";
 
 fn chunk_bytes_setting(requested: u64) -> Result<u64> {

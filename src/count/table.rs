@@ -344,11 +344,14 @@ fn sort_by_hash<const N: usize>(flat: &mut [u64], lenpos: usize) {
 /// Sorts records of `N` u64s whose first `width` are padded ids and whose
 /// last is the key length.
 ///
-/// Large arrays are first distributed by the top bits of their first id
+/// Large arrays are first distributed by the top byte of their first id
 /// (one counting pass, then an in-place permutation, as in an American flag
-/// sort): that is the first comparison of the key order, so each bucket is
-/// then sorted on its own by comparison, with about 16 records per bucket
-/// for uniform ids (a frequent first word keeps a larger bucket).
+/// sort), and each large bucket again by the next byte, up to
+/// [`RADIX_LEVELS`] bytes: that is the first comparison of the key order, so
+/// each bucket is then sorted on its own by comparison. A byte at a time
+/// keeps the permutation's 256 write positions in the cache (one pass over
+/// 2^16 buckets at once wrote each record to a random page); uniform ids
+/// leave a few dozen records per bucket, a frequent first word a larger one.
 fn sort_records<const N: usize>(flat: &mut [u64], width: usize) {
     let (recs, rest) = flat.as_chunks_mut::<N>();
     debug_assert!(rest.is_empty());
@@ -357,46 +360,65 @@ fn sort_records<const N: usize>(flat: &mut [u64], width: usize) {
             .cmp(&b[..width])
             .then_with(|| a[N - 1].cmp(&b[N - 1]))
     };
-    let n = recs.len();
-    if n < RADIX_MIN {
+    if recs.len() < RADIX_MIN {
         recs.sort_unstable_by(cmp);
         return;
     }
-    let bits = (usize::BITS - 1 - (n / 16).leading_zeros()).clamp(8, 16);
-    let shift = 64 - bits;
-    let buckets = 1usize << bits;
-    let mut start = vec![0u32; buckets + 1];
+    distribute(recs, 0, &cmp);
+}
+
+/// One level of [`sort_records`]: distributes `recs` by byte `level` (from
+/// the top) of their first id, then sorts each bucket (by the next byte
+/// first if it is large enough).
+fn distribute<const N: usize>(
+    recs: &mut [[u64; N]],
+    level: u32,
+    cmp: &impl Fn(&[u64; N], &[u64; N]) -> Ordering,
+) {
+    let shift = 56 - 8 * level;
+    let digit = |r: &[u64; N]| ((r[0] >> shift) & 0xFF) as usize;
+    let mut start = [0usize; 257];
     for r in recs.iter() {
-        start[(r[0] >> shift) as usize + 1] += 1;
+        start[digit(r) + 1] += 1;
     }
-    for b in 0..buckets {
+    for b in 0..256 {
         start[b + 1] += start[b];
     }
-    let mut next = start[..buckets].to_vec();
-    for b in 0..buckets {
-        let end = start[b + 1] as usize;
-        let mut i = next[b] as usize;
+    let mut next = [0usize; 256];
+    next.copy_from_slice(&start[..256]);
+    for b in 0..256 {
+        let end = start[b + 1];
+        let mut i = next[b];
         while i < end {
-            let d = (recs[i][0] >> shift) as usize;
+            let d = digit(&recs[i]);
             if d == b {
                 i += 1;
             } else {
                 // Send the record to the next free place of its bucket;
                 // the one found there is placed in the next round.
-                recs.swap(i, next[d] as usize);
+                recs.swap(i, next[d]);
                 next[d] += 1;
             }
         }
-        next[b] = end as u32;
+        next[b] = end;
     }
-    for b in 0..buckets {
-        recs[start[b] as usize..start[b + 1] as usize].sort_unstable_by(cmp);
+    for b in 0..256 {
+        let bucket = &mut recs[start[b]..start[b + 1]];
+        if bucket.len() >= RADIX_BUCKET_MIN && level + 1 < RADIX_LEVELS {
+            distribute(bucket, level + 1, cmp);
+        } else {
+            bucket.sort_unstable_by(cmp);
+        }
     }
 }
 
 /// Fewest records for which [`sort_records`] distributes by the first id
 /// before sorting.
 const RADIX_MIN: usize = 1 << 12;
+/// Fewest records of a bucket that is distributed again by the next byte.
+const RADIX_BUCKET_MIN: usize = 256;
+/// Most bytes of the first id that [`sort_records`] distributes by.
+const RADIX_LEVELS: u32 = 3;
 
 #[cfg(test)]
 mod tests {

@@ -142,7 +142,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
                 .partitions
                 .unwrap_or_else(|| (threads as u32 * 16).clamp(16, 256));
             (
-                start::plan_new(opts, &dirs, settings, inputs, parts)?,
+                start::plan_new(opts, &dirs, settings, inputs, parts, threads)?,
                 false,
             )
         }

@@ -16,8 +16,9 @@ pub(super) fn plan_new(
     settings: Settings,
     inputs: Vec<InputFile>,
     parts: u32,
+    threads: usize,
 ) -> Result<Manifest> {
-    let chunks = corpus::plan_chunks(&inputs, opts.chunk_bytes)?;
+    let chunks = corpus::plan_chunks(&inputs, chunk_bytes(opts.chunk_bytes, &inputs, threads))?;
     let mut m = Manifest {
         format_version: manifest::MANIFEST_VERSION,
         settings,
@@ -52,6 +53,24 @@ pub(super) fn plan_new(
     m.save(&staging.work)?;
     fsutil::rename_durable(&staging.work, &dirs.work)?;
     Ok(m)
+}
+
+/// Smallest chunk [`chunk_bytes`] cuts a small input into.
+const MIN_CHUNK_BYTES: u64 = 1 << 20;
+
+/// The chunk size for `inputs` on `threads` workers: `requested`, or less
+/// for an input small enough that it would make fewer than eight chunks a
+/// worker (at least [`MIN_CHUNK_BYTES`]). A worker that takes the last
+/// chunk counts it while the others wait, so on 40 MB at 16 MiB (three
+/// chunks for two workers) one core idled for most of a chunk.
+fn chunk_bytes(requested: u64, inputs: &[InputFile], threads: usize) -> u64 {
+    let plain: u64 = inputs
+        .iter()
+        .filter(|f| f.compression == corpus::Compression::None && !f.is_stdin())
+        .map(|f| f.size)
+        .sum();
+    let share = plain / (threads.max(1) as u64 * 8);
+    requested.min(share.max(MIN_CHUNK_BYTES))
 }
 
 fn now_secs() -> u64 {

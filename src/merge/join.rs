@@ -8,7 +8,7 @@ use super::partition::{open_all, reduce_sources, MergeConfig};
 use crate::error::{Error, Result};
 use crate::records::{Joined, PartitionStats};
 use crate::shard::RunFile;
-use crate::store::build::{sst_options, SstSet};
+use crate::store::build::{sst_options, Family, SstSet};
 use crate::store::keys::{encode_ngram, ngram_cf};
 use crate::store::ranks::KeyWriter;
 use crate::store::{ContextStats, Ranks};
@@ -24,6 +24,46 @@ struct OpenContext {
     count: u64,
     continuation: u64,
     stats: ContextStats,
+}
+
+/// Counts below this are tallied in an array, not a map.
+const DENSE_COUNTS: usize = 256;
+
+/// Count-of-counts per order: small counts (nearly every n-gram's) in an
+/// array, the rest in a map; a map entry per n-gram cost more than the
+/// rest of the join's own work on it.
+struct Tally {
+    dense: Vec<[u64; DENSE_COUNTS]>,
+    sparse: Vec<BTreeMap<u64, u64>>,
+}
+
+impl Tally {
+    fn new(orders: usize) -> Tally {
+        Tally {
+            dense: vec![[0; DENSE_COUNTS]; orders],
+            sparse: vec![BTreeMap::new(); orders],
+        }
+    }
+
+    #[inline]
+    fn add(&mut self, order: usize, count: u64) {
+        match self.dense[order].get_mut(count as usize) {
+            Some(x) => *x += 1,
+            None => *self.sparse[order].entry(count).or_insert(0) += 1,
+        }
+    }
+
+    /// Adds the tallies to `maps` (one per order), an entry per count seen.
+    fn into_maps(self, maps: &mut [BTreeMap<u64, u64>]) {
+        for ((dense, sparse), map) in self.dense.iter().zip(self.sparse).zip(maps) {
+            for (c, &x) in dense.iter().enumerate().filter(|(_, &x)| x > 0) {
+                *map.entry(c as u64).or_insert(0) += x;
+            }
+            for (c, x) in sparse {
+                *map.entry(c).or_insert(0) += x;
+            }
+        }
+    }
 }
 
 /// Joins partition `q`'s merged counts with its continuation contributions
@@ -53,20 +93,26 @@ pub fn join_partition(
     };
     // open[j]: the n-gram of order j (1 ≤ j < N) whose children come next.
     let mut open: Vec<OpenContext> = vec![OpenContext::default(); n];
+    let mut coc_raw = Tally::new(n);
+    let mut coc_left = Tally::new(n);
     let mut keys = KeyWriter::default();
     let mut kbuf = Vec::with_capacity(8 * n);
     let mut vbuf = Vec::with_capacity(32);
     let bad = |what: String| Error::corrupt(counts.path(), what);
-    let cf: Vec<String> = (0..=n).map(ngram_cf).collect();
+    let cf: Vec<Family> = (0..=n).map(|k| sink.family(&ngram_cf(k))).collect();
+    let mut cbuf = Vec::with_capacity(64);
 
-    let close = |sink: &mut SstSet, open: &mut [OpenContext], from: usize| -> Result<()> {
-        let mut vb = Vec::with_capacity(32);
+    let close = |sink: &mut SstSet,
+                 open: &mut [OpenContext],
+                 from: usize,
+                 vb: &mut Vec<u8>|
+     -> Result<()> {
         for (j, o) in open.iter_mut().enumerate().skip(from.max(1)) {
             if o.active {
                 o.active = false;
                 vb.clear();
-                encode_ngram(o.count, Some(o.continuation), Some(&o.stats), &mut vb);
-                sink.put(&cf[j], &o.key, &vb)?;
+                encode_ngram(o.count, Some(o.continuation), Some(&o.stats), vb);
+                sink.put_in(cf[j], &o.key, vb)?;
             }
         }
         Ok(())
@@ -101,8 +147,8 @@ pub fn join_partition(
         };
         stats.ngrams[k - 1] += 1;
         if !(k == 1 && starts_bos) {
-            *stats.coc_raw[k - 1].entry(c).or_insert(0) += 1;
-            *stats.coc_left_type[k - 1].entry(a).or_insert(0) += 1;
+            coc_raw.add(k - 1, c);
+            coc_left.add(k - 1, a);
         }
         if k == 1 && key.ids()[0] == unk {
             stats.unk_seen = true;
@@ -110,7 +156,7 @@ pub fn join_partition(
         keys.write(ranks, &key, &mut kbuf).ok_or_else(|| {
             bad("an n-gram with a word that is in no dictionary of the ingest".into())
         })?;
-        close(&mut sink, &mut open, k)?;
+        close(&mut sink, &mut open, k, &mut cbuf)?;
         if k == 1 {
             if !starts_bos {
                 stats.root.add_child(c, a);
@@ -133,15 +179,17 @@ pub fn join_partition(
         } else {
             vbuf.clear();
             encode_ngram(c, None, None, &mut vbuf);
-            sink.put(&cf[k], &kbuf, &vbuf)?;
+            sink.put_in(cf[k], &kbuf, &vbuf)?;
         }
     }
-    close(&mut sink, &mut open, 1)?;
+    close(&mut sink, &mut open, 1, &mut cbuf)?;
     if next_cont.is_some() {
         return Err(bad(
             "continuation counts left over after the last n-gram".into()
         ));
     }
+    coc_raw.into_maps(&mut stats.coc_raw);
+    coc_left.into_maps(&mut stats.coc_left_type);
     Ok(Joined {
         ssts: sink.finish()?,
         stats,

@@ -35,8 +35,14 @@ pub struct SstSet<'a> {
     opts: &'a Options,
     dir: PathBuf,
     prefix: String,
-    open: BTreeMap<String, (SstFileWriter<'a>, String)>,
+    /// Per family: its name and, once its first record came, its writer
+    /// and file name. A handful of families, found by index.
+    families: Vec<(String, Option<(SstFileWriter<'a>, String)>)>,
 }
+
+/// A column family of an [`SstSet`], from [`SstSet::family`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Family(usize);
 
 impl<'a> SstSet<'a> {
     /// Files go to `dir`, named `<prefix>-<cf>.sst`.
@@ -45,31 +51,54 @@ impl<'a> SstSet<'a> {
             opts,
             dir: dir.to_path_buf(),
             prefix,
-            open: BTreeMap::new(),
+            families: Vec::new(),
+        }
+    }
+
+    /// The handle of column family `cf` for [`SstSet::put_in`] (no file is
+    /// created until its first record).
+    pub fn family(&mut self, cf: &str) -> Family {
+        match self.families.iter().position(|(name, _)| name == cf) {
+            Some(i) => Family(i),
+            None => {
+                self.families.push((cf.to_string(), None));
+                Family(self.families.len() - 1)
+            }
         }
     }
 
     /// Adds one record to column family `cf`.
     pub fn put(&mut self, cf: &str, key: &[u8], value: &[u8]) -> Result<()> {
-        if !self.open.contains_key(cf) {
+        let f = self.family(cf);
+        self.put_in(f, key, value)
+    }
+
+    /// Adds one record to the column family of handle `f` (a lookup per
+    /// record by name cost more than the join's own work on it).
+    pub fn put_in(&mut self, f: Family, key: &[u8], value: &[u8]) -> Result<()> {
+        let (cf, slot) = &mut self.families[f.0];
+        if slot.is_none() {
             let name = format!("{}-{cf}.sst", self.prefix);
             let path = self.dir.join(&name);
             crate::fault::full("sst").at(&path, "create")?;
             let w = SstFileWriter::create(self.opts);
             w.open(&path).map_err(rocks(&path))?;
-            self.open.insert(cf.to_string(), (w, name));
+            *slot = Some((w, name));
         }
-        let (w, name) = self.open.get_mut(cf).expect("inserted above");
+        let (w, name) = slot.as_mut().expect("opened above");
         w.put(key, value).map_err(|source| Error::Rocks {
             path: PathBuf::from(&*name),
             source,
         })
     }
 
-    /// Finishes every file (fsynced); returns `(cf, file name)` pairs.
-    pub fn finish(self) -> Result<Vec<(String, String)>> {
+    /// Finishes every file (fsynced); returns `(cf, file name)` pairs, in
+    /// the order of the family names.
+    pub fn finish(mut self) -> Result<Vec<(String, String)>> {
         let mut out = Vec::new();
-        for (cf, (mut w, name)) in self.open {
+        self.families.sort_by(|a, b| a.0.cmp(&b.0));
+        for (cf, slot) in self.families {
+            let Some((mut w, name)) = slot else { continue };
             let path = self.dir.join(&name);
             w.finish().map_err(rocks(&path))?;
             std::fs::File::open(&path)

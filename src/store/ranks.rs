@@ -12,8 +12,9 @@
 //! disjoint key ranges are all unchanged, and the join can write its
 //! sorted output directly. The [`Store`](super::Store) translates ids to
 //! ranks on every lookup and back on every scan, so nothing above it sees
-//! ranks. Ids are uniform hashes, so finding a rank starts at the
-//! interpolated position and needs a few probes, not a full binary search.
+//! ranks. Ids are uniform hashes, so a table indexed by an id's top bits
+//! (a bucket of about four ids each) finds a rank with two memory reads
+//! and a short scan, not a binary search.
 
 use crate::error::Result;
 use crate::key::{Key, MAX_ORDER};
@@ -25,6 +26,11 @@ use crate::words::{bos_id, eos_id, unk_id, WordId};
 pub struct Ranks {
     ids: Vec<WordId>,
     width: usize,
+    /// `starts[b]`: the first index whose id's top bits are `b` or more
+    /// (`2^bits + 1` entries, the last is the number of ids).
+    starts: Vec<u32>,
+    /// Bits of an id that choose its bucket (at least 1).
+    bits: u32,
 }
 
 impl Ranks {
@@ -33,7 +39,22 @@ impl Ranks {
         debug_assert!(ids.windows(2).all(|w| w[0] < w[1]));
         let max = ids.len().saturating_sub(1) as u64;
         let width = (((64 - max.leading_zeros()) as usize).div_ceil(8)).max(1);
-        Ranks { ids, width }
+        // About four ids a bucket: 2^bits is at least a quarter of the ids,
+        // so the table adds at most one byte per id.
+        let bits = (usize::BITS - (ids.len() / 4).leading_zeros()).max(1);
+        let mut starts = vec![0u32; (1usize << bits) + 1];
+        for &id in &ids {
+            starts[(id >> (64 - bits)) as usize + 1] += 1;
+        }
+        for b in 1..starts.len() {
+            starts[b] += starts[b - 1];
+        }
+        Ranks {
+            ids,
+            width,
+            starts,
+            bits,
+        }
     }
 
     /// The ranks of every word in the dictionary files `paths` and of the
@@ -75,39 +96,23 @@ impl Ranks {
 
     /// Bytes held.
     pub fn heap_bytes(&self) -> usize {
-        self.ids.capacity() * 8
+        self.ids.capacity() * 8 + self.starts.capacity() * 4
     }
 
     /// The rank of `id`, if it is one of the store's words.
     #[inline]
     pub fn rank(&self, id: WordId) -> Option<u32> {
-        let n = self.ids.len();
-        if n == 0 {
+        if self.ids.is_empty() {
             return None;
         }
-        // Interpolate, then widen a window around the guess until it
-        // brackets `id`, then search inside it.
-        let guess = ((id as u128 * n as u128) >> 64) as usize;
-        let mut step = 8usize;
-        let (mut lo, mut hi) = (guess.saturating_sub(step), (guess + step).min(n));
-        loop {
-            let lo_ok = lo == 0 || self.ids[lo] <= id;
-            let hi_ok = hi == n || self.ids[hi - 1] >= id;
-            if lo_ok && hi_ok {
-                break;
-            }
-            step *= 4;
-            if !lo_ok {
-                lo = lo.saturating_sub(step);
-            }
-            if !hi_ok {
-                hi = (hi + step).min(n);
+        let b = (id >> (64 - self.bits)) as usize;
+        let (lo, hi) = (self.starts[b] as usize, self.starts[b + 1] as usize);
+        for (i, &x) in self.ids[lo..hi].iter().enumerate() {
+            if x >= id {
+                return (x == id).then_some((lo + i) as u32);
             }
         }
-        self.ids[lo..hi]
-            .binary_search(&id)
-            .ok()
-            .map(|i| (lo + i) as u32)
+        None
     }
 
     /// The id of rank `r`.
