@@ -123,6 +123,27 @@ impl Packed {
     }
 }
 
+/// The position of set bit `rest` (from 0) of `bits`, which has more than
+/// `rest` set bits: whole bytes are skipped by their counts, then at most
+/// seven bits are cleared (instead of up to 63).
+#[inline(always)]
+fn select_in_word(mut bits: u64, mut rest: usize) -> usize {
+    let mut base = 0;
+    loop {
+        let c = (bits & 0xff).count_ones() as usize;
+        if rest < c {
+            break;
+        }
+        rest -= c;
+        bits >>= 8;
+        base += 8;
+    }
+    for _ in 0..rest {
+        bits &= bits - 1;
+    }
+    base + bits.trailing_zeros() as usize
+}
+
 /// Set bits between samples of the Elias–Fano upper bits.
 pub const EF_SAMPLE: usize = 64;
 
@@ -274,10 +295,7 @@ impl EliasFano {
         loop {
             let c = bits.count_ones() as usize;
             if rest < c {
-                for _ in 0..rest {
-                    bits &= bits - 1;
-                }
-                return w * 64 + bits.trailing_zeros() as usize;
+                return w * 64 + select_in_word(bits, rest);
             }
             rest -= c;
             w += 1;
