@@ -106,6 +106,21 @@ fn main() {
     let mut store_cpu = Vec::new();
     let mut model_cpu = Vec::new();
     let mut check = (0.0f64, 0.0f64);
+    // One pass of every query through a model, in batches of running text:
+    // the sum of the finite log10 probabilities.
+    let model_pass = |m: &Model| -> f64 {
+        let mut sum = 0.0;
+        for c in queries.chunks(4096) {
+            sum += m
+                .prob_batch(c)
+                .expect("prob")
+                .iter()
+                .map(|p| p.log10)
+                .filter(|x| x.is_finite())
+                .sum::<f64>();
+        }
+        sum
+    };
     for _ in 0..if only_next { 0 } else { passes } {
         if !only_model {
             let (t, c0) = (Instant::now(), thread_cpu());
@@ -121,29 +136,13 @@ fn main() {
             store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
         }
         let (t, c0) = (Instant::now(), thread_cpu());
-        let mut pass_sum = 0.0;
-        for c in queries.chunks(4096) {
-            let r = model.prob_batch(c).expect("prob");
-            pass_sum += r
-                .iter()
-                .map(|p| p.log10)
-                .filter(|x| x.is_finite())
-                .sum::<f64>();
-        }
+        let pass_sum = model_pass(&model);
         check.1 += pass_sum;
         model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
         model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
         if let Some(l) = &loaded {
             let c0 = thread_cpu();
-            let mut sum = 0.0;
-            for c in queries.chunks(4096) {
-                let r = l.prob_batch(c).expect("prob");
-                sum += r
-                    .iter()
-                    .map(|p| p.log10)
-                    .filter(|x| x.is_finite())
-                    .sum::<f64>();
-            }
+            let sum = model_pass(l);
             loaded_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
             assert_eq!(sum, pass_sum, "loaded and mapped answer the same");
         }
