@@ -253,17 +253,22 @@ impl EliasFano {
         (self.samples.start + 8 * (i / EF_SAMPLE)).min(self.samples.end.saturating_sub(1))
     }
 
+    /// The position in the upper bits of the sample that value `i`'s
+    /// search starts from (`None` past a damaged section's samples).
+    #[inline(always)]
+    fn sample(&self, b: &[u8], i: usize) -> Option<usize> {
+        let s = i / EF_SAMPLE;
+        b[self.samples.clone()]
+            .get(8 * s..8 * s + 8)
+            .map(|x| u64::from_le_bytes(x.try_into().expect("8 bytes")) as usize)
+    }
+
     /// The byte (in the map) of the upper bits where the search for value
     /// `i` starts: the second read of [`EliasFano::pair`], to prefetch
     /// once [`EliasFano::sample_byte`] is in the cache.
     #[inline(always)]
     pub fn scan_byte(&self, b: &[u8], i: usize) -> usize {
-        let s = i / EF_SAMPLE;
-        let from = b[self.samples.clone()]
-            .get(8 * s..8 * s + 8)
-            .map_or(0, |x| {
-                u64::from_le_bytes(x.try_into().expect("8 bytes")) as usize
-            });
+        let from = self.sample(b, i).unwrap_or(0);
         (self.upper.start + 8 * (from / 64)).min(self.upper.end.saturating_sub(1))
     }
 
@@ -281,11 +286,7 @@ impl EliasFano {
         let up = &b[self.upper.clone()];
         let end = up.len() * 8;
         let s = i / EF_SAMPLE;
-        let from = b[self.samples.clone()]
-            .get(8 * s..8 * s + 8)
-            .map_or(end, |x| {
-                u64::from_le_bytes(x.try_into().expect("8 bytes")) as usize
-            });
+        let from = self.sample(b, i).unwrap_or(end);
         if from >= end {
             return end;
         }

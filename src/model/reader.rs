@@ -567,17 +567,22 @@ impl Model {
     /// The word index of `id`, if the model has it (`<s>` included).
     pub(crate) fn index_of(&self, id: WordId) -> Option<u32> {
         let ids = &self.map[self.ids.clone()];
-        let b = (id >> self.id_shift) as usize;
+        let b = self.bucket(id);
         let (lo, hi) = (self.id_dir[b] as usize, self.id_dir[b + 1] as usize);
         find_id_in(|i| u64_at(ids, i), lo, hi.max(lo), id)
+    }
+
+    /// The bucket of the id directory that holds `id`.
+    #[inline(always)]
+    fn bucket(&self, id: WordId) -> usize {
+        (id >> self.id_shift) as usize
     }
 
     /// Prefetches the bucket of the directory that [`Model::index_of`]
     /// reads first for `id`.
     #[inline(always)]
     pub(crate) fn prefetch_bucket(&self, id: WordId) {
-        let b = (id >> self.id_shift) as usize;
-        if let Some(x) = self.id_dir.get(b) {
+        if let Some(x) = self.id_dir.get(self.bucket(id)) {
             #[cfg(target_arch = "x86_64")]
             prefetch_line(x);
             #[cfg(not(target_arch = "x86_64"))]
@@ -589,8 +594,7 @@ impl Model {
     /// bucket of the directory should be in the cache).
     #[inline(always)]
     pub(crate) fn prefetch_ids(&self, id: WordId) {
-        let b = (id >> self.id_shift) as usize;
-        if let Some(&lo) = self.id_dir.get(b) {
+        if let Some(&lo) = self.id_dir.get(self.bucket(id)) {
             prefetch(&self.map, self.ids.start + 8 * lo as usize);
         }
     }
