@@ -634,6 +634,10 @@ pub struct FreezeArgs {
     /// Held-out text: report its perplexity under the store and the model.
     #[arg(long)]
     pub heldout: Vec<PathBuf>,
+    /// Threads that freeze parts of each order side by side (default: one
+    /// per core; the model is the same whatever the number).
+    #[arg(long)]
+    pub threads: Option<usize>,
     /// Check every checksum and invariant of this model file, and nothing else.
     #[arg(long, conflicts_with_all = ["store", "out", "arpa"])]
     pub verify: Option<PathBuf>,

@@ -1,43 +1,38 @@
 //! Freezing: a store streamed, order by order, into a model file.
 //!
-//! Order k is one pass over the store's n-grams of order k beside its
-//! n-grams of order k − 1 (both in key order, so the children of a context
-//! come right after it is met): for each kept n-gram h·w it computes
-//! q(h·w) from the method's step at that order and P(w | h') = q(h'·w),
-//! which it finds in the arrays already written for order k − 1; for each
-//! kept context h of order k − 1 it writes where its children start and
-//! β(h). Every array goes to its own temporary file next to the output
+//! The vocabulary and the unigrams come first. Order k ≥ 2 is then one
+//! pass over the store's n-grams of order k beside its n-grams of order
+//! k − 1 ([`super::pass`]), cut into parts by the n-grams' first word and
+//! run on threads side by side: the parts' arrays are joined in key order,
+//! each children start shifted by the children of the parts before, so
+//! the model is the same byte for byte whatever the number of threads.
+//! Every array goes to its own temporary file next to the output
 //! (memory-mapped when a later order searches it); at the end the arrays
 //! are copied into the model file behind the metadata and the vocabulary.
 //!
 //! Memory: the store's block cache (the caller's), the vocabulary (its ids,
 //! words and unigram values: about 40 bytes a word), one bit per n-gram of
-//! the previous order (which were kept), and buffers. The mapped arrays are
-//! file pages the kernel can drop at any time.
-//!
-//! Pruning by count (`min_counts`) keeps an n-gram of order k only if its
-//! raw count reaches the k-th threshold and its context and its suffix
-//! h'·w are kept (closure under prefixes and suffixes); the back-off weight
-//! of a context that lost a child is recomputed so that its distribution
-//! sums to 1: β(h) = (1 − Σ q(h·v)) / (1 − Σ q(h'·v)) over its kept
-//! children v.
+//! the previous order (which were kept), and buffers per thread. The
+//! mapped arrays are file pages the kernel can drop at any time.
 
 use std::fs::File;
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use crate::error::{Error, IoContext, Result};
-use crate::key::Key;
 use crate::query::backoff::BackoffKind;
-use crate::query::katz::EPS;
 use crate::query::Estimator;
 use crate::store::NgramRecord;
 use crate::words::{bos_id, unk_id, WordId};
 
 use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
+use super::pass::{
+    adjusted, map, run_part, too_many, Built, Bytes, KatzTally, Order, Part, PartOut,
+};
 use super::prune;
 use super::quantize::quantize;
-use super::reader::{find_id, map_read_only, u32_at, Model};
+use super::reader::{find_id, u32_at, Model};
 use super::reduce::{suffix_links, write_reduced, Reduction};
 use super::writer::{ArrayFile, ModelWriter};
 
@@ -60,6 +55,9 @@ pub struct FreezeOptions {
     /// value. Their contexts then sum to 1 only within the rounding of β
     /// (reported in [`FreezeReport::weight_error`]).
     pub weight_bits: Option<u32>,
+    /// Threads that freeze parts of each order side by side (0: one per
+    /// core). The model is the same, byte for byte, whatever the number.
+    pub threads: usize,
 }
 
 impl FreezeOptions {
@@ -99,122 +97,6 @@ pub struct FreezeReport {
     pub weight_error: f64,
 }
 
-/// A file's bytes, memory-mapped (or empty).
-enum Bytes {
-    Map(memmap2::Mmap),
-    Empty,
-}
-
-impl std::ops::Deref for Bytes {
-    type Target = [u8];
-    fn deref(&self) -> &[u8] {
-        match self {
-            Bytes::Map(m) => m,
-            Bytes::Empty => &[],
-        }
-    }
-}
-
-fn map(path: &Path) -> Result<Bytes> {
-    let f = File::open(path).at(path, "open")?;
-    if f.metadata().at(path, "stat")?.len() == 0 {
-        return Ok(Bytes::Empty);
-    }
-    Ok(Bytes::Map(map_read_only(&f, path)?))
-}
-
-/// The arrays written so far, searchable: `words[k]` and `children[k]`
-/// (index k − 1 … as the order), mapped.
-struct Built {
-    words: Vec<Bytes>,
-    children: Vec<Bytes>,
-    /// Cached path of the last lookup: word indices and entries.
-    path_x: Vec<u32>,
-    path_e: Vec<u32>,
-    /// Where the last search of each level ended (the entry found, or
-    /// where the word would be), and under which parent entry: the
-    /// n-grams of one context come in word order, so their suffixes are
-    /// children of one entry in increasing order, and the next search
-    /// gallops forward from there.
-    hint: Vec<(u32, usize)>,
-}
-
-impl Built {
-    /// The entry of order |xs| of the n-gram of word indices `xs`.
-    fn lookup(&mut self, xs: &[u32]) -> Option<u32> {
-        let mut same = 0;
-        while same < xs.len() && same < self.path_x.len() && self.path_x[same] == xs[same] {
-            same += 1;
-        }
-        self.path_x.truncate(same);
-        self.path_e.truncate(same);
-        if self.hint.len() < xs.len() {
-            self.hint.resize(xs.len(), (u32::MAX, 0));
-        }
-        for t in same..xs.len() {
-            let e = if t == 0 {
-                xs[0]
-            } else {
-                // Entry path_e[t-1] of order t; its children are of order t + 1.
-                let c = &self.children[t - 1];
-                let w = &self.words[t];
-                let n = w.len() / 4;
-                let p = self.path_e[t - 1];
-                let lo = (u32_at(c, p as usize) as usize).min(n);
-                let hi = (u32_at(c, p as usize + 1) as usize).clamp(lo, n);
-                let (hp, hpos) = self.hint[t];
-                let from = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
-                    hpos
-                } else {
-                    lo
-                };
-                match gallop(w, from, hi, xs[t]) {
-                    Ok(i) => {
-                        self.hint[t] = (p, i + 1);
-                        i as u32
-                    }
-                    Err(i) => {
-                        self.hint[t] = (p, i);
-                        return None;
-                    }
-                }
-            };
-            self.path_x.push(xs[t]);
-            self.path_e.push(e);
-        }
-        self.path_e.last().copied()
-    }
-}
-
-/// The position of `w` among the increasing u32 words `words[lo..hi]`
-/// (little-endian bytes), or where it would be: galloping from `lo`
-/// (1, 2, 4, … ahead), then bisecting, so that a word near `lo` costs few
-/// reads.
-fn gallop(words: &[u8], lo: usize, hi: usize, w: u32) -> std::result::Result<usize, usize> {
-    let (mut a, mut step) = (lo, 1usize);
-    let mut b = lo;
-    while b < hi && u32_at(words, b) < w {
-        a = b + 1;
-        b = lo + step;
-        step *= 2;
-    }
-    let b = b.min(hi);
-    let (mut a, mut b) = (a.min(b), b);
-    while a < b {
-        let m = a + (b - a) / 2;
-        if u32_at(words, m) < w {
-            a = m + 1;
-        } else {
-            b = m;
-        }
-    }
-    if a < hi && u32_at(words, a) == w {
-        Ok(a)
-    } else {
-        Err(a)
-    }
-}
-
 /// A folder for the temporary arrays beside the output, removed when
 /// dropped (also on an error).
 struct TempDir(PathBuf);
@@ -242,25 +124,6 @@ impl Drop for TempDir {
     fn drop(&mut self) {
         let _ = std::fs::remove_dir_all(&self.0);
     }
-}
-
-/// Katz's contexts that back off past h' (all orders; and whether the
-/// current order has one), and those it cannot represent.
-#[derive(Default)]
-struct KatzTally {
-    skips: u64,
-    order_skips: bool,
-    unrepresentable: u64,
-}
-
-/// Sums over the kept children of one context.
-#[derive(Default)]
-struct Acc {
-    kept: u64,
-    sum_q: f64,
-    sum_lower: f64,
-    pruned: bool,
-    freed: f64,
 }
 
 /// Freezes the estimator's method over its store into the model file
@@ -332,6 +195,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     let index = |id: WordId| find_id(|i| ids[i], ids.len(), id);
     let bos_x = index(bos).ok_or_else(|| Error::corrupt(store.dir(), "the store has no <s>"))?;
     let mut q1 = vec![0.0f64; nw];
+    let mut unigram_counts = vec![0u64; nw];
     let mut q_file = ArrayFile::create(tpath("q1".into()))?;
     let mut q64_file = ArrayFile::create(tpath("q64-1".into()))?;
     {
@@ -364,6 +228,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 }
             };
             q1[x] = q;
+            unigram_counts[x] = c;
             q_file.f32(q as f32)?;
             q64_file.f64(q)?;
         }
@@ -379,16 +244,25 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     let mut child_paths: Vec<PathBuf> = Vec::new();
     let mut kept_counts = vec![nw as u64];
     let mut store_counts = vec![nw as u64 - u64::from(!unk_seen)];
+    let threads = match opts.threads {
+        0 => std::thread::available_parallelism().map_or(1, |t| t.get()),
+        t => t,
+    };
+    let bounds = split_words(&ids, &unigram_counts, unk_seen, threads);
+    let parts_n = bounds.len() - 1;
     let mut built = Built {
         words: vec![Bytes::Empty],
         children: Vec::new(),
-        path_x: Vec::new(),
-        path_e: Vec::new(),
-        hint: Vec::new(),
     };
-    // Which store n-grams of the previous order were kept (by position).
-    let mut kept_prev: Vec<u64> = Vec::new();
+    // Per part: which of its stored n-grams of the previous order were
+    // kept (by position within the part), and the entries of the kept ones.
+    let mut kept_prev: Vec<Vec<u64>> = vec![Vec::new(); parts_n];
+    let mut entries: Vec<(u32, u32)> = bounds
+        .windows(2)
+        .map(|b| (b[0] as u32, b[1] as u32))
+        .collect();
     let mut tally = KatzTally::default();
+    let min_counts: Vec<u64> = (1..=n).map(min).collect();
 
     // ---- orders 2..N ----------------------------------------------------------
     let default_beta = match kind {
@@ -396,248 +270,77 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         _ => 1.0,
     };
     for k in 2..=n {
-        let lower_q = map(&q64_prev)?;
-        tally.order_skips = false;
-        let mut w_file = ArrayFile::create(tpath(format!("w{k}")))?;
-        let mut q_file = ArrayFile::create(tpath(format!("q{k}")))?;
-        let mut q64_file = ArrayFile::create(tpath(format!("q64-{k}")))?;
-        let mut ctx_out = ContextOut {
-            b: ArrayFile::create(tpath(format!("b{}", k - 1)))?,
-            f: ArrayFile::create(tpath(format!("f{}", k - 1)))?,
-            s: ArrayFile::create(tpath(format!("s{}", k - 1)))?,
-            next_p: 0,
-            default_beta,
-            k,
-        };
-        let mut kept_now: Vec<u64> = Vec::new();
-        let mut parents = ParentStream {
-            it: Box::new(store.scan_records(k - 1, &[], None)?),
-            pos: 0,
-            rank: 0,
-        };
-        // The current parent: key, record, model index if kept.
-        let mut cur: Option<(Key, NgramRecord, Option<u32>)> = None;
-        let mut acc = Acc::default();
-        let mut spread_f = 0.0;
-        let mut written: u64 = 0;
-        let mut xs: Vec<u32> = Vec::with_capacity(k);
-        let mut xs_ids: Vec<WordId> = Vec::with_capacity(k);
-        let mut store_n: u64 = 0;
-        // β of a finished context; `None`: Katz must look past h'.
-        let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
-            let j = k - 1;
-            Some(match kind {
-                BackoffKind::Stupid(a) => a,
-                _ if acc.kept == 0 => 1.0,
-                BackoffKind::Interpolated if !acc.pruned => {
-                    est.interpolation_weight(j, rec.context, rec.count)
-                }
-                BackoffKind::Katz if !acc.pruned => {
-                    let s = rec.context.unwrap_or_default();
-                    let f = acc.freed / s.count_sum.max(1) as f64;
-                    let den = 1.0 - acc.sum_lower;
-                    if f <= EPS {
-                        0.0
-                    } else if s.types as f64 >= v {
-                        f
-                    } else if den > EPS {
-                        f / den
-                    } else {
-                        return None;
-                    }
-                }
-                _ => {
-                    let num = 1.0 - acc.sum_q;
-                    let den = 1.0 - acc.sum_lower;
-                    if kind == BackoffKind::Katz && num > EPS && den <= EPS {
-                        return None;
-                    }
-                    if num <= 0.0 || den <= EPS {
-                        0.0
-                    } else {
-                        num / den
-                    }
-                }
-            })
-        };
-        let kept_of = |pk: &Key, parents: &mut ParentStream| -> Option<u32> {
-            if k - 1 == 1 {
-                index(pk.ids()[0])
-            } else {
-                parents.next_kept(&kept_prev)
-            }
-        };
-        // Writes the children start and β of a finished kept context.
-        let finish = |cur: &Option<(Key, NgramRecord, Option<u32>)>,
-                      acc: &Acc,
-                      written: u64,
-                      built: &mut Built,
-                      ctx_out: &mut ContextOut,
-                      tally: &mut KatzTally|
-         -> Result<()> {
-            let Some((pk, prec, Some(p))) = cur else {
-                return Ok(());
+        let outs = {
+            let o = Order {
+                k,
+                kind,
+                v,
+                ids: &ids,
+                built: &built,
+                q64: &q64_maps,
+                q64_prev: &q64_prev,
+                min_counts: &min_counts,
+                pruning,
+                default_beta,
+                dir: tmp.path(),
             };
-            let (beta, skip) = match beta_of(prec, acc) {
-                Some(b) => (b, 1),
-                None => katz_deep(
-                    est,
-                    pk.ids(),
-                    prec,
-                    built,
-                    &q64_maps,
-                    &index,
-                    &mut tally.unrepresentable,
-                    (acc.pruned, 1.0 - acc.sum_q, min(k)),
-                )?,
-            };
-            tally.order_skips |= skip > 1;
-            tally.skips += u64::from(skip > 1);
-            ctx_out.put(*p, written - acc.kept, beta, skip)
+            let parts: Vec<Part> = (0..parts_n)
+                .map(|t| Part {
+                    t,
+                    first: (t > 0).then(|| ids[bounds[t]]),
+                    end: (t + 1 < parts_n).then(|| ids[bounds[t + 1]]),
+                    kept_prev: std::mem::take(&mut kept_prev[t]),
+                    entries: entries[t],
+                })
+                .collect();
+            run_parts(est, &o, parts)?
         };
-        for (pos, item) in store.scan_records(k, &[], None)?.enumerate() {
-            let (g, rec) = item?;
-            store_n += 1;
-            let gi = g.ids();
-            let h = &gi[..k - 1];
-            // Move to the parent h, finishing the ones passed.
-            while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
-                finish(&cur, &acc, written, &mut built, &mut ctx_out, &mut tally)?;
-                acc = Acc::default();
-                let Some(p) = parents.it.next() else {
-                    return Err(Error::corrupt(
-                        store.dir(),
-                        format!("order {k}: an n-gram whose context is not stored"),
-                    ));
-                };
-                let (pk, prec) = p?;
-                if pk.ids() > h {
-                    return Err(Error::corrupt(
-                        store.dir(),
-                        format!("order {k}: an n-gram whose context is not stored"),
-                    ));
-                }
-                let kept = kept_of(&pk, &mut parents);
-                spread_f = 0.0;
-                if kind == BackoffKind::Katz && kept.is_some() {
-                    if let Some(s) = prec.context {
-                        if s.types as f64 >= v {
-                            // Every word follows this context: Katz spreads
-                            // its freed mass, which needs F(h) first.
-                            let mut freed = 0.0;
-                            for c in store.children(pk.ids())? {
-                                freed += est.katz_freed(k - 1, c?.1);
-                            }
-                            spread_f = freed / s.count_sum as f64;
-                        }
-                    }
-                }
-                cur = Some((pk, prec, kept));
-            }
-            let (_, prec, kept) = cur.as_ref().expect("set above");
-            if kind == BackoffKind::Katz {
-                acc.freed += est.katz_freed(k - 1, rec.count);
-            }
-            if kept.is_none() {
-                continue;
-            }
-            // The word indices of h'·w: consecutive n-grams share their
-            // leading words, so only those after the shared ones are looked
-            // up.
-            let mut same = 0;
-            while same < xs.len() && same + 1 < k && xs_ids[same] == gi[same + 1] {
-                same += 1;
-            }
-            xs.truncate(same);
-            xs_ids.truncate(same);
-            for &id in &gi[same + 1..] {
-                xs.push(index(id).ok_or_else(|| {
-                    Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
-                })?);
-                xs_ids.push(id);
-            }
-            let lower_e = if k == 2 {
-                Some(xs[0])
-            } else {
-                built.lookup(&xs)
-            };
-            let Some(lower_e) = lower_e else {
-                if !pruning {
-                    return Err(Error::corrupt(
-                        store.dir(),
-                        format!("order {k}: the suffix of a stored n-gram is not stored"),
-                    ));
-                }
-                acc.pruned = true;
-                continue;
-            };
-            if rec.count < min(k) {
-                acc.pruned = true;
-                continue;
-            }
-            let at = 8 * lower_e as usize;
-            let lower = f64::from_le_bytes(
-                lower_q
-                    .get(at..at + 8)
-                    .ok_or_else(|| Error::corrupt(&q64_prev, "short temporary array"))?
-                    .try_into()
-                    .expect("8 bytes"),
-            );
-            let j = k - 1;
-            let q = match kind {
-                BackoffKind::Interpolated => {
-                    let a = adjusted(rec.count, rec.continuation, gi[0]);
-                    est.step(j, rec.count, a, prec.context, prec.count, lower)
-                }
-                BackoffKind::Katz => {
-                    let s = prec.context.unwrap_or_default();
-                    let p = est.katz_seen(j, rec.count, s.count_sum);
-                    if s.types as f64 >= v && spread_f > EPS {
-                        p + spread_f * lower
-                    } else {
-                        p
-                    }
-                }
-                BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
-            };
-            w_file.u32(*xs.last().expect("k ≥ 2"))?;
-            q_file.f32(q as f32)?;
-            q64_file.f64(q)?;
-            let word = pos / 64;
-            if kept_now.len() <= word {
-                kept_now.resize(word + 1, 0);
-            }
-            kept_now[word] |= 1 << (pos % 64);
-            written += 1;
-            acc.kept += 1;
-            acc.sum_q += q;
-            acc.sum_lower += lower;
+        // Join the parts' arrays in key order.
+        let total: u64 = outs.iter().map(|o| o.written).sum();
+        if total > u64::from(u32::MAX) {
+            return Err(too_many(k));
         }
-        finish(&cur, &acc, written, &mut built, &mut ctx_out, &mut tally)?;
-        // Every later context has no kept child.
-        let n_prev = kept_counts[k - 2];
-        ctx_out.fill_to(n_prev as u32, written)?;
-        ctx_out
-            .f
-            .u32(u32::try_from(written).map_err(|_| too_many(k))?)?;
-        kept_counts.push(written);
+        let w = concat(tpath(format!("w{k}")), outs.iter().map(|o| &o.w))?;
+        let q = concat(tpath(format!("q{k}")), outs.iter().map(|o| &o.q))?;
+        let q64 = concat(tpath(format!("q64-{k}")), outs.iter().map(|o| &o.q64))?;
+        let b = concat(tpath(format!("b{}", k - 1)), outs.iter().map(|o| &o.b))?;
+        let s = concat(tpath(format!("s{}", k - 1)), outs.iter().map(|o| &o.s))?;
+        let mut f = ArrayFile::create(tpath(format!("f{}", k - 1)))?;
+        let mut base = 0u64;
+        for (t, o) in outs.iter().enumerate() {
+            let a = map(&o.f)?;
+            for i in 0..a.len() / 4 {
+                f.u32((base + u64::from(u32_at(&a, i))) as u32)?;
+            }
+            drop(a);
+            std::fs::remove_file(&o.f).at(&o.f, "remove")?;
+            let end = base + o.written;
+            entries[t] = (base as u32, end as u32);
+            base = end;
+        }
+        f.u32(total as u32)?;
+        let f = f.close()?;
+        let store_n: u64 = outs.iter().map(|o| o.store_n).sum();
+        let mut order_skips = false;
+        for (t, o) in outs.into_iter().enumerate() {
+            tally.skips += o.tally.skips;
+            tally.unrepresentable += o.tally.unrepresentable;
+            order_skips |= o.tally.order_skips;
+            kept_prev[t] = o.kept;
+        }
+        kept_counts.push(total);
         store_counts.push(store_n);
-        word_paths.push(Some(w_file.close()?));
-        q_paths.push(q_file.close()?);
-        weight_paths.push(ctx_out.b.close()?);
-        child_paths.push(ctx_out.f.close()?);
-        let sp = ctx_out.s.close()?;
-        skip_paths.push(tally.order_skips.then_some(sp));
-        q64_prev = q64_file.close()?;
-        q64_maps.push(map(&q64_prev)?);
-        kept_prev = kept_now;
+        word_paths.push(Some(w));
+        q_paths.push(q);
+        weight_paths.push(b);
+        child_paths.push(f);
+        skip_paths.push(order_skips.then_some(s));
+        q64_maps.push(map(&q64)?);
+        q64_prev = q64;
         built
             .words
             .push(map(word_paths[k - 1].as_ref().expect("order ≥ 2"))?);
         built.children.push(map(&child_paths[k - 2])?);
-        built.path_x.clear();
-        built.path_e.clear();
-        built.hint.clear();
     }
     if tally.skips > 0 {
         notes.push(format!(
@@ -838,154 +541,114 @@ fn reduce_model(
     Ok(report)
 }
 
-fn too_many(k: usize) -> Error {
-    Error::Config(format!(
-        "order {k} keeps more than 4,294,967,295 n-grams, more than a model of this format version can index"
-    ))
-}
-
-/// The adjusted count: the continuation count, except at the top order and
-/// for n-grams that start with `<s>` (the raw count there).
-fn adjusted(c: u64, cont: Option<u64>, first: WordId) -> u64 {
-    match cont {
-        Some(x) if first != bos_id() => x,
-        _ => c,
-    }
-}
-
-/// The n-grams of the previous order in key order, with which of them
-/// were kept.
-struct ParentStream<'a> {
-    it: Box<dyn Iterator<Item = Result<(Key, NgramRecord)>> + 'a>,
-    pos: u64,
-    rank: u32,
-}
-
-impl ParentStream<'_> {
-    /// Whether the n-gram just taken from `it` was kept (by its position),
-    /// and its entry if so.
-    fn next_kept(&mut self, kept: &[u64]) -> Option<u32> {
-        let p = self.pos;
-        self.pos += 1;
-        let bit = kept
-            .get(p as usize / 64)
-            .is_some_and(|w| w >> (p % 64) & 1 == 1);
-        bit.then(|| {
-            self.rank += 1;
-            self.rank - 1
-        })
-    }
-}
-
-/// The children starts and back-off weights of one order's kept n-grams,
-/// written in entry order; an entry without kept children gets an empty
-/// range and the default weight.
-struct ContextOut {
-    b: ArrayFile,
-    f: ArrayFile,
-    s: ArrayFile,
-    next_p: u32,
-    default_beta: f64,
-    k: usize,
-}
-
-impl ContextOut {
-    fn fill_to(&mut self, p: u32, start: u64) -> Result<()> {
-        while self.next_p < p {
-            self.f
-                .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
-            self.b.f32(self.default_beta as f32)?;
-            self.s.put(&[1])?;
-            self.next_p += 1;
+/// Runs the parts of one order, each on its own thread (the first on this
+/// one, with `est`; the others with their own estimator of the same method
+/// and parameters), and returns what they wrote in part order.
+fn run_parts(est: &Estimator<'_>, o: &Order<'_>, mut parts: Vec<Part>) -> Result<Vec<PartOut>> {
+    let rest = parts.split_off(1);
+    let first = parts.pop().expect("at least one part");
+    let (store, method, params) = (est.store(), est.method(), est.params());
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = rest
+            .into_iter()
+            .map(|part| {
+                scope.spawn(move || {
+                    let own = Estimator::new(store, method, params.clone())?;
+                    run_part(&own, o, part)
+                })
+            })
+            .collect();
+        let mut outs = vec![run_part(est, o, first)];
+        for h in handles {
+            outs.push(h.join().unwrap_or_else(|e| std::panic::resume_unwind(e)));
         }
-        Ok(())
-    }
-
-    fn put(&mut self, p: u32, start: u64, beta: f64, skip: u8) -> Result<()> {
-        self.fill_to(p, start)?;
-        self.f
-            .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
-        self.b.f32(beta as f32)?;
-        self.s.put(&[skip])?;
-        self.next_p = p + 1;
-        Ok(())
-    }
+        outs.into_iter().collect()
+    })
 }
 
-/// Katz's back-off weight for a context h whose children take all the
-/// probability of h' (1 − Σ P(v | h') ≤ 1e-12): like the estimator, it
-/// looks at ever shorter contexts h_i for one where the denominator
-/// 1 − Σ_{v child of h} P(v | h_i) is positive, and returns β = F(h)/that
-/// denominator with the number of words dropped. Where there is none, the
-/// estimator spreads F(h) uniformly, which a back-off model cannot say:
-/// counted in `unrep`, β = 0. `pruned`: (some child of h was pruned, the
-/// mass 1 − Σ q(h·v) of its kept children, the count threshold of their
-/// order): then the numerator is that mass and only kept children count.
-#[allow(clippy::too_many_arguments)]
-fn katz_deep(
-    est: &Estimator<'_>,
-    h: &[WordId],
-    rec: &NgramRecord,
-    built: &mut Built,
-    q64: &[Bytes],
-    index: &dyn Fn(WordId) -> Option<u32>,
-    unrep: &mut u64,
-    pruned: (bool, f64, u64),
-) -> Result<(f64, u8)> {
-    let j = h.len();
-    let s = rec.context.unwrap_or_default();
-    let store = est.store();
-    let mut kids: Vec<(u32, u64)> = Vec::new();
-    for c in store.children(h)? {
-        let (key, count, _) = c?;
-        let v = index(key.ids()[j])
-            .ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))?;
-        kids.push((v, count));
-    }
-    let freed: f64 = kids.iter().map(|&(_, c)| est.katz_freed(j, c)).sum();
-    let hx: Vec<u32> = h
-        .iter()
-        .map(|&id| {
-            index(id).ok_or_else(|| Error::corrupt(store.dir(), "a word that is not a unigram"))
-        })
-        .collect::<Result<_>>()?;
-    let mut xs: Vec<u32> = Vec::with_capacity(j + 1);
-    let f = if pruned.0 {
-        // Only the kept children: count at the threshold and h'·v kept.
-        kids.retain(|&(v, c)| {
-            c >= pruned.2 && {
-                xs.clear();
-                xs.extend_from_slice(&hx[1..]);
-                xs.push(v);
-                xs.len() == 1 || built.lookup(&xs).is_some()
+/// The word indices where the parts of every order start (and `ids.len()`
+/// at the end): up to `threads` parts with about equal sums of the first
+/// words' counts (a word's count bounds the n-grams it starts at every
+/// order). A part starts at a word the store holds.
+fn split_words(ids: &[WordId], counts: &[u64], unk_seen: bool, threads: usize) -> Vec<usize> {
+    let total: u64 = counts.iter().sum();
+    let mut bounds = vec![0];
+    let mut sum = 0u64;
+    let mut t = 1;
+    for (x, &c) in counts.iter().enumerate() {
+        if t >= threads {
+            break;
+        }
+        let stored = unk_seen || ids[x] != unk_id();
+        if sum as u128 * threads as u128 >= total as u128 * t as u128 && stored && x > 0 {
+            bounds.push(x);
+            while sum as u128 * threads as u128 >= total as u128 * t as u128 {
+                t += 1;
             }
-        });
-        pruned.1
-    } else {
-        freed / s.count_sum.max(1) as f64
-    };
-    for i in (0..j.saturating_sub(1)).rev() {
-        let mut sum = 0.0;
-        for &(v, _) in &kids {
-            xs.clear();
-            xs.extend_from_slice(&hx[j - i..]);
-            xs.push(v);
-            let e = if i == 0 { Some(v) } else { built.lookup(&xs) };
-            let Some(e) = e else {
-                return Err(Error::corrupt(
-                    store.dir(),
-                    "the suffix of a kept n-gram is not kept",
-                ));
-            };
-            let b = &q64[i];
-            let at = 8 * e as usize;
-            sum += f64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"));
         }
-        let den = 1.0 - sum;
-        if den > EPS {
-            return Ok((f / den, (j - i) as u8));
-        }
+        sum += c;
     }
-    *unrep += 1;
-    Ok((0.0, 1))
+    bounds.push(ids.len());
+    bounds
+}
+
+/// Joins the files `parts` (in order) into `dst`: the first is renamed,
+/// the others appended and removed.
+fn concat<'p>(dst: PathBuf, parts: impl IntoIterator<Item = &'p PathBuf>) -> Result<PathBuf> {
+    let mut parts = parts.into_iter();
+    match parts.next() {
+        Some(p) => std::fs::rename(p, &dst).at(&dst, "rename into")?,
+        None => drop(File::create(&dst).at(&dst, "create")?),
+    }
+    let mut out = std::fs::OpenOptions::new()
+        .append(true)
+        .open(&dst)
+        .at(&dst, "open")?;
+    for p in parts {
+        let mut f = File::open(p).at(p, "open")?;
+        std::io::copy(&mut f, &mut out).at(&dst, "write")?;
+        drop(f);
+        std::fs::remove_file(p).at(p, "remove")?;
+    }
+    out.flush().at(&dst, "write")?;
+    Ok(dst)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Parts start at increasing words the store holds, cover every word,
+    /// and split the counts about evenly; one thread is one part.
+    #[test]
+    fn parts_split_the_words_evenly() {
+        let unk = unk_id();
+        let mut ids: Vec<WordId> = (1..=1000u64).map(|i| i * 7919).collect();
+        ids.push(unk);
+        ids.sort_unstable();
+        let counts: Vec<u64> = (0..ids.len() as u64).map(|i| 1 + i % 13).collect();
+        assert_eq!(split_words(&ids, &counts, true, 1), vec![0, ids.len()]);
+        for threads in [2, 3, 8] {
+            for unk_seen in [true, false] {
+                let b = split_words(&ids, &counts, unk_seen, threads);
+                assert_eq!(b.len(), threads + 1, "{threads} threads");
+                assert_eq!((b[0], *b.last().unwrap()), (0, ids.len()));
+                assert!(b.windows(2).all(|w| w[0] < w[1]));
+                let total: u64 = counts.iter().sum();
+                for w in b.windows(2) {
+                    let part: u64 = counts[w[0]..w[1]].iter().sum();
+                    let even = total / threads as u64;
+                    assert!(part.abs_diff(even) <= 13, "{part} against {even}");
+                }
+                if !unk_seen {
+                    assert!(b.iter().all(|&x| x == ids.len() || ids[x] != unk));
+                }
+            }
+        }
+        // A word with most of the counts: fewer parts, never an empty one.
+        let mut heavy = counts.clone();
+        heavy[10] = 1_000_000;
+        let b = split_words(&ids, &heavy, true, 4);
+        assert!(b.windows(2).all(|w| w[0] < w[1]) && b.len() <= 5);
+    }
 }

@@ -112,6 +112,7 @@ pub mod complete;
 pub mod format;
 pub mod freeze;
 pub mod packed;
+mod pass;
 pub(crate) mod prune;
 pub(crate) mod quantize;
 pub mod query;

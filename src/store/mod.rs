@@ -317,6 +317,60 @@ impl Store {
             .map(|r| r.map(|(key, rec)| (key, rec.count, rec.continuation))))
     }
 
+    /// The stored n-grams of order `k` whose first word is at least `from`
+    /// and below `to` (`None`: no bound), in key order, read like a whole
+    /// order (ahead, and not into the block cache): one part of an order
+    /// that several threads read side by side. `from` and `to` must be
+    /// words of the store.
+    pub fn scan_first_words<'a>(
+        &'a self,
+        k: usize,
+        from: Option<WordId>,
+        to: Option<WordId>,
+    ) -> Result<impl Iterator<Item = Result<(Key, NgramRecord)>> + 'a> {
+        let path = layout::db(&self.dir);
+        let bound = |w: Option<WordId>| -> Result<Option<Vec<u8>>> {
+            w.map(|w| {
+                self.key_of(&[w]).ok_or_else(|| {
+                    Error::corrupt(&path, format!("the word with id {w:#018x} is not stored"))
+                })
+            })
+            .transpose()
+        };
+        let (start, end) = (bound(from)?.unwrap_or_default(), bound(to)?);
+        let cf = if k >= 1 && k <= self.order() {
+            Some(self.cf(&keys::ngram_cf(k))?)
+        } else {
+            None
+        };
+        let it = cf.map(|cf| {
+            let mut ro = rocksdb::ReadOptions::default();
+            ro.fill_cache(false);
+            ro.set_readahead_size(4 << 20);
+            if let Some(e) = end {
+                ro.set_iterate_upper_bound(e);
+            }
+            self.db.iterator_cf_opt(
+                cf,
+                ro,
+                IteratorMode::From(&start, rocksdb::Direction::Forward),
+            )
+        });
+        Ok(it.into_iter().flatten().map(move |item| {
+            let (kb, vb) = item.map_err(|source| Error::Rocks {
+                path: path.clone(),
+                source,
+            })?;
+            let key = self
+                .ranks
+                .read_key(&kb)
+                .ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
+            let rec =
+                keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
+            Ok((key, rec))
+        }))
+    }
+
     /// As [`Store::scan_prefix`], with whole records. Empty when `k` is not
     /// an order of the store or a word of `prefix` is not in it.
     pub fn scan_records<'a>(

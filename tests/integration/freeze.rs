@@ -364,6 +364,46 @@ fn arpa_read_by_python() {
     }
 }
 
+/// Freezing cuts each order into parts by first word and runs them on
+/// threads side by side: the model must be the same file, byte for byte,
+/// whatever the number of threads (1 is the plain sequential pass; 7 cuts
+/// the small fixture into parts of a few words), with and without count
+/// thresholds, for an interpolated method, Katz (whose contexts may look
+/// past h') and stupid back-off.
+#[test]
+fn threads_do_not_change_the_model() {
+    let store = Store::open(train5()).unwrap();
+    let dir = scratch("threads");
+    for (m, min_counts) in [
+        (Method::Mkn, vec![]),
+        (Method::Katz, vec![]),
+        (Method::Stupid, vec![]),
+        (Method::WittenBell, vec![1, 2, 2, 3]),
+        (Method::Katz, vec![1, 1, 2]),
+    ] {
+        let est = Estimator::new(&store, m, params_for(m, store.order(), false)).unwrap();
+        let bytes: Vec<Vec<u8>> = [1, 2, 3, 7]
+            .iter()
+            .map(|&threads| {
+                let path = dir.join(format!("{m}-{}-{threads}.model", min_counts.len()));
+                let opts = FreezeOptions {
+                    min_counts: min_counts.clone(),
+                    threads,
+                    ..Default::default()
+                };
+                freeze(&est, &path, &opts).unwrap();
+                std::fs::read(&path).unwrap()
+            })
+            .collect();
+        for (b, threads) in bytes[1..].iter().zip([2, 3, 7]) {
+            assert!(
+                *b == bytes[0],
+                "{m} {min_counts:?}: {threads} threads wrote another model than 1"
+            );
+        }
+    }
+}
+
 /// Count thresholds: fewer n-grams, still closed and normalised (the
 /// back-off weights are recomputed); the Python reader checks the sums and
 /// the closure, the model's own distribution sums to 1 too.

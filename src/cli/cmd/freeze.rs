@@ -92,6 +92,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         max_ngrams: a.max_ngrams,
         bits: a.bits,
         weight_bits: a.weight_bits,
+        threads: a.threads.unwrap_or(0),
     };
     if opts.min_counts.len() > store.order() {
         anyhow::bail!(

@@ -1,0 +1,630 @@
+//! One order's pass of a freeze, over one part of the store: the n-grams
+//! of order k whose first word lies in a range, beside the n-grams of
+//! order k − 1 of the same range (both in key order, so the children of a
+//! context come right after it is met).
+//!
+//! For each kept n-gram h·w the pass computes q(h·w) from the method's step
+//! at that order and P(w | h') = q(h'·w), which it finds in the arrays of
+//! order k − 1 that every part wrote before ([`Built`], shared); for each
+//! kept context h of the range it writes where its children start (counted
+//! from the part's first child) and β(h). A context's children all share
+//! its first word, so parts never split one; [`super::freeze`] runs the
+//! parts on threads side by side and joins their arrays in order.
+//!
+//! Pruning by count keeps an n-gram of order k only if its raw count
+//! reaches the k-th threshold and its context and its suffix h'·w are kept
+//! (closure under prefixes and suffixes); the back-off weight of a context
+//! that lost a child is recomputed so that its distribution sums to 1:
+//! β(h) = (1 − Σ q(h·v)) / (1 − Σ q(h'·v)) over its kept children v.
+
+use std::fs::File;
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, IoContext, Result};
+use crate::key::Key;
+use crate::query::backoff::BackoffKind;
+use crate::query::katz::EPS;
+use crate::query::Estimator;
+use crate::store::NgramRecord;
+use crate::words::{bos_id, WordId};
+
+use super::reader::{find_id, map_read_only, u32_at};
+use super::writer::ArrayFile;
+
+/// A file's bytes, memory-mapped (or empty).
+pub(super) enum Bytes {
+    Map(memmap2::Mmap),
+    Empty,
+}
+
+impl std::ops::Deref for Bytes {
+    type Target = [u8];
+    fn deref(&self) -> &[u8] {
+        match self {
+            Bytes::Map(m) => m,
+            Bytes::Empty => &[],
+        }
+    }
+}
+
+/// Maps the file at `path` read-only.
+pub(super) fn map(path: &Path) -> Result<Bytes> {
+    let f = File::open(path).at(path, "open")?;
+    if f.metadata().at(path, "stat")?.len() == 0 {
+        return Ok(Bytes::Empty);
+    }
+    Ok(Bytes::Map(map_read_only(&f, path)?))
+}
+
+/// The arrays of the finished orders, searchable: `words[k]` and
+/// `children[k]` (index k − 1 … as the order), mapped and shared by the
+/// parts.
+pub(super) struct Built {
+    pub words: Vec<Bytes>,
+    pub children: Vec<Bytes>,
+}
+
+/// One reader's place in [`Built`]: the path of its last lookup (word
+/// indices and entries), and where the last search of each level ended
+/// (the entry found, or where the word would be) and under which parent
+/// entry: the n-grams of one context come in word order, so their suffixes
+/// are children of one entry in increasing order, and the next search
+/// gallops forward from there.
+#[derive(Default)]
+pub(super) struct Cursor {
+    path_x: Vec<u32>,
+    path_e: Vec<u32>,
+    hint: Vec<(u32, usize)>,
+}
+
+impl Built {
+    /// The entry of order |xs| of the n-gram of word indices `xs`.
+    pub fn lookup(&self, c: &mut Cursor, xs: &[u32]) -> Option<u32> {
+        let mut same = 0;
+        while same < xs.len() && same < c.path_x.len() && c.path_x[same] == xs[same] {
+            same += 1;
+        }
+        c.path_x.truncate(same);
+        c.path_e.truncate(same);
+        if c.hint.len() < xs.len() {
+            c.hint.resize(xs.len(), (u32::MAX, 0));
+        }
+        for t in same..xs.len() {
+            let e = if t == 0 {
+                xs[0]
+            } else {
+                // Entry path_e[t-1] of order t; its children are of order t + 1.
+                let ch = &self.children[t - 1];
+                let w = &self.words[t];
+                let n = w.len() / 4;
+                let p = c.path_e[t - 1];
+                let lo = (u32_at(ch, p as usize) as usize).min(n);
+                let hi = (u32_at(ch, p as usize + 1) as usize).clamp(lo, n);
+                let (hp, hpos) = c.hint[t];
+                let from = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
+                    hpos
+                } else {
+                    lo
+                };
+                match gallop(w, from, hi, xs[t]) {
+                    Ok(i) => {
+                        c.hint[t] = (p, i + 1);
+                        i as u32
+                    }
+                    Err(i) => {
+                        c.hint[t] = (p, i);
+                        return None;
+                    }
+                }
+            };
+            c.path_x.push(xs[t]);
+            c.path_e.push(e);
+        }
+        c.path_e.last().copied()
+    }
+}
+
+/// The position of `w` among the increasing u32 words `words[lo..hi]`
+/// (little-endian bytes), or where it would be: galloping from `lo`
+/// (1, 2, 4, … ahead), then bisecting, so that a word near `lo` costs few
+/// reads.
+fn gallop(words: &[u8], lo: usize, hi: usize, w: u32) -> std::result::Result<usize, usize> {
+    let (mut a, mut step) = (lo, 1usize);
+    let mut b = lo;
+    while b < hi && u32_at(words, b) < w {
+        a = b + 1;
+        b = lo + step;
+        step *= 2;
+    }
+    let b = b.min(hi);
+    let (mut a, mut b) = (a.min(b), b);
+    while a < b {
+        let m = a + (b - a) / 2;
+        if u32_at(words, m) < w {
+            a = m + 1;
+        } else {
+            b = m;
+        }
+    }
+    if a < hi && u32_at(words, a) == w {
+        Ok(a)
+    } else {
+        Err(a)
+    }
+}
+
+/// Katz's contexts that back off past h' (all orders; and whether the
+/// current order has one), and those it cannot represent.
+#[derive(Default)]
+pub(super) struct KatzTally {
+    pub skips: u64,
+    pub order_skips: bool,
+    pub unrepresentable: u64,
+}
+
+/// What every part of one order shares.
+pub(super) struct Order<'a> {
+    /// The order.
+    pub k: usize,
+    pub kind: BackoffKind,
+    /// |V|.
+    pub v: f64,
+    /// The word ids, increasing: word index i is `ids[i]`.
+    pub ids: &'a [WordId],
+    /// The arrays of orders 1..k − 1.
+    pub built: &'a Built,
+    /// The exact q of every finished order (index k − 1), f64 each.
+    pub q64: &'a [Bytes],
+    /// The path of order k − 1's exact q (for errors).
+    pub q64_prev: &'a Path,
+    /// Count threshold per order (index k − 1; at least 1).
+    pub min_counts: &'a [u64],
+    /// Whether any order is pruned by count.
+    pub pruning: bool,
+    /// β of a context without kept children.
+    pub default_beta: f64,
+    /// The temporary folder.
+    pub dir: &'a Path,
+}
+
+impl Order<'_> {
+    fn index(&self, id: WordId) -> Option<u32> {
+        find_id(|i| self.ids[i], self.ids.len(), id)
+    }
+
+    fn min(&self, k: usize) -> u64 {
+        self.min_counts.get(k - 1).copied().unwrap_or(1).max(1)
+    }
+}
+
+/// One part of an order: the n-grams whose first word is in `first..end`
+/// (ids; `None`: unbounded).
+pub(super) struct Part {
+    /// The part's number (names its files).
+    pub t: usize,
+    pub first: Option<WordId>,
+    pub end: Option<WordId>,
+    /// Which of the part's n-grams of order k − 1 were kept, by position
+    /// within the part (for k = 2: unused, every unigram is kept).
+    pub kept_prev: Vec<u64>,
+    /// The model entries of the part's kept n-grams of order k − 1.
+    pub entries: (u32, u32),
+}
+
+/// What one part of an order wrote.
+pub(super) struct PartOut {
+    /// Order k: last words (u32), q (f32), exact q (f64).
+    pub w: PathBuf,
+    pub q: PathBuf,
+    pub q64: PathBuf,
+    /// Order k − 1, the part's entries: β (f32), children starts counted
+    /// from the part's first child (u32), Katz's skips (u8).
+    pub b: PathBuf,
+    pub f: PathBuf,
+    pub s: PathBuf,
+    /// Kept n-grams of order k.
+    pub written: u64,
+    /// Stored n-grams of order k read.
+    pub store_n: u64,
+    /// Which of them were kept, by position within the part.
+    pub kept: Vec<u64>,
+    pub tally: KatzTally,
+}
+
+/// Sums over the kept children of one context.
+#[derive(Default)]
+struct Acc {
+    kept: u64,
+    sum_q: f64,
+    sum_lower: f64,
+    pruned: bool,
+    freed: f64,
+}
+
+/// The n-grams of the previous order in key order, with which of them
+/// were kept.
+struct ParentStream<I> {
+    it: I,
+    pos: u64,
+    rank: u32,
+}
+
+impl<I> ParentStream<I> {
+    /// Whether the n-gram just taken from `it` was kept (by its position),
+    /// and its entry if so.
+    fn next_kept(&mut self, kept: &[u64]) -> Option<u32> {
+        let p = self.pos;
+        self.pos += 1;
+        let bit = kept
+            .get(p as usize / 64)
+            .is_some_and(|w| w >> (p % 64) & 1 == 1);
+        bit.then(|| {
+            self.rank += 1;
+            self.rank - 1
+        })
+    }
+}
+
+/// The children starts and back-off weights of one part's kept contexts,
+/// written in entry order; an entry without kept children gets an empty
+/// range and the default weight.
+struct ContextOut {
+    b: ArrayFile,
+    f: ArrayFile,
+    s: ArrayFile,
+    next_p: u32,
+    default_beta: f64,
+    k: usize,
+}
+
+impl ContextOut {
+    fn fill_to(&mut self, p: u32, start: u64) -> Result<()> {
+        while self.next_p < p {
+            self.f
+                .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
+            self.b.f32(self.default_beta as f32)?;
+            self.s.put(&[1])?;
+            self.next_p += 1;
+        }
+        Ok(())
+    }
+
+    fn put(&mut self, p: u32, start: u64, beta: f64, skip: u8) -> Result<()> {
+        self.fill_to(p, start)?;
+        self.f
+            .u32(u32::try_from(start).map_err(|_| too_many(self.k))?)?;
+        self.b.f32(beta as f32)?;
+        self.s.put(&[skip])?;
+        self.next_p = p + 1;
+        Ok(())
+    }
+}
+
+/// The error of an order too big for the format's 32-bit entries.
+pub(super) fn too_many(k: usize) -> Error {
+    Error::Config(format!(
+        "order {k} keeps more than 4,294,967,295 n-grams, more than a model of this format version can index"
+    ))
+}
+
+/// The adjusted count: the continuation count, except at the top order and
+/// for n-grams that start with `<s>` (the raw count there).
+pub(super) fn adjusted(c: u64, cont: Option<u64>, first: WordId) -> u64 {
+    match cont {
+        Some(x) if first != bos_id() => x,
+        _ => c,
+    }
+}
+
+/// Runs one part of order `o.k` with the estimator `est`.
+pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result<PartOut> {
+    let k = o.k;
+    let kind = o.kind;
+    let v = o.v;
+    let store = est.store();
+    let lower_q = &o.q64[k - 2];
+    let tp = |name: &str| o.dir.join(format!("{name}{k}-{}", part.t));
+    let mut w_file = ArrayFile::create(tp("w"))?;
+    let mut q_file = ArrayFile::create(tp("q"))?;
+    let mut q64_file = ArrayFile::create(tp("q64-"))?;
+    let mut ctx_out = ContextOut {
+        b: ArrayFile::create(tp("b"))?,
+        f: ArrayFile::create(tp("f"))?,
+        s: ArrayFile::create(tp("s"))?,
+        next_p: part.entries.0,
+        default_beta: o.default_beta,
+        k,
+    };
+    let mut cursor = Cursor::default();
+    let mut tally = KatzTally::default();
+    let mut kept_now: Vec<u64> = Vec::new();
+    let mut parents = ParentStream {
+        it: store.scan_first_words(k - 1, part.first, part.end)?,
+        pos: 0,
+        rank: part.entries.0,
+    };
+    // The current parent: key, record, model index if kept.
+    let mut cur: Option<(Key, NgramRecord, Option<u32>)> = None;
+    let mut acc = Acc::default();
+    let mut spread_f = 0.0;
+    let mut written: u64 = 0;
+    let mut xs: Vec<u32> = Vec::with_capacity(k);
+    let mut xs_ids: Vec<WordId> = Vec::with_capacity(k);
+    let mut store_n: u64 = 0;
+    // β of a finished context; `None`: Katz must look past h'.
+    let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
+        let j = k - 1;
+        Some(match kind {
+            BackoffKind::Stupid(a) => a,
+            _ if acc.kept == 0 => 1.0,
+            BackoffKind::Interpolated if !acc.pruned => {
+                est.interpolation_weight(j, rec.context, rec.count)
+            }
+            BackoffKind::Katz if !acc.pruned => {
+                let s = rec.context.unwrap_or_default();
+                let f = acc.freed / s.count_sum.max(1) as f64;
+                let den = 1.0 - acc.sum_lower;
+                if f <= EPS {
+                    0.0
+                } else if s.types as f64 >= v {
+                    f
+                } else if den > EPS {
+                    f / den
+                } else {
+                    return None;
+                }
+            }
+            _ => {
+                let num = 1.0 - acc.sum_q;
+                let den = 1.0 - acc.sum_lower;
+                if kind == BackoffKind::Katz && num > EPS && den <= EPS {
+                    return None;
+                }
+                if num <= 0.0 || den <= EPS {
+                    0.0
+                } else {
+                    num / den
+                }
+            }
+        })
+    };
+    // Writes the children start and β of a finished kept context.
+    let finish = |cur: &Option<(Key, NgramRecord, Option<u32>)>,
+                  acc: &Acc,
+                  written: u64,
+                  cursor: &mut Cursor,
+                  ctx_out: &mut ContextOut,
+                  tally: &mut KatzTally|
+     -> Result<()> {
+        let Some((pk, prec, Some(p))) = cur else {
+            return Ok(());
+        };
+        let (beta, skip) = match beta_of(prec, acc) {
+            Some(b) => (b, 1),
+            None => katz_deep(
+                est,
+                o,
+                pk.ids(),
+                prec,
+                cursor,
+                &mut tally.unrepresentable,
+                (acc.pruned, 1.0 - acc.sum_q, o.min(k)),
+            )?,
+        };
+        tally.order_skips |= skip > 1;
+        tally.skips += u64::from(skip > 1);
+        ctx_out.put(*p, written - acc.kept, beta, skip)
+    };
+    let not_stored = || {
+        Error::corrupt(
+            store.dir(),
+            format!("order {k}: an n-gram whose context is not stored"),
+        )
+    };
+    for (pos, item) in store.scan_first_words(k, part.first, part.end)?.enumerate() {
+        let (g, rec) = item?;
+        store_n += 1;
+        let gi = g.ids();
+        let h = &gi[..k - 1];
+        // Move to the parent h, finishing the ones passed.
+        while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
+            finish(&cur, &acc, written, &mut cursor, &mut ctx_out, &mut tally)?;
+            acc = Acc::default();
+            let (pk, prec) = parents.it.next().ok_or_else(not_stored)??;
+            if pk.ids() > h {
+                return Err(not_stored());
+            }
+            let kept = if k - 1 == 1 {
+                o.index(pk.ids()[0])
+            } else {
+                parents.next_kept(&part.kept_prev)
+            };
+            spread_f = 0.0;
+            if kind == BackoffKind::Katz && kept.is_some() {
+                if let Some(s) = prec.context {
+                    if s.types as f64 >= v {
+                        // Every word follows this context: Katz spreads
+                        // its freed mass, which needs F(h) first.
+                        let mut freed = 0.0;
+                        for c in store.children(pk.ids())? {
+                            freed += est.katz_freed(k - 1, c?.1);
+                        }
+                        spread_f = freed / s.count_sum as f64;
+                    }
+                }
+            }
+            cur = Some((pk, prec, kept));
+        }
+        let (_, prec, kept) = cur.as_ref().expect("set above");
+        if kind == BackoffKind::Katz {
+            acc.freed += est.katz_freed(k - 1, rec.count);
+        }
+        if kept.is_none() {
+            continue;
+        }
+        // The word indices of h'·w: consecutive n-grams share their
+        // leading words, so only those after the shared ones are looked
+        // up.
+        let mut same = 0;
+        while same < xs.len() && same + 1 < k && xs_ids[same] == gi[same + 1] {
+            same += 1;
+        }
+        xs.truncate(same);
+        xs_ids.truncate(same);
+        for &id in &gi[same + 1..] {
+            xs.push(o.index(id).ok_or_else(|| {
+                Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
+            })?);
+            xs_ids.push(id);
+        }
+        let lower_e = if k == 2 {
+            Some(xs[0])
+        } else {
+            o.built.lookup(&mut cursor, &xs)
+        };
+        let Some(lower_e) = lower_e else {
+            if !o.pruning {
+                return Err(Error::corrupt(
+                    store.dir(),
+                    format!("order {k}: the suffix of a stored n-gram is not stored"),
+                ));
+            }
+            acc.pruned = true;
+            continue;
+        };
+        if rec.count < o.min(k) {
+            acc.pruned = true;
+            continue;
+        }
+        let at = 8 * lower_e as usize;
+        let lower = f64::from_le_bytes(
+            lower_q
+                .get(at..at + 8)
+                .ok_or_else(|| Error::corrupt(o.q64_prev, "short temporary array"))?
+                .try_into()
+                .expect("8 bytes"),
+        );
+        let j = k - 1;
+        let q = match kind {
+            BackoffKind::Interpolated => {
+                let a = adjusted(rec.count, rec.continuation, gi[0]);
+                est.step(j, rec.count, a, prec.context, prec.count, lower)
+            }
+            BackoffKind::Katz => {
+                let s = prec.context.unwrap_or_default();
+                let p = est.katz_seen(j, rec.count, s.count_sum);
+                if s.types as f64 >= v && spread_f > EPS {
+                    p + spread_f * lower
+                } else {
+                    p
+                }
+            }
+            BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
+        };
+        w_file.u32(*xs.last().expect("k ≥ 2"))?;
+        q_file.f32(q as f32)?;
+        q64_file.f64(q)?;
+        let word = pos / 64;
+        if kept_now.len() <= word {
+            kept_now.resize(word + 1, 0);
+        }
+        kept_now[word] |= 1 << (pos % 64);
+        written += 1;
+        acc.kept += 1;
+        acc.sum_q += q;
+        acc.sum_lower += lower;
+    }
+    finish(&cur, &acc, written, &mut cursor, &mut ctx_out, &mut tally)?;
+    // Every later context of the part has no kept child.
+    ctx_out.fill_to(part.entries.1, written)?;
+    Ok(PartOut {
+        w: w_file.close()?,
+        q: q_file.close()?,
+        q64: q64_file.close()?,
+        b: ctx_out.b.close()?,
+        f: ctx_out.f.close()?,
+        s: ctx_out.s.close()?,
+        written,
+        store_n,
+        kept: kept_now,
+        tally,
+    })
+}
+
+/// Katz's back-off weight for a context h whose children take all the
+/// probability of h' (1 − Σ P(v | h') ≤ 1e-12): like the estimator, it
+/// looks at ever shorter contexts h_i for one where the denominator
+/// 1 − Σ_{v child of h} P(v | h_i) is positive, and returns β = F(h)/that
+/// denominator with the number of words dropped. Where there is none, the
+/// estimator spreads F(h) uniformly, which a back-off model cannot say:
+/// counted in `unrep`, β = 0. `pruned`: (some child of h was pruned, the
+/// mass 1 − Σ q(h·v) of its kept children, the count threshold of their
+/// order): then the numerator is that mass and only kept children count.
+fn katz_deep(
+    est: &Estimator<'_>,
+    o: &Order<'_>,
+    h: &[WordId],
+    rec: &NgramRecord,
+    cursor: &mut Cursor,
+    unrep: &mut u64,
+    pruned: (bool, f64, u64),
+) -> Result<(f64, u8)> {
+    let j = h.len();
+    let s = rec.context.unwrap_or_default();
+    let store = est.store();
+    let not_unigram = || Error::corrupt(store.dir(), "a word that is not a unigram");
+    let mut kids: Vec<(u32, u64)> = Vec::new();
+    for c in store.children(h)? {
+        let (key, count, _) = c?;
+        let v = o.index(key.ids()[j]).ok_or_else(not_unigram)?;
+        kids.push((v, count));
+    }
+    let freed: f64 = kids.iter().map(|&(_, c)| est.katz_freed(j, c)).sum();
+    let hx: Vec<u32> = h
+        .iter()
+        .map(|&id| o.index(id).ok_or_else(not_unigram))
+        .collect::<Result<_>>()?;
+    let mut xs: Vec<u32> = Vec::with_capacity(j + 1);
+    let f = if pruned.0 {
+        // Only the kept children: count at the threshold and h'·v kept.
+        kids.retain(|&(v, c)| {
+            c >= pruned.2 && {
+                xs.clear();
+                xs.extend_from_slice(&hx[1..]);
+                xs.push(v);
+                xs.len() == 1 || o.built.lookup(cursor, &xs).is_some()
+            }
+        });
+        pruned.1
+    } else {
+        freed / s.count_sum.max(1) as f64
+    };
+    for i in (0..j.saturating_sub(1)).rev() {
+        let mut sum = 0.0;
+        for &(v, _) in &kids {
+            xs.clear();
+            xs.extend_from_slice(&hx[j - i..]);
+            xs.push(v);
+            let e = if i == 0 {
+                Some(v)
+            } else {
+                o.built.lookup(cursor, &xs)
+            };
+            let Some(e) = e else {
+                return Err(Error::corrupt(
+                    store.dir(),
+                    "the suffix of a kept n-gram is not kept",
+                ));
+            };
+            let b = &o.q64[i];
+            let at = 8 * e as usize;
+            sum += f64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"));
+        }
+        let den = 1.0 - sum;
+        if den > EPS {
+            return Ok((f / den, (j - i) as u8));
+        }
+    }
+    *unrep += 1;
+    Ok((0.0, 1))
+}
