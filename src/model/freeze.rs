@@ -463,11 +463,14 @@ fn reduce_model(
     mut report: FreezeReport,
 ) -> Result<FreezeReport> {
     let m = Model::open(full)?;
-    let links = suffix_links(&m)?;
+    // The scratch arrays go beside the whole model, in the freeze's
+    // temporary folder.
+    let dir = full.parent().unwrap_or(Path::new("."));
+    let links = suffix_links(&m, dir)?;
     let threshold = match (opts.relative_entropy, opts.max_ngrams) {
         (None, None) => None,
         (theta, max) => {
-            let d = prune::criterion(&m, &links)?;
+            let d = prune::criterion(&m, &links, dir)?;
             let theta = match (theta, max) {
                 (Some(t), _) => Some(t),
                 (None, Some(max)) => prune::threshold_for(&m, &links, &d, max)?,
@@ -483,7 +486,7 @@ fn reduce_model(
     let mut meta = m.meta().clone();
     let (values, moved) = match opts.bits {
         Some(b) => {
-            let (v, moved) = quantize(&m, &keep, b);
+            let (v, moved) = quantize(&m, &keep, b, dir)?;
             meta.value_bits = b;
             (v, moved)
         }
@@ -517,7 +520,7 @@ fn reduce_model(
         ));
     }
     let mut r = Reduction { keep, values, meta };
-    let done = write_reduced(&m, &links, &mut r, out)?;
+    let done = write_reduced(&m, &links, &mut r, out, dir)?;
     if done.unnormalised > 0 {
         r.meta.notes.push(format!(
             "{} contexts cannot be normalised after reducing (their kept children take all the mass of the context they back off to): their back-off weight is 0",

@@ -118,6 +118,7 @@ pub(crate) mod quantize;
 pub mod query;
 pub mod reader;
 pub(crate) mod reduce;
+mod spill;
 pub mod writer;
 
 pub use format::ModelMeta;

@@ -28,29 +28,35 @@
 //! kept longer n-gram is kept whatever its D (decided from the top order
 //! down). The unigrams are all kept.
 
+use std::path::Path;
+
 use crate::error::{Error, Result};
 use crate::words::eos_id;
 
 use super::reader::Model;
 use super::reduce::drop_words;
+use super::spill::Spill;
 
 /// D of every n-gram of order ≥ 2: `d[k - 1][e]` (`d[0]` is empty).
 /// Infinite where dropping is impossible (the back-off gives the word
 /// nothing).
-pub(crate) fn criterion(m: &Model, links: &[Vec<u32>]) -> Result<Vec<Vec<f64>>> {
+/// The arrays are [`Spill`]s in `dir`.
+pub(crate) fn criterion(m: &Model, links: &[Spill<u32>], dir: &Path) -> Result<Vec<Spill<f64>>> {
     let n = m.order();
     let eos = m
         .index_of(eos_id())
         .ok_or_else(|| Error::corrupt(m.path(), "the vocabulary has no </s>"))?;
-    let mut marg: Vec<f64> = (0..m.orders[0].len as u32)
-        .map(|x| m.q(1, if x == m.bos { eos } else { x }))
-        .collect();
-    let mut d: Vec<Vec<f64>> = vec![Vec::new()];
+    let mut marg: Spill<f64> = Spill::zeroed(dir, m.orders[0].len)?;
+    for (x, slot) in marg.iter_mut().enumerate() {
+        let x = x as u32;
+        *slot = m.q(1, if x == m.bos { eos } else { x });
+    }
+    let mut d: Vec<Spill<f64>> = vec![Spill::zeroed(dir, 0)?];
     for k in 2..=n {
         let j = k - 1;
         let len = m.orders[k - 1].len;
-        let mut dk = vec![f64::INFINITY; len];
-        let mut next_marg = if k < n { vec![0.0; len] } else { Vec::new() };
+        let mut dk: Spill<f64> = Spill::filled(dir, len, f64::INFINITY)?;
+        let mut next_marg: Spill<f64> = Spill::zeroed(dir, if k < n { len } else { 0 })?;
         for (p, &mp) in marg.iter().enumerate() {
             let kids = m.children(j, p as u32);
             if kids.is_empty() {
@@ -113,8 +119,8 @@ fn stolcke(ph: f64, qh: f64, ql: f64, num: f64, den: f64, beta: f64) -> f64 {
 /// and how many n-grams that is in all (unigrams included).
 pub(crate) fn select(
     m: &Model,
-    links: &[Vec<u32>],
-    d: &[Vec<f64>],
+    links: &[Spill<u32>],
+    d: &[Spill<f64>],
     theta: f64,
 ) -> (Vec<Vec<bool>>, u64) {
     let n = m.order();
@@ -146,8 +152,8 @@ pub(crate) fn select(
 /// n-grams (unigrams included); `None` if the model is that small already.
 pub(crate) fn threshold_for(
     m: &Model,
-    links: &[Vec<u32>],
-    d: &[Vec<f64>],
+    links: &[Spill<u32>],
+    d: &[Spill<f64>],
     max: u64,
 ) -> Result<Option<f64>> {
     let all: u64 = m.orders.iter().map(|o| o.len as u64).sum();
@@ -162,7 +168,7 @@ pub(crate) fn threshold_for(
     }
     let mut vals: Vec<f64> = d[1..]
         .iter()
-        .flatten()
+        .flat_map(|dk| dk.iter())
         .copied()
         .filter(|x| x.is_finite())
         .collect();

@@ -26,19 +26,21 @@ use crate::query::katz::EPS;
 
 use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
-use super::quantize::Codebook;
+use super::quantize::{Codebook, Quantized};
 use super::reader::Model;
+use super::spill::Spill;
 use super::writer::ModelWriter;
 
 /// Suffix links: `links[k - 1][e]` is the entry of order k − 1 that is the
 /// suffix (all words but the first) of entry `e` of order k, for k ≥ 2;
 /// `links[0]` is empty. One search per n-gram.
-pub(crate) fn suffix_links(m: &Model) -> Result<Vec<Vec<u32>>> {
+/// The arrays are [`Spill`]s in `dir`.
+pub(crate) fn suffix_links(m: &Model, dir: &Path) -> Result<Vec<Spill<u32>>> {
     let n = m.order();
-    let mut links: Vec<Vec<u32>> = vec![Vec::new()];
+    let mut links: Vec<Spill<u32>> = vec![Spill::zeroed(dir, 0)?];
     for k in 2..=n {
         let len = m.orders[k - 1].len;
-        let mut l = vec![0u32; len];
+        let mut l: Spill<u32> = Spill::zeroed(dir, len)?;
         if k == 2 {
             for (e, slot) in l.iter_mut().enumerate() {
                 *slot = m.word_of(2, e);
@@ -64,7 +66,7 @@ pub(crate) fn suffix_links(m: &Model) -> Result<Vec<Vec<u32>>> {
 
 /// Entry `e` of order `k` with its first `s` words dropped: (order, entry).
 #[inline]
-pub(crate) fn drop_words(links: &[Vec<u32>], k: usize, e: u32, s: usize) -> (usize, u32) {
+pub(crate) fn drop_words(links: &[Spill<u32>], k: usize, e: u32, s: usize) -> (usize, u32) {
     let (mut k, mut e) = (k, e);
     for _ in 0..s {
         if k <= 1 {
@@ -83,7 +85,7 @@ pub(crate) struct Reduction {
     /// under prefixes and suffixes.
     pub keep: Vec<Vec<bool>>,
     /// New values q per order, by entry (`None`: as stored).
-    pub values: Vec<Option<Vec<f32>>>,
+    pub values: Vec<Option<Quantized>>,
     /// The metadata of the new model (its n-gram counts are filled in).
     pub meta: ModelMeta,
 }
@@ -106,30 +108,30 @@ pub(crate) struct Reduced {
 }
 
 /// Writes values as f32 (32 bits) or as codes into their distinct values
-/// (at most 2^bits of them: they were fitted to that many bins).
-fn write_values(
+/// (at most 2^bits of them: they were fitted to that many bins). `vals`
+/// gives the values afresh each time it is called (twice for codes).
+fn write_values<I: Iterator<Item = f32>>(
     w: &mut ModelWriter,
     kind: SectionKind,
     k: usize,
-    vals: &[f32],
+    vals: impl Fn() -> I,
     bits: u32,
 ) -> Result<()> {
     if bits >= 32 {
-        let bytes: Vec<u8> = vals.iter().flat_map(|x| x.to_le_bytes()).collect();
-        return w.section(kind, k, &bytes);
+        return w.floats(kind, k, vals());
     }
     // The distinct values, sorted (a few thousand at most: no copy of
     // the values).
     let mut bins: Vec<f32> = Vec::new();
-    for v in vals {
-        if let Err(i) = bins.binary_search_by(|b| b.total_cmp(v)) {
+    for v in vals() {
+        if let Err(i) = bins.binary_search_by(|b| b.total_cmp(&v)) {
             if bins.len() == 1 << bits {
                 return Err(Error::Config(format!(
                     "order {k}: more than {} distinct values do not fit {bits}-bit codes",
                     1u64 << bits
                 )));
             }
-            bins.insert(i, *v);
+            bins.insert(i, v);
         }
     }
     if bins.is_empty() {
@@ -143,8 +145,8 @@ fn write_values(
         codes,
         k,
         bits,
-        vals.iter().map(|v| {
-            bins.binary_search_by(|b| b.total_cmp(v))
+        vals().map(|v| {
+            bins.binary_search_by(|b| b.total_cmp(&v))
                 .expect("a value among the bins") as u64
         }),
     )?;
@@ -159,19 +161,20 @@ impl Reduction {
 
     fn value(&self, m: &Model, k: usize, e: u32) -> f64 {
         match self.values.get(k - 1) {
-            Some(Some(v)) => v[e as usize] as f64,
+            Some(Some(v)) => v.value(e as usize) as f64,
             _ => m.q(k, e),
         }
     }
 }
 
 /// Writes `m` reduced by `r` to `out` (under a temporary name, renamed
-/// into place).
+/// into place). The arrays it builds per context are [`Spill`]s in `dir`.
 pub(crate) fn write_reduced(
     m: &Model,
-    links: &[Vec<u32>],
+    links: &[Spill<u32>],
     r: &mut Reduction,
     out: &Path,
+    dir: &Path,
 ) -> Result<Reduced> {
     let n = m.order();
     let b = &m.map[..];
@@ -182,7 +185,7 @@ pub(crate) fn write_reduced(
     let mut worst = 0.0f64;
     // With quantized weights: by order and entry, how far the kept
     // context's distribution is from summing to 1.
-    let mut eps: Vec<Vec<f32>> = Vec::new();
+    let mut eps: Vec<Spill<f32>> = Vec::new();
     let mut ngrams = Vec::with_capacity(n);
     // Each order's sections are written as soon as they are made (the
     // directory at the end says where they are), and the metadata, which
@@ -191,41 +194,41 @@ pub(crate) fn write_reduced(
     let width = width_for(m.nw as u64 - 1);
     for k in 1..=n {
         let len = m.orders[k - 1].len;
-        let mut words: Vec<u32> = Vec::new();
-        let mut probs: Vec<f32> = Vec::new();
-        for e in 0..len {
-            if !r.kept(k, e) {
-                continue;
-            }
-            if k > 1 {
-                words.push(m.word_of(k, e));
-            }
-            probs.push(r.value(m, k, e as u32) as f32);
-        }
-        ngrams.push(probs.len() as u64);
+        let r_ = &*r;
+        let kept = move || (0..len).filter(move |&e| r_.kept(k, e));
+        ngrams.push(kept().count() as u64);
         if k > 1 {
             w.packed(
                 SectionKind::Words,
                 k,
                 width,
-                words.iter().map(|&x| x as u64),
+                kept().map(|e| m.word_of(k, e) as u64),
             )?;
         }
-        drop(words);
         let pbits = if k == 1 { 32 } else { r.meta.value_bits };
-        write_values(&mut w, SectionKind::Probs, k, &probs, pbits)?;
-        drop(probs);
+        write_values(
+            &mut w,
+            SectionKind::Probs,
+            k,
+            || kept().map(|e| r_.value(m, k, e as u32) as f32),
+            pbits,
+        )?;
         if k == n {
             continue;
         }
-        let mut weights: Vec<f64> = Vec::new();
-        // With quantized weights, per kept context: its entry, Σ q(h·v)
-        // and the back-off mass β multiplies, as the model will hold them.
-        let mut sums: Vec<(usize, f64, f64)> = Vec::new();
-        let mut children: Vec<u32> = Vec::new();
+        // Per kept context, in order: β; with quantized weights also its
+        // entry, Σ q(h·v) and the back-off mass β multiplies, as the model
+        // will hold them.
+        let coded = probabilities && weight_bits < 32;
+        let cap = if coded { len } else { 0 };
+        let mut weights: Spill<f64> = Spill::zeroed(dir, len)?;
+        let mut entry: Spill<u32> = Spill::zeroed(dir, cap)?;
+        let mut sum_qs: Spill<f64> = Spill::zeroed(dir, cap)?;
+        let mut dens: Spill<f64> = Spill::zeroed(dir, cap)?;
+        let mut children: Spill<u32> = Spill::zeroed(dir, len + 1)?;
         let mut skips = Vec::new();
         let has_skips = !m.orders[k - 1].skips.is_empty();
-        let coded = probabilities && weight_bits < 32;
+        let mut nk = 0usize;
         // Kept entries of order k + 1 before the current position.
         let mut below = 0u32;
         let mut pos = 0usize;
@@ -239,7 +242,7 @@ pub(crate) fn write_reduced(
             if !r.kept(k, p) {
                 continue;
             }
-            children.push(below);
+            children[nk] = below;
             let s = m.skip(k, p as u32);
             let dropped = kids.clone().any(|c| !r.kept(k + 1, c));
             let recompute = probabilities && (dropped || any_values || coded);
@@ -279,40 +282,52 @@ pub(crate) fn write_reduced(
             } else {
                 num / den
             };
-            weights.push(beta);
+            weights[nk] = beta;
             if coded {
-                sums.push((p, sum_q, den.max(0.0)));
+                entry[nk] = p as u32;
+                sum_qs[nk] = sum_q;
+                dens[nk] = den.max(0.0);
             }
             if has_skips {
                 skips.push(s as u8);
             }
+            nk += 1;
         }
         while pos < m.orders[k].len {
             below += u32::from(r.kept(k + 1, pos));
             pos += 1;
         }
-        children.push(below);
-        let weights: Vec<f32> = if weight_bits < 32 {
-            let book = Codebook::spread(&weights, weight_bits);
-            let mut now = vec![0f32; if coded { len } else { 0 }];
-            let w: Vec<f32> = weights.iter().map(|&w| book.value(book.code(w))).collect();
-            for (&(p, sum_q, den), &b) in sums.iter().zip(&w) {
-                // What the context really sums to, less 1.
-                let e = sum_q + b as f64 * den - 1.0;
-                worst = worst.max(e.abs());
-                now[p] = e as f32;
+        children[nk] = below;
+        if weight_bits < 32 {
+            let book = Codebook::spread(&weights[..nk], weight_bits);
+            let mut now: Spill<f32> = Spill::zeroed(dir, if coded { len } else { 0 })?;
+            for x in weights[..nk].iter_mut() {
+                *x = book.value(book.code(*x)) as f64;
+            }
+            if coded {
+                for i in 0..nk {
+                    // What the context really sums to, less 1.
+                    let e = sum_qs[i] + weights[i] * dens[i] - 1.0;
+                    worst = worst.max(e.abs());
+                    now[entry[i] as usize] = e as f32;
+                }
             }
             eps.push(now);
-            w
         } else {
-            eps.push(Vec::new());
-            weights.iter().map(|&w| w as f32).collect()
-        };
-        write_values(&mut w, SectionKind::Weights, k, &weights, weight_bits)?;
+            eps.push(Spill::zeroed(dir, 0)?);
+        }
+        drop((entry, sum_qs, dens));
+        write_values(
+            &mut w,
+            SectionKind::Weights,
+            k,
+            || weights[..nk].iter().map(|&x| x as f32),
+            weight_bits,
+        )?;
         w.section(
             SectionKind::Children,
             k,
-            &ef_encode(children.iter().map(|&x| x as u64)),
+            &ef_encode(children[..=nk].iter().map(|&x| x as u64)),
         )?;
         if has_skips {
             w.section(SectionKind::Skips, k, &skips)?;

@@ -87,6 +87,27 @@ impl ModelWriter {
         Ok(())
     }
 
+    /// Adds a section of f32 values, little-endian.
+    pub fn floats(
+        &mut self,
+        kind: SectionKind,
+        order: usize,
+        values: impl Iterator<Item = f32>,
+    ) -> Result<()> {
+        let mut s = self.begin(kind, order)?;
+        let mut buf: Vec<u8> = Vec::with_capacity(1 << 16);
+        for v in values {
+            buf.extend_from_slice(&v.to_le_bytes());
+            if buf.len() >= 1 << 16 {
+                self.put(&mut s, &buf)?;
+                buf.clear();
+            }
+        }
+        self.put(&mut s, &buf)?;
+        self.end(s);
+        Ok(())
+    }
+
     /// Adds a section of `width`-bit values packed into u64 words (see
     /// [`super::packed`]).
     pub fn packed(
