@@ -209,7 +209,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 _ => None,
             };
             let c = rec.map_or(0, |r| r.count);
-            let a = rec.map_or(0, |r| adjusted(r.count, r.continuation, id));
+            let a = rec.map_or(0, |r| adjusted(r.count, r.continuation, id == bos));
             let q = if id == bos {
                 0.0
             } else {
@@ -244,6 +244,16 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
     let mut child_paths: Vec<PathBuf> = Vec::new();
     let mut kept_counts = vec![nw as u64];
     let mut store_counts = vec![nw as u64 - u64::from(!unk_seen)];
+    // The store's n-grams are read as ranks (their words' positions among
+    // the store's ids): the word index of every rank.
+    let rank_ids = store.rank_ids();
+    let mut rank_index = vec![u32::MAX; rank_ids.len()];
+    for (x, id) in ids.iter().enumerate() {
+        if let Ok(r) = rank_ids.binary_search(id) {
+            rank_index[r] = x as u32;
+        }
+    }
+    let bos_rank = rank_ids.binary_search(&bos).map_or(u64::MAX, |r| r as u64);
     let threads = match opts.threads {
         0 => std::thread::available_parallelism().map_or(1, |t| t.get()),
         t => t,
@@ -276,6 +286,9 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 kind,
                 v,
                 ids: &ids,
+                rank_ids,
+                rank_index: &rank_index,
+                bos_rank,
                 built: &built,
                 q64: &q64_maps,
                 q64_prev: &q64_prev,

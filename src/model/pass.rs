@@ -26,7 +26,7 @@ use crate::query::backoff::BackoffKind;
 use crate::query::katz::EPS;
 use crate::query::Estimator;
 use crate::store::NgramRecord;
-use crate::words::{bos_id, WordId};
+use crate::words::WordId;
 
 use super::reader::{find_id, map_read_only, u32_at};
 use super::writer::ArrayFile;
@@ -171,6 +171,13 @@ pub(super) struct Order<'a> {
     pub v: f64,
     /// The word ids, increasing: word index i is `ids[i]`.
     pub ids: &'a [WordId],
+    /// The store's rank of every word ([`crate::store::Store::rank_ids`]):
+    /// the parts read the store's n-grams as ranks.
+    pub rank_ids: &'a [WordId],
+    /// The word index of every rank (`u32::MAX`: not a unigram).
+    pub rank_index: &'a [u32],
+    /// The rank of `<s>` (`u64::MAX` if the store has none).
+    pub bos_rank: u64,
     /// The arrays of orders 1..k − 1.
     pub built: &'a Built,
     /// The exact q of every finished order (index k − 1), f64 each.
@@ -190,6 +197,20 @@ pub(super) struct Order<'a> {
 impl Order<'_> {
     fn index(&self, id: WordId) -> Option<u32> {
         find_id(|i| self.ids[i], self.ids.len(), id)
+    }
+
+    /// The word index of the word of rank `r`.
+    #[inline]
+    fn index_of_rank(&self, r: u64) -> Option<u32> {
+        self.rank_index
+            .get(r as usize)
+            .copied()
+            .filter(|&x| x != u32::MAX)
+    }
+
+    /// The ids of a key of ranks.
+    fn ids_of(&self, ranks: &[u64]) -> Vec<WordId> {
+        ranks.iter().map(|&r| self.rank_ids[r as usize]).collect()
     }
 
     fn min(&self, k: usize) -> u64 {
@@ -309,9 +330,9 @@ pub(super) fn too_many(k: usize) -> Error {
 
 /// The adjusted count: the continuation count, except at the top order and
 /// for n-grams that start with `<s>` (the raw count there).
-pub(super) fn adjusted(c: u64, cont: Option<u64>, first: WordId) -> u64 {
+pub(super) fn adjusted(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
     match cont {
-        Some(x) if first != bos_id() => x,
+        Some(x) if !first_is_bos => x,
         _ => c,
     }
 }
@@ -339,7 +360,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
     let mut tally = KatzTally::default();
     let mut kept_now: Vec<u64> = Vec::new();
     let mut parents = ParentStream {
-        it: store.scan_first_words(k - 1, part.first, part.end)?,
+        it: store.scan_first_ranks(k - 1, part.first, part.end)?,
         pos: 0,
         rank: part.entries.0,
     };
@@ -349,7 +370,8 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
     let mut spread_f = 0.0;
     let mut written: u64 = 0;
     let mut xs: Vec<u32> = Vec::with_capacity(k);
-    let mut xs_ids: Vec<WordId> = Vec::with_capacity(k);
+    // The ranks of the words of `xs`.
+    let mut xs_ids: Vec<u64> = Vec::with_capacity(k);
     let mut store_n: u64 = 0;
     // β of a finished context; `None`: Katz must look past h'.
     let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
@@ -404,7 +426,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
             None => katz_deep(
                 est,
                 o,
-                pk.ids(),
+                &o.ids_of(pk.ids()),
                 prec,
                 cursor,
                 &mut tally.unrepresentable,
@@ -421,7 +443,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
             format!("order {k}: an n-gram whose context is not stored"),
         )
     };
-    for (pos, item) in store.scan_first_words(k, part.first, part.end)?.enumerate() {
+    for (pos, item) in store.scan_first_ranks(k, part.first, part.end)?.enumerate() {
         let (g, rec) = item?;
         store_n += 1;
         let gi = g.ids();
@@ -435,7 +457,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
                 return Err(not_stored());
             }
             let kept = if k - 1 == 1 {
-                o.index(pk.ids()[0])
+                o.index_of_rank(pk.ids()[0])
             } else {
                 parents.next_kept(&part.kept_prev)
             };
@@ -446,7 +468,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
                         // Every word follows this context: Katz spreads
                         // its freed mass, which needs F(h) first.
                         let mut freed = 0.0;
-                        for c in store.children(pk.ids())? {
+                        for c in store.children(&o.ids_of(pk.ids()))? {
                             freed += est.katz_freed(k - 1, c?.1);
                         }
                         spread_f = freed / s.count_sum as f64;
@@ -471,11 +493,11 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
         }
         xs.truncate(same);
         xs_ids.truncate(same);
-        for &id in &gi[same + 1..] {
-            xs.push(o.index(id).ok_or_else(|| {
+        for &r in &gi[same + 1..] {
+            xs.push(o.index_of_rank(r).ok_or_else(|| {
                 Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
             })?);
-            xs_ids.push(id);
+            xs_ids.push(r);
         }
         let lower_e = if k == 2 {
             Some(xs[0])
@@ -507,7 +529,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
         let j = k - 1;
         let q = match kind {
             BackoffKind::Interpolated => {
-                let a = adjusted(rec.count, rec.continuation, gi[0]);
+                let a = adjusted(rec.count, rec.continuation, gi[0] == o.bos_rank);
                 est.step(j, rec.count, a, prec.context, prec.count, lower)
             }
             BackoffKind::Katz => {

@@ -321,8 +321,11 @@ impl Store {
     /// and below `to` (`None`: no bound), in key order, read like a whole
     /// order (ahead, and not into the block cache): one part of an order
     /// that several threads read side by side. `from` and `to` must be
-    /// words of the store.
-    pub fn scan_first_words<'a>(
+    /// words of the store. The n-grams' words are given as their ranks,
+    /// positions among [`Store::rank_ids`] (a [`Key`] of ranks sorts as the
+    /// ids do): a reader that numbers the words itself saves a translation
+    /// per word.
+    pub fn scan_first_ranks<'a>(
         &'a self,
         k: usize,
         from: Option<WordId>,
@@ -363,12 +366,17 @@ impl Store {
             })?;
             let key = self
                 .ranks
-                .read_key(&kb)
+                .read_ranks(&kb)
                 .ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
             let rec =
                 keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
             Ok((key, rec))
         }))
+    }
+
+    /// The id of every rank: the store's word ids, increasing.
+    pub fn rank_ids(&self) -> &[WordId] {
+        self.ranks.ids()
     }
 
     /// As [`Store::scan_prefix`], with whole records. Empty when `k` is not

@@ -146,6 +146,24 @@ impl Ranks {
         (b.len() == self.width).then(|| b.iter().fold(0u32, |a, &x| (a << 8) | x as u32))
     }
 
+    /// The ranks of a stored key's words, as a [`Key`] of ranks (which
+    /// sort as the ids do), or `None` if it is malformed.
+    pub fn read_ranks(&self, b: &[u8]) -> Option<Key> {
+        if b.is_empty() || !b.len().is_multiple_of(self.width) || b.len() / self.width > MAX_ORDER {
+            return None;
+        }
+        let mut rs = [0 as WordId; MAX_ORDER];
+        let k = b.len() / self.width;
+        for (i, c) in b.chunks_exact(self.width).enumerate() {
+            let r = self.read_rank(c)?;
+            if r as usize >= self.ids.len() {
+                return None;
+            }
+            rs[i] = WordId::from(r);
+        }
+        Some(Key::new(&rs[..k]))
+    }
+
     /// The n-gram of a stored key, or `None` if it is malformed.
     pub fn read_key(&self, b: &[u8]) -> Option<Key> {
         if b.is_empty() || !b.len().is_multiple_of(self.width) || b.len() / self.width > MAX_ORDER {
