@@ -1,4 +1,4 @@
-//! Opening a model file: the memory map (the crate's one `unsafe` block),
+//! Opening a model file: the memory map (an `unsafe` call, argued below),
 //! the checks made on open, and the full verification.
 //!
 //! Opening reads the trailer, the directory and the small sections (the
