@@ -4,8 +4,16 @@
 //! interleaved; the model's open time; printed as JSON.
 //!
 //! ```sh
-//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next|model-prob] [--residence mapped|loaded|both]
+//! bench-model --store DIR --model FILE --text HELDOUT.txt [--method mkn] [--cache 256MiB] [--contexts 1000] [--passes 3] [--only next|model-prob] [--residence mapped|loaded|both] [--schedule interleaved|blocks]
 //! ```
+//!
+//! `--schedule interleaved` (the default) alternates the contenders pass by
+//! pass, so that a machine's changing load falls on all of them alike, but
+//! each pass then starts with the caches and TLB filled by another's
+//! (the store's block cache, the other copy of the model). `blocks` runs
+//! each contender's passes one after another (the store's, the model's,
+//! then the loaded copy's), so that every warm pass finds its own data
+//! in the caches, as a program that uses one of them does.
 //!
 //! Completion (`complete`, issue 16) is timed too, from the store and the
 //! model: after each `next` context, the prefixes of 1 and 2 characters of
@@ -57,6 +65,7 @@ fn main() {
     let mut only_model = false;
     let mut residence = quern::model::Residence::Mapped;
     let mut both = false;
+    let mut blocks = false;
     let mut it = std::env::args().skip(1);
     while let Some(a) = it.next() {
         let v = it.next().unwrap_or_else(|| panic!("{a} needs a value"));
@@ -73,6 +82,8 @@ fn main() {
             "--residence" if v == "mapped" => residence = quern::model::Residence::Mapped,
             "--residence" if v == "loaded" => residence = quern::model::Residence::Loaded,
             "--residence" if v == "both" => both = true,
+            "--schedule" if v == "interleaved" => blocks = false,
+            "--schedule" if v == "blocks" => blocks = true,
             _ => panic!("unknown flag {a}"),
         }
     }
@@ -121,31 +132,54 @@ fn main() {
         }
         sum
     };
-    for _ in 0..if only_next { 0 } else { passes } {
-        if !only_model {
-            let (t, c0) = (Instant::now(), thread_cpu());
-            for c in queries.chunks(4096) {
-                let r = est.prob_batch(c).expect("prob");
-                check.0 += r
-                    .iter()
-                    .map(|p| p.log10)
-                    .filter(|x| x.is_finite())
-                    .sum::<f64>();
-            }
-            store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
-            store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
-        }
+    // The passes to run, in order: 0 the store, 1 the model, 2 its loaded
+    // copy.
+    let mut who: Vec<u8> = vec![0, 1, 2];
+    who.retain(|&w| (w != 0 || !only_model) && (w != 2 || loaded.is_some()));
+    let schedule: Vec<u8> = match (only_next, blocks) {
+        (true, _) => Vec::new(),
+        (false, false) => (0..passes).flat_map(|_| who.iter().copied()).collect(),
+        (false, true) => who
+            .iter()
+            .flat_map(|&w| std::iter::repeat_n(w, passes))
+            .collect(),
+    };
+    let mut model_sums = Vec::new();
+    let mut loaded_sums = Vec::new();
+    for w in schedule {
         let (t, c0) = (Instant::now(), thread_cpu());
-        let pass_sum = model_pass(&model);
-        check.1 += pass_sum;
-        model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
-        model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
-        if let Some(l) = &loaded {
-            let c0 = thread_cpu();
-            let sum = model_pass(l);
-            loaded_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
-            assert_eq!(sum, pass_sum, "loaded and mapped answer the same");
+        match w {
+            0 => {
+                for c in queries.chunks(4096) {
+                    let r = est.prob_batch(c).expect("prob");
+                    check.0 += r
+                        .iter()
+                        .map(|p| p.log10)
+                        .filter(|x| x.is_finite())
+                        .sum::<f64>();
+                }
+                store_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
+                store_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+            }
+            1 => {
+                let pass_sum = model_pass(&model);
+                check.1 += pass_sum;
+                model_sums.push(pass_sum);
+                model_rates.push(queries.len() as f64 / t.elapsed().as_secs_f64());
+                model_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+            }
+            _ => {
+                let l = loaded.as_ref().expect("scheduled only when loaded");
+                loaded_sums.push(model_pass(l));
+                loaded_cpu.push(queries.len() as f64 / (thread_cpu() - c0));
+            }
         }
+    }
+    for s in &loaded_sums {
+        assert!(
+            model_sums.iter().all(|m| m == s),
+            "loaded and mapped answer the same"
+        );
     }
     let warm = |r: &[f64]| {
         if r.len() < 2 {
@@ -157,6 +191,7 @@ fn main() {
         let out = serde_json::json!({
             "predictions": queries.len(),
             "residence": format!("{residence:?}"),
+            "schedule": if blocks { "blocks" } else { "interleaved" },
             "model_open_ms": open_ms,
             "model_prob_per_second": model_rates,
             "model_prob_per_cpu_second": model_cpu,
@@ -257,6 +292,7 @@ fn main() {
         "model_ngrams": ngrams,
         "bytes_per_ngram": model.file_bytes() as f64 / ngrams as f64,
         "model_open_ms": open_ms,
+        "schedule": if blocks { "blocks" } else { "interleaved" },
         "prob_per_second": {
             "store": {"first": first(&store_rates), "warm": warm(&store_rates)},
             "model": {"first": first(&model_rates), "warm": warm(&model_rates)},
