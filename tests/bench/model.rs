@@ -302,6 +302,12 @@ fn main() {
             "store": {"first": first(&store_cpu), "warm": warm(&store_cpu)},
             "model": {"first": first(&model_cpu), "warm": warm(&model_cpu)},
             "model_over_store_warm": warm(&model_cpu) / warm(&store_cpu),
+            "loaded": loaded.as_ref().map(|_| serde_json::json!({
+                "first": first(&loaded_cpu),
+                "warm": warm(&loaded_cpu),
+                "open_ms": load_ms,
+                "over_store_warm": warm(&loaded_cpu) / warm(&store_cpu),
+            })),
         },
         "log10_sum_per_pass": {"store": check.0 / passes as f64, "model": check.1 / passes as f64},
         "next_contexts": ctxs.len(),
