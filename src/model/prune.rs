@@ -166,23 +166,100 @@ pub(crate) fn threshold_for(
             "--max-ngrams {max} is below the {least} n-grams no pruning can drop (the unigrams, every word of V, and n-grams whose word the back-off gives nothing)"
         )));
     }
-    let mut vals: Vec<f64> = d[1..]
-        .iter()
-        .flat_map(|dk| dk.iter())
-        .copied()
-        .filter(|x| x.is_finite())
-        .collect();
+    // The answer is the least D value whose threshold keeps at most `max`
+    // (what is kept only changes at D values). The values are not copied:
+    // first the bucket of their top 16 bits (in an order-preserving key)
+    // where the answer lies is found by bisection on the buckets' lower
+    // ends, then the values of that bucket, with the least value above
+    // it, are searched as before.
+    let finite = || {
+        d[1..]
+            .iter()
+            .flat_map(|dk| dk.iter())
+            .copied()
+            .filter(|x| x.is_finite())
+    };
+    let (mut bmin, mut bmax) = (u64::MAX, 0u64);
+    for x in finite() {
+        let b = order_key(x) >> 48;
+        bmin = bmin.min(b);
+        bmax = bmax.max(b);
+    }
+    if bmin > bmax {
+        return Ok(Some(f64::INFINITY));
+    }
+    let fits = |theta: f64| select(m, links, d, theta).1 <= max;
+    // The least bucket b whose lower end keeps at most `max` (bmax + 1:
+    // none; f(∞) holds, as checked above).
+    let (mut lo, mut hi) = (bmin + 1, bmax + 1);
+    while lo < hi {
+        let mid = lo + (hi - lo) / 2;
+        if fits(from_order_key(mid << 48)) {
+            hi = mid;
+        } else {
+            lo = mid + 1;
+        }
+    }
+    // The answer is in bucket lo − 1 (whose lower end keeps too many, or
+    // which is the first), or it is the least value of a bucket ≥ lo.
+    let b = lo - 1;
+    let mut above = f64::INFINITY;
+    let mut vals: Vec<f64> = Vec::new();
+    for x in finite() {
+        let xb = order_key(x) >> 48;
+        if xb == b {
+            vals.push(x);
+        } else if xb > b && x < above {
+            above = x;
+        }
+    }
     vals.sort_unstable_by(f64::total_cmp);
     vals.dedup();
+    if above.is_finite() {
+        vals.push(above);
+    }
     // The smallest index whose θ keeps at most `max`; θ = ∞ past the end.
     let (mut lo, mut hi) = (0usize, vals.len());
     while lo < hi {
         let mid = lo + (hi - lo) / 2;
-        if select(m, links, d, vals[mid]).1 <= max {
+        if fits(vals[mid]) {
             hi = mid;
         } else {
             lo = mid + 1;
         }
     }
     Ok(Some(vals.get(lo).copied().unwrap_or(f64::INFINITY)))
+}
+
+/// A u64 that orders finite f64 values as they compare.
+fn order_key(x: f64) -> u64 {
+    let b = x.to_bits();
+    if b >> 63 == 1 {
+        !b
+    } else {
+        b | 1 << 63
+    }
+}
+
+/// The f64 of an [`order_key`].
+fn from_order_key(k: u64) -> f64 {
+    f64::from_bits(if k >> 63 == 1 { k & !(1 << 63) } else { !k })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The key orders values as they compare, and turns back into them.
+    #[test]
+    fn order_key_keeps_the_order() {
+        let mut xs = vec![-3.5, -1e-300, -0.0, 0.0, 1e-300, 2.0, 7.25e10, -7.0, 1.0];
+        xs.sort_by(f64::total_cmp);
+        for w in xs.windows(2) {
+            assert!(order_key(w[0]) < order_key(w[1]), "{w:?}");
+        }
+        for &x in &xs {
+            assert_eq!(from_order_key(order_key(x)).to_bits(), x.to_bits());
+        }
+    }
 }
