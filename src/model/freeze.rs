@@ -462,6 +462,15 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         weight_error: 0.0,
     };
     if opts.reduces() {
+        // Only the whole model is needed from here on: the arrays it was
+        // copied from give their disk space back to the reduction's.
+        drop(q64_maps);
+        for p in std::fs::read_dir(tmp.path()).at(tmp.path(), "list")? {
+            let p = p.at(tmp.path(), "list")?.path();
+            if p != full {
+                std::fs::remove_file(&p).at(&p, "remove")?;
+            }
+        }
         return reduce_model(&full, out, opts, report);
     }
     Ok(report)
