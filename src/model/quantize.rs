@@ -81,12 +81,24 @@ fn fit_histogram(values: impl Iterator<Item = f64>, range: (f64, f64), slots: us
         .map(|(&s, &c)| s / c as f64)
         .collect();
     centers.dedup();
-    for _ in 0..HISTOGRAM_ROUNDS {
+    lloyd(|| points.iter().copied(), centers, HISTOGRAM_ROUNDS)
+}
+
+/// Lloyd's algorithm in one dimension: each centre moved to the mean of
+/// the points nearest to it (`points` gives them ascending, each with its
+/// weight), for at most `rounds` rounds or until no centre moves by 1e-9;
+/// a centre that no point is nearest to is dropped.
+fn lloyd<I: Iterator<Item = (f64, u64)>>(
+    points: impl Fn() -> I,
+    mut centers: Vec<f64>,
+    rounds: usize,
+) -> Vec<f64> {
+    for _ in 0..rounds {
         let cuts: Vec<f64> = centers.windows(2).map(|w| (w[0] + w[1]) / 2.0).collect();
         let mut sum = vec![0.0; centers.len()];
         let mut cnt = vec![0u64; centers.len()];
         let mut b = 0;
-        for &(m, w) in &points {
+        for (m, w) in points() {
             while b < cuts.len() && m > cuts[b] {
                 b += 1;
             }
@@ -191,32 +203,7 @@ impl Codebook {
                 })
                 .collect();
             centers.dedup();
-            for _ in 0..30 {
-                let cuts: Vec<f64> = centers.windows(2).map(|w| (w[0] + w[1]) / 2.0).collect();
-                let mut sum = vec![0.0; centers.len()];
-                let mut cnt = vec![0usize; centers.len()];
-                let mut b = 0;
-                for &v in &x {
-                    while b < cuts.len() && v > cuts[b] {
-                        b += 1;
-                    }
-                    sum[b] += v;
-                    cnt[b] += 1;
-                }
-                let mut moved: f64 = 0.0;
-                let mut next = Vec::with_capacity(centers.len());
-                for i in 0..centers.len() {
-                    if cnt[i] > 0 {
-                        let c = sum[i] / cnt[i] as f64;
-                        moved = moved.max((c - centers[i]).abs());
-                        next.push(c);
-                    }
-                }
-                centers = next;
-                if moved < 1e-9 {
-                    break;
-                }
-            }
+            centers = lloyd(|| x.iter().map(|&v| (v, 1)), centers, 30);
         }
         Codebook::from_centers(centers, zero)
     }

@@ -62,6 +62,16 @@ pub struct Store {
     ranks: Ranks,
 }
 
+/// Read options of a scan that reads a whole order, or a large part of
+/// one, once (freezing, exporting): ahead, and not into the block cache,
+/// which stays for the lookups.
+fn whole_scan_options() -> rocksdb::ReadOptions {
+    let mut ro = rocksdb::ReadOptions::default();
+    ro.fill_cache(false);
+    ro.set_readahead_size(4 << 20);
+    ro
+}
+
 impl Store {
     /// Opens the finished store in `dir` with a block cache of
     /// [`DEFAULT_CACHE_BYTES`].
@@ -347,9 +357,7 @@ impl Store {
             None
         };
         let it = cf.map(|cf| {
-            let mut ro = rocksdb::ReadOptions::default();
-            ro.fill_cache(false);
-            ro.set_readahead_size(4 << 20);
+            let mut ro = whole_scan_options();
             if let Some(e) = end {
                 ro.set_iterate_upper_bound(e);
             }
@@ -359,19 +367,10 @@ impl Store {
                 IteratorMode::From(&start, rocksdb::Direction::Forward),
             )
         });
-        Ok(it.into_iter().flatten().map(move |item| {
-            let (kb, vb) = item.map_err(|source| Error::Rocks {
-                path: path.clone(),
-                source,
-            })?;
-            let key = self
-                .ranks
-                .read_ranks(&kb)
-                .ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-            let rec =
-                keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
-            Ok((key, rec))
-        }))
+        Ok(it
+            .into_iter()
+            .flatten()
+            .map(move |item| self.decode_record(item, &path, Ranks::read_ranks)))
     }
 
     /// The id of every rank: the store's word ids, increasing.
@@ -412,11 +411,11 @@ impl Store {
         // stays for the lookups.
         let whole = prefix.is_empty() && after.is_none();
         let it = cf.map(|cf| {
-            let mut ro = rocksdb::ReadOptions::default();
-            if whole {
-                ro.fill_cache(false);
-                ro.set_readahead_size(4 << 20);
-            }
+            let ro = if whole {
+                whole_scan_options()
+            } else {
+                rocksdb::ReadOptions::default()
+            };
             self.db.iterator_cf_opt(
                 cf,
                 ro,
@@ -427,19 +426,24 @@ impl Store {
             .into_iter()
             .flatten()
             .take_while(move |item| item.as_ref().map_or(true, |(kb, _)| kb.starts_with(&pb)))
-            .map(move |item| {
-                let (kb, vb) = item.map_err(|source| Error::Rocks {
-                    path: path.clone(),
-                    source,
-                })?;
-                let key = self
-                    .ranks
-                    .read_key(&kb)
-                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram key"))?;
-                let rec = keys::decode_ngram(&vb)
-                    .ok_or_else(|| Error::corrupt(&path, "bad n-gram value"))?;
-                Ok((key, rec))
-            }))
+            .map(move |item| self.decode_record(item, &path, Ranks::read_key)))
+    }
+
+    /// A scanned record, its key read by `read` (as ids or as ranks).
+    fn decode_record(
+        &self,
+        item: RawItem,
+        path: &Path,
+        read: fn(&Ranks, &[u8]) -> Option<Key>,
+    ) -> Result<(Key, NgramRecord)> {
+        let (kb, vb) = item.map_err(|source| Error::Rocks {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        let key = read(&self.ranks, &kb).ok_or_else(|| Error::corrupt(path, "bad n-gram key"))?;
+        let rec =
+            keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(path, "bad n-gram value"))?;
+        Ok((key, rec))
     }
 
     /// Size of the database files on disk, in bytes.
@@ -447,6 +451,9 @@ impl Store {
         dir_bytes(&layout::db(&self.dir))
     }
 }
+
+/// One item of a RocksDB iterator: a key and a value, or the error.
+type RawItem = std::result::Result<(Box<[u8]>, Box<[u8]>), rocksdb::Error>;
 
 /// Reads the sorted word ids of the `ids` column family.
 fn read_ranks(db: &DB, path: &Path) -> Result<Ranks> {
