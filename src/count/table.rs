@@ -284,25 +284,23 @@ impl Table {
     /// The entries in key order. The table is no longer usable for
     /// [`Table::add`] until it is emptied by [`Table::clear`].
     pub fn sorted(&mut self) -> impl Iterator<Item = (Key, Values)> + '_ {
+        let recs = self.sorted_records();
+        (0..recs.len()).map(move |i| (recs.key(i), recs.values(i)))
+    }
+
+    /// The entries in key order, for reading by position. The table is no
+    /// longer usable for [`Table::add`] until it is emptied by
+    /// [`Table::clear`].
+    pub fn sorted_records(&mut self) -> SortedRecords<'_> {
         if !self.packed {
             self.pack_and_sort();
         }
-        let (w, v) = (self.width, self.values);
-        self.slots[..self.used * self.stride]
-            .chunks_exact(self.stride)
-            .map(move |rec| {
-                let mut vals = [0u64; MAX_VALUES];
-                vals[..v].copy_from_slice(&rec[w..w + v]);
-                // Copied as a padded array (the padding is zero): no
-                // copy of a variable length.
-                let mut ids = [0u64; MAX_ORDER];
-                for (i, id) in ids.iter_mut().enumerate() {
-                    if i < w {
-                        *id = rec[i];
-                    }
-                }
-                (Key::from_padded(ids, rec[w + v] as usize), vals)
-            })
+        SortedRecords {
+            flat: &self.slots[..self.used * self.stride],
+            width: self.width,
+            values: self.values,
+            stride: self.stride,
+        }
     }
 
     /// Empties the table, keeping its memory.
@@ -315,6 +313,60 @@ impl Table {
         }
         self.used = 0;
         self.packed = false;
+    }
+}
+
+/// A sorted table's records, read by position ([`Table::sorted_records`]).
+#[derive(Clone, Copy)]
+pub struct SortedRecords<'a> {
+    flat: &'a [u64],
+    width: usize,
+    values: usize,
+    stride: usize,
+}
+
+impl SortedRecords<'_> {
+    /// Number of records.
+    #[inline]
+    pub fn len(&self) -> usize {
+        self.flat.len() / self.stride
+    }
+
+    /// True if there is none.
+    #[inline]
+    pub fn is_empty(&self) -> bool {
+        self.flat.is_empty()
+    }
+
+    /// The ids of record `i`'s key.
+    #[inline]
+    pub fn ids(&self, i: usize) -> &[u64] {
+        let rec = &self.flat[i * self.stride..(i + 1) * self.stride];
+        &rec[..rec[self.width + self.values] as usize]
+    }
+
+    /// Record `i`'s sums (unused places zero).
+    #[inline]
+    pub fn values(&self, i: usize) -> Values {
+        let rec = &self.flat[i * self.stride..(i + 1) * self.stride];
+        let mut vals = [0u64; MAX_VALUES];
+        vals[..self.values].copy_from_slice(&rec[self.width..self.width + self.values]);
+        vals
+    }
+
+    /// Record `i`'s key.
+    #[inline]
+    pub fn key(&self, i: usize) -> Key {
+        let rec = &self.flat[i * self.stride..(i + 1) * self.stride];
+        // Copied as a padded array (the padding is zero): no copy of a
+        // variable length.
+        let mut ids = [0u64; MAX_ORDER];
+        for (j, id) in ids.iter_mut().enumerate() {
+            if j < self.width {
+                *id = rec[j];
+            }
+        }
+        Key::from_padded(ids, rec[self.width + self.values] as usize)
     }
 }
 

@@ -4,6 +4,7 @@ use std::path::Path;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Mutex;
 
+use super::prefixes::each_with_prefixes;
 use super::Table;
 use crate::corpus::Span;
 use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
@@ -183,18 +184,18 @@ impl<'a> Worker<'a> {
                         self.totals.mapped_tokens += r.mapped_tokens;
                         if !ids.is_empty() {
                             self.totals.sentences += 1;
+                            // Only the longest k-gram of each position:
+                            // the shorter ones are its prefixes, counted
+                            // when the table is written (`prefixes`).
                             for i in 0..ids.len() {
-                                // Ask for the next position's slots now:
-                                // each is a likely cache miss, and they
-                                // load while this position's are updated.
+                                // Ask for the next position's slot now:
+                                // a likely cache miss, which loads while
+                                // this position's is updated.
                                 if i + 1 < ids.len() {
-                                    for k in 1..=n.min(ids.len() - i - 1) {
-                                        self.table.prefetch(&ids[i + 1..i + 1 + k]);
-                                    }
+                                    let end = (i + 1 + n).min(ids.len());
+                                    self.table.prefetch(&ids[i + 1..end]);
                                 }
-                                for k in 1..=n.min(ids.len() - i) {
-                                    self.table.add(&ids[i..i + k], &[1]);
-                                }
+                                self.table.add(&ids[i..(i + n).min(ids.len())], &[1]);
                                 if self.table.is_critical() {
                                     // A huge sentence: write the table out
                                     // now, record it at the next line end.
@@ -254,9 +255,9 @@ impl<'a> Worker<'a> {
         let run = format!("count-{id:06}.run");
         let parts = self.cfg.partitions;
         let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
-        for (key, vals) in self.table.sorted() {
-            w.push(partition_of(key.ids()[0], parts), &key, &vals)?;
-        }
+        each_with_prefixes(self.table.sorted_records(), |key, vals| {
+            w.push(partition_of(key.ids()[0], parts), &key, vals)
+        })?;
         let summary = w.finish()?;
         self.table.clear();
         Ok((run, summary.bytes))
