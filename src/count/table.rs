@@ -74,7 +74,7 @@ impl Table {
             stride,
             cap,
             max_cap: cap,
-            slots: vec![0; cap * stride],
+            slots: written_zeros(cap * stride),
             used: 0,
             limit: ((cap as f64) * MAX_LOAD) as usize,
             critical: ((cap as f64) * CRITICAL_LOAD) as usize,
@@ -368,6 +368,17 @@ impl SortedRecords<'_> {
         }
         Key::from_padded(ids, rec[self.width + self.values] as usize)
     }
+}
+
+/// `n` zeros, written now. `vec![0; n]` maps fresh pages to the shared zero
+/// page, and a table reads a slot before it writes it: each page is then
+/// copied at its first write, and the copy flushes that page from the TLB
+/// of every core that runs a thread of the process (an interrupt to each).
+/// Writing the zeros maps every page for writing at once.
+fn written_zeros(n: usize) -> Vec<u64> {
+    let mut v = Vec::with_capacity(n);
+    v.resize(n, 0);
+    v
 }
 
 /// The hash of a key; its slot in a table of `cap` slots is
