@@ -1,14 +1,19 @@
 //! Step 1 of a partition: merge the count runs, emit suffix contributions.
 
+use std::collections::VecDeque;
 use std::path::Path;
 use std::sync::atomic::{AtomicU64, Ordering};
 
 use super::kway::{KWayMerge, RecordSource};
 use crate::count::Table;
 use crate::error::Result;
-use crate::key::partition_of;
+use crate::key::{partition_of, Key};
 use crate::records::Merged;
 use crate::shard::{RunFile, RunWriter, SectionReader};
+
+/// How many n-grams a suffix's continuation-table slot is asked for
+/// before it is added to.
+const AHEAD: usize = 8;
 
 /// Settings of the merge steps.
 pub struct MergeConfig<'a> {
@@ -95,19 +100,35 @@ pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -
         runs.push(name);
         Ok(())
     };
+    // Each suffix's slot is a likely cache miss: it is asked for when the
+    // n-gram arrives and added AHEAD n-grams later, so that several misses
+    // are under way at once.
+    let mut ahead: VecDeque<Key> = VecDeque::with_capacity(AHEAD + 1);
     while let Some((key, vals)) = merge.next_record()? {
         out.push(0, &key, &vals)?;
         if let Some(t) = table.as_mut() {
             if key.order() >= 2 {
-                t.add(&key.ids()[1..], &[1]);
-                if t.is_full() {
-                    spill(t, &mut suffix_runs)?;
+                let suffix = Key::new(&key.ids()[1..]);
+                t.prefetch(suffix.ids());
+                ahead.push_back(suffix);
+                if ahead.len() > AHEAD {
+                    let g = ahead.pop_front().expect("not empty");
+                    t.add(g.ids(), &[1]);
+                    if t.is_full() {
+                        spill(t, &mut suffix_runs)?;
+                    }
                 }
             }
         }
     }
     out.finish()?;
     if let Some(t) = table.as_mut() {
+        for g in ahead {
+            t.add(g.ids(), &[1]);
+            if t.is_full() {
+                spill(t, &mut suffix_runs)?;
+            }
+        }
         if !t.is_empty() {
             spill(t, &mut suffix_runs)?;
         }
