@@ -385,7 +385,9 @@ impl SortedRecords<'_> {
 /// page, and a table reads a slot before it writes it: each page is then
 /// copied at its first write, and the copy flushes that page from the TLB
 /// of every core that runs a thread of the process (an interrupt to each).
-/// Writing the zeros maps every page for writing at once.
+/// Writing the zeros maps every page for writing at once (which is why
+/// this is not the `vec!` that clippy suggests).
+#[allow(clippy::slow_vector_initialization)]
 fn written_zeros(n: usize) -> Vec<u64> {
     let mut v = Vec::with_capacity(n);
     v.resize(n, 0);
