@@ -73,6 +73,7 @@ pub mod finish;
 pub mod fsutil;
 #[cfg(feature = "store")]
 pub mod growth;
+pub mod hint;
 #[cfg(feature = "store")]
 pub mod ingest;
 pub mod key;

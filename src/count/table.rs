@@ -132,23 +132,10 @@ impl Table {
     }
 
     /// Starts loading the slot `key` hashes to, so that a later
-    /// [`Table::add`] of it finds the cache line there: a prefetch
-    /// instruction on x86-64 (it never faults and holds nothing up), a
-    /// read whose value is not needed elsewhere.
+    /// [`Table::add`] of it finds the cache line there.
     #[inline]
-    #[allow(unsafe_code)]
     pub fn prefetch(&self, key: &[u64]) {
-        let i = self.slot_of(key) * self.stride;
-        #[cfg(target_arch = "x86_64")]
-        {
-            use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-            // SAFETY: SSE, which the instruction needs, is part of every
-            // x86-64 processor; a prefetch reads nothing into the program
-            // and cannot fault, and the address is inside `slots` anyway.
-            unsafe { _mm_prefetch::<_MM_HINT_T0>(self.slots[i..].as_ptr().cast()) };
-        }
-        #[cfg(not(target_arch = "x86_64"))]
-        std::hint::black_box(self.slots[i]);
+        crate::hint::prefetch(&self.slots[self.slot_of(key) * self.stride]);
     }
 
     /// Adds `add` to the sums of `key`. The caller checks [`Table::is_full`]

@@ -114,26 +114,8 @@ pub(crate) fn u64_at(b: &[u8], i: usize) -> u64 {
 /// following one another. `at` is clamped to `b`.
 #[inline(always)]
 pub(crate) fn prefetch(b: &[u8], at: usize) {
-    #[cfg(target_arch = "x86_64")]
     if let Some(x) = b.get(at.min(b.len().saturating_sub(1))) {
-        prefetch_line(x);
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    let _ = (b, at);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[allow(unsafe_code)]
-#[inline(always)]
-fn prefetch_line<T>(x: &T) {
-    // SAFETY: `_mm_prefetch` is unsafe only as an intrinsic with a target
-    // feature (SSE, part of every x86-64 CPU). A prefetch is a hint: it
-    // never faults and changes no memory, and the address is that of a
-    // live reference (into the map or the id directory).
-    unsafe {
-        std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(
-            x as *const T as *const i8,
-        )
+        crate::hint::prefetch(x);
     }
 }
 
@@ -583,10 +565,7 @@ impl Model {
     #[inline(always)]
     pub(crate) fn prefetch_bucket(&self, id: WordId) {
         if let Some(x) = self.id_dir.get(self.bucket(id)) {
-            #[cfg(target_arch = "x86_64")]
-            prefetch_line(x);
-            #[cfg(not(target_arch = "x86_64"))]
-            let _ = x;
+            crate::hint::prefetch(x);
         }
     }
 
