@@ -117,7 +117,8 @@ impl Dictionary {
 
     /// The entries sorted by id, emptying the dictionary.
     pub fn drain_sorted(&mut self) -> Vec<(WordId, Box<str>)> {
-        let mut v: Vec<_> = self.words.drain().collect();
+        // Taken, not drained: the map's memory goes too, as `bytes` says.
+        let mut v: Vec<_> = std::mem::take(&mut self.words).into_iter().collect();
         self.bytes = 0;
         v.sort_unstable_by_key(|e| e.0);
         v

@@ -64,9 +64,12 @@ impl FirstSeen {
     }
 
     /// The tokens per cover and the sightings sorted by id, emptying the
-    /// record.
+    /// record and releasing its memory: a map drained in place keeps its
+    /// capacity, which [`FirstSeen::heap_bytes`] counts, so every later
+    /// spill would come as soon as the dictionary grew a little.
     pub fn drain(&mut self) -> (Vec<u64>, Vec<(WordId, u32, u64)>) {
-        let mut v: Vec<_> = self.first.drain().map(|(w, (c, p))| (w, c, p)).collect();
+        let first = std::mem::take(&mut self.first);
+        let mut v: Vec<_> = first.into_iter().map(|(w, (c, p))| (w, c, p)).collect();
         v.sort_unstable_by_key(|e| e.0);
         self.tokens = 0;
         (std::mem::take(&mut self.covers), v)
