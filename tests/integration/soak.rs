@@ -90,6 +90,10 @@ fn phase_of(store: &Path) -> String {
         .unwrap_or_else(|| "unreadable".into())
 }
 
+/// The work folder of a finished ingest while it is being removed
+/// (`layout::work_done`).
+const WORK_DONE: &str = "work.done";
+
 /// A finished store holds its database and lock file, nothing else (no
 /// work folder, no staging or swapped-out database).
 fn assert_clean(what: &str, store: &Path) {
@@ -253,11 +257,25 @@ fn random_kills_then_resume_equal_an_uninterrupted_run() {
             }
             // (A kill while the finished run removes its work folder leaves
             // no `work` folder: it is moved aside in one step first, so the
-            // case above covers it.)
+            // case above covers it; what is left of `work.done` is removed
+            // by the next ingest into the store, checked below.)
             let phase = phase_of(&store);
             story.push(format!("killed at {at:?} in {phase}"));
             *hits.entry(format!("{} {phase}", s.name)).or_default() += 1;
             at = s.wall.mul_f64(rng.unit());
+        }
+        // A kill while the finished run was removing `work.done` leaves
+        // part of it beside the complete store. The next ingest into the
+        // store removes it before anything else, even one that is then
+        // refused: the fresh command, which a finished store refuses (and
+        // the views below check that the refusal changed nothing).
+        if store.join(WORK_DONE).exists() {
+            story.push(format!("{WORK_DONE} left over"));
+            let r = command(&scenarios[0].args, &[]).output().unwrap();
+            assert!(
+                !r.status.success(),
+                "trial {trial}: a fresh ingest into a finished store was not refused"
+            );
         }
         let what = format!(
             "trial {trial} ({}, seed {seed}): {}",
