@@ -160,6 +160,9 @@ impl Run<'_> {
             return Ok(());
         }
         self.timed(Phase::Merging, |run| {
+            // The last phase's freed memory goes back before this one's
+            // tables and readers are made (see `release_free_heap`).
+            crate::memory::release_free_heap();
             let mut files = Vec::new();
             if let Some(b) = &m.base {
                 files.push(RunFile::open(&run.dirs.runs.join(&b.run))?);
@@ -208,6 +211,9 @@ impl Run<'_> {
             return Ok(());
         }
         self.timed(Phase::Joining, |run| {
+            // The last phase's freed memory goes back before this one's
+            // tables and readers are made (see `release_free_heap`).
+            crate::memory::release_free_heap();
             if m.joined.iter().all(Option::is_some) {
                 m.phase = Phase::Building;
                 return m.save(&run.dirs.work);
@@ -270,6 +276,7 @@ impl Run<'_> {
     pub(super) fn building(&mut self, m: &mut Manifest) -> Result<()> {
         if m.phase == Phase::Building {
             self.timed(Phase::Building, |run| {
+                crate::memory::release_free_heap();
                 run.progress.phase(Phase::Building, 1);
                 let dirs = run.dirs;
                 let stats = m
