@@ -232,6 +232,8 @@ impl Table {
             };
         }
         sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
+        self.slots.reserve_exact(new_cap * st - self.slots.len());
+        crate::hint::huge_pages(&self.slots);
         self.slots.resize(new_cap * st, 0);
         self.cap = new_cap;
         self.limit = ((new_cap as f64) * MAX_LOAD) as usize;
@@ -377,6 +379,7 @@ impl SortedRecords<'_> {
 #[allow(clippy::slow_vector_initialization)]
 fn written_zeros(n: usize) -> Vec<u64> {
     let mut v = Vec::with_capacity(n);
+    crate::hint::huge_pages(&v);
     v.resize(n, 0);
     v
 }
