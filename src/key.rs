@@ -51,6 +51,12 @@ impl Key {
         &self.ids[..self.len as usize]
     }
 
+    /// All [`MAX_ORDER`] slots: the ids, then zeros.
+    #[inline]
+    pub fn padded(&self) -> &[WordId; MAX_ORDER] {
+        &self.ids
+    }
+
     /// Number of words.
     #[inline]
     pub fn order(&self) -> usize {
@@ -61,7 +67,16 @@ impl Key {
 impl Ord for Key {
     #[inline]
     fn cmp(&self, other: &Self) -> Ordering {
-        self.ids().cmp(other.ids())
+        // Both are padded with zeros, the smallest id, so comparing the
+        // slots up to the longer length and then the lengths orders keys
+        // as their id slices do (a key sorts before its extensions).
+        let n = self.len.max(other.len) as usize;
+        for i in 0..n.min(MAX_ORDER) {
+            if self.ids[i] != other.ids[i] {
+                return self.ids[i].cmp(&other.ids[i]);
+            }
+        }
+        self.len.cmp(&other.len)
     }
 }
 
@@ -99,6 +114,26 @@ mod tests {
         let mut v = vec![d, c, a, b];
         v.sort();
         assert_eq!(v, vec![b, a, c, d]);
+    }
+
+    #[test]
+    fn order_is_the_slice_order_even_with_zero_ids() {
+        // Every key of up to 3 words over {0, 1, 2}: zero is a real id here,
+        // the value the padding also holds.
+        let mut keys = Vec::new();
+        for len in 0..=3usize {
+            for n in 0..3usize.pow(len as u32) {
+                let ids: Vec<WordId> = (0..len)
+                    .map(|i| (n / 3usize.pow(i as u32) % 3) as WordId)
+                    .collect();
+                keys.push(ids);
+            }
+        }
+        for a in &keys {
+            for b in &keys {
+                assert_eq!(Key::new(a).cmp(&Key::new(b)), a.cmp(b), "{a:?} {b:?}");
+            }
+        }
     }
 
     #[test]

@@ -286,12 +286,17 @@ impl SectionReader {
         if b.len() < at {
             return Err(self.cut_short());
         }
-        let mut ids = [0u64; MAX_ORDER];
-        ids[..shared].copy_from_slice(&self.prev.ids()[..shared]);
+        // The previous key's slots, copied whole (a fixed-size copy, not a
+        // call to memcpy for `shared` words), then the fresh words over them
+        // and zeros after the last.
+        let mut ids = *self.prev.padded();
         for (id, c) in ids[shared..order].iter_mut().zip(b[2..at].chunks_exact(8)) {
             *id = u64::from_le_bytes(c.try_into().expect("8 bytes"));
         }
-        let key = Key::new(&ids[..order]);
+        for id in &mut ids[order..] {
+            *id = 0;
+        }
+        let key = Key::from_padded(ids, order);
         if self.seen > 0 && key <= self.prev {
             return Err(Error::corrupt(&self.path, "keys out of order"));
         }
