@@ -52,7 +52,12 @@ pub(super) struct Run<'a> {
 }
 
 impl Run<'_> {
+    /// Runs phase `f`, adding its wall time to `phase_seconds`. The memory
+    /// that the phase before freed goes back to the system first, before
+    /// this phase's tables and readers are made (see
+    /// [`crate::memory::release_free_heap`]).
     fn timed<T>(&mut self, phase: Phase, f: impl FnOnce(&mut Self) -> Result<T>) -> Result<T> {
+        crate::memory::release_free_heap();
         let t = Instant::now();
         let r = f(self);
         *self
@@ -160,9 +165,6 @@ impl Run<'_> {
             return Ok(());
         }
         self.timed(Phase::Merging, |run| {
-            // The last phase's freed memory goes back before this one's
-            // tables and readers are made (see `release_free_heap`).
-            crate::memory::release_free_heap();
             let mut files = Vec::new();
             if let Some(b) = &m.base {
                 files.push(RunFile::open(&run.dirs.runs.join(&b.run))?);
@@ -211,9 +213,6 @@ impl Run<'_> {
             return Ok(());
         }
         self.timed(Phase::Joining, |run| {
-            // The last phase's freed memory goes back before this one's
-            // tables and readers are made (see `release_free_heap`).
-            crate::memory::release_free_heap();
             if m.joined.iter().all(Option::is_some) {
                 m.phase = Phase::Building;
                 return m.save(&run.dirs.work);
@@ -276,7 +275,6 @@ impl Run<'_> {
     pub(super) fn building(&mut self, m: &mut Manifest) -> Result<()> {
         if m.phase == Phase::Building {
             self.timed(Phase::Building, |run| {
-                crate::memory::release_free_heap();
                 run.progress.phase(Phase::Building, 1);
                 let dirs = run.dirs;
                 let stats = m
