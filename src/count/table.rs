@@ -64,40 +64,17 @@ impl Table {
     /// distinct keys (a fresh table's pages cost a fault each when touched,
     /// so an oversized table is slow as well as large).
     pub fn for_keys(width: usize, values: usize, budget: usize, keys: usize) -> Table {
-        Self::for_keys_in(width, values, budget, keys, Vec::new())
-    }
-
-    /// Like [`Table::for_keys`], but in the memory of `spare` (the slots of
-    /// a table that is done, from [`Table::into_slots`]) if it is large
-    /// enough. Its pages are mapped already: zeroing them again costs a
-    /// `memset`, where fresh pages also cost the kernel's own zeroing and
-    /// a fault each (the merge makes one continuation table per partition).
-    pub fn for_keys_in(
-        width: usize,
-        values: usize,
-        budget: usize,
-        keys: usize,
-        mut spare: Vec<u64>,
-    ) -> Table {
         assert!((1..=MAX_ORDER).contains(&width) && values <= MAX_VALUES);
         let need = ((keys as f64 / MAX_LOAD) as usize).saturating_add(64);
         let cap = (budget / Self::slot_bytes(width, values)).min(need).max(64);
         let stride = width + values + 1;
-        let slots = if spare.capacity() >= cap * stride {
-            spare.clear();
-            spare.resize(cap * stride, 0);
-            spare
-        } else {
-            drop(spare);
-            written_zeros(cap * stride)
-        };
         Table {
             width,
             values,
             stride,
             cap,
             max_cap: cap,
-            slots,
+            slots: written_zeros(cap * stride),
             used: 0,
             limit: ((cap as f64) * MAX_LOAD) as usize,
             critical: ((cap as f64) * CRITICAL_LOAD) as usize,
@@ -324,11 +301,6 @@ impl Table {
             values: self.values,
             stride: self.stride,
         }
-    }
-
-    /// The table's memory, for [`Table::for_keys_in`].
-    pub fn into_slots(self) -> Vec<u64> {
-        self.slots
     }
 
     /// Empties the table, keeping its memory.

@@ -15,13 +15,6 @@ use crate::shard::{RunFile, RunWriter, SectionReader};
 /// before it is added to.
 const AHEAD: usize = 8;
 
-thread_local! {
-    /// The memory of this thread's last continuation table, for its next
-    /// partition's (see [`Table::for_keys_in`]). Freed with the thread:
-    /// the merge's worker threads end with the merging phase.
-    static SPARE: std::cell::RefCell<Vec<u64>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
 /// Settings of the merge steps.
 pub struct MergeConfig<'a> {
     /// Highest order N.
@@ -94,10 +87,8 @@ pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -
     let counts = format!("counts-{p:04}.run");
     let mut out = RunWriter::create(&cfg.merged_dir.join(&counts), 1, 1)?;
     let mut suffix_runs = Vec::new();
-    let mut table = (cfg.order > 1).then(|| {
-        let spare = SPARE.with(|s| std::mem::take(&mut *s.borrow_mut()));
-        Table::for_keys_in(cfg.order - 1, 1, cfg.worker_bytes, records as usize, spare)
-    });
+    let mut table = (cfg.order > 1)
+        .then(|| Table::for_keys(cfg.order - 1, 1, cfg.worker_bytes, records as usize));
     let spill = |t: &mut Table, runs: &mut Vec<String>| -> Result<()> {
         let name = format!("suffix-{p:04}-{:04}.run", runs.len());
         let mut w = RunWriter::create(&cfg.merged_dir.join(&name), cfg.partitions, 1)?;
@@ -141,9 +132,6 @@ pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -
         if !t.is_empty() {
             spill(t, &mut suffix_runs)?;
         }
-    }
-    if let Some(t) = table {
-        SPARE.with(|s| *s.borrow_mut() = t.into_slots());
     }
     Ok(Merged {
         counts,
