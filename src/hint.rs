@@ -30,7 +30,7 @@ fn prefetch_x86<T>(x: &T) {
     }
 }
 
-/// Large pages (2 MiB on x86-64) are worth asking for above this size.
+/// A transparent huge page on x86-64 (2 MiB, aligned to its size).
 const HUGE_PAGE: usize = 2 << 20;
 
 /// Asks the kernel to back the whole capacity of `v` with transparent huge
@@ -39,7 +39,8 @@ const HUGE_PAGE: usize = 2 << 20;
 /// written. A hash table probed at random addresses pays a TLB miss on
 /// nearly every probe with 4 KiB pages (a few MiB of them fit the TLB),
 /// and one page fault per 4 KiB when it is first written. Nothing happens
-/// for a capacity under 2 MiB, off Linux, or if the kernel refuses.
+/// for a capacity under two huge pages (only that is sure to hold a whole
+/// aligned one), off Linux, or if the kernel refuses.
 pub fn huge_pages<T>(v: &Vec<T>) {
     let bytes = v.capacity() * std::mem::size_of::<T>();
     if bytes < 2 * HUGE_PAGE {
