@@ -6,8 +6,9 @@ use std::path::Path;
 use super::kway::{KWayMerge, RecordSource};
 use super::partition::{open_all, reduce_sources, MergeConfig};
 use crate::error::{Error, Result};
+use crate::key::Key;
 use crate::records::{Joined, PartitionStats};
-use crate::shard::RunFile;
+use crate::shard::{RunFile, Values, MAX_VALUES};
 use crate::store::build::{sst_options, Family, SstSet};
 use crate::store::keys::{encode_ngram, ngram_cf};
 use crate::store::ranks::KeyWriter;
@@ -66,6 +67,63 @@ impl Tally {
     }
 }
 
+/// Records read this far ahead of the join, so that the rank lookups of
+/// each key's last word are prefetched in two steps (the bucket start at
+/// `AHEAD`, the first id of the bucket at `AHEAD / 2`) and their cache
+/// misses overlap; done one key at a time they were nearly three quarters
+/// of the key writer's time, a tenth of the join's.
+const AHEAD: usize = 16;
+
+/// A record source read [`AHEAD`] records ahead, prefetching rank lookups.
+struct Ahead<'r, S> {
+    src: S,
+    ranks: &'r Ranks,
+    ring: [(Key, Values); AHEAD],
+    /// Records in the ring, from `head` on (wrapping).
+    len: usize,
+    head: usize,
+    done: bool,
+}
+
+impl<'r, S: RecordSource> Ahead<'r, S> {
+    fn new(src: S, ranks: &'r Ranks) -> Self {
+        Ahead {
+            src,
+            ranks,
+            ring: [(Key::default(), [0; MAX_VALUES]); AHEAD],
+            len: 0,
+            head: 0,
+            done: false,
+        }
+    }
+
+    fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
+        while !self.done && self.len < AHEAD {
+            match self.src.next_record()? {
+                Some(rec) => {
+                    let last = |k: &Key| k.ids().last().copied().unwrap_or(0);
+                    self.ranks.prefetch_bucket(last(&rec.0));
+                    let slot = (self.head + self.len) % AHEAD;
+                    self.ring[slot] = rec;
+                    self.len += 1;
+                    if self.len > AHEAD / 2 {
+                        let mid = (self.head + self.len - 1 - AHEAD / 2) % AHEAD;
+                        self.ranks.prefetch_ids(last(&self.ring[mid].0));
+                    }
+                }
+                None => self.done = true,
+            }
+        }
+        if self.len == 0 {
+            return Ok(None);
+        }
+        let rec = self.ring[self.head];
+        self.head = (self.head + 1) % AHEAD;
+        self.len -= 1;
+        Ok(Some(rec))
+    }
+}
+
 /// Joins partition `q`'s merged counts with its continuation contributions
 /// (`suffixes`: file, section) and writes its SST files to `sst_dir`, with
 /// keys of word ranks from `ranks` (every word of the input must be there).
@@ -81,7 +139,7 @@ pub fn join_partition(
     let suffixes = reduce_sources(cfg, suffixes)?;
     let mut cont = KWayMerge::new(open_all(cfg, &suffixes)?)?;
     let mut next_cont = cont.next_record()?;
-    let mut rows = counts.section(0)?;
+    let mut rows = Ahead::new(counts.section(0)?, ranks);
     let opts = sst_options();
     let mut sink = SstSet::new(&opts, sst_dir, format!("p{q:04}"));
     let (bos, unk) = (bos_id(), unk_id());
@@ -194,4 +252,42 @@ pub fn join_partition(
         ssts: sink.finish()?,
         stats,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    struct VecSource(std::vec::IntoIter<(Key, Values)>);
+    impl RecordSource for VecSource {
+        fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
+            Ok(self.0.next())
+        }
+    }
+
+    #[test]
+    fn reading_ahead_hands_out_every_record_once_in_order() {
+        // Lengths around the ring's size and its half, where an off-by-one
+        // in the ring would drop, repeat or reorder a record; the ranks
+        // are empty, of one word, and of many words.
+        let rank_sets = [
+            Ranks::default(),
+            Ranks::from_sorted(vec![7]),
+            Ranks::from_sorted((0..1000u64).map(|i| i << 50 | i).collect()),
+        ];
+        for ranks in &rank_sets {
+            for n in [0, 1, 7, 8, 9, 15, 16, 17, 31, 32, 33, 100] {
+                let recs: Vec<(Key, Values)> = (0..n as u64)
+                    .map(|i| (Key::new(&[i, i * 31 + 5]), [i, i + 1, 0, 0]))
+                    .collect();
+                let mut a = Ahead::new(VecSource(recs.clone().into_iter()), ranks);
+                let mut got = Vec::new();
+                while let Some(r) = a.next_record().unwrap() {
+                    got.push(r);
+                }
+                assert_eq!(got, recs, "{n} records");
+                assert!(a.next_record().unwrap().is_none());
+            }
+        }
+    }
 }

@@ -115,6 +115,33 @@ impl Ranks {
         None
     }
 
+    /// First step of a rank lookup issued ahead of time: asks for the
+    /// cache line of `id`'s bucket start. Changes no result.
+    #[inline]
+    pub fn prefetch_bucket(&self, id: WordId) {
+        if self.ids.is_empty() {
+            return;
+        }
+        if let Some(s) = self.starts.get((id >> (64 - self.bits)) as usize) {
+            crate::hint::prefetch(s);
+        }
+    }
+
+    /// Second step, some records after [`Ranks::prefetch_bucket`]: reads
+    /// the bucket's start (by now in the cache) and asks for the cache line
+    /// of its first id. Changes no result.
+    #[inline]
+    pub fn prefetch_ids(&self, id: WordId) {
+        if self.ids.is_empty() {
+            return;
+        }
+        if let Some(&s) = self.starts.get((id >> (64 - self.bits)) as usize) {
+            if let Some(x) = self.ids.get(s as usize) {
+                crate::hint::prefetch(x);
+            }
+        }
+    }
+
     /// The id of rank `r`.
     #[inline]
     pub fn id(&self, r: u32) -> Option<WordId> {
