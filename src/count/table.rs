@@ -192,6 +192,35 @@ impl Table {
         debug_assert_eq!(j, self.used);
     }
 
+    /// Packs the records to the front of the array in the order of their
+    /// hashes. Linear probing leaves them nearly in that order already:
+    /// homes are monotone in the hash, a record sits at or a little after
+    /// its home, and only the cluster that wraps past the last slot is out
+    /// of place as a whole. So the wrapped records are moved to the end and
+    /// an insertion sort fixes the rest, computing about one hash a record
+    /// (a comparison sort computed two hashes per comparison, some forty a
+    /// record, and was the largest cost of the counting phase).
+    fn pack_by_hash(&mut self) {
+        let (st, lenpos) = (self.stride, self.width + self.values);
+        // The records in slots 0..front, before the first free slot, are
+        // packed to the same places; among them are the wrapped ones.
+        let front = (0..self.cap)
+            .find(|&i| self.slots[i * st + lenpos] == 0)
+            .expect("a table is never full");
+        self.pack();
+        let (n, cap) = (self.used, self.cap);
+        let recs = &mut self.slots[..n * st];
+        macro_rules! sort_as {
+            ($($n:literal)*) => {
+                match st {
+                    $($n => sort_packed_by_hash::<$n>(recs, lenpos, cap, front),)*
+                    _ => unreachable!("stride {st} out of range"),
+                }
+            };
+        }
+        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
+    }
+
     /// Packs the records to the front of the array and sorts them.
     fn pack_and_sort(&mut self) {
         self.pack();
@@ -220,18 +249,8 @@ impl Table {
     fn grow(&mut self) {
         let new_cap = (self.cap * 2).min(self.max_cap);
         let (st, lenpos) = (self.stride, self.width + self.values);
-        self.pack();
+        self.pack_by_hash();
         let n = self.used;
-        let recs = &mut self.slots[..n * st];
-        macro_rules! sort_as {
-            ($($n:literal)*) => {
-                match st {
-                    $($n => sort_by_hash::<$n>(recs, lenpos),)*
-                    _ => unreachable!("stride {st} out of range"),
-                }
-            };
-        }
-        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
         self.slots.reserve_exact(new_cap * st - self.slots.len());
         crate::hint::huge_pages(&self.slots);
         self.slots.resize(new_cap * st, 0);
@@ -401,11 +420,68 @@ fn home(hash: u64, cap: usize) -> usize {
 }
 
 /// Sorts records of `N` u64s by the hash of their key (length at
-/// `lenpos`).
-fn sort_by_hash<const N: usize>(flat: &mut [u64], lenpos: usize) {
+/// `lenpos`), given that they are a table's records packed in slot order:
+/// the table had `cap` slots and its first free slot was `front`.
+///
+/// A record in slot `i < front` whose home is after `i` wrapped around
+/// the end of the table; those are moved to the end (keeping their order),
+/// which leaves every record at most a cluster away from its place. An
+/// insertion sort then places each record, keeping the hash of the last
+/// sorted one; if it has moved records more than [`SHIFTS_PER_RECORD`]
+/// times the count, which a table's layout does not produce, it stops and
+/// a comparison sort finishes the job.
+fn sort_packed_by_hash<const N: usize>(flat: &mut [u64], lenpos: usize, cap: usize, front: usize) {
     let (recs, _) = flat.as_chunks_mut::<N>();
-    recs.sort_unstable_by_key(|r| hash_of(&r[..r[lenpos] as usize]));
+    let hash = |r: &[u64; N]| hash_of(&r[..r[lenpos] as usize]);
+    let front = front.min(recs.len());
+    let wrapped: Vec<[u64; N]> = recs[..front]
+        .iter()
+        .enumerate()
+        .filter(|(i, r)| home(hash(r), cap) > *i)
+        .map(|(_, r)| *r)
+        .collect();
+    if !wrapped.is_empty() {
+        // The others of the front keep their order, at the end of the front;
+        // then the whole array turns so that the wrapped ones come last.
+        let mut j = front;
+        for i in (0..front).rev() {
+            if home(hash(&recs[i]), cap) <= i {
+                j -= 1;
+                recs[j] = recs[i];
+            }
+        }
+        recs[..wrapped.len()].copy_from_slice(&wrapped);
+        recs.rotate_left(wrapped.len());
+    }
+    let Some(first) = recs.first() else {
+        return;
+    };
+    let mut last = hash(first);
+    let mut shifts = 0usize;
+    let most = SHIFTS_PER_RECORD.saturating_mul(recs.len());
+    for i in 1..recs.len() {
+        let h = hash(&recs[i]);
+        if h >= last {
+            last = h;
+            continue;
+        }
+        // recs[i - 1] (hash `last`) goes after it; find how far back it goes.
+        let mut j = i - 1;
+        while j > 0 && hash(&recs[j - 1]) > h {
+            j -= 1;
+        }
+        shifts += i - j;
+        recs[j..=i].rotate_right(1);
+        if shifts > most {
+            recs.sort_unstable_by_key(hash);
+            return;
+        }
+    }
 }
+
+/// Most records an insertion sort in [`sort_packed_by_hash`] moves, per
+/// record, before it gives way to a comparison sort.
+const SHIFTS_PER_RECORD: usize = 64;
 
 /// Sorts records of `N` u64s whose first `width` are padded ids and whose
 /// last is the key length.
@@ -584,6 +660,68 @@ mod tests {
             t.clear();
             assert!(t.is_empty());
         }
+    }
+
+    /// The hashes of packed records (stride 5: 3 ids, 1 value, length).
+    fn hashes(flat: &[u64]) -> Vec<u64> {
+        flat.chunks_exact(5)
+            .map(|r| hash_of(&r[..r[4] as usize]))
+            .collect()
+    }
+
+    /// The records of `flat` in a canonical order, to compare as sets.
+    fn canonical(flat: &[u64]) -> Vec<Vec<u64>> {
+        let mut v: Vec<Vec<u64>> = flat.chunks_exact(5).map(|r| r.to_vec()).collect();
+        v.sort();
+        v
+    }
+
+    #[test]
+    fn packed_records_sort_by_hash_like_a_comparison_sort() {
+        // Tables of 64 to 4096 slots filled to MAX_LOAD with random keys,
+        // so that clusters form and often wrap past the last slot, packed
+        // in slot order: the result must hold the same records in
+        // non-decreasing hash order. Reversed, the same records take the
+        // comparison sort that the insertion sort gives way to.
+        let mut x = 99u64;
+        let mut wraps = 0;
+        for round in 0..210 {
+            let slots = 64usize << (round % 7);
+            let mut t = Table::with_budget(3, 1, Table::slot_bytes(3, 1) * slots);
+            assert_eq!((t.cap, t.stride), (slots, 5));
+            while !t.is_full() {
+                x = x
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let len = 1 + (x >> 62) as usize % 3;
+                let key: Vec<u64> = (0..len).map(|j| (x >> (j * 13)) % 100_000).collect();
+                t.add(&key, &[1]);
+            }
+            let front = (0..t.cap).find(|&i| t.slots[i * 5 + 4] == 0).unwrap();
+            let wrapped = (0..front)
+                .filter(|&i| {
+                    let r = &t.slots[i * 5..i * 5 + 5];
+                    home(hash_of(&r[..r[4] as usize]), t.cap) > i
+                })
+                .count();
+            wraps += usize::from(wrapped > 0);
+            t.pack();
+            let packed = t.slots[..t.used * 5].to_vec();
+            let mut got = packed.clone();
+            sort_packed_by_hash::<5>(&mut got, 4, t.cap, front);
+            let h = hashes(&got);
+            assert!(h.windows(2).all(|w| w[0] <= w[1]), "round {round}");
+            assert_eq!(canonical(&got), canonical(&packed), "round {round}");
+
+            let mut rev: Vec<u64> = packed.chunks_exact(5).rev().flatten().copied().collect();
+            sort_packed_by_hash::<5>(&mut rev, 4, t.cap, 0);
+            assert!(
+                hashes(&rev).windows(2).all(|w| w[0] <= w[1]),
+                "round {round}"
+            );
+            assert_eq!(canonical(&rev), canonical(&packed), "round {round}");
+        }
+        assert!(wraps >= 20, "only {wraps} tables wrapped");
     }
 
     #[test]
