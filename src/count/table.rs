@@ -84,9 +84,9 @@ impl Table {
 
     /// Like [`Table::with_budget`], but starting small and doubling (in
     /// place) while it fills, up to the budget: a small input then touches
-    /// only the memory it needs. Growing re-sorts the records by hash, so
-    /// it costs about as much as a spill; it happens at most
-    /// log2(budget / 14 MiB) times.
+    /// only the memory it needs. Growing puts the records in hash order
+    /// (nearly their order already) and moves each once; it happens at
+    /// most log2(budget / 14 MiB) times.
     pub fn growable(width: usize, values: usize, budget: usize) -> Table {
         let max_cap = (budget / Self::slot_bytes(width, values)).max(64);
         let mut t = Self::for_keys(
