@@ -256,14 +256,8 @@ pub fn join_partition(
 
 #[cfg(test)]
 mod tests {
+    use super::super::kway::tests::VecSource;
     use super::*;
-
-    struct VecSource(std::vec::IntoIter<(Key, Values)>);
-    impl RecordSource for VecSource {
-        fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
-            Ok(self.0.next())
-        }
-    }
 
     #[test]
     fn reading_ahead_hands_out_every_record_once_in_order() {

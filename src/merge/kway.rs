@@ -141,10 +141,11 @@ impl<S: RecordSource> RecordSource for KWayMerge<S> {
 }
 
 #[cfg(test)]
-mod tests {
+pub(super) mod tests {
     use super::*;
 
-    struct VecSource(std::vec::IntoIter<(Key, Values)>);
+    /// Records from a vector, for tests of what reads a record source.
+    pub(in crate::merge) struct VecSource(pub std::vec::IntoIter<(Key, Values)>);
     impl RecordSource for VecSource {
         fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
             Ok(self.0.next())
