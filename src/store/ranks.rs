@@ -99,13 +99,17 @@ impl Ranks {
         self.ids.capacity() * 8 + self.starts.capacity() * 4
     }
 
+    /// The bucket of `id` (its top `bits` bits), or `None` if there are no
+    /// words at all.
+    #[inline]
+    fn bucket(&self, id: WordId) -> Option<usize> {
+        (!self.ids.is_empty()).then(|| (id >> (64 - self.bits)) as usize)
+    }
+
     /// The rank of `id`, if it is one of the store's words.
     #[inline]
     pub fn rank(&self, id: WordId) -> Option<u32> {
-        if self.ids.is_empty() {
-            return None;
-        }
-        let b = (id >> (64 - self.bits)) as usize;
+        let b = self.bucket(id)?;
         let (lo, hi) = (self.starts[b] as usize, self.starts[b + 1] as usize);
         for (i, &x) in self.ids[lo..hi].iter().enumerate() {
             if x >= id {
@@ -119,10 +123,7 @@ impl Ranks {
     /// cache line of `id`'s bucket start. Changes no result.
     #[inline]
     pub fn prefetch_bucket(&self, id: WordId) {
-        if self.ids.is_empty() {
-            return;
-        }
-        if let Some(s) = self.starts.get((id >> (64 - self.bits)) as usize) {
+        if let Some(s) = self.bucket(id).and_then(|b| self.starts.get(b)) {
             crate::hint::prefetch(s);
         }
     }
@@ -132,10 +133,7 @@ impl Ranks {
     /// of its first id. Changes no result.
     #[inline]
     pub fn prefetch_ids(&self, id: WordId) {
-        if self.ids.is_empty() {
-            return;
-        }
-        if let Some(&s) = self.starts.get((id >> (64 - self.bits)) as usize) {
+        if let Some(&s) = self.bucket(id).and_then(|b| self.starts.get(b)) {
             if let Some(x) = self.ids.get(s as usize) {
                 crate::hint::prefetch(x);
             }
