@@ -136,15 +136,7 @@ pub(crate) fn find_by(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    /// A small deterministic generator (splitmix64).
-    fn next(s: &mut u64) -> u64 {
-        *s = s.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = *s;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
+    use crate::search::splitmix64 as next;
 
     /// `find_by` against the standard library's binary search, on ranges
     /// of 0 to 5,000 increasing words spread evenly, bunched at one end,

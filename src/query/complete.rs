@@ -64,8 +64,7 @@ pub(crate) enum Filter {
     All,
     /// All but the markers `<s>` and `<unk>` (a completion, empty prefix).
     NoMarkers,
-    /// The words at these places of the text index (which leaves the
-    /// markers out).
+    /// The words at these places of the text index, markers excepted.
     Range(Range<usize>),
 }
 
@@ -103,19 +102,14 @@ impl Estimator<'_> {
             rank.insert(w, r as u32);
             texts.push(voc.remove(&w).unwrap_or_default().into_boxed_str());
         }
-        // The markers are never completed: left out of the prefix index.
-        let (bos, unk, eos) = (self.bos, self.unk, eos_id());
-        let index = PrefixIndex::new(texts.len(), |r| {
-            let w = ranking[r as usize];
-            (w != bos && w != unk && w != eos).then(|| texts[r as usize].as_bytes())
-        });
+        let index = PrefixIndex::new(texts.len(), |r| Some(texts[r as usize].as_bytes()));
         let _ = self.text_index.set(TextIndex { texts, rank, index });
         Ok(self.text_index.get().expect("just set"))
     }
 
     /// The search of [`Estimator::next`] and [`Estimator::complete`].
     pub(crate) fn top_words(&self, context: &[WordId], filter: Filter, k: usize) -> Result<Next> {
-        let (bos, unk) = (self.bos, self.unk);
+        let (bos, unk, eos) = (self.bos, self.unk, eos_id());
         let cl = self.raw_context_levels(context)?;
         if k == 0 {
             return Ok(Next::from_best(cl.ctx, Vec::new(), 0));
@@ -124,11 +118,44 @@ impl Estimator<'_> {
         let ok = |w: WordId| match &filter {
             Filter::All => true,
             Filter::NoMarkers => w != bos && w != unk,
-            Filter::Range(places) => ix.place(w).is_some_and(|p| places.contains(&p)),
+            Filter::Range(places) => {
+                w != bos && w != unk && w != eos && ix.place(w).is_some_and(|p| places.contains(&p))
+            }
         };
         let l = cl.ctx.len();
         let mut buf = Vec::new();
         let mut top = TopK::new(k);
+        if let Some(j) = self.tied_beyond(&cl) {
+            // Every word but the children of level j has one probability:
+            // those children, then the first K others in byte order.
+            let kids = cl.maps.get(j).cloned().flatten();
+            let kid = |w: WordId| kids.as_ref().is_some_and(|m| m.contains(w));
+            let score = |&(w, at, uni): &ChildEntry| {
+                Ok((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w))
+            };
+            match &kids {
+                // The last word's children, ranked by P(w | last word),
+                // which is P(w | context) here.
+                Some(_) if j == 1 => {
+                    let m = self.ranked_children(cl.ctx[l - 1])?.expect("has children");
+                    let ranked = m.ranked.get().expect("ranked by ranked_children");
+                    top.take_ranked(ranked.iter().filter(|e| ok(e.0)).map(score))?;
+                }
+                Some(m) => top.take_all(m.list.iter().filter(|e| ok(e.0)).map(score))?,
+                None => {}
+            }
+            let places = match &filter {
+                Filter::Range(places) => places.clone(),
+                _ => 0..ix.index.len(),
+            };
+            let words = ix.index.by_bytes()[places]
+                .iter()
+                .map(|&r| self.ranking_at(r));
+            let rest = words.filter(|&w| ok(w) && !kid(w));
+            top.take_tied(rest.map(|w| Ok((self.eval_mapped(&cl, w, &mut buf)?.0, w))))?;
+            let (best, scored) = top.finish(|a, b| ix.bytes_order(a, b));
+            return Ok(Next::from_best(cl.ctx, best, scored));
+        }
         let lowest = if self.method == Method::Katz { 1 } else { 2 };
         for j in (lowest..=l).rev() {
             let Some(m) = &cl.maps[j] else { continue };
@@ -177,6 +204,22 @@ impl Estimator<'_> {
         }
         let (best, scored) = top.finish(|a, b| ix.bytes_order(a, b));
         Ok(Next::from_best(cl.ctx, best, scored))
+    }
+
+    /// The level j whose non-children all have one probability, if there
+    /// is one: `add-k` after a context of one word or more (j = its
+    /// length: every word unseen after it gets k / (C(h) + k|V|), or 1/|V|
+    /// after an unseen context), and `mle` after a context with a seen
+    /// suffix (j = the longest: every word unseen after it gets 0).
+    fn tied_beyond(&self, cl: &super::probability::ContextLevels) -> Option<usize> {
+        let l = cl.ctx.len();
+        match self.method {
+            Method::AddK if l >= 1 => Some(l),
+            Method::Mle => (1..=l)
+                .rev()
+                .find(|&j| cl.infos[j].stats.is_some_and(|s| s.count_sum > 0)),
+            _ => None,
+        }
     }
 
     /// The word of rank `r` in the unigram ranking (built by then).

@@ -77,6 +77,19 @@ impl<W: Copy> TopK<W> {
         Ok(())
     }
 
+    /// A group whose candidates all have one probability, in the order of
+    /// their bytes: its first K are its best, so the rest is never read.
+    pub fn take_tied<E>(
+        &mut self,
+        group: impl IntoIterator<Item = Result<(f64, W), E>>,
+    ) -> Result<(), E> {
+        for c in group.into_iter().take(self.k) {
+            self.found.push(c?);
+            self.scored += 1;
+        }
+        Ok(())
+    }
+
     /// The best `k`, best first: higher probability, then `bytes_order`
     /// of the words (the order of their UTF-8 bytes); and how many
     /// candidates were scored.
@@ -195,10 +208,22 @@ mod tests {
     }
 
     #[test]
+    fn a_tied_group_in_bytes_order_gives_its_first_k() {
+        let group: Vec<R> = ["ant", "bee", "cat", "dog"].map(|w| Ok((0.25, w))).to_vec();
+        let mut top = TopK::new(2);
+        top.take_all(vec![Ok((0.25, "cow")), Ok((0.5, "zebra"))])
+            .unwrap();
+        top.take_tied(group).unwrap();
+        assert_eq!(top.scored(), 4);
+        assert_eq!(best(top), vec![(0.5, "zebra"), (0.25, "ant")]);
+    }
+
+    #[test]
     fn k_zero_scores_nothing() {
         let mut top = TopK::new(0);
         top.take_ranked(vec![Ok::<_, ()>((1.0, "a"))]).unwrap();
         top.take_all(vec![Ok::<_, ()>((1.0, "a"))]).unwrap();
+        top.take_tied(vec![Ok::<_, ()>((1.0, "a"))]).unwrap();
         assert_eq!(top.scored(), 0);
         assert!(best(top).is_empty());
     }

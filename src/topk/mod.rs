@@ -15,7 +15,10 @@
 //!   the probability never increases; the collector takes the first K,
 //!   then every further candidate whose probability equals the K-th's
 //!   (a tie at the boundary), and stops; or
-//! - **whole** ([`TopK::take_all`]): every candidate (short lists).
+//! - **whole** ([`TopK::take_all`]): every candidate (short lists); or
+//! - **tied** ([`TopK::take_tied`]): a group whose every word has the same
+//!   probability (with `add-k` and `mle`, the words unseen after the
+//!   context), in byte order: its first K.
 //!
 //! The best K of the union of the groups' candidates are the best K of V:
 //! a word that a ranked group never offered comes after a candidate of
