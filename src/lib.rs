@@ -89,6 +89,7 @@ pub mod python;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;
+pub mod search;
 #[cfg(feature = "serve")]
 pub mod serve;
 pub mod shard;
@@ -99,6 +100,7 @@ pub mod stats;
 #[cfg(feature = "store")]
 pub mod store;
 pub mod tokenize;
+pub mod topk;
 pub mod varint;
 pub mod wordlist;
 pub mod words;

@@ -30,7 +30,7 @@ use std::path::{Path, PathBuf};
 
 use crate::error::{Error, IoContext, Result};
 
-use super::reader::{u64_at, Model};
+use super::file::Model;
 
 fn log10(x: f64) -> String {
     if x > 0.0 {
@@ -94,7 +94,7 @@ pub fn write_arpa(model: &Model, out: &mut impl Write) -> std::io::Result<()> {
     writeln!(out)?;
     writeln!(out, "\\data\\")?;
     for k in 1..=n {
-        writeln!(out, "ngram {k}={}", model.orders[k - 1].len)?;
+        writeln!(out, "ngram {k}={}", model.kept(k))?;
     }
     for k in 1..=n {
         writeln!(out)?;
@@ -125,22 +125,15 @@ fn for_each_ngram(
     k: usize,
     mut f: impl FnMut(usize, &[&[u8]]) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
-    let offs = &model.map[model.offsets.clone()];
-    let text = &model.map[model.text.clone()];
-    let word = |x: u32| -> &[u8] {
-        let a = (u64_at(offs, x as usize) as usize).min(text.len());
-        let z = (u64_at(offs, x as usize + 1) as usize).clamp(a, text.len());
-        &text[a..z]
-    };
+    let word = |x: u32| model.word_bytes(x);
     // anc[t]: the entry of order t that is the current n-gram's prefix of
     // length t (t < k); all move forward only.
     let mut anc = vec![0usize; k];
     let mut words: Vec<&[u8]> = Vec::with_capacity(k);
-    for e in 0..model.orders[k - 1].len {
+    for e in 0..model.kept(k) {
         let mut child = e;
         for t in (1..k).rev() {
-            while anc[t] < model.orders[t - 1].len && model.children(t, anc[t] as u32).end <= child
-            {
+            while anc[t] < model.kept(t) && model.children(t, anc[t] as u32).end <= child {
                 anc[t] += 1;
             }
             child = anc[t];

@@ -25,6 +25,8 @@ use crate::query::Estimator;
 use crate::store::NgramRecord;
 use crate::words::{bos_id, unk_id, WordId};
 
+use super::bytes::u32_at;
+use super::file::Model;
 use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
 use super::pass::{
@@ -32,9 +34,9 @@ use super::pass::{
 };
 use super::prune;
 use super::quantize::quantize;
-use super::reader::{find_id, u32_at, Model};
 use super::reduce::{suffix_links, write_reduced, Reduction};
 use super::writer::{ArrayFile, ModelWriter};
+use crate::search::find_in;
 
 /// What to freeze.
 #[derive(Clone, Debug, Default)]
@@ -97,35 +99,6 @@ pub struct FreezeReport {
     pub weight_error: f64,
 }
 
-/// A folder for the temporary arrays beside the output, removed when
-/// dropped (also on an error).
-struct TempDir(PathBuf);
-
-impl TempDir {
-    fn create(parent: &Path, out: &Path) -> Result<TempDir> {
-        let name = out
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_default();
-        let p = parent.join(format!(".{name}.freeze-{}", std::process::id()));
-        if p.exists() {
-            std::fs::remove_dir_all(&p).at(&p, "remove a stale temporary folder")?;
-        }
-        std::fs::create_dir(&p).at(&p, "create a temporary folder")?;
-        Ok(TempDir(p))
-    }
-
-    fn path(&self) -> &Path {
-        &self.0
-    }
-}
-
-impl Drop for TempDir {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_dir_all(&self.0);
-    }
-}
-
 /// Freezes the estimator's method over its store into the model file
 /// `out` (written under a temporary name and renamed into place).
 pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<FreezeReport> {
@@ -176,7 +149,17 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let tmp = TempDir::create(&parent_dir, out)?;
+    // The temporary arrays, in a folder of their own beside the output
+    // (same file system, so renaming works), removed when dropped, also
+    // on an error.
+    let name = out
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let tmp = tempfile::Builder::new()
+        .prefix(&format!(".{name}.freeze-"))
+        .tempdir_in(&parent_dir)
+        .at(&parent_dir, "create a temporary folder in")?;
     let tpath = |name: String| tmp.path().join(name);
     let mut notes: Vec<String> = est.notes().to_vec();
     let bos = bos_id();
@@ -192,7 +175,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
         ids.insert(at, unk_id());
     }
     let nw = ids.len();
-    let index = |id: WordId| find_id(|i| ids[i], ids.len(), id);
+    let index = |id: WordId| find_in(|i| ids[i], 0, ids.len(), id, 8).map(|i| i as u32);
     let bos_x = index(bos).ok_or_else(|| Error::corrupt(store.dir(), "the store has no <s>"))?;
     let mut q1 = vec![0.0f64; nw];
     let mut unigram_counts = vec![0u64; nw];

@@ -108,7 +108,10 @@
 //! 64 bits, so it is within about 3e-7 relative of the estimator's.
 
 pub mod arpa;
+mod bytes;
+mod cache;
 pub mod complete;
+mod file;
 pub mod format;
 pub mod freeze;
 pub mod packed;
@@ -116,12 +119,15 @@ mod pass;
 pub(crate) mod prune;
 pub(crate) mod quantize;
 pub mod query;
-pub mod reader;
 pub(crate) mod reduce;
+mod sections;
+mod seek;
 mod spill;
+mod verify;
 pub mod writer;
 
+pub use bytes::Residence;
+pub use file::Model;
 pub use format::ModelMeta;
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
 pub use query::State;
-pub use reader::{Model, Residence};

@@ -28,8 +28,9 @@ use crate::query::Estimator;
 use crate::store::NgramRecord;
 use crate::words::WordId;
 
-use super::reader::{find_id, map_read_only, u32_at};
+use super::bytes::{map_read_only, u32_at};
 use super::writer::ArrayFile;
+use crate::search::find_in;
 
 /// A file's bytes, memory-mapped (or empty).
 pub(super) enum Bytes {
@@ -196,7 +197,7 @@ pub(super) struct Order<'a> {
 
 impl Order<'_> {
     fn index(&self, id: WordId) -> Option<u32> {
-        find_id(|i| self.ids[i], self.ids.len(), id)
+        find_in(|i| self.ids[i], 0, self.ids.len(), id, 8).map(|i| i as u32)
     }
 
     /// The word index of the word of rank `r`.

@@ -33,7 +33,7 @@ use std::path::Path;
 use crate::error::{Error, Result};
 use crate::words::eos_id;
 
-use super::reader::Model;
+use super::file::Model;
 use super::reduce::drop_words;
 use super::spill::Spill;
 
@@ -46,15 +46,15 @@ pub(crate) fn criterion(m: &Model, links: &[Spill<u32>], dir: &Path) -> Result<V
     let eos = m
         .index_of(eos_id())
         .ok_or_else(|| Error::corrupt(m.path(), "the vocabulary has no </s>"))?;
-    let mut marg: Spill<f64> = Spill::zeroed(dir, m.orders[0].len)?;
+    let mut marg: Spill<f64> = Spill::zeroed(dir, m.kept(1))?;
     for (x, slot) in marg.iter_mut().enumerate() {
         let x = x as u32;
-        *slot = m.q(1, if x == m.bos { eos } else { x });
+        *slot = m.q(1, if x == m.bos_index() { eos } else { x });
     }
     let mut d: Vec<Spill<f64>> = vec![Spill::zeroed(dir, 0)?];
     for k in 2..=n {
         let j = k - 1;
-        let len = m.orders[k - 1].len;
+        let len = m.kept(k);
         let mut dk: Spill<f64> = Spill::filled(dir, len, f64::INFINITY)?;
         let mut next_marg: Spill<f64> = Spill::zeroed(dir, if k < n { len } else { 0 })?;
         for (p, &mp) in marg.iter().enumerate() {
@@ -131,7 +131,7 @@ pub(crate) fn select(
     for k in (3..=n).rev() {
         let (lo, hi) = keep.split_at_mut(k - 1);
         let (below, here) = (&mut lo[k - 2], &hi[0]);
-        for p in 0..m.orders[k - 2].len {
+        for p in 0..m.kept(k - 1) {
             for c in m.children(k - 1, p as u32) {
                 if here[c] {
                     below[p] = true;
@@ -140,7 +140,7 @@ pub(crate) fn select(
             }
         }
     }
-    let total = m.orders[0].len as u64
+    let total = m.kept(1) as u64
         + keep[1..]
             .iter()
             .map(|v| v.iter().filter(|&&x| x).count() as u64)
@@ -156,7 +156,7 @@ pub(crate) fn threshold_for(
     d: &[Spill<f64>],
     max: u64,
 ) -> Result<Option<f64>> {
-    let all: u64 = m.orders.iter().map(|o| o.len as u64).sum();
+    let all: u64 = (1..=m.order()).map(|k| m.kept(k) as u64).sum();
     if max >= all {
         return Ok(None);
     }

@@ -17,7 +17,7 @@ use std::path::Path;
 
 use crate::error::Result;
 
-use super::reader::Model;
+use super::file::Model;
 use super::spill::Spill;
 
 /// Up to this many positive values an order's bins are fitted to the
@@ -296,7 +296,7 @@ pub(crate) fn quantize(
     let mut out: Vec<Option<Quantized>> = vec![None];
     let mut moved = 0u64;
     for k in 2..=n {
-        let len = m.orders[k - 1].len;
+        let len = m.kept(k);
         let book = Codebook::fit(
             || {
                 (0..len)
@@ -312,7 +312,7 @@ pub(crate) fn quantize(
             }
         }
         let lowest = book.lowest_positive() as u16;
-        for p in 0..m.orders[k - 2].len {
+        for p in 0..m.kept(k - 1) {
             let kids = m.children(k - 1, p as u32);
             let sum = |codes: &[u16]| -> f64 {
                 kids.clone()

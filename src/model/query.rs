@@ -23,7 +23,9 @@ use crate::key::MAX_ORDER;
 use crate::query::{Next, Prob};
 use crate::words::WordId;
 
-use super::reader::{prefetch, Model, Seek};
+use super::bytes::prefetch;
+use super::file::Model;
+use super::seek::Seek;
 
 /// The kept suffixes of a context: what a prediction needs of it, and what
 /// it leaves for the next one in running text.
@@ -58,11 +60,11 @@ impl<'a> Job<'a> {
     /// The job of predicting `word` (index `index`, if in the model) after
     /// the context of `st`.
     fn new(m: &Model, st: &'a State, word: WordId, index: Option<u32>) -> Job<'a> {
-        let in_v = index.filter(|&x| x != m.bos);
+        let in_v = index.filter(|&x| x != m.bos_index());
         Job {
             st,
             word,
-            x: in_v.unwrap_or(m.unk),
+            x: in_v.unwrap_or(m.unk_index()),
             oov: in_v.is_none(),
             nodes: [0; MAX_ORDER],
             matched: 0,
@@ -76,10 +78,10 @@ impl<'a> Job<'a> {
     fn prefetch_seeks(&self, m: &Model, levels: usize) {
         for j in 1..=levels {
             if let Some((a, z)) = self.seeks[j].next_read() {
-                let words = &m.orders[j].words;
-                prefetch(&m.map, words.byte_of(a));
+                let words = &m.sections(j + 1).words;
+                prefetch(m.bytes(), words.byte_of(a));
                 if let Some(z) = z {
-                    prefetch(&m.map, words.byte_of(z));
+                    prefetch(m.bytes(), words.byte_of(z));
                 }
             }
         }
@@ -94,32 +96,32 @@ const RUNS: usize = 4;
 impl Model {
     /// Highest order N.
     pub fn order(&self) -> usize {
-        self.n
+        self.meta().order
     }
 
     /// |V|.
     pub fn vocabulary_size(&self) -> u64 {
-        self.meta.vocabulary
+        self.meta().vocabulary
     }
 
     /// The method the model was frozen from.
     pub fn method(&self) -> crate::query::Method {
-        self.meta.method
+        self.meta().method
     }
 
     /// Notes made when it was frozen (fallback discounts, Katz's K, …).
     pub fn notes(&self) -> &[String] {
-        &self.meta.notes
+        &self.meta().notes
     }
 
     /// The per-order constants of the method, for reports.
     pub fn constants(&self) -> serde_json::Value {
-        self.meta.constants.clone()
+        self.meta().constants.clone()
     }
 
     /// Whether queries are lowercased (the store was built with `--lowercase`).
     pub fn lowercase(&self) -> bool {
-        self.meta.lowercase
+        self.meta().lowercase
     }
 
     /// The word with id `id`, if the model has it (markers included).
@@ -129,8 +131,8 @@ impl Model {
 
     /// V in id order.
     pub fn vocabulary(&self) -> Vec<WordId> {
-        (0..self.nw as u32)
-            .filter(|&x| x != self.bos)
+        (0..self.words_with_bos() as u32)
+            .filter(|&x| x != self.bos_index())
             .map(|x| self.id_at(x))
             .collect()
     }
@@ -138,13 +140,13 @@ impl Model {
     /// The word index of a context word: its own, `<unk>` outside V.
     #[inline]
     fn ctx_index(&self, id: WordId) -> u32 {
-        self.index_of(id).unwrap_or(self.unk)
+        self.index_of(id).unwrap_or(self.unk_index())
     }
 
     /// The state of a context (raw ids; cut to its last N − 1), found from
     /// scratch.
     pub fn state(&self, context: &[WordId]) -> State {
-        let start = context.len().saturating_sub(self.n - 1);
+        let start = context.len().saturating_sub(self.order() - 1);
         let ctx = &context[start..];
         let mut st = State {
             len: ctx.len(),
@@ -178,7 +180,7 @@ impl Model {
     /// The state for `context` given the state of the previous prediction:
     /// reused when `context` is a suffix of its context, else found anew.
     pub fn state_after(&self, prev: &State, context: &[WordId]) -> State {
-        let start = context.len().saturating_sub(self.n - 1);
+        let start = context.len().saturating_sub(self.order() - 1);
         let ctx = &context[start..];
         if ctx.len() <= prev.len && prev.ctx[prev.len - ctx.len()..prev.len] == *ctx {
             let mut st = *prev;
@@ -207,16 +209,16 @@ impl Model {
     /// little next to a wait.
     #[inline]
     fn extend(&self, jobs: &mut [Job<'_>]) {
-        let b = &self.map[..];
-        let u = self.nw as u64;
-        let levels = |job: &Job<'_>| job.st.m.min(self.n - 1);
+        let b = self.bytes();
+        let u = self.words_with_bos() as u64;
+        let levels = |job: &Job<'_>| job.st.m.min(self.order() - 1);
         // 1. What each context's entry leads to: the children index's
         // sample and low bits, and its back-off weight; and q of the word.
         for job in jobs.iter_mut() {
             job.nodes[0] = job.x;
-            prefetch(b, self.orders[0].probs.byte_of(job.x as usize));
+            prefetch(b, self.sections(1).probs.byte_of(job.x as usize));
             for j in 1..=levels(job) {
-                let (o, e) = (&self.orders[j - 1], job.st.nodes[j - 1] as usize);
+                let (o, e) = (self.sections(j), job.st.nodes[j - 1] as usize);
                 prefetch(b, o.children.sample_byte(e));
                 prefetch(b, o.children.low_byte(e));
                 prefetch(b, o.weights.byte_of(e));
@@ -225,7 +227,7 @@ impl Model {
         // 2. The upper bits, found from the sample.
         for job in jobs.iter() {
             for j in 1..=levels(job) {
-                let (o, e) = (&self.orders[j - 1], job.st.nodes[j - 1] as usize);
+                let (o, e) = (self.sections(j), job.st.nodes[j - 1] as usize);
                 // The scan from the sample may run into the next line.
                 let at = o.children.scan_byte(b, e);
                 prefetch(b, at);
@@ -244,7 +246,7 @@ impl Model {
         for job in jobs.iter_mut() {
             for j in 1..=levels(job) {
                 if let Seek::Probe { .. } = job.seeks[j] {
-                    let words = &self.orders[j].words;
+                    let words = &self.sections(j + 1).words;
                     job.seeks[j] = job.seeks[j].step(|i| words.get(b, i) as u32, job.x, u);
                 }
             }
@@ -255,10 +257,10 @@ impl Model {
         for job in jobs.iter_mut() {
             job.matched = 0;
             for j in 1..=levels(job) {
-                let words = &self.orders[j].words;
+                let words = &self.sections(j + 1).words;
                 match job.seeks[j].finish(|i| words.get(b, i) as u32, job.x, u) {
                     Some(e) => {
-                        prefetch(b, self.orders[j].probs.byte_of(e));
+                        prefetch(b, self.sections(j + 1).probs.byte_of(e));
                         job.nodes[j] = e as u32;
                         job.matched = j;
                     }
@@ -284,41 +286,22 @@ impl Model {
             nodes: job.nodes,
             ..State::default()
         };
-        let q = self.q(matched + 1, next.nodes[matched]);
-        let mut p = if st.len > st.m && self.meta.default_backoff != 1.0 {
-            self.meta.default_backoff.powi((st.len - st.m) as i32)
-        } else {
-            1.0
-        };
-        if self.has_skips() {
-            // Back off level by level from the longest kept context,
-            // dropping as many words as each context says, until a level
-            // where the word is kept.
-            let mut j = st.m;
-            while j > matched {
-                p *= self.beta(j, st.nodes[j - 1]);
-                j = j.saturating_sub(self.skip(j, st.nodes[j - 1]));
-            }
-            p *= if j == 0 {
-                self.q(1, x)
-            } else {
-                self.q(j + 1, next.nodes[j])
-            };
-        } else {
-            p *= q;
-            for j in matched + 1..=st.m {
-                p *= self.beta(j, st.nodes[j - 1]);
-            }
-        }
-        next.m = (matched + 1).min(self.n - 1);
+        // The first walked level at or under the longest match: without
+        // skips that is level `matched` itself.
+        let (j, f) = self
+            .walk(st)
+            .find(|&(j, _)| j <= matched)
+            .expect("a walk ends at level 0");
+        let p = f * self.q(j + 1, next.nodes[j]);
+        next.m = (matched + 1).min(self.order() - 1);
         // The next context: the last N − 1 of the context and the word.
-        let keep = st.len.min(self.n.saturating_sub(2));
+        let keep = st.len.min(self.order().saturating_sub(2));
         next.ctx[..keep].copy_from_slice(&st.ctx[st.len - keep..st.len]);
-        if self.n > 1 {
+        if self.order() > 1 {
             next.ctx[keep] = job.word;
             next.len = keep + 1;
         }
-        let order = if matched == 0 && x == self.unk && !self.meta.unk_seen {
+        let order = if matched == 0 && x == self.unk_index() && !self.meta().unk_seen {
             0
         } else {
             matched + 1
@@ -419,30 +402,25 @@ impl Model {
     /// before reaching it: a word whose longest kept n-gram ends at level j
     /// gets q at the first of these levels that is at most j, times its
     /// factor. Without skips these are all levels M, …, 0.
-    pub(super) fn walk(&self, st: &State) -> Vec<(usize, f64)> {
-        let mut f = if st.len > st.m {
-            self.meta.default_backoff.powi((st.len - st.m) as i32)
+    pub(super) fn walk<'a>(&'a self, st: &'a State) -> Walk<'a> {
+        let f = if st.len > st.m {
+            self.meta().default_backoff.powi((st.len - st.m) as i32)
         } else {
             1.0
         };
-        let mut out = Vec::with_capacity(st.m + 1);
-        let mut j = st.m;
-        loop {
-            out.push((j, f));
-            if j == 0 {
-                break;
-            }
-            f *= self.beta(j, st.nodes[j - 1]);
-            j = j.saturating_sub(self.skip(j, st.nodes[j - 1]));
+        Walk {
+            model: self,
+            st,
+            next: Some(st.m),
+            f,
         }
-        out
     }
 
     /// The whole distribution P(· | context) over V, in id order.
     pub fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
         let st = self.state(context);
-        let walk = self.walk(&st);
-        let mut p: Vec<f64> = vec![0.0; self.nw];
+        let walk: Vec<(usize, f64)> = self.walk(&st).collect();
+        let mut p: Vec<f64> = vec![0.0; self.words_with_bos()];
         // Shortest level first: a word takes its value from the longest
         // walked level it is kept at.
         for &(j, f) in walk.iter().rev() {
@@ -459,8 +437,8 @@ impl Model {
                 }
             }
         }
-        Ok((0..self.nw as u32)
-            .filter(|&x| x != self.bos)
+        Ok((0..self.words_with_bos() as u32)
+            .filter(|&x| x != self.bos_index())
             .map(|x| (self.id_at(x), p[x as usize]))
             .collect())
     }
@@ -513,6 +491,34 @@ impl crate::query::Predictor for Model {
     }
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         Model::complete(self, context, prefix, k)
+    }
+}
+
+/// The levels a prediction backs off through ([`Model::walk`]).
+pub(super) struct Walk<'a> {
+    model: &'a Model,
+    st: &'a State,
+    /// The level to yield next (`None`: done).
+    next: Option<usize>,
+    /// The product of the weights passed before it.
+    f: f64,
+}
+
+impl Iterator for Walk<'_> {
+    type Item = (usize, f64);
+
+    #[inline]
+    fn next(&mut self) -> Option<(usize, f64)> {
+        let j = self.next?;
+        let here = (j, self.f);
+        self.next = if j == 0 {
+            None
+        } else {
+            let e = self.st.nodes[j - 1];
+            self.f *= self.model.beta(j, e);
+            Some(j.saturating_sub(self.model.skip(j, e)))
+        };
+        Some(here)
     }
 }
 

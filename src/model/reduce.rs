@@ -24,10 +24,10 @@ use std::path::Path;
 use crate::error::{Error, Result};
 use crate::query::katz::EPS;
 
+use super::file::Model;
 use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
 use super::quantize::{Codebook, Quantized};
-use super::reader::Model;
 use super::spill::Spill;
 use super::writer::ModelWriter;
 
@@ -39,7 +39,7 @@ pub(crate) fn suffix_links(m: &Model, dir: &Path) -> Result<Vec<Spill<u32>>> {
     let n = m.order();
     let mut links: Vec<Spill<u32>> = vec![Spill::zeroed(dir, 0)?];
     for k in 2..=n {
-        let len = m.orders[k - 1].len;
+        let len = m.kept(k);
         let mut l: Spill<u32> = Spill::zeroed(dir, len)?;
         if k == 2 {
             for (e, slot) in l.iter_mut().enumerate() {
@@ -177,8 +177,7 @@ pub(crate) fn write_reduced(
     dir: &Path,
 ) -> Result<Reduced> {
     let n = m.order();
-    let b = &m.map[..];
-    let probabilities = m.meta.probabilities;
+    let probabilities = m.meta().probabilities;
     let any_values = r.values.iter().any(|v| v.is_some());
     let weight_bits = r.meta.weight_bits;
     let mut unnormalised = 0u64;
@@ -191,9 +190,9 @@ pub(crate) fn write_reduced(
     // directory at the end says where they are), and the metadata, which
     // needs the kept counts, last: nothing of an order outlives it.
     let mut w = ModelWriter::create(out)?;
-    let width = width_for(m.nw as u64 - 1);
+    let width = width_for(m.words_with_bos() as u64 - 1);
     for k in 1..=n {
-        let len = m.orders[k - 1].len;
+        let len = m.kept(k);
         let r_ = &*r;
         let kept = move || (0..len).filter(move |&e| r_.kept(k, e));
         ngrams.push(kept().count() as u64);
@@ -227,7 +226,7 @@ pub(crate) fn write_reduced(
         let mut dens: Spill<f64> = Spill::zeroed(dir, cap)?;
         let mut children: Spill<u32> = Spill::zeroed(dir, len + 1)?;
         let mut skips = Vec::new();
-        let has_skips = !m.orders[k - 1].skips.is_empty();
+        let has_skips = m.has_skips_at(k);
         let mut nk = 0usize;
         // Kept entries of order k + 1 before the current position.
         let mut below = 0u32;
@@ -293,7 +292,7 @@ pub(crate) fn write_reduced(
             }
             nk += 1;
         }
-        while pos < m.orders[k].len {
+        while pos < m.kept(k + 1) {
             below += u32::from(r.kept(k + 1, pos));
             pos += 1;
         }
@@ -339,10 +338,11 @@ pub(crate) fn write_reduced(
         0,
         &serde_json::to_vec_pretty(&r.meta).expect("metadata serialises"),
     )?;
-    w.section(SectionKind::Ids, 0, &b[m.ids.clone()])?;
-    w.section(SectionKind::WordOffsets, 0, &b[m.offsets.clone()])?;
-    w.section(SectionKind::WordText, 0, &b[m.text.clone()])?;
-    w.section(SectionKind::Ranking, 0, &b[m.ranking.clone()])?;
+    let [ids, offsets, text, ranking] = m.vocabulary_sections();
+    w.section(SectionKind::Ids, 0, ids)?;
+    w.section(SectionKind::WordOffsets, 0, offsets)?;
+    w.section(SectionKind::WordText, 0, text)?;
+    w.section(SectionKind::Ranking, 0, ranking)?;
     let file_bytes = w.finish()?;
     Ok(Reduced {
         ngrams,

@@ -1,63 +1,82 @@
 //! Completion over a store: the exact top K next words that begin with a
-//! prefix, by the same search as [`Estimator::next`] with the candidates
-//! of each group limited to the prefix.
+//! prefix, and the search that [`Estimator::next`] shares.
 //!
-//! The groups (see [`super::next`]): the children of the suffixes of two
-//! words or more, scored all (those that begin with the prefix); the
-//! children of the last word alone that no longer suffix has, whose order
-//! by P(w | last word) is their order by P(w | context), so the first K of
-//! that ranking that begin with the prefix (or, when the prefix's words
-//! are far fewer than the children, each of those words looked up among
-//! them); and the words that are children of no suffix, whose order is
-//! the unigram ranking's, so the first K of it that begin with the prefix.
-//! V in text order makes a prefix's words one range; a tree of minima of
-//! the unigram ranks over that order gives the range's words best first
-//! (a heap over the tree's nodes that cover the range). `katz` scores the
-//! last word's children all, as in `next`.
+//! The groups (see [`crate::topk`] and [`super::next`]): the children of
+//! the suffixes of two words or more, scored all (those that begin with
+//! the prefix); the children of the last word alone that no longer suffix
+//! has, ranked by P(w | last word) (or, when the prefix's words are far
+//! fewer than the children, each of those words looked up among them and
+//! scored all); and the words that are children of no suffix, ranked by
+//! the unigram ranking, which for a prefix is walked best first through a
+//! [`PrefixIndex`] over V in byte order. `katz` scores the last word's
+//! children all: it may back off past the last word's level, so there
+//! the order of P(w | last word) does not carry over.
 //!
-//! The index (V in text order with its texts, the place of each word, the
-//! tree) is built on the first completion with a non-empty prefix and kept
-//! by the estimator.
+//! The text index (V's texts, their byte order, each word's rank) is built
+//! on the first query that needs it (every top K with K > 0: ties are
+//! broken by the words' bytes) and kept by the estimator.
 
-use std::cmp::Reverse;
-use std::collections::BinaryHeap;
+use std::cmp::Ordering;
+use std::ops::Range;
 
 use crate::error::Result;
+use crate::topk::{PrefixIndex, TopK};
 use crate::words::{eos_id, IdMap, WordId};
 
-use super::next::best;
+use super::cache::ChildEntry;
 use super::{Estimator, Method, Next};
 
-/// V without the markers in text order, with a tree of the unigram ranks.
+/// V's texts in the order of the unigram ranking, with a prefix index
+/// over them.
 pub(crate) struct TextIndex {
-    texts: Vec<String>,
-    ids: Vec<WordId>,
-    pos: IdMap<u32>,
-    /// `tree[n + i]`: the place of `ids[i]` in the unigram ranking;
-    /// `tree[i]`, 1 ≤ i < n: the least of its two children.
-    tree: Vec<u32>,
+    /// By rank.
+    texts: Vec<Box<str>>,
+    /// The rank of each word of V.
+    rank: IdMap<u32>,
+    index: PrefixIndex,
 }
 
-/// The words a completion may show: all but the markers `<s>` and `<unk>`
-/// (empty prefix), or places `lo..hi` of the text index.
-#[derive(Clone, Copy)]
-enum Filter<'a> {
+impl TextIndex {
+    /// The order of two words' bytes (words outside V last).
+    fn bytes_order(&self, a: WordId, b: WordId) -> Ordering {
+        let text = |w: WordId| {
+            self.rank
+                .get(&w)
+                .map(|&r| self.texts[r as usize].as_bytes())
+        };
+        match (text(a), text(b)) {
+            (Some(x), Some(y)) => x.cmp(y),
+            (x, y) => y.is_none().cmp(&x.is_none()).then(a.cmp(&b)),
+        }
+    }
+
+    /// Where `w` is in byte order.
+    fn place(&self, w: WordId) -> Option<usize> {
+        let &r = self.rank.get(&w)?;
+        self.index.place(r).map(|p| p as usize)
+    }
+}
+
+/// The words a top K may show.
+#[derive(Clone)]
+pub(crate) enum Filter {
+    /// Every word of V.
+    All,
+    /// All but the markers `<s>` and `<unk>` (a completion, empty prefix).
     NoMarkers,
-    Range {
-        ix: &'a TextIndex,
-        lo: usize,
-        hi: usize,
-    },
+    /// The words at these places of the text index, markers excepted.
+    Range(Range<usize>),
 }
 
 impl Estimator<'_> {
     /// The `k` most probable words after `context` (raw ids; cut to N − 1,
     /// OOV words as `<unk>`) that begin with `prefix` (lowercased first if
-    /// the store was built with `--lowercase`), exact. Never `<s>` or
-    /// `<unk>`; `</s>` only for an empty prefix. See the module doc.
+    /// the store was built with `--lowercase`), exact; ties by the words'
+    /// bytes. Never `<s>` or `<unk>`; `</s>` only for an empty prefix. See
+    /// the module doc.
     pub fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         if prefix.is_empty() {
-            return self.complete_in(context, Filter::NoMarkers, k);
+            return self.top_words(context, Filter::NoMarkers, k);
         }
         let prefix = if self.store.meta().settings.lowercase {
             prefix.to_lowercase()
@@ -65,9 +84,10 @@ impl Estimator<'_> {
             prefix.to_string()
         };
         let ix = self.text_index()?;
-        let lo = ix.texts.partition_point(|t| t.as_str() < prefix.as_str());
-        let hi = lo + ix.texts[lo..].partition_point(|t| t.starts_with(prefix.as_str()));
-        self.complete_in(context, Filter::Range { ix, lo, hi }, k)
+        let range = ix
+            .index
+            .range(prefix.as_bytes(), |r| ix.texts[r as usize].as_bytes());
+        self.top_words(context, Filter::Range(range), k)
     }
 
     fn text_index(&self) -> Result<&TextIndex> {
@@ -75,158 +95,135 @@ impl Estimator<'_> {
             return Ok(ix);
         }
         let ranking = self.unigram_ranking()?;
+        let mut voc = self.store.vocabulary()?;
         let mut rank: IdMap<u32> = IdMap::default();
+        let mut texts = Vec::with_capacity(ranking.len());
         for (r, &w) in ranking.iter().enumerate() {
             rank.insert(w, r as u32);
+            texts.push(voc.remove(&w).unwrap_or_default().into_boxed_str());
         }
-        let voc = self.store.vocabulary()?;
-        let eos = eos_id();
-        let mut words: Vec<(String, WordId)> = Vec::with_capacity(ranking.len());
-        for &w in self.vocabulary()? {
-            if w == self.unk || w == eos || w == self.bos {
-                continue;
-            }
-            if let Some(t) = voc.get(&w) {
-                words.push((t.clone(), w));
-            }
-        }
-        words.sort_unstable();
-        let n = words.len();
-        let mut pos = IdMap::default();
-        let mut tree = vec![u32::MAX; 2 * n];
-        for (i, (_, w)) in words.iter().enumerate() {
-            pos.insert(*w, i as u32);
-            tree[n + i] = rank.get(w).copied().unwrap_or(u32::MAX);
-        }
-        for i in (1..n).rev() {
-            tree[i] = tree[2 * i].min(tree[2 * i + 1]);
-        }
-        let (texts, ids) = words.into_iter().unzip();
-        let _ = self.text_index.set(TextIndex {
-            texts,
-            ids,
-            pos,
-            tree,
-        });
+        let index = PrefixIndex::new(texts.len(), |r| Some(texts[r as usize].as_bytes()));
+        let _ = self.text_index.set(TextIndex { texts, rank, index });
         Ok(self.text_index.get().expect("just set"))
     }
 
-    fn complete_in(&self, context: &[WordId], filter: Filter<'_>, k: usize) -> Result<Next> {
-        let (bos, unk) = (self.bos, self.unk);
-        let ok = |w: WordId| match filter {
-            Filter::NoMarkers => w != bos && w != unk,
-            Filter::Range { ix, lo, hi } => ix
-                .pos
-                .get(&w)
-                .is_some_and(|&p| (p as usize) >= lo && (p as usize) < hi),
-        };
+    /// The search of [`Estimator::next`] and [`Estimator::complete`].
+    pub(crate) fn top_words(&self, context: &[WordId], filter: Filter, k: usize) -> Result<Next> {
+        let (bos, unk, eos) = (self.bos, self.unk, eos_id());
         let cl = self.raw_context_levels(context)?;
+        if k == 0 {
+            return Ok(Next::from_best(cl.ctx, Vec::new(), 0));
+        }
+        let ix = self.text_index()?;
+        let ok = |w: WordId| match &filter {
+            Filter::All => true,
+            Filter::NoMarkers => w != bos && w != unk,
+            Filter::Range(places) => {
+                w != bos && w != unk && w != eos && ix.place(w).is_some_and(|p| places.contains(&p))
+            }
+        };
         let l = cl.ctx.len();
         let mut buf = Vec::new();
-        let mut scored: Vec<(f64, WordId)> = Vec::new();
-        let keep = |v: &mut Vec<(f64, WordId)>| {
-            if v.len() > k && k > 0 {
-                v.select_nth_unstable_by(k - 1, best);
-            }
-            v.truncate(k);
-        };
-        let lowest = if self.method == Method::Katz { 1 } else { 2 };
-        if k > 0 {
-            for j in (lowest..=l).rev() {
-                let Some(m) = &cl.maps[j] else { continue };
-                for &(w, at, uni) in &m.list {
-                    if !ok(w) || (j < l && cl.child_from(j + 1, w)) {
-                        continue;
-                    }
-                    scored.push((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w));
+        let mut top = TopK::new(k);
+        if let Some(j) = self.tied_beyond(&cl) {
+            // Every word but the children of level j has one probability:
+            // those children, then the first K others in byte order.
+            let kids = cl.maps.get(j).cloned().flatten();
+            let kid = |w: WordId| kids.as_ref().is_some_and(|m| m.contains(w));
+            let score = |&(w, at, uni): &ChildEntry| {
+                Ok((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w))
+            };
+            match &kids {
+                // The last word's children, ranked by P(w | last word),
+                // which is P(w | context) here.
+                Some(_) if j == 1 => {
+                    let m = self.ranked_children(cl.ctx[l - 1])?.expect("has children");
+                    let ranked = m.ranked.get().expect("ranked by ranked_children");
+                    top.take_ranked(ranked.iter().filter(|e| ok(e.0)).map(score))?;
                 }
+                Some(m) => top.take_all(m.list.iter().filter(|e| ok(e.0)).map(score))?,
+                None => {}
             }
+            let places = match &filter {
+                Filter::Range(places) => places.clone(),
+                _ => 0..ix.index.len(),
+            };
+            let words = ix.index.by_bytes()[places]
+                .iter()
+                .map(|&r| self.ranking_at(r));
+            let rest = words.filter(|&w| ok(w) && !kid(w));
+            top.take_tied(rest.map(|w| Ok((self.eval_mapped(&cl, w, &mut buf)?.0, w))))?;
+            let (best, scored) = top.finish(|a, b| ix.bytes_order(a, b));
+            return Ok(Next::from_best(cl.ctx, best, scored));
         }
-        let mut n_scored = scored.len();
-        if k > 0 && lowest == 2 && l >= 1 && cl.maps[1].is_some() {
+        let lowest = if self.method == Method::Katz { 1 } else { 2 };
+        for j in (lowest..=l).rev() {
+            let Some(m) = &cl.maps[j] else { continue };
+            top.take_all(
+                m.list
+                    .iter()
+                    .filter(|e| ok(e.0) && !(j < l && cl.child_from(j + 1, e.0)))
+                    .map(|&(w, at, uni)| {
+                        Ok((self.eval_child(&cl, w, j, Some(at), uni, &mut buf)?.0, w))
+                    }),
+            )?;
+        }
+        if lowest == 2 && l >= 1 && cl.maps[1].is_some() {
             if let Some(m) = self.ranked_children(cl.ctx[l - 1])? {
-                let mut level = Vec::new();
-                match filter {
-                    Filter::Range { ix, lo, hi } if (hi - lo) * 8 < m.list.len() => {
-                        for &w in &ix.ids[lo..hi] {
-                            let Ok(i) = m.list.binary_search_by_key(&w, |e| e.0) else {
-                                continue;
-                            };
-                            if cl.child_from(2, w) {
-                                continue;
-                            }
-                            let (_, at, uni) = m.list[i];
-                            level.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w));
-                        }
-                        n_scored += level.len();
-                        keep(&mut level);
+                let group = |e: &&ChildEntry| ok(e.0) && !cl.child_from(2, e.0);
+                let score = |&(w, at, uni): &ChildEntry| {
+                    Ok((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w))
+                };
+                match &filter {
+                    Filter::Range(places) if places.len() * 8 < m.list.len() => {
+                        let found = ix.index.by_bytes()[places.clone()].iter().filter_map(|&r| {
+                            let i = m.list.binary_search_by_key(&self.ranking_at(r), |e| e.0);
+                            i.ok().map(|i| &m.list[i])
+                        });
+                        top.take_all(found.filter(group).map(score))?;
                     }
                     _ => {
-                        for &(w, at, uni) in m.ranked.get().expect("ranked by ranked_children") {
-                            if level.len() == k {
-                                break;
-                            }
-                            if !ok(w) || cl.child_from(2, w) {
-                                continue;
-                            }
-                            level.push((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w));
-                        }
-                        n_scored += level.len();
-                    }
-                }
-                scored.extend(level);
-            }
-        }
-        if k > 0 {
-            let ranking = self.unigram_ranking()?;
-            let mut taken = 0;
-            let mut take = |w: WordId| -> Result<bool> {
-                if cl.child_from(1, w) {
-                    return Ok(false);
-                }
-                scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
-                taken += 1;
-                Ok(taken == k)
-            };
-            match filter {
-                Filter::NoMarkers => {
-                    for &w in ranking {
-                        if ok(w) && take(w)? {
-                            break;
-                        }
-                    }
-                }
-                Filter::Range { ix, lo, hi } => {
-                    let n = ix.ids.len();
-                    let mut heap: BinaryHeap<Reverse<(u32, usize)>> = BinaryHeap::new();
-                    let (mut a, mut z) = (lo + n, hi + n);
-                    while a < z {
-                        if a & 1 == 1 {
-                            heap.push(Reverse((ix.tree[a], a)));
-                            a += 1;
-                        }
-                        if z & 1 == 1 {
-                            z -= 1;
-                            heap.push(Reverse((ix.tree[z], z)));
-                        }
-                        a >>= 1;
-                        z >>= 1;
-                    }
-                    while let Some(Reverse((r, node))) = heap.pop() {
-                        if node < n {
-                            heap.push(Reverse((ix.tree[2 * node], 2 * node)));
-                            heap.push(Reverse((ix.tree[2 * node + 1], 2 * node + 1)));
-                        } else if let Some(&w) = ranking.get(r as usize) {
-                            if take(w)? {
-                                break;
-                            }
-                        }
+                        let ranked = m.ranked.get().expect("ranked by ranked_children");
+                        top.take_ranked(ranked.iter().filter(group).map(score))?;
                     }
                 }
             }
-            n_scored += taken;
         }
-        keep(&mut scored);
-        Ok(Next::from_scored(cl.ctx, scored, n_scored))
+        let ranking = self.unigram_ranking()?;
+        let group = |w: &WordId| ok(*w) && !cl.child_from(1, *w);
+        let score = |w: WordId| Ok((self.eval_mapped(&cl, w, &mut buf)?.0, w));
+        match &filter {
+            Filter::Range(places) => {
+                let words = ix
+                    .index
+                    .best_first(places.clone())
+                    .map(|r| ranking[r as usize]);
+                top.take_ranked(words.filter(group).map(score))?;
+            }
+            _ => top.take_ranked(ranking.iter().copied().filter(group).map(score))?,
+        }
+        let (best, scored) = top.finish(|a, b| ix.bytes_order(a, b));
+        Ok(Next::from_best(cl.ctx, best, scored))
+    }
+
+    /// The level j whose non-children all have one probability, if there
+    /// is one: `add-k` after a context of one word or more (j = its
+    /// length: every word unseen after it gets k / (C(h) + k|V|), or 1/|V|
+    /// after an unseen context), and `mle` after a context with a seen
+    /// suffix (j = the longest: every word unseen after it gets 0).
+    fn tied_beyond(&self, cl: &super::probability::ContextLevels) -> Option<usize> {
+        let l = cl.ctx.len();
+        match self.method {
+            Method::AddK if l >= 1 => Some(l),
+            Method::Mle => (1..=l)
+                .rev()
+                .find(|&j| cl.infos[j].stats.is_some_and(|s| s.count_sum > 0)),
+            _ => None,
+        }
+    }
+
+    /// The word of rank `r` in the unigram ranking (built by then).
+    fn ranking_at(&self, r: u32) -> WordId {
+        self.ranking.get().expect("ranked before the text index")[r as usize]
     }
 }

@@ -39,8 +39,9 @@ pub trait Predictor {
     /// exact. `<s>` and `<unk>` are never suggested; `</s>` only when the
     /// prefix is empty. `rest` is 1 − the sum shown, over all of V.
     ///
-    /// This default scores all of V ([`Predictor::distribution`]): exact
-    /// but slow; implementations override it with a faster exact search.
+    /// Ties are broken by the words' bytes, as everywhere. This default
+    /// scores all of V ([`Predictor::distribution`]): exact but slow;
+    /// implementations override it with a faster exact search.
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         let prefix = if self.lowercase() {
             prefix.to_lowercase()
@@ -54,29 +55,23 @@ pub trait Predictor {
         );
         let dist = self.distribution(context)?;
         let scored = dist.len();
-        let mut items = Vec::new();
+        let mut texts: Vec<(WordId, String)> = Vec::new();
+        let mut top = crate::topk::TopK::new(k);
         for (w, p) in dist {
             if w == bos || w == unk || (w == eos && !prefix.is_empty()) {
                 continue;
             }
-            if !prefix.is_empty() {
-                match self.word(w)? {
-                    Some(text) if text.starts_with(prefix.as_str()) => {}
-                    _ => continue,
-                }
+            let Some(text) = self.word(w)? else { continue };
+            if text.starts_with(prefix.as_str()) {
+                top.take_all([Ok::<_, std::convert::Infallible>((p, texts.len()))])
+                    .unwrap_or_else(|e| match e {});
+                texts.push((w, text));
             }
-            items.push((w, p));
         }
-        items.sort_unstable_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-        items.truncate(k);
-        let shown: f64 = items.iter().map(|x| x.1).sum();
+        let (best, _) = top.finish(|a, b| texts[a].1.as_bytes().cmp(texts[b].1.as_bytes()));
+        let best = best.into_iter().map(|(p, i)| (p, texts[i].0)).collect();
         let ctx = self.next(context, 0)?.context;
-        Ok(Next {
-            context: ctx,
-            items,
-            rest: 1.0 - shown,
-            scored,
-        })
+        Ok(Next::from_best(ctx, best, scored))
     }
 }
 

@@ -18,6 +18,7 @@
 
 use crate::error::Result;
 use crate::key::{Key, MAX_ORDER};
+use crate::search::IdDirectory;
 use crate::shard::DictReader;
 use crate::words::{bos_id, eos_id, unk_id, WordId};
 
@@ -26,11 +27,9 @@ use crate::words::{bos_id, eos_id, unk_id, WordId};
 pub struct Ranks {
     ids: Vec<WordId>,
     width: usize,
-    /// `starts[b]`: the first index whose id's top bits are `b` or more
-    /// (`2^bits + 1` entries, the last is the number of ids).
-    starts: Vec<u32>,
-    /// Bits of an id that choose its bucket (at least 1).
-    bits: u32,
+    /// About four ids a bucket, so the directory adds at most one byte
+    /// per id.
+    dir: IdDirectory,
 }
 
 impl Ranks {
@@ -39,22 +38,8 @@ impl Ranks {
         debug_assert!(ids.windows(2).all(|w| w[0] < w[1]));
         let max = ids.len().saturating_sub(1) as u64;
         let width = (((64 - max.leading_zeros()) as usize).div_ceil(8)).max(1);
-        // About four ids a bucket: 2^bits is at least a quarter of the ids,
-        // so the table adds at most one byte per id.
-        let bits = (usize::BITS - (ids.len() / 4).leading_zeros()).max(1);
-        let mut starts = vec![0u32; (1usize << bits) + 1];
-        for &id in &ids {
-            starts[(id >> (64 - bits)) as usize + 1] += 1;
-        }
-        for b in 1..starts.len() {
-            starts[b] += starts[b - 1];
-        }
-        Ranks {
-            ids,
-            width,
-            starts,
-            bits,
-        }
+        let dir = IdDirectory::new(ids.len(), |i| ids[i], 4, 32);
+        Ranks { ids, width, dir }
     }
 
     /// The ranks of every word in the dictionary files `paths` and of the
@@ -96,36 +81,20 @@ impl Ranks {
 
     /// Bytes held.
     pub fn heap_bytes(&self) -> usize {
-        self.ids.capacity() * 8 + self.starts.capacity() * 4
-    }
-
-    /// The bucket of `id` (its top `bits` bits), or `None` if there are no
-    /// words at all.
-    #[inline]
-    fn bucket(&self, id: WordId) -> Option<usize> {
-        (!self.ids.is_empty()).then(|| (id >> (64 - self.bits)) as usize)
+        self.ids.capacity() * 8 + self.dir.heap_bytes()
     }
 
     /// The rank of `id`, if it is one of the store's words.
     #[inline]
     pub fn rank(&self, id: WordId) -> Option<u32> {
-        let b = self.bucket(id)?;
-        let (lo, hi) = (self.starts[b] as usize, self.starts[b + 1] as usize);
-        for (i, &x) in self.ids[lo..hi].iter().enumerate() {
-            if x >= id {
-                return (x == id).then_some((lo + i) as u32);
-            }
-        }
-        None
+        self.dir.find(|i| self.ids[i], id)
     }
 
-    /// First step of a rank lookup issued ahead of time: asks for the
-    /// cache line of `id`'s bucket start. Changes no result.
+    /// First step of a rank lookup issued ahead of time: asks for the cache
+    /// line of `id`'s bucket start. Changes no result.
     #[inline]
     pub fn prefetch_bucket(&self, id: WordId) {
-        if let Some(s) = self.bucket(id).and_then(|b| self.starts.get(b)) {
-            crate::hint::prefetch(s);
-        }
+        self.dir.prefetch_bucket(id);
     }
 
     /// Second step, some records after [`Ranks::prefetch_bucket`]: reads
@@ -133,10 +102,8 @@ impl Ranks {
     /// of its first id. Changes no result.
     #[inline]
     pub fn prefetch_ids(&self, id: WordId) {
-        if let Some(&s) = self.bucket(id).and_then(|b| self.starts.get(b)) {
-            if let Some(x) = self.ids.get(s as usize) {
-                crate::hint::prefetch(x);
-            }
+        if let Some(x) = self.dir.first_index(id).and_then(|i| self.ids.get(i)) {
+            crate::hint::prefetch(x);
         }
     }
 

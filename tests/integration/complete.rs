@@ -57,7 +57,8 @@ const PREFIXES: &[&str] = &[
 ];
 
 /// The brute-force top K: every word of V scored, filtered by the
-/// definition, sorted by probability (ties by id).
+/// definition, sorted by probability (ties by the words' bytes, README
+/// "quern next").
 fn brute(
     dist: &[(WordId, f64)],
     text: &HashMap<WordId, String>,
@@ -74,7 +75,10 @@ fn brute(
                 && text[&w].starts_with(prefix)
         })
         .collect();
-    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    v.sort_by(|a, b| {
+        b.1.total_cmp(&a.1)
+            .then_with(|| text[&a.0].as_bytes().cmp(text[&b.0].as_bytes()))
+    });
     v.truncate(k);
     v
 }
@@ -93,12 +97,9 @@ fn compare(
         got.items.len(),
         want.len()
     );
-    for (i, ((w, p), (_, q))) in got.items.iter().zip(want).enumerate() {
-        // Same probability at every rank (ties may differ in word) ...
-        assert!(
-            (p - q).abs() <= 1e-15 + 1e-12 * p,
-            "{what}: rank {i}: {p} against brute force {q}"
-        );
+    for (i, ((w, p), (v, q))) in got.items.iter().zip(want).enumerate() {
+        // The same word with the same probability at every rank ...
+        assert_eq!((w, p), (v, q), "{what}: rank {i}");
         // ... and the word shown has the probability shown, and is one of
         // the words allowed.
         // (`distribution` is in id order.)
