@@ -249,17 +249,17 @@ impl<'a> Worker<'a> {
         Ok(())
     }
 
-    /// Writes the table as a run file and clears it.
+    /// Writes the table as a run file and empties it.
     fn write_run(&mut self) -> Result<(String, u64)> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
         let run = format!("count-{id:06}.run");
         let parts = self.cfg.partitions;
         let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
-        each_with_prefixes(self.table.sorted_records(), |key, vals| {
+        // Dropping the sorted view empties the table.
+        each_with_prefixes(self.table.sorted().records(), |key, vals| {
             w.push(partition_of(key.ids()[0], parts), &key, vals)
         })?;
         let summary = w.finish()?;
-        self.table.clear();
         Ok((run, summary.bytes))
     }
 
