@@ -5,6 +5,8 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     assert_lines_eq, assert_views_eq, dump_sorted, ingest_args, ingest_ok, manifest, run, run_env,
     run_ok, run_with_stdin, stats_json, store_view,
@@ -408,7 +410,7 @@ fn one_huge_sentence_overflowing_the_table() {
     // must then give the reference's counts too.
     let stopped = run_env(
         &ingest_args(&store, &args, std::slice::from_ref(&input)),
-        &[("QUERN_KILL_AT", "committed:1")],
+        &[(KILL_VAR, Point::Committed.at(1).as_str())],
     );
     assert_eq!(stopped.signal(), Some(9), "{}", stopped.describe());
     let runs = manifest(&store)["runsets"][0]["runs"]
