@@ -3,6 +3,7 @@
 mod args;
 mod cmd;
 mod progress;
+mod stage_args;
 mod values;
 
 use clap::Parser;

@@ -328,6 +328,19 @@ impl Table {
 /// t.add(&[3], &[1]);
 /// assert_eq!(sorted.records().len(), 1);
 /// ```
+///
+/// Once the view is dropped, the table is empty and takes keys again:
+///
+/// ```
+/// let mut t = quern::count::Table::with_budget(2, 1, 1 << 16);
+/// t.add(&[1, 2], &[1]);
+/// let sorted = t.sorted();
+/// assert_eq!(sorted.records().len(), 1);
+/// drop(sorted);
+/// assert!(t.is_empty());
+/// t.add(&[3], &[1]);
+/// assert_eq!(t.len(), 1);
+/// ```
 pub struct SortedTable<'a> {
     table: &'a mut Table,
 }

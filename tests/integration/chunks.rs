@@ -234,7 +234,7 @@ fn awkward_lines_one_chunk_per_line_equal_the_reference() {
 }
 
 /// The same two novels through `quern stage` (plan, map with 3 threads,
-/// reduce, join, assemble), planned with chunks of 4,099 bytes packed into
+/// merge, join, assemble), planned with chunks of 4,099 bytes packed into
 /// 3 map tasks: each task reads about 70 scattered chunks. The reference's
 /// counts exactly.
 #[test]
@@ -293,7 +293,7 @@ fn stage_tasks_over_small_chunks_equal_the_reference() {
             "32MiB",
         ]);
     }
-    for st in ["reduce", "join"] {
+    for st in ["merge", "join"] {
         for q in 0..4 {
             let q = q.to_string();
             stage(&[st, "--dir", &d, "--partition", &q, "--memory", "32MiB"]);

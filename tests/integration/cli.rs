@@ -518,3 +518,62 @@ fn demo_corpus_default_method_and_headers() {
         "{page}"
     );
 }
+
+/// Flag values are parsed before a command runs: a bad method, discount
+/// policy or size is refused with the library's message (the one the
+/// Python module gives), even where the store does not exist, which the
+/// command would otherwise report first.
+#[test]
+fn flag_values_are_refused_before_the_command_runs() {
+    let tmp = tempfile::tempdir().unwrap();
+    let missing = tmp.path().join("no-store");
+    let m = missing.to_str().unwrap();
+    for (args, says) in [
+        (
+            vec!["prob", "--store", m, "--method", "nope", "a", "b"],
+            "unknown method \"nope\"",
+        ),
+        (
+            vec!["ngrams", "--store", m, "--method", "nope", "a"],
+            "unknown method \"nope\"",
+        ),
+        (
+            vec!["prob", "--store", m, "--discounts", "sometimes", "a", "b"],
+            "--discounts \"sometimes\"",
+        ),
+        (
+            vec!["ingest", "--store", m, "--memory", "lots", m],
+            "\"lots\" is not a size",
+        ),
+        (
+            vec!["serve", "--store", m, "--max-request-bytes", "1XB"],
+            "unknown unit",
+        ),
+        (
+            vec![
+                "stage",
+                "merge",
+                "--dir",
+                m,
+                "--partition",
+                "0",
+                "--memory",
+                "lots",
+            ],
+            "\"lots\" is not a size",
+        ),
+    ] {
+        let r = run(&args);
+        r.assert_failure();
+        let errors: Vec<&str> = r
+            .stderr
+            .lines()
+            .filter(|l| l.starts_with("quern: error: "))
+            .collect();
+        assert!(
+            errors.len() == 1 && errors[0].contains(says) && !errors[0].contains("no-store"),
+            "{args:?}: want one error saying {says:?}\n{}",
+            r.describe()
+        );
+    }
+}
