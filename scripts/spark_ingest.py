@@ -10,7 +10,7 @@ on a cluster). The job:
                of partitions and packs the inputs into map tasks of about
                equal bytes (DIR/job.json);
   2. map       one task per map task of the plan, largest first;
-  3. reduce    one task per partition (merge across all map outputs);
+  3. merge     one task per partition (merges its section of every map output);
   4. join      one task per partition (the second shuffle: continuation
                counts, context statistics, store files);
   5. assemble  one task: builds the store from every partition.
@@ -44,7 +44,7 @@ import sys
 import tempfile
 import time
 
-STAGES = ("plan", "map", "reduce", "join", "assemble")
+STAGES = ("plan", "map", "merge", "join", "assemble")
 FAILED = "quern task failed: "
 
 
@@ -63,7 +63,7 @@ def parse_args(argv):
                         "(default: every token counts)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
-                   help="partitions: one reduce and one join task each (default 64)")
+                   help="partitions: one merge and one join task each (default 64)")
     p.add_argument("--map-tasks", type=int, default=0,
                    help="map tasks (default: 4 per core of the cluster, as Spark's default parallelism)")
     p.add_argument("--task-memory", default="1GiB",
@@ -243,7 +243,7 @@ def main(argv):
     run_stage("map", by_size, lambda t: ["--dir", shared, "--task", t, "--memory", mem,
                                          "--threads", a.map_threads])
     parts = range(plan["partitions"])
-    run_stage("reduce", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
+    run_stage("merge", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
     run_stage("join", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
     run_stage("assemble", [0], lambda t: ["--dir", shared, "--store", store, "--memory", mem])
     if a.clean:

@@ -106,6 +106,15 @@ pub enum Error {
     /// A setting is out of range.
     #[error("invalid setting: {0}")]
     Config(String),
+    /// A thread panicked while it held a lock, so what the lock guards may
+    /// be half updated: the work stops instead of going on with it.
+    #[error(
+        "internal error: a thread panicked while it updated {what}; nothing more was recorded"
+    )]
+    Poisoned {
+        /// What the lock guards.
+        what: &'static str,
+    },
     /// The store has an unfinished ingest (a `work/` folder), so it cannot
     /// be read. The store does not read the ingest's manifest; the command
     /// line fills in `phase` from [`crate::ingest::status`].

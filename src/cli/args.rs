@@ -1,8 +1,14 @@
-//! Flags, as plain data. Turned into library options by the subcommands.
+//! Flags, as plain data: sizes, methods and discount policies already
+//! parsed into typed values ([`super::values`]). Turned into library
+//! options by the subcommands.
 
 use std::path::PathBuf;
 
 use clap::{Args, Parser, Subcommand};
+use quern::query::{DiscountPolicy, Method};
+
+pub use super::stage_args::StageCommand;
+use super::values::{self, method_list, size_syntax, ByteSize};
 
 /// Count n-grams of large corpora in bounded memory, and query the counts.
 #[derive(Parser, Debug)]
@@ -38,8 +44,11 @@ pub enum Command {
     /// word by word with the top K completions shown.
     Keystrokes(KeystrokesArgs),
     /// Write a method over a store as a read-only back-off model file (and
-    /// ARPA text); or check a model file with --verify.
+    /// ARPA text).
     Freeze(FreezeArgs),
+    /// Check every checksum and invariant of a model file written by
+    /// `quern freeze`, and nothing else.
+    CheckModel(CheckModelArgs),
     /// Run one stage of an ingest as a task over a shared directory (for a
     /// cluster; see scripts/spark_ingest.py).
     #[command(subcommand)]
@@ -60,111 +69,38 @@ pub struct ServeArgs {
     /// Query threads. Default: one per core.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
-    /// Largest request body (larger: 413). SIZE as for --memory.
-    #[arg(long, value_name = "SIZE", default_value = "1MiB")]
-    pub max_request_bytes: String,
+    #[arg(
+        long,
+        value_name = "SIZE",
+        default_value = "1MiB",
+        value_parser = values::byte_size,
+        help = concat!("Largest request body (larger: 413). ", size_syntax!())
+    )]
+    pub max_request_bytes: ByteSize,
 }
 
-/// The stages of a staged ingest. Each prints one JSON line describing
-/// what it did; each is safe to run again or twice at once.
-#[derive(Subcommand, Debug)]
-pub enum StageCommand {
-    /// Plan: list the inputs, fix the partitions, pack the inputs into map
-    /// tasks of about equal bytes; writes DIR/job.json.
-    Plan(StagePlanArgs),
-    /// Count one map task's inputs into partitioned runs and dictionaries.
-    Map(StageMapArgs),
-    /// Merge one partition across every map output.
-    Reduce(StagePartArgs),
-    /// Join one partition's merged counts with its continuation counts.
-    Join(StagePartArgs),
-    /// Build the store from every partition's output.
-    Assemble(StageAssembleArgs),
-    /// Remove the intermediate outputs (when the store is built and no task runs).
-    Clean(StageDirArgs),
+/// The cache memory of a command that reads a store.
+#[derive(Args, Debug, Clone, Copy)]
+pub struct CacheMemoryArgs {
+    #[arg(
+        id = "memory",
+        long = "memory",
+        value_name = "SIZE",
+        default_value = "256MiB",
+        value_parser = values::byte_size,
+        help = concat!(
+            "Memory for caches: three quarters go to the store's block cache. ",
+            size_syntax!()
+        )
+    )]
+    pub bytes: ByteSize,
 }
 
-#[derive(Args, Debug)]
-pub struct StageDirArgs {
-    /// The shared directory of the job.
-    #[arg(long, value_name = "DIR")]
-    pub dir: PathBuf,
-}
-
-#[derive(Args, Debug)]
-pub struct StagePlanArgs {
-    /// The shared directory of the job (created if missing).
-    #[arg(long, value_name = "DIR")]
-    pub dir: PathBuf,
-    /// Highest n-gram order N (1 to 8).
-    #[arg(long, value_name = "N", default_value_t = 5)]
-    pub order: usize,
-    /// Lowercase every token (Unicode lowercasing). Default: off.
-    #[arg(long)]
-    pub lowercase: bool,
-    /// A fixed vocabulary, as for `quern ingest --word-list`: FILE holds
-    /// one word a line, and every other token is counted as `<unk>`. The
-    /// plan keeps a copy in DIR for the tasks, and the store keeps it.
-    /// Default: every token counts.
-    #[arg(long, value_name = "FILE")]
-    pub word_list: Option<PathBuf>,
-    /// Skip (and report) lines longer than this many bytes.
-    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
-    pub max_line_bytes: usize,
-    /// Number of partitions: one reduce and one join task each. Required
-    /// (the Spark driver passes its own default).
-    #[arg(long, value_name = "N")]
-    pub partitions: u32,
-    /// Number of map tasks (fewer if the inputs have fewer chunks).
-    /// Required (the Spark driver passes its own default).
-    #[arg(long, value_name = "N")]
-    pub map_tasks: usize,
-    /// Files or directories (walked recursively, sorted), on the shared storage.
-    #[arg(required = true)]
-    pub inputs: Vec<PathBuf>,
-}
-
-#[derive(Args, Debug)]
-pub struct StageMapArgs {
-    /// The shared directory of the job.
-    #[arg(long, value_name = "DIR")]
-    pub dir: PathBuf,
-    /// The map task's number in the plan (from 0).
-    #[arg(long, value_name = "I")]
-    pub task: u32,
-    /// Memory budget of this task. SIZE: bytes, or a number with a unit:
-    /// KiB, MiB, GiB (powers of 1024) or K, M, G (powers of 1000).
-    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
-    pub memory: String,
-    /// Counting threads (more than one: same counts, not byte-identical runs).
-    #[arg(long, value_name = "N", default_value_t = 1)]
-    pub threads: usize,
-}
-
-#[derive(Args, Debug)]
-pub struct StagePartArgs {
-    /// The shared directory of the job.
-    #[arg(long, value_name = "DIR")]
-    pub dir: PathBuf,
-    /// The partition (from 0).
-    #[arg(long, value_name = "P")]
-    pub partition: u32,
-    /// Memory budget of this task (SIZE: as for map).
-    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
-    pub memory: String,
-}
-
-#[derive(Args, Debug)]
-pub struct StageAssembleArgs {
-    /// The shared directory of the job.
-    #[arg(long, value_name = "DIR")]
-    pub dir: PathBuf,
-    /// Store directory to build (created if missing).
-    #[arg(long, value_name = "DIR")]
-    pub store: PathBuf,
-    /// Memory budget of this task (SIZE: as for map).
-    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
-    pub memory: String,
+impl CacheMemoryArgs {
+    /// Bytes of the store's block cache: three quarters of the budget.
+    pub fn block_cache(self) -> usize {
+        (self.bytes.bytes() / 4 * 3) as usize
+    }
 }
 
 /// The store of a query command and its cache.
@@ -173,11 +109,8 @@ pub struct QueryStoreArgs {
     /// Store directory.
     #[arg(long, value_name = "DIR")]
     pub store: PathBuf,
-    /// Memory for caches: three quarters go to the store's block cache.
-    /// SIZE: bytes, or a number with a unit: KiB, MiB, GiB (powers of
-    /// 1024) or K, M, G (powers of 1000).
-    #[arg(long, value_name = "SIZE", default_value = "256MiB")]
-    pub memory: String,
+    #[command(flatten)]
+    pub memory: CacheMemoryArgs,
 }
 
 /// Where `prob`, `next` and `score` get their answers: a method over a
@@ -203,11 +136,8 @@ pub struct QuerySourceArgs {
     /// long scoring jobs and services.
     #[arg(long)]
     pub load_model: bool,
-    /// Memory for caches: three quarters go to the store's block cache.
-    /// SIZE: bytes, or a number with a unit: KiB, MiB, GiB (powers of
-    /// 1024) or K, M, G (powers of 1000).
-    #[arg(long, value_name = "SIZE", default_value = "256MiB")]
-    pub memory: String,
+    #[command(flatten)]
+    pub memory: CacheMemoryArgs,
 }
 
 /// A smoothing method's parameters (each method reads only its own).
@@ -239,18 +169,25 @@ pub struct ParamArgs {
     /// unusable ones, with a note; `fixed:D1,D2,D3+`: the given values at
     /// every order (kn and absolute use the first value).
     /// Default: estimate-or-single.
-    #[arg(long, value_name = "POLICY")]
-    pub discounts: Option<String>,
+    #[arg(long, value_name = "POLICY", value_parser = values::discount_policy)]
+    pub discounts: Option<DiscountPolicy>,
 }
 
 /// The smoothing method of a query command.
 #[derive(Args, Debug, Clone)]
 pub struct MethodArgs {
-    /// The smoothing method: mkn, kn, absolute, witten-bell, katz, interp,
-    /// add-k, mle or stupid. Default: mkn over a store; with --model, the
-    /// method it was frozen with (if given, it must be that one).
-    #[arg(long, value_name = "M")]
-    pub method: Option<String>,
+    #[arg(
+        long,
+        value_name = "M",
+        value_parser = values::method,
+        help = concat!(
+            "The smoothing method: ",
+            method_list!(),
+            ". Default: mkn over a store; with --model, the method it was frozen \
+             with (if given, it must be that one)."
+        )
+    )]
+    pub method: Option<Method>,
 }
 
 #[derive(Args, Debug)]
@@ -326,10 +263,17 @@ pub struct KeystrokesArgs {
 pub struct NgramsArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
-    /// Add the probability of each n-gram's last word under this method
-    /// (mkn, kn, ...). Default: no probabilities.
-    #[arg(long, value_name = "M")]
-    pub method: Option<String>,
+    #[arg(
+        long,
+        value_name = "M",
+        value_parser = values::method,
+        help = concat!(
+            "Add the probability of each n-gram's last word under this method (",
+            method_list!(),
+            "). Default: no probabilities."
+        )
+    )]
+    pub method: Option<Method>,
     #[command(flatten)]
     pub params: ParamArgs,
     /// The order of the n-grams shown. Default: one more than the words given.
@@ -380,8 +324,8 @@ pub struct TuneArgs {
     #[command(flatten)]
     pub store: QueryStoreArgs,
     /// add-k or interp.
-    #[arg(long, value_name = "M")]
-    pub method: String,
+    #[arg(long, value_name = "M", value_parser = values::method)]
+    pub method: Method,
     #[command(flatten)]
     pub params: ParamArgs,
     /// interp: one weight per order and bucket of the context count
@@ -409,12 +353,14 @@ pub struct IngestArgs {
     /// Highest n-gram order N (1 to 8).
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub order: usize,
-    /// Memory budget of the whole process, at least 16MiB. SIZE: bytes, or
-    /// a number with a unit: KiB, MiB, GiB (powers of 1024: 1GiB is
-    /// 1,073,741,824 bytes) or K, M, G (powers of 1000: 1.5G is
-    /// 1,500,000,000 bytes).
-    #[arg(long, value_name = "SIZE", default_value = "1GiB")]
-    pub memory: String,
+    #[arg(
+        long,
+        value_name = "SIZE",
+        default_value = "1GiB",
+        value_parser = values::byte_size,
+        help = concat!("Memory budget of the whole process, at least 16MiB. ", size_syntax!())
+    )]
+    pub memory: ByteSize,
     /// Worker threads. Default: all cores.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
@@ -593,13 +539,12 @@ pub struct FreezeArgs {
     /// Store directory.
     #[arg(long, required_unless_present = "verify")]
     pub store: Option<PathBuf>,
-    /// Memory budget: three quarters go to the store's block cache.
-    #[arg(long, default_value = "256MiB")]
-    pub memory: String,
+    #[command(flatten)]
+    pub memory: CacheMemoryArgs,
     /// The method to freeze: mkn, kn, absolute, witten-bell, katz, interp
     /// or stupid (add-k and mle are not back-off models). Default: mkn.
-    #[arg(long, value_name = "M")]
-    pub method: Option<String>,
+    #[arg(long, value_name = "M", value_parser = values::method)]
+    pub method: Option<Method>,
     #[command(flatten)]
     pub params: ParamArgs,
     /// The model file to write.
@@ -638,10 +583,20 @@ pub struct FreezeArgs {
     /// per core; the model is the same whatever the number).
     #[arg(long)]
     pub threads: Option<usize>,
-    /// Check every checksum and invariant of this model file, and nothing else.
-    #[arg(long, conflicts_with_all = ["store", "out", "arpa"])]
+    /// The same as `quern check-model FILE`, for the tests that still call
+    /// it so; not shown in the help.
+    #[arg(long, hide = true, conflicts_with_all = ["store", "out", "arpa"])]
     pub verify: Option<PathBuf>,
     /// The summary as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct CheckModelArgs {
+    /// The model file.
+    pub model: PathBuf,
+    /// One JSON object instead of text. Default: text.
     #[arg(long)]
     pub json: bool,
 }

@@ -3,12 +3,27 @@
 mod args;
 mod cmd;
 mod progress;
+mod stage_args;
+mod values;
 
 use clap::Parser;
 
 /// Parses the command line and runs the subcommand.
 pub fn run() -> anyhow::Result<()> {
-    let cli = args::Cli::parse();
+    let cli = match args::Cli::try_parse() {
+        Ok(cli) => cli,
+        // A value that one of our parsers refused ([`values`]): the
+        // library's message, as every other error of a command (and as the
+        // Python module gives it).
+        Err(e) if e.kind() == clap::error::ErrorKind::ValueValidation => {
+            match std::error::Error::source(&e).and_then(|s| s.downcast_ref::<quern::Error>()) {
+                Some(q) => return Err(anyhow::Error::msg(q.to_string())),
+                None => e.exit(),
+            }
+        }
+        Err(e) => e.exit(),
+    };
+    quern::fault::check_env()?;
     dispatch(cli.command).map_err(with_ingest_phase)
 }
 
@@ -40,6 +55,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Tune(a) => cmd::tune::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),
         args::Command::Freeze(a) => cmd::freeze::run(a),
+        args::Command::CheckModel(a) => cmd::freeze::check_model(&a.model, a.json),
         args::Command::Stage(c) => cmd::stage::run(c),
         args::Command::Serve(a) => cmd::serve::run(a),
     }

@@ -10,9 +10,10 @@
 //! records that durably before the worker goes on. Spills happen between
 //! lines, so every covered range ends at a line boundary.
 
+mod order;
 mod prefixes;
 mod table;
 mod worker;
 
-pub use table::{SortedRecords, Table, MAX_LOAD};
+pub use table::{SortedRecords, SortedTable, Table, MAX_LOAD};
 pub use worker::{count_spans, CountConfig, Spill};

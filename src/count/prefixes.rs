@@ -106,7 +106,7 @@ mod tests {
                 }
             }
             let mut got = Vec::new();
-            each_with_prefixes(t.sorted_records(), |k, v| {
+            each_with_prefixes(t.sorted().records(), |k, v| {
                 got.push((k.ids().to_vec(), v[0]));
                 Ok::<(), ()>(())
             })

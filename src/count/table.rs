@@ -3,21 +3,31 @@
 //! Open addressing with linear probing over one flat array of records:
 //! each slot is `width` ids (shorter keys are padded with zeros), `values`
 //! sums and the key's length (0 = empty), so a probe touches one cache
-//! line. Capacity is fixed at creation from a byte budget, so the table
-//! never reallocates: its memory is `capacity × slot_bytes`, and the pages
-//! of a fresh table are only touched when used. When the load reaches
-//! [`MAX_LOAD`] the owner spills it (sorted, via [`Table::sorted`]) and
-//! clears it.
+//! line. Its memory is `capacity × slot_bytes`, and never more than the
+//! byte budget given at creation:
+//!
+//! - a table made by [`Table::with_budget`] or [`Table::for_keys`] has its
+//!   capacity from the start and never reallocates;
+//! - a table made by [`Table::growable`] starts small and doubles its
+//!   array (a reallocation, which may move it) each time it reaches
+//!   [`MAX_LOAD`], up to the budget; the records are moved into the
+//!   larger array in place ([`Table::add`] says when).
+//!
+//! When the load reaches [`MAX_LOAD`] at full capacity, the owner spills
+//! the table: [`Table::sorted`] gives a [`SortedTable`], a view of the
+//! records in key order that borrows the table, so nothing can be added
+//! while the records are sorted; dropping the view empties the table for
+//! the next round.
 //!
 //! Spilling sorts the records in place: they are first packed to the front
 //! of the array, then sorted as fixed-size arrays, comparing the padded ids
 //! and then the length (which is the lexicographic order with a prefix
 //! before its extensions). Sorting the records themselves instead of an
 //! index into them keeps every comparison in the data being sorted; the
-//! index sort it replaced spent most of its time waiting for memory.
+//! index sort it replaced spent most of its time waiting for memory. The
+//! sorts are in [`super::order`].
 
-use std::cmp::Ordering;
-
+use super::order::{hash_of, home, sort_packed_by_hash, sort_records, with_stride};
 use crate::key::{Key, MAX_ORDER};
 use crate::shard::{Values, MAX_VALUES};
 
@@ -29,6 +39,17 @@ pub const CRITICAL_LOAD: f64 = 0.95;
 
 /// Slots a [`Table::growable`] table starts with.
 const INITIAL_SLOTS: usize = 1 << 18;
+
+/// Bits of a slot's length field that hold the key's length (at most
+/// [`MAX_ORDER`]); while a table grows, the bits above hold the record's
+/// new slot ([`target_field`]).
+const LEN_BITS: u32 = 8;
+/// The new-slot value that marks a record wrapping past the end of the
+/// grown table: the largest the length field's upper 56 bits can hold.
+const WRAPS: u64 = u64::MAX >> LEN_BITS;
+/// Most slots a table has: every slot number must fit in the length
+/// field's upper 56 bits below [`WRAPS`] while the table grows.
+pub const MAX_SLOTS: usize = WRAPS as usize;
 
 /// A bounded n-gram → sums table.
 pub struct Table {
@@ -43,9 +64,6 @@ pub struct Table {
     used: usize,
     limit: usize,
     critical: usize,
-    /// The first `used` slots hold the records in key order (after
-    /// [`Table::sorted`], until [`Table::clear`]).
-    packed: bool,
 }
 
 impl Table {
@@ -65,8 +83,7 @@ impl Table {
     /// so an oversized table is slow as well as large).
     pub fn for_keys(width: usize, values: usize, budget: usize, keys: usize) -> Table {
         assert!((1..=MAX_ORDER).contains(&width) && values <= MAX_VALUES);
-        let need = ((keys as f64 / MAX_LOAD) as usize).saturating_add(64);
-        let cap = (budget / Self::slot_bytes(width, values)).min(need).max(64);
+        let cap = slots_for(budget, Self::slot_bytes(width, values), keys);
         let stride = width + values + 1;
         Table {
             width,
@@ -78,7 +95,6 @@ impl Table {
             used: 0,
             limit: ((cap as f64) * MAX_LOAD) as usize,
             critical: ((cap as f64) * CRITICAL_LOAD) as usize,
-            packed: false,
         }
     }
 
@@ -88,7 +104,7 @@ impl Table {
     /// (nearly their order already) and moves each once; it happens at
     /// most log2(budget / 14 MiB) times.
     pub fn growable(width: usize, values: usize, budget: usize) -> Table {
-        let max_cap = (budget / Self::slot_bytes(width, values)).max(64);
+        let max_cap = slots_for(budget, Self::slot_bytes(width, values), usize::MAX);
         let mut t = Self::for_keys(
             width,
             values,
@@ -139,10 +155,12 @@ impl Table {
     }
 
     /// Adds `add` to the sums of `key`. The caller checks [`Table::is_full`]
-    /// between insertions; a table is never filled beyond its capacity.
+    /// between insertions; a table is never filled beyond its capacity. A
+    /// growable table below its budget grows here when the load reaches
+    /// [`MAX_LOAD`].
     #[inline]
     pub fn add(&mut self, key: &[u64], add: &[u64]) {
-        debug_assert!(key.len() <= self.width && !key.is_empty() && !self.packed);
+        debug_assert!(key.len() <= self.width && !key.is_empty());
         let (w, st) = (self.width, self.stride);
         let lenpos = w + self.values;
         let mut i = self.slot_of(key);
@@ -210,17 +228,9 @@ impl Table {
         self.pack();
         let (n, cap) = (self.used, self.cap);
         let recs = &mut self.slots[..n * st];
-        macro_rules! sort_as {
-            ($($n:literal)*) => {
-                match st {
-                    $($n => {
-                        sort_packed_by_hash::<$n>(recs, lenpos, cap, front);
-                    })*
-                    _ => unreachable!("stride {st} out of range"),
-                }
-            };
-        }
-        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
+        with_stride!(st, N => {
+            sort_packed_by_hash::<N>(recs, lenpos, cap, front);
+        });
     }
 
     /// Packs the records to the front of the array and sorts them.
@@ -229,16 +239,7 @@ impl Table {
         let st = self.stride;
         let recs = &mut self.slots[..self.used * st];
         let w = self.width;
-        macro_rules! sort_as {
-            ($($n:literal)*) => {
-                match st {
-                    $($n => sort_records::<$n>(recs, w),)*
-                    _ => unreachable!("stride {st} out of range"),
-                }
-            };
-        }
-        sort_as!(2 3 4 5 6 7 8 9 10 11 12 13);
-        self.packed = true;
+        with_stride!(st, N => sort_records::<N>(recs, w));
     }
 
     /// Doubles the capacity (at most to `max_cap`) without a second array:
@@ -247,9 +248,15 @@ impl Table {
     /// it in the larger table. Homes are monotone in the hash, so the
     /// sorted records land in increasing slots, each at or after its
     /// current index; the few that would run past the end are inserted
-    /// again at the start, as linear probing wraps.
+    /// again at the start, as linear probing wraps. Between the two passes
+    /// each record's new slot is kept above its length ([`target_field`]),
+    /// which bounds a table to [`MAX_SLOTS`] slots.
     fn grow(&mut self) {
         let new_cap = (self.cap * 2).min(self.max_cap);
+        assert!(
+            new_cap <= MAX_SLOTS,
+            "a table of {new_cap} slots is over the {MAX_SLOTS} its growth can number"
+        );
         let (st, lenpos) = (self.stride, self.width + self.values);
         self.pack_by_hash();
         let n = self.used;
@@ -260,33 +267,30 @@ impl Table {
         self.limit = ((new_cap as f64) * MAX_LOAD) as usize;
         self.critical = ((new_cap as f64) * CRITICAL_LOAD) as usize;
         // Pass 1: each record's new slot, kept above its length.
-        const OVERFLOW: u64 = u64::MAX >> 8;
         let mut next = 0usize;
         for r in 0..n {
             let rec = &mut self.slots[r * st..(r + 1) * st];
             let len = rec[lenpos] as usize;
             let pos = home(hash_of(&rec[..len]), new_cap).max(next);
-            let mark = if pos < new_cap {
+            let target = if pos < new_cap {
                 next = pos + 1;
                 pos as u64
             } else {
-                OVERFLOW
+                WRAPS
             };
-            rec[lenpos] = (mark << 8) | len as u64;
+            rec[lenpos] = target_field(target, len);
         }
         // Pass 2: move, last first (every target is free by then).
         let mut overflow = Vec::new();
         for r in (0..n).rev() {
-            let field = self.slots[r * st + lenpos];
-            let len = field & 0xFF;
-            let mark = field >> 8;
-            self.slots[r * st + lenpos] = len;
-            if mark == OVERFLOW {
+            let (target, len) = split_target(self.slots[r * st + lenpos]);
+            self.slots[r * st + lenpos] = len as u64;
+            if target == WRAPS {
                 overflow.extend_from_slice(&self.slots[r * st..(r + 1) * st]);
                 self.slots[r * st..(r + 1) * st].fill(0);
                 continue;
             }
-            let pos = mark as usize;
+            let pos = target as usize;
             if pos != r {
                 self.slots.copy_within(r * st..(r + 1) * st, pos * st);
                 self.slots[r * st..(r + 1) * st].fill(0);
@@ -302,42 +306,74 @@ impl Table {
         }
     }
 
-    /// The entries in key order. The table is no longer usable for
-    /// [`Table::add`] until it is emptied by [`Table::clear`].
-    pub fn sorted(&mut self) -> impl Iterator<Item = (Key, Values)> + '_ {
-        let recs = self.sorted_records();
-        (0..recs.len()).map(move |i| (recs.key(i), recs.values(i)))
-    }
-
-    /// The entries in key order, for reading by position. The table is no
-    /// longer usable for [`Table::add`] until it is emptied by
-    /// [`Table::clear`].
-    pub fn sorted_records(&mut self) -> SortedRecords<'_> {
-        if !self.packed {
-            self.pack_and_sort();
-        }
-        SortedRecords {
-            flat: &self.slots[..self.used * self.stride],
-            width: self.width,
-            values: self.values,
-            stride: self.stride,
-        }
-    }
-
-    /// Empties the table, keeping its memory.
-    pub fn clear(&mut self) {
-        if self.packed {
-            // Only the packed prefix holds records.
-            self.slots[..self.used * self.stride].fill(0);
-        } else {
-            self.slots.fill(0);
-        }
-        self.used = 0;
-        self.packed = false;
+    /// The records in key order, as a view that borrows the table (so
+    /// nothing is added while they are sorted); dropping the view empties
+    /// the table, keeping its memory.
+    pub fn sorted(&mut self) -> SortedTable<'_> {
+        self.pack_and_sort();
+        SortedTable { table: self }
     }
 }
 
-/// A sorted table's records, read by position ([`Table::sorted_records`]).
+/// A table's records in key order ([`Table::sorted`]). The table it
+/// borrows holds them packed and sorted, which is no hash table: it is
+/// emptied when this view is dropped.
+///
+/// Adding to a table while its sorted view lives does not compile:
+///
+/// ```compile_fail
+/// let mut t = quern::count::Table::with_budget(2, 1, 1 << 16);
+/// t.add(&[1, 2], &[1]);
+/// let sorted = t.sorted();
+/// t.add(&[3], &[1]);
+/// assert_eq!(sorted.records().len(), 1);
+/// ```
+///
+/// Once the view is dropped, the table is empty and takes keys again:
+///
+/// ```
+/// let mut t = quern::count::Table::with_budget(2, 1, 1 << 16);
+/// t.add(&[1, 2], &[1]);
+/// let sorted = t.sorted();
+/// assert_eq!(sorted.records().len(), 1);
+/// drop(sorted);
+/// assert!(t.is_empty());
+/// t.add(&[3], &[1]);
+/// assert_eq!(t.len(), 1);
+/// ```
+pub struct SortedTable<'a> {
+    table: &'a mut Table,
+}
+
+impl SortedTable<'_> {
+    /// The records, for reading by position.
+    pub fn records(&self) -> SortedRecords<'_> {
+        let t = &*self.table;
+        SortedRecords {
+            flat: &t.slots[..t.used * t.stride],
+            width: t.width,
+            values: t.values,
+            stride: t.stride,
+        }
+    }
+
+    /// The entries in key order.
+    pub fn iter(&self) -> impl Iterator<Item = (Key, Values)> + '_ {
+        let recs = self.records();
+        (0..recs.len()).map(move |i| (recs.key(i), recs.values(i)))
+    }
+}
+
+impl Drop for SortedTable<'_> {
+    /// Empties the table: only the packed prefix holds records.
+    fn drop(&mut self) {
+        let t = &mut *self.table;
+        t.slots[..t.used * t.stride].fill(0);
+        t.used = 0;
+    }
+}
+
+/// A sorted table's records, read by position ([`SortedTable::records`]).
 #[derive(Clone, Copy)]
 pub struct SortedRecords<'a> {
     flat: &'a [u64],
@@ -405,174 +441,36 @@ fn written_zeros(n: usize) -> Vec<u64> {
     v
 }
 
-/// The hash of a key; its slot in a table of `cap` slots is
-/// [`home`]`(hash, cap)`, monotone in the hash.
+/// Slots for a table of `slot_bytes`-byte slots within `budget` bytes, no
+/// more than `keys` distinct keys need (below [`MAX_LOAD`]), at least 64
+/// and at most [`MAX_SLOTS`].
+fn slots_for(budget: usize, slot_bytes: usize, keys: usize) -> usize {
+    let need = ((keys as f64 / MAX_LOAD) as usize).saturating_add(64);
+    (budget / slot_bytes).min(need).clamp(64, MAX_SLOTS)
+}
+
+/// A growing table's length field: the record's new slot `target` (below
+/// [`WRAPS`], or [`WRAPS`] for a record that wraps) above its key length.
+/// Panics (in release builds too) when either does not fit: a count would
+/// otherwise land in another record's slot.
 #[inline]
-fn hash_of(key: &[u64]) -> u64 {
-    let mut h = key.len() as u64;
-    for &w in key {
-        h = (h.rotate_left(23) ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15);
-    }
-    h ^ (h >> 29)
+fn target_field(target: u64, len: usize) -> u64 {
+    assert!(
+        target <= WRAPS && len <= MAX_ORDER,
+        "slot {target} or key length {len} does not fit a length field"
+    );
+    (target << LEN_BITS) | len as u64
 }
 
+/// The new slot and key length of a growing table's length field.
 #[inline]
-fn home(hash: u64, cap: usize) -> usize {
-    ((hash as u128 * cap as u128) >> 64) as usize
+fn split_target(field: u64) -> (u64, usize) {
+    (field >> LEN_BITS, (field & ((1 << LEN_BITS) - 1)) as usize)
 }
-
-/// Sorts records of `N` u64s by the hash of their key (length at
-/// `lenpos`), given that they are a table's records packed in slot order:
-/// the table had `cap` slots and its first free slot was `front`.
-///
-/// A record in slot `i < front` whose home is after `i` wrapped around
-/// the end of the table; those are moved to the end (keeping their order),
-/// which leaves every record at most a cluster away from its place. An
-/// insertion sort then places each record, keeping the hash of the last
-/// sorted one; if it has moved records more than [`SHIFTS_PER_RECORD`]
-/// times the count, which a table's layout does not produce, it stops and
-/// a comparison sort finishes the job. Returns the moves the insertion sort
-/// made, or `None` if the comparison sort took over.
-fn sort_packed_by_hash<const N: usize>(
-    flat: &mut [u64],
-    lenpos: usize,
-    cap: usize,
-    front: usize,
-) -> Option<usize> {
-    let (recs, _) = flat.as_chunks_mut::<N>();
-    let hash = |r: &[u64; N]| hash_of(&r[..r[lenpos] as usize]);
-    // One pass over the front, last first: the wrapped records are set
-    // aside, the others move up to the end of the front in their order;
-    // then the wrapped ones fill its start and the array turns so that
-    // they come last.
-    let front = front.min(recs.len());
-    let mut wrapped: Vec<[u64; N]> = Vec::new();
-    let mut j = front;
-    for i in (0..front).rev() {
-        if home(hash(&recs[i]), cap) > i {
-            wrapped.push(recs[i]);
-        } else {
-            j -= 1;
-            recs[j] = recs[i];
-        }
-    }
-    if !wrapped.is_empty() {
-        wrapped.reverse();
-        recs[..wrapped.len()].copy_from_slice(&wrapped);
-        recs.rotate_left(wrapped.len());
-    }
-    let Some(first) = recs.first() else {
-        return Some(0);
-    };
-    let mut last = hash(first);
-    let mut shifts = 0usize;
-    let most = SHIFTS_PER_RECORD.saturating_mul(recs.len());
-    for i in 1..recs.len() {
-        let h = hash(&recs[i]);
-        if h >= last {
-            last = h;
-            continue;
-        }
-        // recs[i - 1] (hash `last`) goes after it; find how far back it goes.
-        let mut j = i - 1;
-        while j > 0 && hash(&recs[j - 1]) > h {
-            j -= 1;
-        }
-        shifts += i - j;
-        recs[j..=i].rotate_right(1);
-        if shifts > most {
-            recs.sort_unstable_by_key(hash);
-            return None;
-        }
-    }
-    Some(shifts)
-}
-
-/// Most records an insertion sort in [`sort_packed_by_hash`] moves, per
-/// record, before it gives way to a comparison sort.
-const SHIFTS_PER_RECORD: usize = 64;
-
-/// Sorts records of `N` u64s whose first `width` are padded ids and whose
-/// last is the key length.
-///
-/// Large arrays are first distributed by the top byte of their first id
-/// (one counting pass, then an in-place permutation, as in an American flag
-/// sort), and each large bucket again by the next byte, up to
-/// [`RADIX_LEVELS`] bytes: that is the first comparison of the key order, so
-/// each bucket is then sorted on its own by comparison. A byte at a time
-/// keeps the permutation's 256 write positions in the cache (one pass over
-/// 2^16 buckets at once wrote each record to a random page); uniform ids
-/// leave a few dozen records per bucket, a frequent first word a larger one.
-fn sort_records<const N: usize>(flat: &mut [u64], width: usize) {
-    let (recs, rest) = flat.as_chunks_mut::<N>();
-    debug_assert!(rest.is_empty());
-    let cmp = |a: &[u64; N], b: &[u64; N]| -> Ordering {
-        a[..width]
-            .cmp(&b[..width])
-            .then_with(|| a[N - 1].cmp(&b[N - 1]))
-    };
-    if recs.len() < RADIX_MIN {
-        recs.sort_unstable_by(cmp);
-        return;
-    }
-    distribute(recs, 0, &cmp);
-}
-
-/// One level of [`sort_records`]: distributes `recs` by byte `level` (from
-/// the top) of their first id, then sorts each bucket (by the next byte
-/// first if it is large enough).
-fn distribute<const N: usize>(
-    recs: &mut [[u64; N]],
-    level: u32,
-    cmp: &impl Fn(&[u64; N], &[u64; N]) -> Ordering,
-) {
-    let shift = 56 - 8 * level;
-    let digit = |r: &[u64; N]| ((r[0] >> shift) & 0xFF) as usize;
-    let mut start = [0usize; 257];
-    for r in recs.iter() {
-        start[digit(r) + 1] += 1;
-    }
-    for b in 0..256 {
-        start[b + 1] += start[b];
-    }
-    let mut next = [0usize; 256];
-    next.copy_from_slice(&start[..256]);
-    for b in 0..256 {
-        let end = start[b + 1];
-        let mut i = next[b];
-        while i < end {
-            let d = digit(&recs[i]);
-            if d == b {
-                i += 1;
-            } else {
-                // Send the record to the next free place of its bucket;
-                // the one found there is placed in the next round.
-                recs.swap(i, next[d]);
-                next[d] += 1;
-            }
-        }
-        next[b] = end;
-    }
-    for b in 0..256 {
-        let bucket = &mut recs[start[b]..start[b + 1]];
-        if bucket.len() >= RADIX_BUCKET_MIN && level + 1 < RADIX_LEVELS {
-            distribute(bucket, level + 1, cmp);
-        } else {
-            bucket.sort_unstable_by(cmp);
-        }
-    }
-}
-
-/// Fewest records for which [`sort_records`] distributes by the first id
-/// before sorting.
-const RADIX_MIN: usize = 1 << 12;
-/// Fewest records of a bucket that is distributed again by the next byte.
-const RADIX_BUCKET_MIN: usize = 256;
-/// Most bytes of the first id that [`sort_records`] distributes by.
-const RADIX_LEVELS: u32 = 3;
 
 #[cfg(test)]
 mod tests {
+    use super::super::order::RADIX_MIN;
     use super::*;
     use std::collections::BTreeMap;
 
@@ -608,7 +506,11 @@ mod tests {
             t.add(&key, &[1]);
             *m.entry(key).or_insert(0u64) += 1;
         }
-        let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
+        let got: Vec<(Vec<u64>, u64)> = t
+            .sorted()
+            .iter()
+            .map(|(k, v)| (k.ids().to_vec(), v[0]))
+            .collect();
         let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
         assert_eq!(got, want);
     }
@@ -639,7 +541,11 @@ mod tests {
             *m.entry(key).or_insert(0u64) += 1;
         }
         assert!(t.len() > RADIX_MIN);
-        let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
+        let got: Vec<(Vec<u64>, u64)> = t
+            .sorted()
+            .iter()
+            .map(|(k, v)| (k.ids().to_vec(), v[0]))
+            .collect();
         let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
         assert_eq!(got, want);
     }
@@ -664,11 +570,12 @@ mod tests {
             }
             let got: Vec<(Vec<u64>, [u64; 2])> = t
                 .sorted()
+                .iter()
                 .map(|(k, v)| (k.ids().to_vec(), [v[0], v[1]]))
                 .collect();
             let want: Vec<(Vec<u64>, [u64; 2])> = m.into_iter().collect();
             assert_eq!(got, want, "round {round}");
-            t.clear();
+            // Dropping the sorted view emptied the table.
             assert!(t.is_empty());
         }
     }
@@ -765,8 +672,28 @@ mod tests {
         }
         assert_eq!(t.capacity(), 1 << 20);
         assert_eq!(t.len(), m.len());
-        let got: Vec<(Vec<u64>, u64)> = t.sorted().map(|(k, v)| (k.ids().to_vec(), v[0])).collect();
+        let got: Vec<(Vec<u64>, u64)> = t
+            .sorted()
+            .iter()
+            .map(|(k, v)| (k.ids().to_vec(), v[0]))
+            .collect();
         let want: Vec<(Vec<u64>, u64)> = m.into_iter().collect();
         assert_eq!(got, want);
+    }
+
+    #[test]
+    fn growth_numbers_slots_within_the_length_field() {
+        // The largest slot number and key length go in and come out again;
+        // one past either is refused in any build, as a table of more slots
+        // would put records in each other's slots.
+        let top = (MAX_SLOTS - 1) as u64;
+        assert_eq!(split_target(target_field(top, MAX_ORDER)), (top, MAX_ORDER));
+        assert_eq!(split_target(target_field(WRAPS, 1)), (WRAPS, 1));
+        assert!(std::panic::catch_unwind(|| target_field(WRAPS + 1, 1)).is_err());
+        assert!(std::panic::catch_unwind(|| target_field(0, MAX_ORDER + 1)).is_err());
+        // No budget gives a table more slots than the field can number.
+        assert_eq!(slots_for(usize::MAX, 16, usize::MAX), MAX_SLOTS);
+        assert_eq!(slots_for(usize::MAX, 16, 80), 164);
+        assert_eq!(slots_for(0, 16, usize::MAX), 64);
     }
 }

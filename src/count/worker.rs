@@ -8,7 +8,7 @@ use super::prefixes::each_with_prefixes;
 use super::Table;
 use crate::corpus::Span;
 use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::growth::{self, FirstSeen};
 use crate::key::partition_of;
 use crate::records::ReadTotals;
@@ -80,7 +80,9 @@ pub fn count_spans(
     let stop = AtomicBool::new(false);
     let commit_lock = Mutex::new(());
     let guarded = |s: Spill| {
-        let _g = commit_lock.lock().unwrap_or_else(|e| e.into_inner());
+        let _g = commit_lock.lock().map_err(|_| Error::Poisoned {
+            what: "the order of the spills' commits",
+        })?;
         commit(s)
     };
     crate::pool::on_each_thread(cfg.threads, || {
@@ -249,17 +251,17 @@ impl<'a> Worker<'a> {
         Ok(())
     }
 
-    /// Writes the table as a run file and clears it.
+    /// Writes the table as a run file and empties it.
     fn write_run(&mut self) -> Result<(String, u64)> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
         let run = format!("count-{id:06}.run");
         let parts = self.cfg.partitions;
         let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
-        each_with_prefixes(self.table.sorted_records(), |key, vals| {
+        // Dropping the sorted view empties the table.
+        each_with_prefixes(self.table.sorted().records(), |key, vals| {
             w.push(partition_of(key.ids()[0], parts), &key, vals)
         })?;
         let summary = w.finish()?;
-        self.table.clear();
         Ok((run, summary.bytes))
     }
 
@@ -274,7 +276,7 @@ impl<'a> Worker<'a> {
         let firsts = format!("count-{id:06}.first");
         let (covers, entries) = self.first.drain();
         let first_bytes = growth::file::write(&self.cfg.dir.join(&firsts), &covers, &entries)?;
-        crate::fault::point("spill");
+        crate::fault::point(crate::fault::Point::Spill);
         let pending = std::mem::take(&mut self.pending);
         let spill = Spill {
             id,
@@ -287,7 +289,7 @@ impl<'a> Worker<'a> {
             bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes + first_bytes,
         };
         commit(spill)?;
-        crate::fault::point("committed");
+        crate::fault::point(crate::fault::Point::Committed);
         Ok(())
     }
 }

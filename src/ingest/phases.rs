@@ -13,6 +13,7 @@ use super::options::Progress;
 use crate::corpus::InputFile;
 use crate::count::{count_spans, CountConfig, Spill};
 use crate::error::{Error, IoContext, Result};
+use crate::fault::Point;
 use crate::finish::{self, GrowthInputs};
 use crate::fsutil;
 use crate::growth;
@@ -100,13 +101,17 @@ impl Run<'_> {
                 next_id: &next_id,
                 progress: &read,
             };
-            let shared = Mutex::new((&mut *m, 0u64, 0u64));
+            let shared = Mutex::new(Committed {
+                manifest: &mut *m,
+                runs: 0,
+                bytes: 0,
+            });
             let work = &run.dirs.work;
             let commit = |s: Spill| -> Result<()> {
-                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
-                g.1 += s.runs.len() as u64;
-                g.2 += s.bytes;
-                g.0.runsets.push(RunSet {
+                let mut g = shared.lock().map_err(|_| poisoned())?;
+                g.runs += s.runs.len() as u64;
+                g.bytes += s.bytes;
+                g.manifest.runsets.push(RunSet {
                     id: s.id,
                     runs: s.runs,
                     dict: s.dict,
@@ -115,8 +120,8 @@ impl Run<'_> {
                     hashes: s.hashes,
                     totals: s.totals,
                 });
-                g.0.next_id = next_id.load(Ordering::SeqCst);
-                g.0.save(work)
+                g.manifest.next_id = next_id.load(Ordering::SeqCst);
+                g.manifest.save(work)
             };
             let done = std::sync::atomic::AtomicBool::new(false);
             let result = std::thread::scope(|scope| {
@@ -131,9 +136,9 @@ impl Run<'_> {
                 let _ = ticker.join();
                 r
             });
-            let (_, runs, bytes) = shared.into_inner().unwrap_or_else(|e| e.into_inner());
-            run.runs_written += runs;
-            run.temp_bytes += bytes;
+            let committed = shared.into_inner().map_err(|_| poisoned())?;
+            run.runs_written += committed.runs;
+            run.temp_bytes += committed.bytes;
             result?;
             m.phase = Phase::Merging;
             m.next_id = next_id.load(Ordering::SeqCst);
@@ -153,11 +158,42 @@ impl Run<'_> {
         let done = AtomicU64::new(0);
         crate::pool::try_for_each(self.threads, todo, |p| {
             let t = job(p)?;
-            (*record.lock().unwrap_or_else(|e| e.into_inner()))(p, t)?;
+            (*record.lock().map_err(|_| poisoned())?)(p, t)?;
             self.progress
                 .advance(done.fetch_add(1, Ordering::SeqCst) + 1);
             Ok(())
         })
+    }
+
+    /// The skeleton of a phase with one task per partition (merging,
+    /// joining): `job(p)` runs on the worker threads for every partition
+    /// whose result in `slots(m)` is not recorded yet; each result is
+    /// recorded and the manifest saved as it comes (then `fault` is
+    /// reached), and when every partition is done the manifest moves on to
+    /// `next`.
+    fn each_partition<T: Send>(
+        &self,
+        m: &mut Manifest,
+        (phase, next): (Phase, Phase),
+        slots: fn(&mut Manifest) -> &mut Vec<Option<T>>,
+        fault: Point,
+        job: &(dyn Fn(u32) -> Result<T> + Sync),
+    ) -> Result<()> {
+        let todo: Vec<u32> = (0..m.partitions)
+            .filter(|&p| slots(m)[p as usize].is_none())
+            .collect();
+        self.progress.phase(phase, m.partitions as u64);
+        let work = &self.dirs.work;
+        let shared = Mutex::new(&mut *m);
+        self.per_partition(todo, job, &mut |p, result| {
+            let mut g = shared.lock().map_err(|_| poisoned())?;
+            slots(&mut g)[p as usize] = Some(result);
+            g.save(work)?;
+            crate::fault::point(fault);
+            Ok(())
+        })?;
+        m.phase = next;
+        m.save(work)
     }
 
     pub(super) fn merging(&mut self, m: &mut Manifest) -> Result<()> {
@@ -182,26 +218,17 @@ impl Run<'_> {
                     ));
                 }
             }
-            let todo: Vec<u32> = (0..m.partitions)
-                .filter(|&p| m.merged[p as usize].is_none())
-                .collect();
-            run.progress.phase(Phase::Merging, m.partitions as u64);
             let next_tmp = AtomicU64::new(0);
-            let dirs: &WorkDirs = run.dirs;
-            let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
+            let cfg = merge_config(run.dirs, &run.plan, m, &next_tmp);
             let job =
                 |p: u32| merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect());
-            let work = run.dirs.work.clone();
-            let shared = Mutex::new(&mut *m);
-            run.per_partition(todo, &job, &mut |p, merged| {
-                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
-                g.merged[p as usize] = Some(merged);
-                g.save(&work)?;
-                crate::fault::point("merge");
-                Ok(())
-            })?;
-            m.phase = Phase::Joining;
-            m.save(&run.dirs.work)?;
+            run.each_partition(
+                m,
+                (Phase::Merging, Phase::Joining),
+                |m| &mut m.merged,
+                Point::Merge,
+                &job,
+            )?;
             run.temp_bytes += store::dir_bytes(&run.dirs.merged);
             // The merged counts hold everything the count runs held.
             remove_matching(&run.dirs.runs, ".run")
@@ -235,14 +262,8 @@ impl Run<'_> {
                     suffix.push(RunFile::open(&run.dirs.merged.join(f))?);
                 }
             }
-            let todo: Vec<u32> = (0..m.partitions)
-                .filter(|&p| m.joined[p as usize].is_none())
-                .collect();
-            run.progress.phase(Phase::Joining, m.partitions as u64);
             let next_tmp = AtomicU64::new(0);
-            let dirs: &WorkDirs = run.dirs;
-            let cfg = merge_config(dirs, &run.plan, m, &next_tmp);
-            let sst = run.dirs.sst.clone();
+            let cfg = merge_config(run.dirs, &run.plan, m, &next_tmp);
             let ranks = Ranks::from_dicts(&dictionaries(m, run.dirs))?;
             let job = |q: u32| -> Result<Joined> {
                 let counts = RunFile::open(&run.dirs.merged.join(&merged[q as usize].counts))?;
@@ -252,20 +273,16 @@ impl Run<'_> {
                     &counts,
                     suffix.iter().map(|f| (f.clone(), q)).collect(),
                     &ranks,
-                    &sst,
+                    &run.dirs.sst,
                 )
             };
-            let work = run.dirs.work.clone();
-            let shared = Mutex::new(&mut *m);
-            run.per_partition(todo, &job, &mut |q, joined| {
-                let mut g = shared.lock().unwrap_or_else(|e| e.into_inner());
-                g.joined[q as usize] = Some(joined);
-                g.save(&work)?;
-                crate::fault::point("join");
-                Ok(())
-            })?;
-            m.phase = Phase::Building;
-            m.save(&run.dirs.work)?;
+            run.each_partition(
+                m,
+                (Phase::Joining, Phase::Building),
+                |m| &mut m.joined,
+                Point::Join,
+                &job,
+            )?;
             run.temp_bytes += store::dir_bytes(&run.dirs.sst);
             fsutil::remove_dir(&run.dirs.merged)?;
             fsutil::remove_dir(&run.dirs.tmp)
@@ -304,7 +321,7 @@ impl Run<'_> {
                     .flat_map(|j| j.ssts.iter().map(|(cf, f)| (cf.clone(), dirs.sst.join(f))))
                     .collect();
                 let db_new = layout::db_new(&dirs.store);
-                crate::fault::full("build").at(&db_new, "create")?;
+                crate::fault::full(crate::fault::Full::Build).at(&db_new, "create")?;
                 finish::build_db(
                     &meta,
                     dictionaries(m, dirs),
@@ -313,7 +330,7 @@ impl Run<'_> {
                     &dirs.staging,
                     run.plan.fanin,
                 )?;
-                crate::fault::point("build");
+                crate::fault::point(crate::fault::Point::Build);
                 finish::replace_db(&dirs.store, &db_new)?;
                 m.phase = Phase::Done;
                 m.save(&run.dirs.work)?;
@@ -332,6 +349,22 @@ impl Run<'_> {
             fsutil::remove_dir(&done)?;
         }
         Ok(())
+    }
+}
+
+/// What the counting phase's spills update, under one lock.
+struct Committed<'m> {
+    manifest: &'m mut Manifest,
+    /// Run files written.
+    runs: u64,
+    /// Bytes of the spills' files.
+    bytes: u64,
+}
+
+/// The error for a lock that a panicking thread left behind.
+fn poisoned() -> Error {
+    Error::Poisoned {
+        what: "the ingest's manifest",
     }
 }
 

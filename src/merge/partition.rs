@@ -92,11 +92,11 @@ pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -
     let spill = |t: &mut Table, runs: &mut Vec<String>| -> Result<()> {
         let name = format!("suffix-{p:04}-{:04}.run", runs.len());
         let mut w = RunWriter::create(&cfg.merged_dir.join(&name), cfg.partitions, 1)?;
-        for (k, v) in t.sorted() {
+        // Dropping the sorted view empties the table.
+        for (k, v) in t.sorted().iter() {
             w.push(partition_of(k.ids()[0], cfg.partitions), &k, &v)?;
         }
         w.finish()?;
-        t.clear();
         runs.push(name);
         Ok(())
     };

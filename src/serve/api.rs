@@ -8,7 +8,7 @@
 //! a scored document ([`crate::docs::DocResult::record`]).
 
 use serde::{Deserialize, Serialize};
-use serde_json::{json, Value};
+use serde_json::Value;
 
 use super::pool::{Local, Source};
 use crate::docs::{Format, Options, RawLine, Record, Worker};
@@ -340,42 +340,4 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
         more: page.next.is_some(),
         next: page.next.map(|k| cursor(k.ids())),
     })
-}
-
-/// `/info`: what is served.
-pub fn info(src: Source<'_>, path: &str) -> Value {
-    match src {
-        Source::Store(s) => {
-            let meta = s.meta();
-            json!({
-                "source": "store",
-                "path": path,
-                "order": meta.settings.order,
-                "method": src.default_method().name(),
-                "methods": Method::ALL.map(|m| m.name()),
-                "vocabulary_size": meta.totals.vocabulary,
-                "ngrams": meta.orders.iter().map(|o| o.ngrams).collect::<Vec<_>>(),
-                "lowercase": meta.settings.lowercase,
-                "tokens": meta.totals.tokens,
-                "sentences": meta.totals.sentences,
-                "counts": true,
-            })
-        }
-        Source::Model(m) => {
-            let meta = m.meta();
-            json!({
-                "source": "model",
-                "path": path,
-                "order": meta.order,
-                "method": meta.method.name(),
-                "methods": [meta.method.name()],
-                "vocabulary_size": meta.vocabulary,
-                "ngrams": meta.ngrams,
-                "store_ngrams": meta.store_ngrams,
-                "lowercase": meta.lowercase,
-                "probabilities": meta.probabilities,
-                "counts": false,
-            })
-        }
-    }
 }

@@ -23,30 +23,36 @@
 //! The network side is axum on a small tokio runtime; the queries run on a
 //! pool of query threads ([`pool`]), each with its own estimators over the
 //! one store (or the one shared model), fed through a bounded queue (full:
-//! 503). SIGTERM or SIGINT stops taking connections, lets the requests under
-//! way finish, joins the query threads and returns.
+//! 503). [`run`] owns no part of the process: when the shutdown future its
+//! caller gives resolves (the binary's resolves on SIGTERM or SIGINT), it
+//! stops taking connections, lets the requests under way finish, joins the
+//! query threads and returns. The statistics figure is drawn in memory.
 
 pub mod api;
+mod info;
 pub mod pool;
 
+use std::future::Future;
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{Arc, OnceLock};
 
 use axum::body::Bytes;
 use axum::extract::rejection::BytesRejection;
-use axum::extract::{DefaultBodyLimit, State};
+use axum::extract::{DefaultBodyLimit, Request, State};
 use axum::http::{header, Method as HttpMethod, StatusCode, Uri};
+use axum::middleware::{self, Next};
 use axum::response::{IntoResponse, Response};
 use axum::routing::{get, post};
 use axum::Router;
 use serde::de::DeserializeOwned;
-use serde_json::{json, Value};
+use serde_json::json;
 
 use crate::error::{Error, Result};
-use crate::stats::plot::write_figure;
+use crate::stats::plot::write_svg;
 use crate::stats::{report, ReportOptions};
 pub use api::Fail;
+pub use info::Info;
 pub use pool::{Jobs, Local, Source};
 
 /// The page, embedded in the binary.
@@ -86,21 +92,25 @@ pub struct Served {
 
 struct Shared {
     jobs: Jobs,
-    info: Value,
+    /// The answer to `/info`, as JSON.
+    info: String,
     figure: OnceLock<std::result::Result<Arc<Vec<u8>>, String>>,
     requests: AtomicU64,
 }
 
 type St = Arc<Shared>;
 
-/// Serves `src` until SIGTERM or SIGINT. `path` is what `/info` names as
-/// the source; `ready` is called with the bound address once requests are
-/// accepted.
+/// Serves `src` until `shutdown` resolves, then lets the requests under
+/// way finish and returns. `path` is what `/info` names as the source;
+/// `ready` is called with the bound address once requests are accepted.
+/// `shutdown` is first polled inside the service's runtime, so it may
+/// install tokio signal handlers there.
 pub fn run(
     src: Source<'_>,
     path: &str,
     opts: &Options,
     ready: impl FnOnce(SocketAddr),
+    shutdown: impl Future<Output = ()> + Send + 'static,
 ) -> Result<Served> {
     let io = |e: std::io::Error| Error::Io {
         path: format!("{}", opts.listen).into(),
@@ -110,7 +120,7 @@ pub fn run(
     let listener = std::net::TcpListener::bind(opts.listen).map_err(io)?;
     listener.set_nonblocking(true).map_err(io)?;
     let addr = listener.local_addr().map_err(io)?;
-    let info = api::info(src, path);
+    let info = serde_json::to_string(&Info::of(src, path)).expect("/info serializes");
     pool::with_pool(src, opts.threads, opts.queue, |jobs| {
         let state = Arc::new(Shared {
             jobs,
@@ -128,7 +138,7 @@ pub fn run(
         rt.block_on(async {
             let l = tokio::net::TcpListener::from_std(listener)?;
             ready(addr);
-            axum::serve(l, app).with_graceful_shutdown(stopped()).await
+            axum::serve(l, app).with_graceful_shutdown(shutdown).await
         })
         .map_err(io)?;
         rt.shutdown_timeout(std::time::Duration::from_secs(5));
@@ -136,16 +146,6 @@ pub fn run(
             requests: state.requests.load(Ordering::Relaxed),
         })
     })
-}
-
-/// Resolves on SIGTERM or SIGINT.
-async fn stopped() {
-    let mut term = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate())
-        .expect("installing the SIGTERM handler");
-    tokio::select! {
-        _ = term.recv() => {}
-        _ = tokio::signal::ctrl_c() => {}
-    }
 }
 
 fn router(state: St, max_body: usize) -> Router {
@@ -161,44 +161,45 @@ fn router(state: St, max_body: usize) -> Router {
         .fallback(not_found)
         .method_not_allowed_fallback(not_allowed)
         .layer(DefaultBodyLimit::max(max_body))
+        // Last, so that it wraps every route and both fallbacks.
+        .layer(middleware::from_fn_with_state(state.clone(), counted))
         .with_state(state)
 }
 
-/// A JSON answer with `status`.
-fn reply(st: &Shared, status: u16, body: String) -> Response {
+/// Counts every request, whatever answers it.
+async fn counted(State(st): State<St>, request: Request, next: Next) -> Response {
     st.requests.fetch_add(1, Ordering::Relaxed);
+    next.run(request).await
+}
+
+/// A JSON answer with `status`.
+fn reply(status: u16, body: String) -> Response {
     let status = StatusCode::from_u16(status).unwrap_or(StatusCode::INTERNAL_SERVER_ERROR);
     (status, [(header::CONTENT_TYPE, "application/json")], body).into_response()
 }
 
-fn error(st: &Shared, status: u16, message: &str) -> Response {
-    reply(st, status, json!({ "error": message }).to_string())
+fn error(status: u16, message: &str) -> Response {
+    reply(status, json!({ "error": message }).to_string())
 }
 
-async fn page(State(st): State<St>) -> Response {
-    st.requests.fetch_add(1, Ordering::Relaxed);
+async fn page() -> Response {
     ([(header::CONTENT_TYPE, "text/html; charset=utf-8")], PAGE).into_response()
 }
 
-async fn health(State(st): State<St>) -> Response {
-    reply(&st, 200, json!({ "ok": true }).to_string())
+async fn health() -> Response {
+    reply(200, json!({ "ok": true }).to_string())
 }
 
 async fn info(State(st): State<St>) -> Response {
-    reply(&st, 200, st.info.to_string())
+    reply(200, st.info.clone())
 }
 
-async fn not_found(State(st): State<St>, method: HttpMethod, uri: Uri) -> Response {
-    error(
-        &st,
-        404,
-        &format!("no such endpoint: {method} {}", uri.path()),
-    )
+async fn not_found(method: HttpMethod, uri: Uri) -> Response {
+    error(404, &format!("no such endpoint: {method} {}", uri.path()))
 }
 
-async fn not_allowed(State(st): State<St>, method: HttpMethod, uri: Uri) -> Response {
+async fn not_allowed(method: HttpMethod, uri: Uri) -> Response {
     error(
-        &st,
         405,
         &format!(
             "{} does not take {method} (GET /health, /info, /stats.svg; POST /prob, /next, /score, /ngrams)",
@@ -221,10 +222,10 @@ async fn on_pool<T: Send + 'static>(
             pool::Refused::Busy => "too many requests are waiting: try again",
             pool::Refused::Stopped => "the service is stopping",
         };
-        return Err(error(st, 503, msg));
+        return Err(error(503, msg));
     }
     rx.await
-        .map_err(|_| error(st, 500, "the query failed (the server's log says why)"))
+        .map_err(|_| error(500, "the query failed (the server's log says why)"))
 }
 
 /// Parses a JSON body into `Q`, answers it with `f` on a query thread.
@@ -241,16 +242,16 @@ async fn answer<Q: DeserializeOwned + Send + 'static>(
             } else {
                 r.body_text()
             };
-            return error(&st, r.status().as_u16(), &msg);
+            return error(r.status().as_u16(), &msg);
         }
     };
     let q: Q = match serde_json::from_slice(&bytes) {
         Ok(q) => q,
-        Err(e) => return error(&st, 400, &format!("bad request body: {e}")),
+        Err(e) => return error(400, &format!("bad request body: {e}")),
     };
     match on_pool(&st, move |l| f(l, q)).await {
-        Ok(Ok(v)) => reply(&st, 200, v),
-        Ok(Err(fail)) => error(&st, fail.status, &fail.message),
+        Ok(Ok(v)) => reply(200, v),
+        Ok(Err(fail)) => error(fail.status, &fail.message),
         Err(resp) => resp,
     }
 }
@@ -285,15 +286,12 @@ async fn figure(State(st): State<St>) -> Response {
         let _ = st.figure.set(made);
     }
     match st.figure.get().expect("set above") {
-        Ok(svg) => {
-            st.requests.fetch_add(1, Ordering::Relaxed);
-            (
-                [(header::CONTENT_TYPE, "image/svg+xml")],
-                svg.as_ref().clone(),
-            )
-                .into_response()
-        }
-        Err(msg) => error(&st, 404, msg),
+        Ok(svg) => (
+            [(header::CONTENT_TYPE, "image/svg+xml")],
+            svg.as_ref().clone(),
+        )
+            .into_response(),
+        Err(msg) => error(404, msg),
     }
 }
 
@@ -310,15 +308,12 @@ fn draw_figure(l: &mut dyn Local) -> std::result::Result<Arc<Vec<u8>>, String> {
         .dir()
         .file_name()
         .map_or("store".into(), |n| n.to_string_lossy().into_owned());
-    static SEQ: AtomicU64 = AtomicU64::new(0);
-    let path = std::env::temp_dir().join(format!(
-        "quern-serve-{}-{}.svg",
-        std::process::id(),
-        SEQ.fetch_add(1, Ordering::Relaxed)
-    ));
-    let out = write_figure(&path, &[(label.as_str(), &rep)])
-        .map_err(|e| e.to_string())
-        .and_then(|()| std::fs::read(&path).map_err(|e| format!("{}: {e}", path.display())));
-    let _ = std::fs::remove_file(&path);
-    out.map(Arc::new)
+    let mut svg = Vec::new();
+    write_svg(
+        &mut svg,
+        std::path::Path::new("/stats.svg"),
+        &[(label.as_str(), &rep)],
+    )
+    .map_err(|e| e.to_string())?;
+    Ok(Arc::new(svg))
 }

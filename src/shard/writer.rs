@@ -54,7 +54,7 @@ impl RunWriter {
     pub fn create(path: &Path, parts: u32, value_width: usize) -> Result<Self> {
         assert!(value_width <= super::MAX_VALUES && parts > 0);
         let tmp = fsutil::tmp_name(path);
-        crate::fault::full("run").at(&tmp, "create")?;
+        crate::fault::full(crate::fault::Full::Run).at(&tmp, "create")?;
         let file = File::create(&tmp).at(&tmp, "create")?;
         let mut out = BufWriter::with_capacity(256 << 10, file);
         let header = header_bytes(value_width as u8, parts);

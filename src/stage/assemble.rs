@@ -90,7 +90,7 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
             .flat_map(|(j, d)| d.ssts.iter().map(|(cf, f)| (cf.clone(), j.join(f))))
             .collect();
         finish::build_db(&meta, dicts, &ssts, &db_new, &work, plan.fanin)?;
-        crate::fault::point("stage-written");
+        crate::fault::point(crate::fault::Point::StageWritten);
         let outcome = match std::fs::rename(&db_new, &db) {
             Ok(()) => Outcome::Written,
             Err(_) if layout::has_db(store_dir) => {
@@ -109,7 +109,7 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
             Err(e) => return Err(Error::io(&db, "rename", e)),
         };
         fsutil::sync_dir(store_dir)?;
-        crate::fault::point("stage-done");
+        crate::fault::point(crate::fault::Point::StageDone);
         fsutil::remove_dir(&work)?;
         Ok(outcome)
     })();

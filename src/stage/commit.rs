@@ -30,15 +30,15 @@ pub enum Outcome {
 /// One task's report (printed by `quern stage` as one JSON line).
 #[derive(Clone, Debug, Serialize)]
 pub struct TaskReport {
-    /// `plan`, `map`, `reduce`, `join` or `assemble`.
+    /// `plan`, `map`, `merge`, `join` or `assemble`.
     pub stage: &'static str,
-    /// Task (map) or partition (reduce, join) number; 0 for plan and assemble.
+    /// Task (map) or partition (merge, join) number; 0 for plan and assemble.
     pub task: u32,
     /// What it did.
     pub outcome: Outcome,
     /// The output folder.
     pub output: PathBuf,
-    /// Input bytes read (map), records merged (reduce), n-grams stored (join).
+    /// Input bytes read (map), records merged (merge), n-grams stored (join).
     pub work: u64,
     /// Bytes of the output's files.
     pub output_bytes: u64,
@@ -221,7 +221,7 @@ pub(crate) fn commit<T: Serialize + DeserializeOwned>(
     };
     fsutil::write_checked_json(&tmp.join(DONE_FILE), &done)?;
     fsutil::sync_dir(tmp)?;
-    crate::fault::point("stage-written");
+    crate::fault::point(crate::fault::Point::StageWritten);
     let outcome = match std::fs::rename(tmp, out) {
         Ok(()) => Outcome::Written,
         Err(_) if out.exists() => {
@@ -247,15 +247,15 @@ pub(crate) fn commit<T: Serialize + DeserializeOwned>(
         Err(e) => return Err(Error::io(out, "rename", e)),
     };
     fsutil::sync_dir(out.parent().unwrap_or(Path::new(".")))?;
-    crate::fault::point("stage-done");
+    crate::fault::point(crate::fault::Point::StageDone);
     Ok((outcome, total))
 }
 
-/// Removes the intermediate outputs of a staged ingest (map, reduce and
+/// Removes the intermediate outputs of a staged ingest (map, merge and
 /// join folders, and temporary folders of attempts that died); the plan
 /// stays. Call only when no task of this directory is running.
 pub fn clean(dir: &Path) -> Result<()> {
-    for sub in ["map", "reduce", "join"] {
+    for sub in ["map", "merge", "join"] {
         fsutil::remove_dir(&dir.join(sub))?;
     }
     for e in std::fs::read_dir(dir).at(dir, "read directory")? {

@@ -11,7 +11,7 @@
 //! DIR/job.json            the plan: settings, partitions, inputs, map tasks
 //! DIR/word-list.txt       the fixed vocabulary, if the plan was given one
 //! DIR/map/m000007/        map task 7: count runs + dictionaries + done.json
-//! DIR/reduce/p0003/       partition 3 merged: counts + continuation runs + done.json
+//! DIR/merge/p0003/       partition 3 merged: counts + continuation runs + done.json
 //! DIR/join/p0003/         partition 3 joined: SST files + statistics in done.json
 //! STORE/db/               the store, built by assemble
 //! ```
@@ -21,11 +21,11 @@
 //!   bytes; the partition count is fixed here and recorded.
 //! * [`run_map`] counts one map task's spans into runs partitioned by the
 //!   first word, plus the dictionaries of their words.
-//! * [`run_reduce`] merges one partition across every map output and emits
+//! * [`run_merge`] merges one partition across every map output and emits
 //!   the continuation contributions of its n-grams, partitioned by suffix
 //!   (the second shuffle).
 //! * [`run_join`] joins one partition's merged counts with its continuation
-//!   contributions from every reduce output, writing SST files and the
+//!   contributions from every merge output, writing SST files and the
 //!   partition's share of the statistics.
 //! * [`run_assemble`] merges the dictionaries into the vocabulary, sums the
 //!   statistics and builds the store from every partition's SST files.
@@ -56,7 +56,7 @@ mod tasks;
 pub use assemble::run_assemble;
 pub use commit::{clean, read_done, Done, FileSum, Outcome, TaskReport};
 pub use plan::{plan, Job, PlanOptions};
-pub use tasks::{run_join, run_map, run_reduce};
+pub use tasks::{run_join, run_map, run_merge};
 
 use std::path::{Path, PathBuf};
 
@@ -73,9 +73,9 @@ pub fn map_dir(dir: &Path, t: u32) -> PathBuf {
     dir.join("map").join(format!("m{t:06}"))
 }
 
-/// The output folder of partition `p`'s reduce.
-pub fn reduce_dir(dir: &Path, p: u32) -> PathBuf {
-    dir.join("reduce").join(format!("p{p:04}"))
+/// The output folder of partition `p`'s merge.
+pub fn merge_dir(dir: &Path, p: u32) -> PathBuf {
+    dir.join("merge").join(format!("p{p:04}"))
 }
 
 /// The output folder of partition `p`'s join.

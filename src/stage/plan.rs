@@ -24,7 +24,7 @@ pub struct Job {
     pub format_version: u32,
     /// Counting settings.
     pub settings: Settings,
-    /// Number of hash partitions (reduce and join tasks).
+    /// Number of hash partitions (merge and join tasks).
     pub partitions: u32,
     /// The inputs, as found when planned.
     pub inputs: Vec<InputFile>,

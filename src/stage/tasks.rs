@@ -1,4 +1,4 @@
-//! The map, reduce and join tasks.
+//! The map, merge and join tasks.
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicU64;
@@ -8,7 +8,7 @@ use std::time::Instant;
 use serde::{Deserialize, Serialize};
 
 use super::commit::{commit, finished, need_done, temp_dir_for, Done, Outcome, TaskReport};
-use super::{join_dir, map_dir, reduce_dir, Job};
+use super::{join_dir, map_dir, merge_dir, Job};
 use crate::count::{count_spans, CountConfig, Spill};
 use crate::error::{Error, Result};
 use crate::fsutil;
@@ -130,11 +130,11 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {
-            spills.lock().unwrap_or_else(|e| e.into_inner()).push(s);
+            spills.lock().map_err(|_| poisoned())?.push(s);
             Ok(())
         };
         count_spans(&cfg, spans, &keep)?;
-        let mut spills = spills.into_inner().unwrap_or_else(|e| e.into_inner());
+        let mut spills = spills.into_inner().map_err(|_| poisoned())?;
         spills.sort_by_key(|s| s.id);
         let mut r = MapResult {
             runs: vec![],
@@ -163,18 +163,18 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
     finish_temp(&tmp, r).map(|(o, b, w)| report("map", task, o, out, w, b, t0))
 }
 
-/// Reduce task of partition `p`: merges section `p` of every map output
-/// into `DIR/reduce/p<p>/` (merged counts, and the continuation
+/// Merge task of partition `p`: merges section `p` of every map output
+/// into `DIR/merge/p<p>/` (merged counts, and the continuation
 /// contributions of its n-grams for every partition).
-pub fn run_reduce(dir: &Path, p: u32, memory: u64) -> Result<TaskReport> {
+pub fn run_merge(dir: &Path, p: u32, memory: u64) -> Result<TaskReport> {
     let t0 = Instant::now();
     let job = Job::load(dir)?;
     let id = job.id();
     check_partition(&job, p, dir)?;
-    let out = reduce_dir(dir, p);
-    if let Some(d) = finished::<Merged>(&out, "reduce", p, &id) {
+    let out = merge_dir(dir, p);
+    if let Some(d) = finished::<Merged>(&out, "merge", p, &id) {
         return Ok(report(
-            "reduce",
+            "merge",
             p,
             Outcome::Skipped,
             out,
@@ -202,30 +202,19 @@ pub fn run_reduce(dir: &Path, p: u32, memory: u64) -> Result<TaskReport> {
     let records: u64 = files.iter().map(|f| f.records(p)).sum();
     let tmp = temp_dir_for(&out)?;
     let r = (|| {
-        let rounds = tmp.join("rounds");
-        fsutil::create_dir(&rounds)?;
-        let next_tmp = AtomicU64::new(0);
-        let cfg = MergeConfig {
-            order: job.settings.order,
-            partitions: job.partitions,
-            fanin: plan.fanin,
-            worker_bytes: plan.merge_worker,
-            merged_dir: &tmp,
-            tmp_dir: &rounds,
-            next_tmp: &next_tmp,
-        };
-        let merged = merge_partition(&cfg, p, files.iter().map(|f| (f.clone(), p)).collect())?;
-        fsutil::remove_dir(&rounds)?;
+        let merged = with_merge_config(&job, &plan, &tmp, |cfg| {
+            merge_partition(cfg, p, files.iter().map(|f| (f.clone(), p)).collect())
+        })?;
         let names = std::iter::once(merged.counts.clone())
             .chain(merged.suffix_runs.iter().cloned())
             .collect();
-        commit(&tmp, &out, "reduce", p, &id, names, merged)
+        commit(&tmp, &out, "merge", p, &id, names, merged)
     })();
-    finish_temp(&tmp, r).map(|(o, b)| report("reduce", p, o, out, records, b, t0))
+    finish_temp(&tmp, r).map(|(o, b)| report("merge", p, o, out, records, b, t0))
 }
 
 /// Join task of partition `q`: joins `q`'s merged counts with section `q`
-/// of every reduce output's continuation runs into `DIR/join/p<q>/` (SST
+/// of every merge output's continuation runs into `DIR/join/p<q>/` (SST
 /// files, and the partition's statistics in `done.json`).
 pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
     let t0 = Instant::now();
@@ -248,8 +237,8 @@ pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
     let mut suffix = Vec::new();
     let mut counts = None;
     for p in 0..job.partitions {
-        let r = reduce_dir(dir, p);
-        let d = need_done::<Merged>(&r, "reduce", p, &id)?;
+        let r = merge_dir(dir, p);
+        let d = need_done::<Merged>(&r, "merge", p, &id)?;
         for f in &d.result.suffix_runs {
             suffix.push(RunFile::open(&r.join(f))?);
         }
@@ -270,32 +259,46 @@ pub fn run_join(dir: &Path, q: u32, memory: u64) -> Result<TaskReport> {
     let plan = Plan::new(memory, 1)?;
     let tmp = temp_dir_for(&out)?;
     let r = (|| {
-        let rounds = tmp.join("rounds");
-        fsutil::create_dir(&rounds)?;
-        let next_tmp = AtomicU64::new(0);
-        let cfg = MergeConfig {
-            order: job.settings.order,
-            partitions: job.partitions,
-            fanin: plan.fanin,
-            worker_bytes: plan.merge_worker,
-            merged_dir: &tmp,
-            tmp_dir: &rounds,
-            next_tmp: &next_tmp,
-        };
-        let joined = join_partition(
-            &cfg,
-            q,
-            &counts,
-            suffix.iter().map(|f| (f.clone(), q)).collect(),
-            &ranks,
-            &tmp,
-        )?;
-        fsutil::remove_dir(&rounds)?;
+        let joined = with_merge_config(&job, &plan, &tmp, |cfg| {
+            join_partition(
+                cfg,
+                q,
+                &counts,
+                suffix.iter().map(|f| (f.clone(), q)).collect(),
+                &ranks,
+                &tmp,
+            )
+        })?;
         let n: u64 = joined.stats.ngrams.iter().sum();
         let names = joined.ssts.iter().map(|(_, f)| f.clone()).collect();
         commit(&tmp, &out, "join", q, &id, names, joined).map(|(o, b)| (o, b, n))
     })();
     finish_temp(&tmp, r).map(|(o, b, n)| report("join", q, o, out, n, b, t0))
+}
+
+/// Runs `f` with the merge settings of a partition task whose output goes
+/// to `tmp`, its merge rounds in `tmp/rounds` (removed after).
+fn with_merge_config<T>(
+    job: &Job,
+    plan: &Plan,
+    tmp: &Path,
+    f: impl FnOnce(&MergeConfig) -> Result<T>,
+) -> Result<T> {
+    let rounds = tmp.join("rounds");
+    fsutil::create_dir(&rounds)?;
+    let next_tmp = AtomicU64::new(0);
+    let cfg = MergeConfig {
+        order: job.settings.order,
+        partitions: job.partitions,
+        fanin: plan.fanin,
+        worker_bytes: plan.merge_worker,
+        merged_dir: tmp,
+        tmp_dir: &rounds,
+        next_tmp: &next_tmp,
+    };
+    let out = f(&cfg)?;
+    fsutil::remove_dir(&rounds)?;
+    Ok(out)
 }
 
 fn check_partition(job: &Job, p: u32, dir: &Path) -> Result<()> {
@@ -316,4 +319,12 @@ fn finish_temp<T>(tmp: &Path, r: Result<T>) -> Result<T> {
         let _ = fsutil::remove_dir(tmp);
     }
     r
+}
+
+/// The error for the spill list that a panicking counting thread left
+/// behind.
+fn poisoned() -> Error {
+    Error::Poisoned {
+        what: "the map task's list of spills",
+    }
 }

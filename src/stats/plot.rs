@@ -17,11 +17,13 @@
 //! filled markers, left-type counts dashed lines with hollow markers, so the
 //! figure reads in grey too. Fits are dashed black lines.
 //!
-//! `.svg` files are written by the SVG backend (text as `<text>`, no font
-//! needed); `.png` by the bitmap backend with the DejaVu Sans font embedded
+//! SVG is drawn in memory by the SVG backend (text as `<text>`, no font
+//! needed) and written to any `W: Write` ([`write_svg`]); `.png` files by
+//! the bitmap backend with the DejaVu Sans font embedded
 //! in the binary (fixtures/fonts/, with its licence), so no system fonts are
 //! needed.
 
+use std::io::Write;
 use std::path::Path;
 use std::sync::Once;
 
@@ -69,17 +71,16 @@ pub fn write_figure(path: &Path, reports: &[(&str, &Report)]) -> Result<()> {
         .extension()
         .map(|e| e.to_string_lossy().to_lowercase())
         .unwrap_or_default();
-    let size = (1800u32, 560 * reports.len().max(1) as u32);
+    let size = figure_size(reports);
     let err = |e: String| Error::Plot {
         path: path.to_path_buf(),
         detail: e,
     };
     match ext.as_str() {
         "svg" => {
-            register_font();
-            let root = SVGBackend::new(path, size).into_drawing_area();
-            draw(&root, reports).map_err(err)?;
-            root.present().map_err(|e| err(e.to_string()))
+            let mut out = Vec::new();
+            write_svg(&mut out, path, reports)?;
+            std::fs::write(path, &out).map_err(|e| err(e.to_string()))
         }
         "png" => {
             register_font();
@@ -91,6 +92,30 @@ pub fn write_figure(path: &Path, reports: &[(&str, &Report)]) -> Result<()> {
             "the figure's file name must end in .svg or .png".to_string()
         )),
     }
+}
+
+/// Writes the figure of `reports` (each with a label) as SVG to `out`;
+/// `name` is what an error calls the figure.
+pub fn write_svg(out: &mut impl Write, name: &Path, reports: &[(&str, &Report)]) -> Result<()> {
+    let size = figure_size(reports);
+    let err = |e: String| Error::Plot {
+        path: name.to_path_buf(),
+        detail: e,
+    };
+    register_font();
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        draw(&root, reports).map_err(err)?;
+        root.present().map_err(|e| err(e.to_string()))?;
+    }
+    out.write_all(svg.as_bytes())
+        .map_err(|e| Error::io(name, "write", e))
+}
+
+/// Width and height of the figure of `reports`: a row per report.
+fn figure_size(reports: &[(&str, &Report)]) -> (u32, u32) {
+    (1800, 560 * reports.len().max(1) as u32)
 }
 
 type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, LogCoord<f64>>>;

@@ -80,7 +80,7 @@ impl<'a> SstSet<'a> {
         if slot.is_none() {
             let name = format!("{}-{cf}.sst", self.prefix);
             let path = self.dir.join(&name);
-            crate::fault::full("sst").at(&path, "create")?;
+            crate::fault::full(crate::fault::Full::Sst).at(&path, "create")?;
             let w = SstFileWriter::create(self.opts);
             w.open(&path).map_err(rocks(&path))?;
             *slot = Some((w, name));

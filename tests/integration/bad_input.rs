@@ -6,6 +6,8 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     assert_views_eq, gutenberg_dir, ingest_args, ingest_ok, run, run_env, stats_json, store_view,
 };
@@ -187,7 +189,7 @@ fn counted_part_changed_behind_the_same_size_and_time_is_refused() {
         "--quiet",
     ];
     let args = ingest_args(&store, &flags, std::slice::from_ref(&input));
-    let r = run_env(&args, &[("QUERN_KILL_AT", "committed:2")]);
+    let r = run_env(&args, &[(KILL_VAR, Point::Committed.at(2).as_str())]);
     assert!(
         !r.status.success(),
         "kill point not reached\n{}",

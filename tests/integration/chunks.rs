@@ -10,6 +10,8 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     assert_views_eq, checked_json, gutenberg_dir, ingest_args, manifest, run_env, store_view, Run,
 };
@@ -94,7 +96,10 @@ fn ingest_of_novels_cut_into_small_chunks_equals_the_reference() {
         &store,
         &flags,
         &files,
-        &[(CHUNK_VAR, "4099"), ("QUERN_KILL_AT", "committed:2")],
+        &[
+            (CHUNK_VAR, "4099"),
+            (KILL_VAR, Point::Committed.at(2).as_str()),
+        ],
     );
     assert_eq!(r.signal(), Some(9), "{}", r.describe());
     let m = manifest(&store);
@@ -184,7 +189,10 @@ fn awkward_lines_one_chunk_per_line_equal_the_reference() {
             &store,
             &flags,
             &files,
-            &[(CHUNK_VAR, chunk), ("QUERN_KILL_AT", "committed:1")],
+            &[
+                (CHUNK_VAR, chunk),
+                (KILL_VAR, Point::Committed.at(1).as_str()),
+            ],
         );
         assert_eq!(r.signal(), Some(9), "{}", r.describe());
         let m = manifest(&store);
@@ -226,7 +234,7 @@ fn awkward_lines_one_chunk_per_line_equal_the_reference() {
 }
 
 /// The same two novels through `quern stage` (plan, map with 3 threads,
-/// reduce, join, assemble), planned with chunks of 4,099 bytes packed into
+/// merge, join, assemble), planned with chunks of 4,099 bytes packed into
 /// 3 map tasks: each task reads about 70 scattered chunks. The reference's
 /// counts exactly.
 #[test]
@@ -285,7 +293,7 @@ fn stage_tasks_over_small_chunks_equal_the_reference() {
             "32MiB",
         ]);
     }
-    for st in ["reduce", "join"] {
+    for st in ["merge", "join"] {
         for q in 0..4 {
             let q = q.to_string();
             stage(&[st, "--dir", &d, "--partition", &q, "--memory", "32MiB"]);

@@ -5,6 +5,8 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     assert_lines_eq, assert_views_eq, dump_sorted, ingest_args, ingest_ok, manifest, run, run_env,
     run_ok, run_with_stdin, stats_json, store_view,
@@ -408,7 +410,7 @@ fn one_huge_sentence_overflowing_the_table() {
     // must then give the reference's counts too.
     let stopped = run_env(
         &ingest_args(&store, &args, std::slice::from_ref(&input)),
-        &[("QUERN_KILL_AT", "committed:1")],
+        &[(KILL_VAR, Point::Committed.at(1).as_str())],
     );
     assert_eq!(stopped.signal(), Some(9), "{}", stopped.describe());
     let runs = manifest(&store)["runsets"][0]["runs"]
@@ -515,4 +517,63 @@ fn demo_corpus_default_method_and_headers() {
         page.starts_with("ngram\tcount\tcontinuation\tprobability\tlog10\n"),
         "{page}"
     );
+}
+
+/// Flag values are parsed before a command runs: a bad method, discount
+/// policy or size is refused with the library's message (the one the
+/// Python module gives), even where the store does not exist, which the
+/// command would otherwise report first.
+#[test]
+fn flag_values_are_refused_before_the_command_runs() {
+    let tmp = tempfile::tempdir().unwrap();
+    let missing = tmp.path().join("no-store");
+    let m = missing.to_str().unwrap();
+    for (args, says) in [
+        (
+            vec!["prob", "--store", m, "--method", "nope", "a", "b"],
+            "unknown method \"nope\"",
+        ),
+        (
+            vec!["ngrams", "--store", m, "--method", "nope", "a"],
+            "unknown method \"nope\"",
+        ),
+        (
+            vec!["prob", "--store", m, "--discounts", "sometimes", "a", "b"],
+            "--discounts \"sometimes\"",
+        ),
+        (
+            vec!["ingest", "--store", m, "--memory", "lots", m],
+            "\"lots\" is not a size",
+        ),
+        (
+            vec!["serve", "--store", m, "--max-request-bytes", "1XB"],
+            "unknown unit",
+        ),
+        (
+            vec![
+                "stage",
+                "merge",
+                "--dir",
+                m,
+                "--partition",
+                "0",
+                "--memory",
+                "lots",
+            ],
+            "\"lots\" is not a size",
+        ),
+    ] {
+        let r = run(&args);
+        r.assert_failure();
+        let errors: Vec<&str> = r
+            .stderr
+            .lines()
+            .filter(|l| l.starts_with("quern: error: "))
+            .collect();
+        assert!(
+            errors.len() == 1 && errors[0].contains(says) && !errors[0].contains("no-store"),
+            "{args:?}: want one error saying {says:?}\n{}",
+            r.describe()
+        );
+    }
 }

@@ -186,8 +186,8 @@ fn to_strings<S: AsRef<OsStr>>(args: &[S]) -> Vec<String> {
 pub fn command<S: AsRef<OsStr>>(args: &[S], env: &[(&str, &str)]) -> Command {
     let mut cmd = Command::new(bin());
     cmd.args(args);
-    cmd.env_remove("QUERN_KILL_AT");
-    cmd.env_remove("QUERN_FULL_AT");
+    cmd.env_remove(quern::fault::KILL_VAR);
+    cmd.env_remove(quern::fault::FULL_VAR);
     for (k, v) in env {
         cmd.env(k, v);
     }

@@ -8,6 +8,8 @@
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{assert_views_eq, ingest_args, ingest_ok, run, run_env, store_view, StoreView};
 
 use crate::common::TINY_BUDGET as FLAGS;
@@ -53,10 +55,7 @@ fn damage(path: &Path, how: Damage) {
 /// Kills an ingest at `point`, then returns the first file (sorted) of
 /// `work/<sub>` whose name ends in `suffix`.
 fn interrupted(store: &Path, point: &str, sub: &str, suffix: &str) -> PathBuf {
-    let r = run_env(
-        &ingest_args(store, FLAGS, &input()),
-        &[("QUERN_KILL_AT", point)],
-    );
+    let r = run_env(&ingest_args(store, FLAGS, &input()), &[(KILL_VAR, point)]);
     assert!(
         !r.status.success(),
         "QUERN_KILL_AT={point} was never reached\n{}",
@@ -104,22 +103,22 @@ fn repaired_after(point: &str, sub: &str, suffix: &str) {
 
 #[test]
 fn damaged_count_run_is_counted_again() {
-    repaired_after("committed:3", "runs", ".run");
+    repaired_after(&Point::Committed.at(3), "runs", ".run");
 }
 
 #[test]
 fn damaged_dictionary_is_counted_again() {
-    repaired_after("committed:3", "runs", ".dict");
+    repaired_after(&Point::Committed.at(3), "runs", ".dict");
 }
 
 #[test]
 fn damaged_manifest_falls_back_to_the_previous_one() {
-    repaired_after("committed:3", "", "manifest.json");
+    repaired_after(&Point::Committed.at(3), "", "manifest.json");
 }
 
 #[test]
 fn damaged_merged_partition_is_merged_again() {
-    repaired_after("merge:3", "merged", ".run");
+    repaired_after(&Point::Merge.at(3), "merged", ".run");
 }
 
 /// Once the count runs are deleted (joining), a damaged merged partition
@@ -130,7 +129,7 @@ fn damaged_merge_after_runs_are_gone_names_the_file() {
     for how in DAMAGES {
         let tmp = tempfile::tempdir().unwrap();
         let store = tmp.path().join("store");
-        let f = interrupted(&store, "join:1", "merged", ".run");
+        let f = interrupted(&store, &Point::Join.at(1), "merged", ".run");
         damage(&f, how);
         let r = run(&ingest_args(&store, FLAGS, &input()));
         r.assert_failure();

@@ -11,6 +11,8 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use quern::fault::{Full, FULL_VAR};
+
 use crate::common::{
     assert_views_eq, ingest_args, ingest_ok, notice, run, run_env, store_view, Run, StoreView,
 };
@@ -83,7 +85,7 @@ fn injected(expected: &StoreView, spec: &str) {
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("store");
     let args = ingest_args(&store, FLAGS, &input());
-    let r = run_env(&args, &[("QUERN_FULL_AT", spec)]);
+    let r = run_env(&args, &[(FULL_VAR, spec)]);
     assert_disk_full_message(&format!("QUERN_FULL_AT={spec}"), &store, &r);
     run(&args).assert_success();
     assert_views_eq(
@@ -98,8 +100,8 @@ fn injected(expected: &StoreView, spec: &str) {
 #[test]
 fn injected_disk_full_then_resume() {
     let expected = baseline();
-    for spec in ["run:4", "sst:20", "build:1"] {
-        injected(&expected, spec);
+    for spec in [Full::Run.at(4), Full::Sst.at(20), Full::Build.at(1)] {
+        injected(&expected, &spec);
     }
 }
 
@@ -114,7 +116,7 @@ fn small_tmpfs_disk_full_then_resume() {
             notice(&format!(
                 "disk_full::small_tmpfs_disk_full_then_resume: cannot mount a tmpfs of {size} here (not root, or not allowed): ran the injected out-of-space case (QUERN_FULL_AT=run:4) instead of a real full file system"
             ));
-            injected(&expected, "run:4");
+            injected(&expected, &Full::Run.at(4));
             return;
         };
         let store = fs.0.join("store");

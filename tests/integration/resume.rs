@@ -11,6 +11,8 @@ use std::time::{Duration, Instant};
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     assert_lines_eq, assert_views_eq, command, gutenberg_files, ingest_args, ingest_ok, manifest,
     run, run_env, store_view, wait_timeout, StoreView,
@@ -44,7 +46,7 @@ const SIGKILL: i32 = 9;
 /// it reaches the point).
 fn run_killed(store: &Path, spec: &str) {
     let args = ingest_args(store, FLAGS, &small_input());
-    let r = run_env(&args, &[("QUERN_KILL_AT", spec)]);
+    let r = run_env(&args, &[(KILL_VAR, spec)]);
     assert!(
         !r.status.success(),
         "QUERN_KILL_AT={spec}: ingest finished successfully, so the kill point was never reached that often\n{}",
@@ -75,29 +77,54 @@ fn kill_and_resume(spec: &str) {
     );
 }
 
+/// A fault variable that names no point, or has no count, is refused before
+/// anything is counted (a misspelled point would otherwise never fire and
+/// the crash test would pass without a crash).
+#[test]
+fn unknown_fault_point_is_refused() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("store");
+    let args = ingest_args(&store, FLAGS, &small_input());
+    for (var, value) in [
+        (KILL_VAR, "comitted:1"),
+        (KILL_VAR, "merge"),
+        (KILL_VAR, "merge:0"),
+        (quern::fault::FULL_VAR, "spill:1"),
+    ] {
+        let r = run_env(&args, &[(var, value)]);
+        r.assert_failure();
+        assert!(
+            r.stderr.contains(&format!("{var}={value}")) && r.stderr.contains("<point>:<n>"),
+            "{var}={value}: the error names the variable and the points\n{}",
+            r.describe()
+        );
+        assert!(!store.exists(), "{var}={value}: the store was created");
+    }
+}
+
 #[test]
 fn resume_after_kill_at_spill_3() {
-    kill_and_resume("spill:3");
+    kill_and_resume(&Point::Spill.at(3));
 }
 
 #[test]
 fn resume_after_kill_at_committed_2() {
-    kill_and_resume("committed:2");
+    kill_and_resume(&Point::Committed.at(2));
 }
 
 #[test]
 fn resume_after_kill_at_merge_2() {
-    kill_and_resume("merge:2");
+    kill_and_resume(&Point::Merge.at(2));
 }
 
 #[test]
 fn resume_after_kill_at_join_3() {
-    kill_and_resume("join:3");
+    kill_and_resume(&Point::Join.at(3));
 }
 
 #[test]
 fn resume_after_kill_at_build_1() {
-    kill_and_resume("build:1");
+    kill_and_resume(&Point::Build.at(1));
 }
 
 /// Several kills in a row, each resume killed again at a later point, then a
@@ -111,14 +138,14 @@ fn resume_after_repeated_kills() {
     let mut kills = 0;
     let mut finished = false;
     for spec in [
-        "spill:2",
-        "committed:1",
-        "spill:1",
-        "merge:1",
-        "join:1",
-        "build:1",
+        Point::Spill.at(2),
+        Point::Committed.at(1),
+        Point::Spill.at(1),
+        Point::Merge.at(1),
+        Point::Join.at(1),
+        Point::Build.at(1),
     ] {
-        let r = run_env(&args, &[("QUERN_KILL_AT", spec)]);
+        let r = run_env(&args, &[(KILL_VAR, spec.as_str())]);
         if r.status.success() {
             finished = true;
             break;
@@ -150,7 +177,7 @@ fn resume_after_repeated_kills() {
 fn resume_with_other_order_is_refused_and_restart_discards() {
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("store");
-    run_killed(&store, "committed:1");
+    run_killed(&store, &Point::Committed.at(1));
 
     let order4: Vec<&str> = vec!["--order", "4", "--memory", "32MiB", "--threads", "2"];
     let r = run(&ingest_args(&store, &order4, &small_input()));
@@ -174,12 +201,12 @@ fn resume_with_other_order_is_refused_and_restart_discards() {
 fn restart_same_order_after_kill() {
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("store");
-    run_killed(&store, "merge:1");
+    run_killed(&store, &Point::Merge.at(1));
     let mut flags = FLAGS.to_vec();
     flags.push("--restart");
     run(&ingest_args(&store, &flags, &small_input())).assert_success();
     assert_views_eq(
-        "--restart after kill at merge:1",
+        &format!("--restart after kill at {}", Point::Merge.at(1)),
         baseline(),
         &store_view(&store),
     );
@@ -396,7 +423,7 @@ fn resume_reuses_recorded_spills_merges_and_joins() {
     let work = store.join("work");
     let mut args = ingest_args(&store, FLAGS, &small_input());
     let killed = |spec: &str| {
-        let r = run_env(&args, &[("QUERN_KILL_AT", spec)]);
+        let r = run_env(&args, &[(KILL_VAR, spec)]);
         assert_eq!(
             r.signal(),
             Some(SIGKILL),
@@ -407,14 +434,14 @@ fn resume_reuses_recorded_spills_merges_and_joins() {
     };
 
     // Counting: three spills recorded.
-    let m1 = killed("committed:3");
+    let m1 = killed(&Point::Committed.at(3));
     assert_eq!(m1["phase"], "counting", "{}", m1["phase"]);
     let s1 = spills(&m1);
     assert!(s1.len() >= 3, "{} spills recorded", s1.len());
     let files1 = identities(&work.join("runs"), s1.values().flat_map(|s| &s.0));
 
     // The resume counts only the rest: stopped after its second merge.
-    let m2 = killed("merge:2");
+    let m2 = killed(&Point::Merge.at(2));
     assert_eq!(m2["phase"], "merging", "{}", m2["phase"]);
     let s2 = spills(&m2);
     for (id, s) in &s1 {
@@ -464,7 +491,7 @@ fn resume_reuses_recorded_spills_merges_and_joins() {
     let merged2 = identities(&work.join("merged"), p2.values().flatten());
 
     // Joining, stopped after its second join.
-    let m3 = killed("join:2");
+    let m3 = killed(&Point::Join.at(2));
     assert_eq!(m3["phase"], "joining", "{}", m3["phase"]);
     let p3 = partitions(&m3, "merged");
     for (p, files) in &p2 {
@@ -480,7 +507,7 @@ fn resume_reuses_recorded_spills_merges_and_joins() {
     let joined3 = identities(&work.join("sst"), j3.values().flatten());
 
     // Building, stopped before the database is moved into place.
-    let m4 = killed("build:1");
+    let m4 = killed(&Point::Build.at(1));
     let j4 = partitions(&m4, "joined");
     for (p, files) in &j3 {
         assert_eq!(j4.get(p), Some(files), "partition {p} joined before");
@@ -513,7 +540,7 @@ fn resume_reuses_recorded_spills_merges_and_joins() {
 fn resume_after_the_merges_counts_and_merges_nothing() {
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("store");
-    run_killed(&store, "join:2");
+    run_killed(&store, &Point::Join.at(2));
     let mut args = ingest_args(&store, FLAGS, &small_input());
     args.push("--json".into());
     let r = run(&args);

@@ -332,11 +332,31 @@ fn check_score(srv: &Server, model: bool, dir: &Path) {
 fn check_info(srv: &Server, model: bool) {
     let (st, text) = srv.call("GET", "/info", None);
     assert_eq!(st, 200);
+    // The keys come in the order the API table of src/serve/mod.rs lists
+    // them (serde_json's map would sort them by name).
+    let at: Vec<usize> = [
+        "source",
+        "order",
+        "method",
+        "methods",
+        "vocabulary_size",
+        "ngrams",
+    ]
+    .iter()
+    .map(|k| {
+        text.find(&format!("\"{k}\":"))
+            .unwrap_or_else(|| panic!("no {k}: {text}"))
+    })
+    .collect();
+    assert!(
+        at.windows(2).all(|w| w[0] < w[1]),
+        "/info key order: {text}"
+    );
     let got = parse(&text);
     let (store, m) = fixture();
     let stats = parse(&run_ok(&["stats", "--json", "--store", store.to_str().unwrap()]).stdout);
     // Source of truth: `quern stats --json` of the store the model was
-    // frozen from, and `quern freeze --verify` for what the model holds.
+    // frozen from, and `quern check-model` for what the model holds.
     assert_eq!(got["order"], stats["settings"]["order"]);
     assert_eq!(got["vocabulary_size"], stats["totals"]["vocabulary"]);
     let per_order: Vec<Value> = stats["orders"]
@@ -353,7 +373,7 @@ fn check_info(srv: &Server, model: bool) {
             .iter()
             .map(|n| n.as_u64().unwrap())
             .sum();
-        let verify = run_ok(&["freeze", "--verify", m.to_str().unwrap()]);
+        let verify = run_ok(&["check-model", m.to_str().unwrap()]);
         let said = thousands(held);
         assert!(
             verify.stdout.contains(&format!("{said} n-grams"))

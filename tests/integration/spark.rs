@@ -141,7 +141,7 @@ fn outcomes(task: &Value) -> Vec<String> {
         .collect()
 }
 
-/// Five map tasks, seven partitions (seven reduce and seven join tasks).
+/// Five map tasks, seven partitions (seven merge and seven join tasks).
 #[test]
 fn spark_store_equals_single_machine_ingest() {
     let submit = spark_submit();
@@ -153,7 +153,7 @@ fn spark_store_equals_single_machine_ingest() {
     assert!(r.ok, "spark job failed:\n{}", tail(&r.output));
     let report = r.report.expect("report written");
     assert_eq!(report["tasks"]["map"], 5, "{}", report["tasks"]);
-    assert_eq!(report["tasks"]["reduce"], 7);
+    assert_eq!(report["tasks"]["merge"], 7);
     assert_eq!(report["tasks"]["join"], 7);
     assert_raw_eq(
         "spark, 5 map tasks, 7 partitions",
@@ -161,12 +161,12 @@ fn spark_store_equals_single_machine_ingest() {
         &raw_view(&store),
     );
     eprintln!(
-        "spark local[2]: fixtures/gutenberg, 5 map + 7 reduce + 7 join tasks: {:.1} s wall (spark-submit), stages {}",
+        "spark local[2]: fixtures/gutenberg, 5 map + 7 merge + 7 join tasks: {:.1} s wall (spark-submit), stages {}",
         r.seconds, report["stage_seconds"]
     );
 }
 
-/// One map task killed before its commit and one reduce task killed just
+/// One map task killed before its commit and one merge task killed just
 /// after it (first attempts only; Spark retries them), one map and one join
 /// task run as two copies at once: the store is unchanged. Then the whole
 /// job run again on the same directory skips every task.
@@ -178,7 +178,7 @@ fn spark_killed_and_doubled_tasks_leave_the_store_unchanged() {
     let mut args = job_args(&dir, &store, 4, 3);
     for (flag, v) in [
         ("--fault-kill", "map:1:stage-written"),
-        ("--fault-kill", "reduce:2:stage-done"),
+        ("--fault-kill", "merge:2:stage-done"),
         ("--fault-twice", "map:0"),
         ("--fault-twice", "join:3"),
     ] {
@@ -194,13 +194,13 @@ fn spark_killed_and_doubled_tasks_leave_the_store_unchanged() {
         tail(&r.output)
     );
     // The killed tasks succeeded on their second attempt: the map task wrote
-    // its output again, the reduce task found its committed output.
+    // its output again, the merge task found its committed output.
     let m1 = &stage_results(&report, "map")[1];
     assert_eq!(
         (m1["attempt"].as_u64(), outcomes(m1)),
         (Some(1), vec!["written".into()])
     );
-    let r2 = &stage_results(&report, "reduce")[2];
+    let r2 = &stage_results(&report, "merge")[2];
     assert_eq!(
         (r2["attempt"].as_u64(), outcomes(r2)),
         (Some(1), vec!["skipped".into()])
@@ -224,7 +224,7 @@ fn spark_killed_and_doubled_tasks_leave_the_store_unchanged() {
         tail(&again.output)
     );
     let report = again.report.unwrap();
-    for stage in ["plan", "map", "reduce", "join", "assemble"] {
+    for stage in ["plan", "map", "merge", "join", "assemble"] {
         for t in stage_results(&report, stage) {
             assert_eq!(outcomes(t), ["skipped"], "{stage}: {t}");
         }

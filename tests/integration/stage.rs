@@ -7,6 +7,8 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{command, gutenberg_files, ingest_ok, run, run_env, run_ok};
 
 /// The three outputs that describe a whole store, as printed: `dump`,
@@ -126,7 +128,7 @@ fn run_all(dir: &Path, store: &Path, plan: &Value) -> Vec<Value> {
     for t in 0..plan["map_tasks"].as_u64().unwrap() {
         reports.push(stage_ok(&task_args("map", dir, t)));
     }
-    for st in ["reduce", "join"] {
+    for st in ["merge", "join"] {
         for p in 0..plan["partitions"].as_u64().unwrap() {
             reports.push(stage_ok(&task_args(st, dir, p)));
         }
@@ -316,18 +318,18 @@ fn stage_tasks_twice_at_once_killed_or_damaged() {
 
     // Killed after writing, before the commit: the next attempt writes.
     let r = run_env(
-        &[&["stage".to_string()][..], &task_args("reduce", &dir, 0)].concat(),
-        &[("QUERN_KILL_AT", "stage-written:1")],
+        &[&["stage".to_string()][..], &task_args("merge", &dir, 0)].concat(),
+        &[(KILL_VAR, Point::StageWritten.at(1).as_str())],
     );
     assert_eq!(r.signal(), Some(9), "{}", r.describe());
-    assert_eq!(outcome(&stage_ok(&task_args("reduce", &dir, 0))), "written");
+    assert_eq!(outcome(&stage_ok(&task_args("merge", &dir, 0))), "written");
     // Killed just after the commit: the next attempt skips.
     let r = run_env(
-        &[&["stage".to_string()][..], &task_args("reduce", &dir, 1)].concat(),
-        &[("QUERN_KILL_AT", "stage-done:1")],
+        &[&["stage".to_string()][..], &task_args("merge", &dir, 1)].concat(),
+        &[(KILL_VAR, Point::StageDone.at(1).as_str())],
     );
     assert_eq!(r.signal(), Some(9), "{}", r.describe());
-    assert_eq!(outcome(&stage_ok(&task_args("reduce", &dir, 1))), "skipped");
+    assert_eq!(outcome(&stage_ok(&task_args("merge", &dir, 1))), "skipped");
 
     // A flipped byte in a finished output's file: recognised, written again.
     let run_file = std::fs::read_dir(dir.join("map/m000000"))
@@ -343,7 +345,7 @@ fn stage_tasks_twice_at_once_killed_or_damaged() {
 }
 
 /// Missing inputs: a map task whose input vanished after planning fails
-/// naming the file; a reduce before its maps names the map task to run; a
+/// naming the file; a merge before its maps names the map task to run; a
 /// plan given a missing file names it.
 #[test]
 fn stage_missing_inputs_fail_with_the_file_named() {
@@ -353,7 +355,7 @@ fn stage_missing_inputs_fail_with_the_file_named() {
     let dir = tmp.path().join("shared");
     plan(&dir, 2, 1, std::slice::from_ref(&copy));
 
-    let r = run(&[&["stage".to_string()][..], &task_args("reduce", &dir, 0)].concat());
+    let r = run(&[&["stage".to_string()][..], &task_args("merge", &dir, 0)].concat());
     r.assert_failure();
     assert!(
         r.stderr.contains("map task 0 has no finished output"),

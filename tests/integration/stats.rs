@@ -8,6 +8,8 @@ use std::sync::OnceLock;
 
 use serde_json::Value;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     gutenberg_dir, gutenberg_files, ingest_args, ingest_ok, manifest_dir, python3, run, run_env,
     run_ok, stats_json, SMALL_BUDGET,
@@ -140,10 +142,10 @@ fn growth_curve_after_kill_and_resume_equals_python() {
     let files = gutenberg_files(2);
     let tmp = tempfile::tempdir().unwrap();
     let store = tmp.path().join("store");
-    for spec in ["spill:3", "committed:5"] {
+    for spec in [Point::Spill.at(3), Point::Committed.at(5)] {
         let _ = std::fs::remove_dir_all(&store);
         let args = ingest_args(&store, SMALL_BUDGET, &files);
-        let r = run_env(&args, &[("QUERN_KILL_AT", spec)]);
+        let r = run_env(&args, &[(KILL_VAR, spec.as_str())]);
         assert!(!r.status.success(), "QUERN_KILL_AT={spec} was not reached");
         run(&args).assert_success();
         assert_growth_matches(

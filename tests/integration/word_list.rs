@@ -9,6 +9,8 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use quern::fault::{Point, KILL_VAR};
+
 use crate::common::{
     dump_map, gutenberg_dir, ingest_args, python3, run, run_env, run_ok, SMALL_BUDGET,
 };
@@ -266,7 +268,7 @@ fn append_and_resume_insist_on_the_same_list() {
     let killed = d.join("killed");
     let mut args = ingest_args(&killed, SMALL_BUDGET, &both);
     args.extend(["--word-list".to_string(), list.display().to_string()]);
-    let r = run_env(&args, &[("QUERN_KILL_AT", "committed:1")]);
+    let r = run_env(&args, &[(KILL_VAR, Point::Committed.at(1).as_str())]);
     assert!(!r.status.success(), "the kill point was not reached");
     let plain = ingest_args(&killed, SMALL_BUDGET, &both);
     let r = run(&plain);

@@ -41,7 +41,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     // Built once here so that its notes are shown once and a bad
     // parameter fails before any thread starts.
     let (method, probability) = {
-        let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+        let pred = predictor(&src, a.method.method, &a.params)?;
         (pred.get().method(), pred.get().method().is_probability())
     };
     let p = params(method, &a.params)?;
@@ -50,19 +50,18 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
             store: Some(dir.clone()),
             model: None,
             load_model: false,
-            memory: a.store.memory.clone(),
+            memory: a.store.memory,
         })?),
         (_, Some(m)) => Some(open_source(&QuerySourceArgs {
             store: None,
             model: Some(m.clone()),
             load_model: a.store.load_model,
-            memory: a.store.memory.clone(),
+            memory: a.store.memory,
         })?),
         _ => None,
     };
     if let Some(g) = &general {
-        let name = method.name();
-        predictor(g, Some(name), &a.params)
+        predictor(g, Some(method), &a.params)
             .context("the general model (--minus-store or --minus-model)")?;
     }
     let make_main = || make(&src, method, &p);

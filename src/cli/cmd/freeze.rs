@@ -1,14 +1,14 @@
 //! `quern freeze`: a method over a store written as a read-only back-off
-//! model file and/or ARPA text; `--verify` checks a model file.
+//! model file and/or ARPA text; and `quern check-model`, which checks a
+//! model file.
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use anyhow::Context;
-use quern::memory::parse_size;
 use quern::model::{arpa, freeze, FreezeOptions, Model};
-use quern::query::prediction;
 use quern::query::score::read_sentences;
+use quern::query::{prediction, Method};
 use quern::store::Store;
 use quern::words::WordId;
 use serde_json::json;
@@ -46,7 +46,8 @@ fn perplexity(
     Ok((!zero).then(|| 10f64.powf(-sum / count.max(1) as f64)))
 }
 
-fn verify(path: &Path, json_out: bool) -> anyhow::Result<()> {
+/// `quern check-model`: every checksum and invariant of a model file.
+pub fn check_model(path: &Path, json_out: bool) -> anyhow::Result<()> {
     let t = std::time::Instant::now();
     let m = Model::open(path)?;
     m.verify()?;
@@ -78,13 +79,12 @@ fn verify(path: &Path, json_out: bool) -> anyhow::Result<()> {
 
 pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     if let Some(p) = &a.verify {
-        return verify(p, a.json);
+        return check_model(p, a.json);
     }
     let store_dir = a.store.clone().expect("clap requires --store");
-    let method = a.method.clone().unwrap_or_else(|| "mkn".to_string());
-    let mem = parse_size(&a.memory)?;
-    let store = Store::open_with_cache(&store_dir, (mem / 4 * 3) as usize)?;
-    let est = estimator(&store, &method, &a.params)?;
+    let method = a.method.unwrap_or(Method::Mkn);
+    let store = Store::open_with_cache(&store_dir, a.memory.block_cache())?;
+    let est = estimator(&store, method, &a.params)?;
     est.backoff_kind()?;
     let opts = FreezeOptions {
         min_counts: a.min_counts.clone().unwrap_or_default(),

@@ -4,7 +4,6 @@ use std::io::Write;
 
 use anyhow::Context;
 use quern::ingest::{ingest, IngestOptions};
-use quern::memory::parse_size;
 
 use super::{bytes, thousands};
 use crate::cli::args::IngestArgs;
@@ -16,7 +15,7 @@ const RUN_ORDER: [&str; 4] = ["counting", "merging", "joining", "building"];
 pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     let mut o = IngestOptions::new(&a.store, a.inputs);
     o.order = a.order;
-    o.memory = parse_size(&a.memory)?;
+    o.memory = a.memory.bytes();
     if let Some(t) = a.threads {
         o.threads = t;
     }

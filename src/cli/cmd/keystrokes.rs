@@ -23,7 +23,7 @@ struct Json<'a> {
 
 pub fn run(a: KeystrokesArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
-    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
     let t = std::time::Instant::now();
     let r = keystrokes(est, &a.heldout, &a.top)?;

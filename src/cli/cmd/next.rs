@@ -68,7 +68,7 @@ fn write_json(
 
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
-    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
     if a.words.is_empty() {
         return batch(est, &a);

@@ -48,7 +48,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     }
     let page = prefix_page(&store, &prefix, order, a.limit, after.as_deref())?;
     let est = match &a.method {
-        Some(m) => Some(estimator(&store, m, &a.params)?),
+        Some(m) => Some(estimator(&store, *m, &a.params)?),
         None => None,
     };
     let probs = match &est {

@@ -5,7 +5,6 @@
 use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::{bail, Context};
-use quern::memory::parse_size;
 use quern::model::{Model, Residence};
 use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
 use quern::store::Store;
@@ -15,8 +14,7 @@ use crate::cli::args::{ParamArgs, ProbArgs, QuerySourceArgs, QueryStoreArgs};
 
 /// Opens the store with a block cache of three quarters of `--memory`.
 pub fn open_store(a: &QueryStoreArgs) -> anyhow::Result<Store> {
-    let mem = parse_size(&a.memory)?;
-    Ok(Store::open_with_cache(&a.store, (mem / 4 * 3) as usize)?)
+    Ok(Store::open_with_cache(&a.store, a.memory.block_cache())?)
 }
 
 /// What `prob`, `next` and `score` read: a store or a frozen model.
@@ -42,10 +40,9 @@ pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
         return Ok(Source::Model(Model::open_as(m, residence)?));
     }
     let dir = a.store.as_ref().expect("clap requires --store or --model");
-    let mem = parse_size(&a.memory)?;
     Ok(Source::Store(Store::open_with_cache(
         dir,
-        (mem / 4 * 3) as usize,
+        a.memory.block_cache(),
     )?))
 }
 
@@ -72,18 +69,17 @@ impl Pred<'_> {
 /// method, if `--method` names one, must be that). Prints the notes.
 pub fn predictor<'s>(
     src: &'s Source,
-    method: Option<&str>,
+    method: Option<Method>,
     a: &ParamArgs,
 ) -> anyhow::Result<Pred<'s>> {
     match src {
         Source::Store(store) => Ok(Pred::Est(Box::new(estimator(
             store,
-            method.unwrap_or("mkn"),
+            method.unwrap_or(Method::Mkn),
             a,
         )?))),
         Source::Model(m) => {
-            if let Some(name) = method {
-                let want: Method = name.parse()?;
+            if let Some(want) = method {
                 if want != m.method() {
                     bail!(
                         "{}: the model was frozen with {}, not {want}",
@@ -133,19 +129,14 @@ pub fn params(method: Method, a: &ParamArgs) -> anyhow::Result<Params> {
         p.katz_k = k;
     }
     if let Some(d) = &a.discounts {
-        p.discounts = d.parse()?;
+        p.discounts = d.clone();
     }
     Ok(p)
 }
 
 /// Builds the estimator and prints its notes (discounts replaced, Katz's
 /// K lowered) to standard error.
-pub fn estimator<'s>(
-    store: &'s Store,
-    method: &str,
-    a: &ParamArgs,
-) -> anyhow::Result<Estimator<'s>> {
-    let m: Method = method.parse()?;
+pub fn estimator<'s>(store: &'s Store, m: Method, a: &ParamArgs) -> anyhow::Result<Estimator<'s>> {
     let est = Estimator::new(store, m, params(m, a)?)?;
     for n in est.notes() {
         eprintln!("quern: note: {n}");
@@ -227,7 +218,7 @@ const BATCH: usize = 4096;
 
 pub fn run(a: ProbArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
-    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
     let lc = est.lowercase();
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());

@@ -81,7 +81,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         return super::docs::run(a);
     }
     let src = open_source(&a.store)?;
-    let pred = predictor(&src, a.method.method.as_deref(), &a.params)?;
+    let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
     let probability = est.method().is_probability();
     let mut out = std::io::BufWriter::new(std::io::stdout().lock());

@@ -3,7 +3,6 @@
 
 use std::io::Write;
 
-use quern::memory::parse_size;
 use quern::serve::{Options, Source};
 
 use super::prob::{open_source, Source as Opened};
@@ -22,19 +21,38 @@ pub fn run(a: ServeArgs) -> anyhow::Result<()> {
         }
         opts.threads = t;
     }
-    opts.max_request_bytes = parse_size(&a.max_request_bytes)? as usize;
+    opts.max_request_bytes = a.max_request_bytes.bytes() as usize;
     let what = match src {
         Source::Store(_) => "store",
         Source::Model(_) => "model",
     };
-    let served = quern::serve::run(src, &path, &opts, |addr| {
+    let ready = |addr| {
         // Scripts and tests wait for this line (and read the port from it).
         eprintln!("quern: serving the {what} {path} on http://{addr}/ ({} query threads); SIGTERM or Ctrl-C stops", opts.threads);
         let _ = std::io::stderr().flush();
-    })?;
+    };
+    let served = quern::serve::run(src, &path, &opts, ready, stop_signal())?;
     eprintln!(
         "quern: stopped after {} requests",
         super::thousands(served.requests)
     );
     Ok(())
+}
+
+/// Resolves on SIGTERM or SIGINT. The handlers are installed when the
+/// service first polls it, inside its runtime.
+async fn stop_signal() {
+    use tokio::signal::unix::{signal, SignalKind};
+    match signal(SignalKind::terminate()) {
+        Ok(mut term) => {
+            tokio::select! {
+                _ = term.recv() => {}
+                _ = tokio::signal::ctrl_c() => {}
+            }
+        }
+        Err(e) => {
+            eprintln!("quern: cannot watch for SIGTERM ({e}); Ctrl-C stops");
+            let _ = tokio::signal::ctrl_c().await;
+        }
+    }
 }

@@ -3,7 +3,6 @@
 use std::io::Write;
 
 use anyhow::Context;
-use quern::memory::parse_size;
 use quern::stage::{self, PlanOptions};
 use quern::store::Settings;
 
@@ -43,15 +42,15 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
             })
         }
         StageCommand::Map(a) => {
-            let r = stage::run_map(&a.dir, a.task, parse_size(&a.memory)?, a.threads)
+            let r = stage::run_map(&a.dir, a.task, a.memory.bytes.bytes(), a.threads)
                 .with_context(|| format!("map task {} in {} failed", a.task, a.dir.display()))?;
             serde_json::to_value(r)?
         }
-        StageCommand::Reduce(a) => {
-            let r = stage::run_reduce(&a.dir, a.partition, parse_size(&a.memory)?).with_context(
+        StageCommand::Merge(a) => {
+            let r = stage::run_merge(&a.dir, a.partition, a.memory.bytes.bytes()).with_context(
                 || {
                     format!(
-                        "reduce of partition {} in {} failed",
+                        "merge of partition {} in {} failed",
                         a.partition,
                         a.dir.display()
                     )
@@ -60,7 +59,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
             serde_json::to_value(r)?
         }
         StageCommand::Join(a) => {
-            let r = stage::run_join(&a.dir, a.partition, parse_size(&a.memory)?).with_context(
+            let r = stage::run_join(&a.dir, a.partition, a.memory.bytes.bytes()).with_context(
                 || {
                     format!(
                         "join of partition {} in {} failed",
@@ -72,7 +71,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
             serde_json::to_value(r)?
         }
         StageCommand::Assemble(a) => {
-            let r = stage::run_assemble(&a.dir, &a.store, parse_size(&a.memory)?)
+            let r = stage::run_assemble(&a.dir, &a.store, a.memory.bytes.bytes())
                 .with_context(|| format!("assemble into {} failed", a.store.display()))?;
             serde_json::to_value(r)?
         }

@@ -30,7 +30,7 @@ fn ppl(x: Option<f64>) -> String {
 
 pub fn run(a: TuneArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
-    let method: Method = a.method.parse()?;
+    let method = a.method;
     let start = params(method, &a.params)?;
     let sentences = read_sentences(&a.heldout, store.meta().settings.lowercase)?;
     let t = std::time::Instant::now();

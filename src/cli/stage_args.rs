@@ -1,0 +1,119 @@
+//! Flags of `quern stage`, as plain data (the rest are in [`super::args`]).
+
+use std::path::PathBuf;
+
+use clap::{Args, Subcommand};
+
+use super::values::{self, size_syntax, ByteSize};
+
+/// The stages of a staged ingest. Each prints one JSON line describing
+/// what it did; each is safe to run again or twice at once.
+#[derive(Subcommand, Debug)]
+pub enum StageCommand {
+    /// Plan: list the inputs, fix the partitions, pack the inputs into map
+    /// tasks of about equal bytes; writes DIR/job.json.
+    Plan(StagePlanArgs),
+    /// Count one map task's inputs into partitioned runs and dictionaries.
+    Map(StageMapArgs),
+    /// Merge one partition across every map output.
+    Merge(StagePartArgs),
+    /// Join one partition's merged counts with its continuation counts.
+    Join(StagePartArgs),
+    /// Build the store from every partition's output.
+    Assemble(StageAssembleArgs),
+    /// Remove the intermediate outputs (when the store is built and no task runs).
+    Clean(StageDirArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct StageDirArgs {
+    /// The shared directory of the job.
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+}
+
+#[derive(Args, Debug)]
+pub struct StagePlanArgs {
+    /// The shared directory of the job (created if missing).
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+    /// Highest n-gram order N (1 to 8).
+    #[arg(long, value_name = "N", default_value_t = 5)]
+    pub order: usize,
+    /// Lowercase every token (Unicode lowercasing). Default: off.
+    #[arg(long)]
+    pub lowercase: bool,
+    /// A fixed vocabulary, as for `quern ingest --word-list`: FILE holds
+    /// one word a line, and every other token is counted as `<unk>`. The
+    /// plan keeps a copy in DIR for the tasks, and the store keeps it.
+    /// Default: every token counts.
+    #[arg(long, value_name = "FILE")]
+    pub word_list: Option<PathBuf>,
+    /// Skip (and report) lines longer than this many bytes.
+    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
+    pub max_line_bytes: usize,
+    /// Number of partitions: one merge and one join task each. Required
+    /// (the Spark driver passes its own default).
+    #[arg(long, value_name = "N")]
+    pub partitions: u32,
+    /// Number of map tasks (fewer if the inputs have fewer chunks).
+    /// Required (the Spark driver passes its own default).
+    #[arg(long, value_name = "N")]
+    pub map_tasks: usize,
+    /// Files or directories (walked recursively, sorted), on the shared storage.
+    #[arg(required = true)]
+    pub inputs: Vec<PathBuf>,
+}
+
+#[derive(Args, Debug)]
+pub struct StageMapArgs {
+    /// The shared directory of the job.
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+    /// The map task's number in the plan (from 0).
+    #[arg(long, value_name = "I")]
+    pub task: u32,
+    #[command(flatten)]
+    pub memory: TaskMemoryArgs,
+    /// Counting threads (more than one: same counts, not byte-identical runs).
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub threads: usize,
+}
+
+#[derive(Args, Debug)]
+pub struct StagePartArgs {
+    /// The shared directory of the job.
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+    /// The partition (from 0).
+    #[arg(long, value_name = "P")]
+    pub partition: u32,
+    #[command(flatten)]
+    pub memory: TaskMemoryArgs,
+}
+
+#[derive(Args, Debug)]
+pub struct StageAssembleArgs {
+    /// The shared directory of the job.
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+    /// Store directory to build (created if missing).
+    #[arg(long, value_name = "DIR")]
+    pub store: PathBuf,
+    #[command(flatten)]
+    pub memory: TaskMemoryArgs,
+}
+
+/// The memory budget of a `quern stage` task.
+#[derive(Args, Debug, Clone, Copy)]
+pub struct TaskMemoryArgs {
+    #[arg(
+        id = "memory",
+        long = "memory",
+        value_name = "SIZE",
+        default_value = "1GiB",
+        value_parser = values::byte_size,
+        help = concat!("Memory budget of this task. ", size_syntax!())
+    )]
+    pub bytes: ByteSize,
+}

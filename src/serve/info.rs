@@ -1,0 +1,111 @@
+//! `GET /info`: what is served, with its keys in the order declared here
+//! (as every other answer keeps the order of its struct's fields).
+
+use serde::Serialize;
+
+use super::pool::Source;
+use crate::query::Method;
+
+/// The answer to `/info`.
+#[derive(Clone, Debug, Serialize)]
+#[serde(untagged)]
+pub enum Info {
+    /// A store with its counts.
+    Store(StoreInfo),
+    /// A frozen model.
+    Model(ModelInfo),
+}
+
+/// `/info` over a store.
+#[derive(Clone, Debug, Serialize)]
+pub struct StoreInfo {
+    /// `"store"`.
+    pub source: &'static str,
+    /// The store directory, as the service was given it.
+    pub path: String,
+    /// The highest order N.
+    pub order: usize,
+    /// The method used when a request names none.
+    pub method: &'static str,
+    /// Every method a request may name.
+    pub methods: Vec<&'static str>,
+    /// Words in the vocabulary.
+    pub vocabulary_size: u64,
+    /// Distinct n-grams of each order 1..=N.
+    pub ngrams: Vec<u64>,
+    /// Tokens were lowercased when counted (queries are too).
+    pub lowercase: bool,
+    /// Tokens counted.
+    pub tokens: u64,
+    /// Sentences counted.
+    pub sentences: u64,
+    /// `true`: `/ngrams` and `/stats.svg` answer.
+    pub counts: bool,
+}
+
+/// `/info` over a frozen model.
+#[derive(Clone, Debug, Serialize)]
+pub struct ModelInfo {
+    /// `"model"`.
+    pub source: &'static str,
+    /// The model file, as the service was given it.
+    pub path: String,
+    /// The highest order N.
+    pub order: usize,
+    /// The method the model was frozen from.
+    pub method: &'static str,
+    /// The one method a request may name: the model's.
+    pub methods: Vec<&'static str>,
+    /// Words in the vocabulary.
+    pub vocabulary_size: u64,
+    /// N-grams the model keeps, of each order 1..=N.
+    pub ngrams: Vec<u64>,
+    /// N-grams the store it was frozen from held, of each order.
+    pub store_ngrams: Vec<u64>,
+    /// Tokens were lowercased when counted (queries are too).
+    pub lowercase: bool,
+    /// False for `stupid`: the values are scores, not probabilities.
+    pub probabilities: bool,
+    /// `false`: a model keeps no counts.
+    pub counts: bool,
+}
+
+impl Info {
+    /// What `src` serves; `path` is what the answer names as the source.
+    pub fn of(src: Source<'_>, path: &str) -> Info {
+        match src {
+            Source::Store(s) => {
+                let meta = s.meta();
+                Info::Store(StoreInfo {
+                    source: "store",
+                    path: path.to_string(),
+                    order: meta.settings.order,
+                    method: src.default_method().name(),
+                    methods: Method::ALL.map(|m| m.name()).to_vec(),
+                    vocabulary_size: meta.totals.vocabulary,
+                    ngrams: meta.orders.iter().map(|o| o.ngrams).collect(),
+                    lowercase: meta.settings.lowercase,
+                    tokens: meta.totals.tokens,
+                    sentences: meta.totals.sentences,
+                    counts: true,
+                })
+            }
+            Source::Model(m) => {
+                let meta = m.meta();
+                Info::Model(ModelInfo {
+                    source: "model",
+                    path: path.to_string(),
+                    order: meta.order,
+                    method: meta.method.name(),
+                    methods: vec![meta.method.name()],
+                    vocabulary_size: meta.vocabulary,
+                    ngrams: meta.ngrams.clone(),
+                    store_ngrams: meta.store_ngrams.clone(),
+                    lowercase: meta.lowercase,
+                    probabilities: meta.probabilities,
+                    counts: false,
+                })
+            }
+        }
+    }
+}
