@@ -16,7 +16,6 @@
 //! on the first query that needs it (every top K with K > 0: ties are
 //! broken by the words' bytes) and kept by the estimator.
 
-use std::cmp::Ordering;
 use std::ops::Range;
 
 use crate::error::Result;
@@ -24,38 +23,8 @@ use crate::topk::{PrefixIndex, TopK};
 use crate::words::{eos_id, IdMap, WordId};
 
 use super::cache::ChildEntry;
+use super::text_index::TextIndex;
 use super::{Estimator, Method, Next};
-
-/// V's texts in the order of the unigram ranking, with a prefix index
-/// over them.
-pub(crate) struct TextIndex {
-    /// By rank.
-    texts: Vec<Box<str>>,
-    /// The rank of each word of V.
-    rank: IdMap<u32>,
-    index: PrefixIndex,
-}
-
-impl TextIndex {
-    /// The order of two words' bytes (words outside V last).
-    fn bytes_order(&self, a: WordId, b: WordId) -> Ordering {
-        let text = |w: WordId| {
-            self.rank
-                .get(&w)
-                .map(|&r| self.texts[r as usize].as_bytes())
-        };
-        match (text(a), text(b)) {
-            (Some(x), Some(y)) => x.cmp(y),
-            (x, y) => y.is_none().cmp(&x.is_none()).then(a.cmp(&b)),
-        }
-    }
-
-    /// Where `w` is in byte order.
-    fn place(&self, w: WordId) -> Option<usize> {
-        let &r = self.rank.get(&w)?;
-        self.index.place(r).map(|p| p as usize)
-    }
-}
 
 /// The words a top K may show.
 #[derive(Clone)]
@@ -69,6 +38,30 @@ pub(crate) enum Filter {
 }
 
 impl Estimator<'_> {
+    /// V ordered by the method's probability after the empty context (most
+    /// probable first, ties by id); computed once per estimator.
+    pub fn unigram_ranking(&self) -> Result<&[WordId]> {
+        if let Some(r) = self.ranking.get() {
+            return Ok(r);
+        }
+        let cl = self.context_levels(&[])?;
+        let mut buf = Vec::new();
+        let mut scored = Vec::with_capacity(self.unigrams()?.vocab.len());
+        for &w in &self.unigrams()?.vocab {
+            scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
+        }
+        scored.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        let _ = self.ranking.set(scored.into_iter().map(|x| x.1).collect());
+        Ok(self.ranking.get().expect("just set"))
+    }
+
+    /// The `k` most probable words after `context` (raw ids; cut to N − 1,
+    /// OOV words as `<unk>`), exact, every word of V allowed; ties by the
+    /// words' bytes. See the module doc.
+    pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
+        self.top_words(context, Filter::All, k)
+    }
+
     /// The `k` most probable words after `context` (raw ids; cut to N − 1,
     /// OOV words as `<unk>`) that begin with `prefix` (lowercased first if
     /// the store was built with `--lowercase`), exact; ties by the words'

@@ -46,7 +46,7 @@ pub struct Estimator<'s> {
     pub(super) word_cache: RefCell<IdMap<bool>>,
     pub(super) unigrams: OnceCell<Unigrams>,
     pub(super) ranking: OnceCell<Vec<WordId>>,
-    pub(super) text_index: OnceCell<super::complete::TextIndex>,
+    pub(super) text_index: OnceCell<super::text_index::TextIndex>,
     pub(super) children: RefCell<(KeyMap<ChildMap>, usize)>,
     pub(super) katz_ctx: RefCell<KeyMap<katz::KatzCtx>>,
 }

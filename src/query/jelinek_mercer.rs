@@ -12,7 +12,8 @@
 
 use crate::error::{Error, Result};
 
-use super::{Level, Params};
+use super::level::Level;
+use super::Params;
 
 /// The weights of every order (outer, index k − 1) and bucket (inner).
 #[derive(Clone, Debug, PartialEq)]

@@ -36,7 +36,8 @@ use crate::discount::{self, modified_name};
 use crate::error::{Error, Result};
 use crate::store::{OrderStats, StoreMeta};
 
-use super::{DiscountPolicy, Level};
+use super::level::Level;
+use super::DiscountPolicy;
 
 /// The left-type count-of-counts n1..n4 of one order.
 pub fn left_type_n(o: &OrderStats) -> [u64; 4] {

@@ -14,10 +14,7 @@
 //! all. The search itself is [`Estimator::complete`]'s, with every word
 //! allowed.
 
-use crate::error::Result;
 use crate::words::WordId;
-
-use super::Estimator;
 
 /// The K most probable next words.
 #[derive(Clone, Debug, PartialEq)]
@@ -46,31 +43,5 @@ impl Next {
             rest: 1.0 - sum,
             scored,
         }
-    }
-}
-
-impl Estimator<'_> {
-    /// V ordered by the method's probability after the empty context (most
-    /// probable first, ties by id); computed once per estimator.
-    pub fn unigram_ranking(&self) -> Result<&[WordId]> {
-        if let Some(r) = self.ranking.get() {
-            return Ok(r);
-        }
-        let cl = self.context_levels(&[])?;
-        let mut buf = Vec::new();
-        let mut scored = Vec::with_capacity(self.unigrams()?.vocab.len());
-        for &w in &self.unigrams()?.vocab {
-            scored.push((self.eval_mapped(&cl, w, &mut buf)?.0, w));
-        }
-        scored.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
-        let _ = self.ranking.set(scored.into_iter().map(|x| x.1).collect());
-        Ok(self.ranking.get().expect("just set"))
-    }
-
-    /// The `k` most probable words after `context` (raw ids; cut to N − 1,
-    /// OOV words as `<unk>`), exact, every word of V allowed; ties by the
-    /// words' bytes. See the module doc.
-    pub fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
-        self.top_words(context, super::complete::Filter::All, k)
     }
 }

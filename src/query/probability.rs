@@ -4,9 +4,9 @@
 
 use super::cache::{ChildMap, CtxInfo};
 use super::estimator::Model;
+use super::level::Level;
 use super::{kneser_ney, simple, witten_bell, Estimator};
 use crate::error::{Error, Result};
-use crate::store::ContextStats;
 use crate::words::WordId;
 
 /// One probability and how it came about.
@@ -23,21 +23,6 @@ pub struct Prob {
     pub oov: bool,
     /// The word that was scored (`<unk>` for an OOV word).
     pub word: WordId,
-}
-
-/// What one prediction needs at context length j (order j + 1): the
-/// counts of h_j·w and the statistics of h_j, h_j being the last j words
-/// of the context.
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub(crate) struct Level {
-    /// Raw count c(h_j w).
-    pub c: u64,
-    /// Left-type count a(h_j w).
-    pub a: u64,
-    /// Statistics of h_j (`None`: h_j has no children).
-    pub ctx: Option<ContextStats>,
-    /// c(h_j) as an n-gram (for `stupid`; T at j = 0).
-    pub hc: u64,
 }
 
 impl Estimator<'_> {

@@ -11,7 +11,7 @@
 //!   α · S(w|h'); S(w) = c(w)/T. Scores, not probabilities: they do not sum
 //!   to 1.
 
-use super::Level;
+use super::level::Level;
 
 /// Lidstone's estimate (c + k) / (C + k·|V|) for a count `c` of h·w, a
 /// context sum `context_sum` = C(h) and a vocabulary of `v` words.

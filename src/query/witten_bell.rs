@@ -11,7 +11,7 @@
 //! T(h), the number of distinct words seen after h, stands in for the count
 //! of "a new word follows h": the lower order gets T/(C + T) of the mass.
 
-use super::Level;
+use super::level::Level;
 
 /// `witten-bell` over the levels of one prediction.
 pub(crate) fn witten_bell(levels: &[Level], v: f64) -> f64 {

@@ -14,8 +14,10 @@
 //! manifest, the cluster stages' `done.json` files and the store's
 //! metadata record, whose byte layouts therefore live here too.
 
+mod context;
 mod meta;
 mod partition;
 
+pub use context::ContextStats;
 pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
-pub use partition::{store_meta, ContextStats, Joined, Merged, PartitionStats, ReadTotals};
+pub use partition::{store_meta, Joined, Merged, PartitionStats, ReadTotals};
