@@ -339,6 +339,43 @@ fn two_model_score_equals_two_separate_runs() {
         checked += 1;
     }
     assert!(checked > 300);
+    // --words with two models: each prediction is the main store's own
+    // (`word`, `log10`, `matched`) with `general`, the general store's own
+    // `log10` and `matched`.
+    let words = |store: &Path, more: &[&str]| {
+        let mut a = vec!["--jsonl", "--words"];
+        a.extend(more);
+        score_docs(store, &a, &[input_file()]).0
+    };
+    let g = s(general_store());
+    let (a, b, both) = (
+        words(train3(), &[]),
+        words(general_store(), &[]),
+        words(train3(), &["--minus-store", &g]),
+    );
+    let mut predictions = 0;
+    for ((x, y), z) in a.iter().zip(&b).zip(&both) {
+        let Some(zw) = z["words"].as_array() else {
+            assert!(z.get("error").is_some(), "{z}");
+            continue;
+        };
+        let (xw, yw) = (
+            x["words"].as_array().unwrap(),
+            y["words"].as_array().unwrap(),
+        );
+        assert_eq!((zw.len(), zw.len()), (xw.len(), yw.len()));
+        for ((p, q), r) in xw.iter().zip(yw).zip(zw) {
+            let mut main = r.clone();
+            let general = main.as_object_mut().unwrap().remove("general").unwrap();
+            assert_eq!(&main, p);
+            assert_eq!(
+                general,
+                json!({"log10": q["log10"], "matched": q["matched"]})
+            );
+            predictions += 1;
+        }
+    }
+    assert!(predictions > 10_000, "{predictions}");
 }
 
 #[test]
