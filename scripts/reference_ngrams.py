@@ -268,7 +268,7 @@ class Derived:
                 "discounts": discounts(dict(adj)),
             })
         return {
-            "format_version": 2,
+            "format_version": 3,
             "settings": {"order": m.order, "lowercase": m.lowercase},
             "totals": {
                 "sentences": m.sentences,
@@ -401,7 +401,7 @@ def self_test():
     # </s> at positions 0, 1, 3.
     assert growth(d.m) == {"tokens": 7, "first_positions": [0, 1, 3]}, growth(d.m)
     st = d.stats()
-    assert st["format_version"] == 2
+    assert st["format_version"] == 3
     assert st["settings"] == {"order": 3, "lowercase": False}
     assert st["totals"] == {"sentences": 2, "tokens": 7, "vocabulary": 4, "types": 3,
                             "marker_tokens": 0, "skipped_lines": 0,

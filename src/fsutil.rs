@@ -120,26 +120,37 @@ pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<
 }
 
 /// [`read_checked_json`] of a record with a top-level `format_version`,
-/// which must be `expected`: checked before the rest is parsed, so that a
-/// file of another version is [`crate::Error::Version`], not damage.
-pub fn read_checked_json_versioned<T: serde::de::DeserializeOwned>(
+/// which must be `expected` or an older version that `upgrade` converts
+/// (see [`parse_upgraded`]).
+pub fn read_checked_json_upgraded<T: serde::de::DeserializeOwned>(
     path: &Path,
     expected: u32,
+    upgrade: Upgrade,
 ) -> Result<Option<T>> {
     match read_checked_body(path)? {
         None => Ok(None),
-        Some(body) => parse_versioned(path, body.as_bytes(), expected).map(Some),
+        Some(body) => parse_upgraded(path, body.as_bytes(), expected, upgrade).map(Some),
     }
 }
+
+/// Converts a record of an older format version to the current one:
+/// `upgrade(found, &mut json)` rewrites `json`, written by version `found`,
+/// in place and returns true, or returns false for a version it does not
+/// know.
+pub type Upgrade = fn(u32, &mut serde_json::Value) -> bool;
 
 /// Parses JSON `bytes` (read from `path`) of a record with a top-level
 /// `format_version`, checking the version first: the one version check of
 /// quern's JSON records (manifest, cluster plan and outputs, store
-/// metadata).
-pub fn parse_versioned<T: serde::de::DeserializeOwned>(
+/// metadata). A record of version `expected` is parsed as it is; one of
+/// another version that `upgrade` converts gets `format_version`
+/// `expected` and is parsed as the current version; any other version is
+/// [`crate::Error::Version`], not damage.
+pub fn parse_upgraded<T: serde::de::DeserializeOwned>(
     path: &Path,
     bytes: &[u8],
     expected: u32,
+    upgrade: Upgrade,
 ) -> Result<T> {
     #[derive(serde::Deserialize)]
     struct Probe {
@@ -147,14 +158,19 @@ pub fn parse_versioned<T: serde::de::DeserializeOwned>(
     }
     let corrupt = |e: serde_json::Error| crate::Error::corrupt(path, e.to_string());
     let probe: Probe = serde_json::from_slice(bytes).map_err(corrupt)?;
-    if probe.format_version != expected {
+    if probe.format_version == expected {
+        return serde_json::from_slice(bytes).map_err(corrupt);
+    }
+    let mut json: serde_json::Value = serde_json::from_slice(bytes).map_err(corrupt)?;
+    if !upgrade(probe.format_version, &mut json) {
         return Err(crate::Error::Version {
             path: path.to_path_buf(),
             found: probe.format_version,
             expected,
         });
     }
-    serde_json::from_slice(bytes).map_err(corrupt)
+    json["format_version"] = expected.into();
+    serde_json::from_value(json).map_err(corrupt)
 }
 
 /// The xxh3-64 of a file's bytes and its length, read in a stream.

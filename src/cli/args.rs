@@ -496,8 +496,8 @@ pub struct DocArgs {
     /// Scoring threads (default: every core).
     #[arg(long)]
     pub threads: Option<usize>,
-    /// Add each prediction's token, log10 probability, matched order and
-    /// OOV flag.
+    /// Add each prediction: its word, log10 probability and how many words
+    /// of the n-gram matched (0: outside the vocabulary).
     #[arg(long)]
     pub words: bool,
     /// Also write the summary as JSON to this file.

@@ -171,8 +171,8 @@ pub struct Options {
     pub format: Format,
     /// Worker threads (at least 1).
     pub threads: usize,
-    /// Keep each prediction's log10 probability, matched order and OOV
-    /// flag ([`DocScore::words`]).
+    /// Keep each prediction's word, log10 probability and matched length
+    /// ([`DocScore::words`]).
     pub words: bool,
     /// A longer input line is a bad line (read past, never held).
     pub max_line_bytes: usize,
@@ -281,11 +281,34 @@ pub struct WordScore {
     /// Its log10 probability (−∞ for 0) under each model: the main one,
     /// then the general one.
     pub log10: Vec<f64>,
-    /// The order of the longest stored n-gram ending in the word, under
-    /// each model.
-    pub order: Vec<usize>,
-    /// The word is outside V, under each model.
-    pub oov: Vec<bool>,
+    /// How many words of the n-gram matched under each model
+    /// ([`crate::query::Prob::matched`]; 0: the word is outside V).
+    pub matched: Vec<usize>,
+}
+
+/// One prediction of a scored document as JSON, in the order written:
+/// `word`, `log10` (`null` for −∞), `matched` (0: outside V), and with a
+/// general model `general`, its `log10` and `matched`.
+#[derive(Debug, Serialize)]
+pub struct PredictionJson<'r> {
+    /// The token.
+    pub word: &'r str,
+    /// Its log10 probability under the main model.
+    pub log10: Value,
+    /// How many words of the n-gram matched under the main model.
+    pub matched: usize,
+    /// The same under the general model.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub general: Option<GeneralPredictionJson>,
+}
+
+/// A prediction under the general model: `log10` and `matched`.
+#[derive(Debug, Serialize)]
+pub struct GeneralPredictionJson {
+    /// Its log10 probability.
+    pub log10: Value,
+    /// How many words of the n-gram matched.
+    pub matched: usize,
 }
 
 /// The score of one document.
@@ -350,8 +373,7 @@ impl DocResult {
     /// `predictions`, and the main model's `outside_vocabulary`,
     /// `probability_zero`, `log10_sum`, `perplexity`; with a general model
     /// `general` (the same four) and `ce_difference`; with words `words`,
-    /// one array `[token, log10, order, outside V]` per prediction (with a general model
-    /// followed by its log10, order and oov). A bad line has `id` `null`,
+    /// one [`PredictionJson`] per prediction. A bad line has `id` `null`,
     /// `line` and `error`.
     pub fn record<'r>(&'r self, probability: bool, file: Option<&'r str>) -> Record<'r> {
         let mut r = Record {
@@ -391,14 +413,14 @@ impl DocResult {
                 if let Some(ws) = &d.words {
                     r.words = Some(
                         ws.iter()
-                            .map(|w| {
-                                let mut a = vec![json!(w.token)];
-                                for i in 0..w.log10.len() {
-                                    a.push(num(Some(w.log10[i])));
-                                    a.push(json!(w.order[i]));
-                                    a.push(json!(w.oov[i]));
-                                }
-                                Value::Array(a)
+                            .map(|w| PredictionJson {
+                                word: &w.token,
+                                log10: num(Some(w.log10[0])),
+                                matched: w.matched[0],
+                                general: (w.log10.len() > 1).then(|| GeneralPredictionJson {
+                                    log10: num(Some(w.log10[1])),
+                                    matched: w.matched[1],
+                                }),
                             })
                             .collect(),
                     );
@@ -448,7 +470,7 @@ pub struct Record<'r> {
     pub ce_difference: Option<Value>,
     /// Per prediction.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub words: Option<Value>,
+    pub words: Option<Vec<PredictionJson<'r>>>,
     /// Why the line is bad.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub error: Option<&'r str>,

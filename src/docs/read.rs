@@ -192,8 +192,7 @@ impl Worker {
                             .map(|(j, &id)| WordScore {
                                 token: self.token(id),
                                 log10: per_model.iter().map(|ps| ps[at + j].log10).collect(),
-                                order: per_model.iter().map(|ps| ps[at + j].order).collect(),
-                                oov: per_model.iter().map(|ps| ps[at + j].oov).collect(),
+                                matched: per_model.iter().map(|ps| ps[at + j].matched()).collect(),
                             })
                             .collect()
                     });

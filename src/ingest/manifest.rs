@@ -16,8 +16,9 @@ use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
 use crate::records::{GrowthCurve, Joined, Merged, ReadTotals, Settings};
 
-/// Format version of the manifest.
-pub const MANIFEST_VERSION: u32 = 1;
+/// Format version of the manifest. Version 1 is read too, converted by
+/// [`crate::records::upgrade_partition_records`].
+pub const MANIFEST_VERSION: u32 = 2;
 
 /// Where an ingest is.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -193,7 +194,11 @@ impl Manifest {
 
     /// Reads and verifies one manifest file.
     fn load_file(path: &Path) -> Result<Option<Manifest>> {
-        fsutil::read_checked_json_versioned(path, MANIFEST_VERSION)
+        fsutil::read_checked_json_upgraded(
+            path,
+            MANIFEST_VERSION,
+            crate::records::upgrade_partition_records,
+        )
     }
 
     /// Writes the manifest atomically and durably, keeping the one it

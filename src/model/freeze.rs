@@ -30,7 +30,7 @@ use super::file::Model;
 use super::format::{ModelMeta, SectionKind};
 use super::packed::{ef_encode, width_for};
 use super::pass::{
-    adjusted, map, run_part, too_many, Built, Bytes, KatzTally, Order, Part, PartOut,
+    left_type, map, run_part, too_many, Built, Bytes, KatzTally, Order, Part, PartOut,
 };
 use super::prune;
 use super::quantize::quantize;
@@ -192,7 +192,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 _ => None,
             };
             let c = rec.map_or(0, |r| r.count);
-            let a = rec.map_or(0, |r| adjusted(r.count, r.continuation, id == bos));
+            let a = rec.map_or(0, |r| left_type(r.count, r.continuation, id == bos));
             let q = if id == bos {
                 0.0
             } else {

@@ -329,9 +329,9 @@ pub(super) fn too_many(k: usize) -> Error {
     ))
 }
 
-/// The adjusted count: the continuation count, except at the top order and
-/// for n-grams that start with `<s>` (the raw count there).
-pub(super) fn adjusted(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
+/// The left-type count: the continuation count, except at the top order
+/// and for n-grams that start with `<s>` (the raw count there).
+pub(super) fn left_type(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
     match cont {
         Some(x) if !first_is_bos => x,
         _ => c,
@@ -530,7 +530,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
         let j = k - 1;
         let q = match kind {
             BackoffKind::Interpolated => {
-                let a = adjusted(rec.count, rec.continuation, gi[0] == o.bos_rank);
+                let a = left_type(rec.count, rec.continuation, gi[0] == o.bos_rank);
                 est.step(j, rec.count, a, prec.context, prec.count, lower)
             }
             BackoffKind::Katz => {

@@ -149,20 +149,35 @@ fn word_text(p: &dyn Predictor, id: WordId) -> PyResult<String> {
         .unwrap_or_else(|| format!("#{id:016x}")))
 }
 
-fn next_of(
+/// The `top` words after `context` that begin with `prefix`, as the items
+/// of `quern next --json`'s `words`: dicts of `word`, `probability` (or
+/// `score` for `stupid`) and `log10` (`None` for -infinity).
+fn next_of<'py>(
+    py: Python<'py>,
     p: &dyn Predictor,
     context: &Bound<'_, PyAny>,
     top: usize,
     prefix: &str,
-) -> PyResult<Vec<(String, f64)>> {
+) -> PyResult<Bound<'py, PyList>> {
     let ctx = context_ids(p, context)?;
     // As `quern next`: always through completion (an empty prefix is all
     // of V), which never suggests `<s>` or `<unk>`.
     let next = p.complete(&ctx, prefix, top).map_err(error)?;
-    next.items
-        .iter()
-        .map(|&(w, pr)| Ok((word_text(p, w)?, pr)))
-        .collect()
+    let key = if p.method().is_probability() {
+        intern!(py, "probability")
+    } else {
+        intern!(py, "score")
+    };
+    let out = PyList::empty(py);
+    for &(w, pr) in &next.items {
+        let d = PyDict::new(py);
+        d.set_item(intern!(py, "word"), word_text(p, w)?)?;
+        d.set_item(key, pr)?;
+        let lg = pr.log10();
+        d.set_item(intern!(py, "log10"), lg.is_finite().then_some(lg))?;
+        out.append(d)?;
+    }
+    Ok(out)
 }
 
 /// The texts of an iterable of strings.
@@ -288,19 +303,22 @@ macro_rules! predictor_methods {
                 Ok(prob_of(self.pred(), context, word)?.log10)
             }
 
-            /// The `top` most probable next words after `context`, as
-            /// `(word, probability)` pairs, most probable first (ties by
-            /// id), exact: as `quern next --top`. With a `prefix`, only
-            /// words that begin with it (lowercased first when the store
-            /// is), never `<s>`, `<unk>` or `</s>`.
+            /// The `top` most probable next words after `context`, most
+            /// probable first (ties by id), exact: the items of `words` of
+            /// `quern next --json --top`, each a dict of `word`,
+            /// `probability` (`score` for `stupid`) and `log10` (`None`
+            /// for -infinity). With a `prefix`, only words that begin with
+            /// it (lowercased first when the store is), never `<s>`,
+            /// `<unk>` or `</s>`.
             #[pyo3(signature = (context, top = 10, prefix = ""))]
-            fn next(
+            fn next<'py>(
                 &self,
+                py: Python<'py>,
                 context: &Bound<'_, PyAny>,
                 top: usize,
                 prefix: &str,
-            ) -> PyResult<Vec<(String, f64)>> {
-                next_of(self.pred(), context, top, prefix)
+            ) -> PyResult<Bound<'py, PyList>> {
+                next_of(py, self.pred(), context, top, prefix)
             }
 
             /// The score of one text (a document; each of its lines is a

@@ -16,7 +16,8 @@ pub fn jnum(x: f64) -> Value {
     }
 }
 
-/// A probability (or, for `stupid`, a score) as JSON, in the order written.
+/// A probability (or, for `stupid`, a score) as JSON, in the order written:
+/// `words` (the query), `probability` (or `score`), `log10`, `matched`.
 #[derive(Serialize)]
 pub struct ProbJson<'a> {
     /// The words of the query.
@@ -29,23 +30,15 @@ pub struct ProbJson<'a> {
     pub score: Option<Value>,
     /// log10 of it (`null` for −∞).
     pub log10: Value,
-    /// The order of the longest stored n-gram ending in the word.
+    /// How many words of the n-gram matched ([`super::Prob::matched`]):
+    /// 0 for a word outside V.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub order: Option<usize>,
-    /// The word is outside V.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub oov: Option<bool>,
+    pub matched: Option<usize>,
 }
 
 impl<'a> ProbJson<'a> {
-    /// `p` under `method`, with the order and OOV flag if given.
-    pub fn new(
-        words: &'a str,
-        method: Method,
-        p: f64,
-        order: Option<usize>,
-        oov: Option<bool>,
-    ) -> Self {
+    /// `p` under `method`, with the matched length if given.
+    pub fn new(words: &'a str, method: Method, p: f64, matched: Option<usize>) -> Self {
         let (probability, score) = if method.is_probability() {
             (Some(jnum(p)), None)
         } else {
@@ -56,8 +49,7 @@ impl<'a> ProbJson<'a> {
             probability,
             score,
             log10: jnum(p.log10()),
-            order,
-            oov,
+            matched,
         }
     }
 }
@@ -81,7 +73,7 @@ pub struct WordJson<'a> {
 impl<'a> WordJson<'a> {
     /// `word` with `p` under `method`.
     pub fn new(word: &'a str, method: Method, p: f64) -> Self {
-        let j = ProbJson::new(word, method, p, None, None);
+        let j = ProbJson::new(word, method, p, None);
         WordJson {
             word,
             probability: j.probability,

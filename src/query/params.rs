@@ -152,9 +152,9 @@ impl Default for Params {
 /// What the parameters file says it is (its `kind` field).
 pub const PARAMS_FILE_KIND: &str = "quern tuned parameters";
 
-/// Version of the parameters file. Version 1 (no `kind` and `version`
-/// fields) held `fallback_discounts` instead of `discounts`; it is still
-/// read.
+/// Version of the parameters file. A file of version 1 (no `kind` and
+/// `version` fields, written before the discount policies) is refused
+/// with the advice to fit the parameters again.
 pub const PARAMS_FILE_VERSION: u32 = 2;
 
 /// The parameters file written by `quern tune`: the method they were
@@ -187,9 +187,7 @@ impl ParamsFile {
         serde_json::to_string_pretty(self).expect("parameters serialize") + "\n"
     }
 
-    /// Parses a file of version 2, or of version 1 (written before the
-    /// discount policy: `fallback_discounts` becomes `estimate-or:`).
-    /// `path` only names the file in errors.
+    /// Parses a file of version 2. `path` only names the file in errors.
     pub fn parse(path: &Path, text: &str) -> Result<ParamsFile> {
         let bad = |why: String| {
             Error::Config(format!(
@@ -197,32 +195,23 @@ impl ParamsFile {
                 path.display()
             ))
         };
-        let mut v: serde_json::Value =
-            serde_json::from_str(text).map_err(|e| bad(e.to_string()))?;
+        let v: serde_json::Value = serde_json::from_str(text).map_err(|e| bad(e.to_string()))?;
         let obj = v
-            .as_object_mut()
+            .as_object()
             .ok_or_else(|| bad("not a JSON object".into()))?;
         match obj.get("version").map(|x| x.as_u64()) {
-            None => {
-                // Version 1: {"method", "params"} with fallback_discounts.
-                if let Some(p) = obj.get_mut("params").and_then(|p| p.as_object_mut()) {
-                    if let Some(fb) = p.remove("fallback_discounts") {
-                        if let Some(xs) = fb.as_array() {
-                            let list: Vec<String> = xs.iter().map(|x| x.to_string()).collect();
-                            p.insert(
-                                "discounts".into(),
-                                format!("estimate-or:{}", list.join(",")).into(),
-                            );
-                        }
-                    }
-                }
-                obj.insert("kind".into(), PARAMS_FILE_KIND.into());
-                obj.insert("version".into(), PARAMS_FILE_VERSION.into());
-            }
             Some(Some(x)) if x == PARAMS_FILE_VERSION as u64 => {}
+            None => {
+                return Err(Error::Config(format!(
+                    "{}: a parameters file of version 1 (no version field), written before \
+                     the discount policies; this quern reads version {PARAMS_FILE_VERSION}: \
+                     run `quern tune` again",
+                    path.display()
+                )))
+            }
             Some(x) => {
                 return Err(bad(format!(
-                    "version {} (this quern reads versions 1 and {PARAMS_FILE_VERSION})",
+                    "version {} (this quern reads version {PARAMS_FILE_VERSION})",
                     x.map_or("?".into(), |x| x.to_string())
                 )))
             }
@@ -266,22 +255,12 @@ mod tests {
         }
     }
 
+    /// A file of the current version reads back as written; a file of
+    /// version 1 (no version field) and one of an unknown version are
+    /// refused, naming the file and the version.
     #[test]
-    fn files_of_both_versions_are_read() {
+    fn version_2_is_read_and_others_refused() {
         let p = Path::new("t.json");
-        let v1 = r#"{"method": "interp", "params": {"k": 1.0, "alpha": 0.4,
-            "lambdas": [0.3, 0.8], "bucket_lambdas": null, "katz_k": 5,
-            "fallback_discounts": null}}"#;
-        let f = ParamsFile::parse(p, v1).unwrap();
-        assert_eq!(f.method, Method::Interp);
-        assert_eq!(f.params.lambdas, Some(vec![0.3, 0.8]));
-        assert_eq!(f.params.discounts, DiscountPolicy::EstimateOrSingle);
-        let v1b = r#"{"method": "mkn", "params": {"fallback_discounts": [0.8, 1.1, 1.4]}}"#;
-        let f = ParamsFile::parse(p, v1b).unwrap();
-        assert_eq!(
-            f.params.discounts,
-            DiscountPolicy::EstimateOr(vec![0.8, 1.1, 1.4])
-        );
         let v2 = ParamsFile::new(
             Method::AddK,
             Params {
@@ -290,6 +269,13 @@ mod tests {
             },
         );
         assert_eq!(ParamsFile::parse(p, &v2.to_text()).unwrap(), v2);
+        let v1 = r#"{"method": "interp", "params": {"k": 1.0, "alpha": 0.4,
+            "lambdas": [0.3, 0.8], "bucket_lambdas": null, "katz_k": 5}}"#;
+        let e = ParamsFile::parse(p, v1).unwrap_err().to_string();
+        assert!(
+            e.contains("t.json") && e.contains("version 1") && e.contains("quern tune"),
+            "{e}"
+        );
         let v9 =
             r#"{"kind": "quern tuned parameters", "version": 9, "method": "mkn", "params": {}}"#;
         let e = ParamsFile::parse(p, v9).unwrap_err().to_string();

@@ -25,6 +25,21 @@ pub struct Prob {
     pub word: WordId,
 }
 
+impl Prob {
+    /// How many words of the n-gram, the word included, were found stored
+    /// together: the predicted word and the `matched − 1` words before it
+    /// form the longest stored n-gram that ends in the word. 0 means the
+    /// word is outside V (and was scored as `<unk>`); a word in V matches
+    /// at least itself.
+    pub fn matched(&self) -> usize {
+        if self.oov {
+            0
+        } else {
+            self.order
+        }
+    }
+}
+
 impl Estimator<'_> {
     // ---- probabilities -------------------------------------------------------
 

@@ -10,9 +10,7 @@ pub struct ContextStats {
     pub count_sum: u64,
     /// T(h): number of children.
     pub types: u64,
-    /// A(h): sum of the children's left-type counts (read from
-    /// `adjusted_sum` in metadata written before the rename).
-    #[serde(alias = "adjusted_sum")]
+    /// A(h): sum of the children's left-type counts.
     pub left_type_sum: u64,
     /// N1(h): children with left-type count 1.
     pub n1: u64,

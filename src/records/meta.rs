@@ -4,8 +4,9 @@ use serde::{Deserialize, Serialize};
 
 use super::ContextStats;
 
-/// Format version of the store; checked on open.
-pub const STORE_VERSION: u32 = 2;
+/// Format version of the store; checked on open. Version 2 is read too,
+/// converted by [`super::upgrade_store_meta`].
+pub const STORE_VERSION: u32 = 3;
 
 /// Settings that change what is counted.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -77,8 +78,7 @@ pub struct OrderStats {
     /// Count-of-counts of the left-type counts `(r, n_r)` (the counts the
     /// lower orders of Kneser-Ney use: distinct left extensions, or the raw
     /// count where the n-gram starts with `<s>`), r ascending, `<s>` left
-    /// out. Stores written before this name read it from `coc_adjusted`.
-    #[serde(alias = "coc_adjusted")]
+    /// out.
     pub coc_left_type: Vec<(u64, u64)>,
 }
 
@@ -124,25 +124,4 @@ pub struct GrowthCurve {
     /// sample point below T (20 per decade, see [`crate::growth`]) and then
     /// (T, types).
     pub points: Vec<(u64, u64)>,
-}
-
-#[cfg(test)]
-mod tests {
-    use super::OrderStats;
-
-    /// Metadata written before the rename (field `coc_adjusted`) still
-    /// reads, into the same record.
-    #[test]
-    fn the_old_field_name_still_reads() {
-        let o = OrderStats {
-            order: 2,
-            ngrams: 7,
-            coc_raw: vec![(1, 5), (2, 2)],
-            coc_left_type: vec![(1, 4), (3, 3)],
-        };
-        let new = serde_json::to_string(&o).unwrap();
-        assert!(new.contains("\"coc_left_type\""));
-        let old = new.replace("coc_left_type", "coc_adjusted");
-        assert_eq!(serde_json::from_str::<OrderStats>(&old).unwrap(), o);
-    }
 }

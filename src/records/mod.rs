@@ -12,12 +12,16 @@
 //!
 //! Nothing here does I/O; the types serialise with serde into the ingest
 //! manifest, the cluster stages' `done.json` files and the store's
-//! metadata record, whose byte layouts therefore live here too.
+//! metadata record, whose byte layouts therefore live here too, with the
+//! conversion of the records older versions wrote ([`upgrade_store_meta`],
+//! [`upgrade_partition_records`]).
 
 mod context;
 mod meta;
 mod partition;
+mod upgrade;
 
 pub use context::ContextStats;
 pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
 pub use partition::{store_meta, Joined, Merged, PartitionStats, ReadTotals};
+pub use upgrade::{upgrade_partition_records, upgrade_store_meta};

@@ -58,9 +58,7 @@ pub struct PartitionStats {
     /// Raw count-of-counts per order: count → number of n-grams.
     pub coc_raw: Vec<BTreeMap<u64, u64>>,
     /// Count-of-counts of the left-type counts per order (see
-    /// `OrderStats::coc_left_type`); read from `coc_adjusted` in records
-    /// written before this name.
-    #[serde(alias = "coc_adjusted")]
+    /// `OrderStats::coc_left_type`).
     pub coc_left_type: Vec<BTreeMap<u64, u64>>,
     /// This partition's share of the empty context's statistics.
     pub root: ContextStats,
@@ -130,23 +128,5 @@ pub fn store_meta<'a>(
         orders,
         root,
         growth: None,
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::ContextStats;
-
-    /// Store metadata written before the rename (field `adjusted_sum`)
-    /// still reads, into the same record.
-    #[test]
-    fn the_old_field_name_still_reads() {
-        let mut s = ContextStats::default();
-        s.add_child(5, 2);
-        s.add_child(1, 1);
-        let new = serde_json::to_string(&s).unwrap();
-        assert!(new.contains("\"left_type_sum\":3"));
-        let old = new.replace("left_type_sum", "adjusted_sum");
-        assert_eq!(serde_json::from_str::<ContextStats>(&old).unwrap(), s);
     }
 }

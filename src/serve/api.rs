@@ -211,13 +211,7 @@ pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
     let (&w, ctx) = ids.split_last().expect("the word is one token");
     let r = p.prob(ctx, w)?;
     let text = line.split_whitespace().collect::<Vec<_>>().join(" ");
-    to_text(&ProbJson::new(
-        &text,
-        p.method(),
-        r.p,
-        Some(r.order),
-        Some(r.oov),
-    ))
+    to_text(&ProbJson::new(&text, p.method(), r.p, Some(r.matched())))
 }
 
 /// `/next`: the top words after the context that begin with the prefix.

@@ -7,8 +7,8 @@
 //! |---|---|
 //! | `GET /health` | `{"ok": true}` |
 //! | `GET /info` | what is served: `source`, `order`, `method`, `methods`, `vocabulary_size`, `ngrams` per order, … |
-//! | `POST /prob` `{"context", "word", "method"?}` | the fields of `quern prob --json` |
-//! | `POST /next` `{"context", "prefix"?, "top"?, "method"?}` | `{"context", "prefix", "method", "words": [{"word", "probability", "log10"}…], "rest", "words_scored"}` |
+//! | `POST /prob` `{"context", "word", "method"?}` | `{"words", "probability" (or "score"), "log10", "matched"}`: the fields of `quern prob --json` (`matched`: how many words of the n-gram matched, 0 for a word outside V) |
+//! | `POST /next` `{"context", "prefix"?, "top"?, "method"?}` | `{"context", "prefix", "method", "words": [{"word", "probability", "log10"}…], "rest", "words_scored"}`: the `words` of `quern next --json` |
 //! | `POST /score` `{"texts": […], "method"?}` | `{"method", "results": […]}`, one scored-document record per text |
 //! | `POST /ngrams` `{"words", "order"?, "limit"?, "after"?}` | `{"order", "ngrams": [{"words", "count", "continuation"}…], "more", "next"}`: a store's n-grams that begin with the words, with counts, a page at a time (`next` is the cursor to pass as `after`, as `quern ngrams --after` takes it) |
 //! | `GET /stats.svg` | a store's statistics figure (as `quern stats --plot`) |

@@ -115,7 +115,11 @@ pub fn read_done<T: DeserializeOwned>(
     job: &str,
 ) -> Result<Option<Done<T>>> {
     let path = out.join(DONE_FILE);
-    let Some(d): Option<Done<T>> = fsutil::read_checked_json_versioned(&path, STAGE_VERSION)?
+    let Some(d): Option<Done<T>> = fsutil::read_checked_json_upgraded(
+        &path,
+        STAGE_VERSION,
+        crate::records::upgrade_partition_records,
+    )?
     else {
         return Ok(None);
     };

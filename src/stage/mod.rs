@@ -61,7 +61,9 @@ pub use tasks::{run_join, run_map, run_merge};
 use std::path::{Path, PathBuf};
 
 /// Format version of `job.json` and of the `done.json` of every output.
-pub const STAGE_VERSION: u32 = 1;
+/// Version 1 is read too, converted by
+/// [`crate::records::upgrade_partition_records`].
+pub const STAGE_VERSION: u32 = 2;
 
 /// File name of the plan inside the shared directory.
 pub const JOB_FILE: &str = "job.json";

@@ -36,7 +36,12 @@ impl Job {
     /// Reads and verifies `DIR/job.json`.
     pub fn load(dir: &Path) -> Result<Job> {
         let path = dir.join(JOB_FILE);
-        fsutil::read_checked_json_versioned(&path, STAGE_VERSION)?.ok_or_else(|| {
+        fsutil::read_checked_json_upgraded(
+            &path,
+            STAGE_VERSION,
+            crate::records::upgrade_partition_records,
+        )?
+        .ok_or_else(|| {
             Error::state(
                 dir,
                 format!(

@@ -117,7 +117,12 @@ impl Store {
             .get_cf(meta_cf, keys::META_KEY)
             .map_err(rocks)?
             .ok_or_else(|| Error::corrupt(&path, "no metadata record"))?;
-        let meta: StoreMeta = crate::fsutil::parse_versioned(&path, &raw, STORE_VERSION)?;
+        let meta: StoreMeta = crate::fsutil::parse_upgraded(
+            &path,
+            &raw,
+            STORE_VERSION,
+            crate::records::upgrade_store_meta,
+        )?;
         let ranks = read_ranks(&db, &path)?;
         Ok(Store {
             dir: dir.to_path_buf(),

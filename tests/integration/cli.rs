@@ -318,7 +318,7 @@ fn stats_json_fields_present() {
     assert!(summary.is_object(), "ingest --json summary: {summary}");
 
     let s = stats_json(&store);
-    assert_eq!(s["format_version"], 2);
+    assert_eq!(s["format_version"], 3);
     assert_eq!(s["settings"]["order"], 3);
     assert_eq!(s["settings"]["lowercase"], false);
     for key in [

@@ -232,7 +232,7 @@ fn next_batch_equals_single_queries() {
         let b = &got[i];
         assert_eq!(b["line"], i + 1);
         assert_eq!(b["prefix"], p);
-        assert_eq!(b["top"], one["top"], "line {}", i + 1);
+        assert_eq!(b["words"], one["words"], "line {}", i + 1);
         assert_eq!(b["context"], one["context"]);
         assert_eq!(b["rest"], one["rest"]);
         // TSV: the same words in the same order (the last line has no tab,
@@ -243,7 +243,7 @@ fn next_batch_equals_single_queries() {
                 .filter(|r| r[0] == (i + 1).to_string())
                 .map(|r| r[4])
                 .collect();
-            let want: Vec<&str> = one["top"]
+            let want: Vec<&str> = one["words"]
                 .as_array()
                 .unwrap()
                 .iter()
@@ -253,7 +253,7 @@ fn next_batch_equals_single_queries() {
         }
     }
     // The prefix that no word has: an empty list, the line still answered.
-    assert_eq!(got[5]["top"].as_array().unwrap().len(), 0);
+    assert_eq!(got[5]["words"].as_array().unwrap().len(), 0);
     // The empty context: the unigram level, words beginning with "th".
     let st = Store::open(train3()).unwrap();
     let est = Estimator::new(&st, Method::Mkn, Params::default()).unwrap();
@@ -263,7 +263,7 @@ fn next_batch_equals_single_queries() {
         .iter()
         .map(|x| est.store().word(x.0).unwrap().unwrap())
         .collect();
-    let shown: Vec<&str> = got[2]["top"]
+    let shown: Vec<&str> = got[2]["words"]
         .as_array()
         .unwrap()
         .iter()

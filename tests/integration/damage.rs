@@ -150,6 +150,27 @@ fn damaged_merge_after_runs_are_gone_names_the_file() {
     }
 }
 
+/// Rewrites the metadata record of the store in `store` with `f`, with the
+/// rocksdb crate, as another version of quern would have written it.
+fn rewrite_meta(store: &Path, f: impl FnOnce(&mut serde_json::Value)) {
+    let db_path = store.join("db");
+    let cfs = rocksdb::DB::list_cf(&rocksdb::Options::default(), &db_path).unwrap();
+    let db = rocksdb::DB::open_cf(&rocksdb::Options::default(), &db_path, &cfs).unwrap();
+    let cf = db.cf_handle(quern::store::keys::META_CF).unwrap();
+    let raw = db
+        .get_cf(cf, quern::store::keys::META_KEY)
+        .unwrap()
+        .unwrap();
+    let mut meta: serde_json::Value = serde_json::from_slice(&raw).unwrap();
+    f(&mut meta);
+    db.put_cf(
+        cf,
+        quern::store::keys::META_KEY,
+        serde_json::to_vec(&meta).unwrap(),
+    )
+    .unwrap();
+}
+
 /// A store whose metadata says another format version: opening it is a
 /// clear error naming the store and both versions (the metadata record is
 /// rewritten here with the rocksdb crate, as a future version would).
@@ -160,24 +181,9 @@ fn store_of_another_format_version_is_refused_on_open() {
     let text = tmp.path().join("t.txt");
     std::fs::write(&text, "one two three\n").unwrap();
     ingest_ok(&store, &["--order", "2", "--quiet"], &[text]);
-    let db_path = store.join("db");
-    {
-        let cfs = rocksdb::DB::list_cf(&rocksdb::Options::default(), &db_path).unwrap();
-        let db = rocksdb::DB::open_cf(&rocksdb::Options::default(), &db_path, &cfs).unwrap();
-        let cf = db.cf_handle(quern::store::keys::META_CF).unwrap();
-        let raw = db
-            .get_cf(cf, quern::store::keys::META_KEY)
-            .unwrap()
-            .unwrap();
-        let mut meta: serde_json::Value = serde_json::from_slice(&raw).unwrap();
+    rewrite_meta(&store, |meta| {
         meta["format_version"] = serde_json::json!(999);
-        db.put_cf(
-            cf,
-            quern::store::keys::META_KEY,
-            serde_json::to_vec(&meta).unwrap(),
-        )
-        .unwrap();
-    }
+    });
     for cmd in ["stats", "dump"] {
         let r = run(&[cmd, "--store", &store.display().to_string()]);
         r.assert_failure();
@@ -189,4 +195,83 @@ fn store_of_another_format_version_is_refused_on_open() {
             r.describe()
         );
     }
+}
+
+/// A store of format version 2, whose metadata names the left-type
+/// statistics `coc_adjusted` (per order) and `adjusted_sum` (the empty
+/// context), opens and reads as the same store: the metadata of a fresh
+/// store of `a b a` is rewritten as version 2 wrote it, and `stats --json`,
+/// `dump` and `prob --json` then give what they gave before. The fresh
+/// store's left-type statistics are checked by hand first: a is seen after
+/// `<s>` and b (2 left types), b and `</s>` after a (1 each).
+#[test]
+fn store_of_format_version_2_opens_as_the_same_store() {
+    let tmp = tempfile::tempdir().unwrap();
+    let store = tmp.path().join("store");
+    let text = tmp.path().join("t.txt");
+    std::fs::write(&text, "a b a\n").unwrap();
+    ingest_ok(&store, &["--order", "2", "--quiet"], &[text]);
+    let s = store.display().to_string();
+    let outputs = || {
+        [
+            vec!["stats", "--json", "--store", &s],
+            vec!["dump", "--store", &s],
+            // Kneser-Ney's unigram level divides by the root's left-type sum.
+            vec![
+                "prob",
+                "--json",
+                "--store",
+                &s,
+                "--method",
+                "kn",
+                "--discounts",
+                "fixed:0.5",
+                "b",
+                "a",
+            ],
+            vec![
+                "prob",
+                "--json",
+                "--store",
+                &s,
+                "--method",
+                "kn",
+                "--discounts",
+                "fixed:0.5",
+                "</s>",
+            ],
+        ]
+        .map(|a| {
+            let r = run(&a);
+            r.assert_success();
+            r.stdout
+        })
+    };
+    let before = outputs();
+    let mut version = 0;
+    rewrite_meta(&store, |meta| {
+        version = meta["format_version"].as_u64().unwrap();
+        assert_eq!(
+            meta["orders"][0]["coc_left_type"],
+            serde_json::json!([[1, 2], [2, 1]])
+        );
+        let root = meta["root"].as_object_mut().unwrap();
+        assert_eq!(
+            serde_json::Value::Object(root.clone()),
+            serde_json::json!({"count_sum": 4, "types": 3, "left_type_sum": 4,
+                               "n1": 2, "n2": 1, "n3plus": 0})
+        );
+        let x = root.remove("left_type_sum").unwrap();
+        root.insert("adjusted_sum".into(), x);
+        for o in meta["orders"].as_array_mut().unwrap() {
+            let o = o.as_object_mut().unwrap();
+            let x = o.remove("coc_left_type").unwrap();
+            o.insert("coc_adjusted".into(), x);
+        }
+        meta["format_version"] = serde_json::json!(2);
+    });
+    assert_eq!(version, u64::from(quern::store::STORE_VERSION));
+    assert_ne!(version, 2);
+    let after = outputs();
+    assert_eq!(after, before);
 }

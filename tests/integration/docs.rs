@@ -339,6 +339,43 @@ fn two_model_score_equals_two_separate_runs() {
         checked += 1;
     }
     assert!(checked > 300);
+    // --words with two models: each prediction is the main store's own
+    // (`word`, `log10`, `matched`) with `general`, the general store's own
+    // `log10` and `matched`.
+    let words = |store: &Path, more: &[&str]| {
+        let mut a = vec!["--jsonl", "--words"];
+        a.extend(more);
+        score_docs(store, &a, &[input_file()]).0
+    };
+    let g = s(general_store());
+    let (a, b, both) = (
+        words(train3(), &[]),
+        words(general_store(), &[]),
+        words(train3(), &["--minus-store", &g]),
+    );
+    let mut predictions = 0;
+    for ((x, y), z) in a.iter().zip(&b).zip(&both) {
+        let Some(zw) = z["words"].as_array() else {
+            assert!(z.get("error").is_some(), "{z}");
+            continue;
+        };
+        let (xw, yw) = (
+            x["words"].as_array().unwrap(),
+            y["words"].as_array().unwrap(),
+        );
+        assert_eq!((zw.len(), zw.len()), (xw.len(), yw.len()));
+        for ((p, q), r) in xw.iter().zip(yw).zip(zw) {
+            let mut main = r.clone();
+            let general = main.as_object_mut().unwrap().remove("general").unwrap();
+            assert_eq!(&main, p);
+            assert_eq!(
+                general,
+                json!({"log10": q["log10"], "matched": q["matched"]})
+            );
+            predictions += 1;
+        }
+    }
+    assert!(predictions > 10_000, "{predictions}");
 }
 
 #[test]
@@ -466,24 +503,63 @@ fn compressed_inputs_lines_format_and_words() {
     std::fs::write(&txt, some.join("\n") + "\n").unwrap();
     let (ls, _) = score_docs(train3(), &["--lines", "--words"], &[&txt]);
     assert_eq!(ls.len(), 30);
+    let store = quern::store::Store::open(train3()).unwrap();
+    let stored = |ids: &[quern::words::WordId]| store.get(ids).unwrap().is_some();
+    let mut matched_seen = [0usize; 4];
     for (i, o) in ls.iter().enumerate() {
         assert_eq!(o["id"], json!(i + 1));
-        // --words: one entry per prediction; their log10 sum to the total;
-        // the OOV flags count the OOV predictions; the last is </s>.
+        // --words: one object per prediction with exactly `word`, `log10`
+        // and `matched`; their log10 sum to the total; the predictions
+        // that matched 0 words are the ones outside the vocabulary; the
+        // last is </s>.
         let w = o["words"].as_array().unwrap();
         assert_eq!(w.len() as u64, o["predictions"].as_u64().unwrap());
-        let sum: f64 = w.iter().map(|x| x[1].as_f64().unwrap()).sum();
+        for x in w {
+            let keys: Vec<&str> = x.as_object().unwrap().keys().map(|k| k.as_str()).collect();
+            let mut sorted = vec!["log10", "matched", "word"];
+            sorted.sort();
+            assert_eq!(keys, sorted, "{x}");
+        }
+        let sum: f64 = w.iter().map(|x| x["log10"].as_f64().unwrap()).sum();
         assert!(close(sum, o["log10_sum"].as_f64().unwrap()));
-        let oov = w.iter().filter(|x| x[3] == json!(true)).count() as u64;
+        let oov = w.iter().filter(|x| x["matched"] == json!(0)).count() as u64;
         assert_eq!(oov, o["outside_vocabulary"].as_u64().unwrap());
-        assert_eq!(w.last().unwrap()[0], json!("</s>"));
+        assert_eq!(w.last().unwrap()["word"], json!("</s>"));
         let tokens: Vec<&str> = some[i].split_whitespace().collect();
         let got: Vec<&str> = w[..w.len() - 1]
             .iter()
-            .map(|x| x[0].as_str().unwrap())
+            .map(|x| x["word"].as_str().unwrap())
             .collect();
         assert_eq!(got, tokens);
+        // `matched` against the store read directly: 0 for a word that is
+        // not a stored unigram, else the longest k (at most the order, 3)
+        // for which the word and the k − 1 words before it (after `<s>`,
+        // words outside V counted as `<unk>`) are a stored n-gram.
+        let mut ids = vec![quern::words::bos_id()];
+        for t in tokens
+            .iter()
+            .map(|t| t.as_bytes())
+            .chain([b"</s>".as_slice()])
+        {
+            let id = quern::words::word_id(t);
+            let want = if stored(&[id]) {
+                let at = ids.len();
+                ids.push(id);
+                (1..=3.min(ids.len()))
+                    .rev()
+                    .find(|&k| stored(&ids[at + 1 - k..]))
+                    .unwrap()
+            } else {
+                ids.push(quern::words::unk_id());
+                0
+            };
+            let j = ids.len() - 2;
+            assert_eq!(w[j]["matched"], json!(want), "line {} word {j}", i + 1);
+            matched_seen[want] += 1;
+        }
     }
+    // The check saw every matched length.
+    assert!(matched_seen.iter().all(|&n| n > 0), "{matched_seen:?}");
     let p = plain_score(train3(), &format!("{}\n", some[3]), "line4.txt");
     assert!(close(
         ls[3]["perplexity"].as_f64().unwrap(),

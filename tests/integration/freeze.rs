@@ -655,7 +655,7 @@ fn cli_model_answers_like_the_store() {
             v.as_object().unwrap().keys().cloned().collect()
         };
         assert_eq!(keys(x), keys(y));
-        for k in ["words", "order", "oov"] {
+        for k in ["words", "matched"] {
             assert_eq!(x[k], y[k], "{k}: {x} vs {y}");
         }
         let (p, q) = (
@@ -680,11 +680,11 @@ fn cli_model_answers_like_the_store() {
         };
         assert_eq!(keys(x), keys(y));
         assert_eq!(x["context"], y["context"]);
-        for (i, j) in x["top"]
+        for (i, j) in x["words"]
             .as_array()
             .unwrap()
             .iter()
-            .zip(y["top"].as_array().unwrap())
+            .zip(y["words"].as_array().unwrap())
         {
             assert_eq!(i["word"], j["word"], "{ctx}");
             assert!(close(
@@ -709,8 +709,8 @@ fn cli_model_answers_like_the_store() {
     for k in [
         "sentences",
         "predictions",
-        "oov",
-        "zero_probability",
+        "outside_vocabulary",
+        "probability_zero",
         "method",
     ] {
         assert_eq!(x[k], y[k], "{k}");

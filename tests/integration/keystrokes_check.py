@@ -56,7 +56,7 @@ def main():
     shown = {}
     for q, a in zip(queries, answers):
         assert a["prefix"] == q.split("\t")[1]
-        shown[q] = [x["word"] for x in a["top"]]
+        shown[q] = [x["word"] for x in a["words"]]
 
     words = outside = without = 0
     with_ = [0] * len(tops)

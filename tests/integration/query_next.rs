@@ -9,7 +9,7 @@ use quern::query::{prefix_page, Estimator, Method, Params};
 use quern::store::Store;
 use quern::words::{bos_id, word_id, WordId};
 
-use crate::common::{run_ok, run_with_stdin};
+use crate::common::{ingest_ok, run_ok, run_with_stdin};
 use crate::query_fixtures::{heldout_sentences, train3, train5};
 
 fn contexts(n: usize) -> Vec<Vec<WordId>> {
@@ -221,6 +221,104 @@ fn prob_batch_from_stdin_equals_single_queries() {
             let one = run_ok(&args);
             assert_eq!(one.stdout.trim_end(), *l);
         }
+    }
+}
+
+/// `prob --json` writes `words`, `probability` (`score` for `stupid`),
+/// `log10` and `matched`, in that order; `matched` is checked against the
+/// store read directly (source of truth: the definition of the field): 0
+/// for a word that is not a stored unigram, else the longest k for which
+/// the word and the k − 1 words before it (words outside V counted as
+/// `<unk>`) are a stored n-gram.
+#[test]
+fn prob_json_fields_and_matched_length() {
+    let path = train3();
+    let store = Store::open(path).unwrap();
+    let stored = |ids: &[WordId]| store.get(ids).unwrap().is_some();
+    let mut queries: Vec<String> = vec![
+        "zzqq-unknown".into(),
+        "of zzqq-unknown".into(),
+        "zzqq-unknown the".into(),
+        "<s> Anne".into(),
+    ];
+    for line in std::fs::read_to_string(crate::query_fixtures::heldout_path())
+        .unwrap()
+        .lines()
+        .filter(|l| !l.trim().is_empty())
+        .take(60)
+    {
+        let w: Vec<&str> = line.split_whitespace().collect();
+        for i in 1..=w.len() {
+            queries.push(w[i.saturating_sub(3)..i].join(" "));
+        }
+    }
+    let input = queries.join("\n") + "\n";
+    let path = path.display().to_string();
+    for (m, key) in [("kn", "probability"), ("stupid", "score")] {
+        let r = run_with_stdin(
+            &["prob", "--store", &path, "--method", m, "--json"],
+            input.as_bytes(),
+        );
+        r.assert_success();
+        let lines: Vec<&str> = r.stdout.lines().collect();
+        assert_eq!(lines.len(), queries.len());
+        let mut seen = [0usize; 4];
+        for (q, l) in queries.iter().zip(&lines) {
+            let at = |k: &str| {
+                l.find(&format!("\"{k}\":"))
+                    .unwrap_or_else(|| panic!("{k}: {l}"))
+            };
+            assert!(
+                at("words") < at(key) && at(key) < at("log10") && at("log10") < at("matched"),
+                "{l}"
+            );
+            let v: serde_json::Value = serde_json::from_str(l).unwrap();
+            assert_eq!(v.as_object().unwrap().len(), 4, "{l}");
+            let mut ids: Vec<WordId> = q
+                .split_whitespace()
+                .map(|t| word_id(t.as_bytes()))
+                .collect();
+            let word = ids.pop().unwrap();
+            let want = if stored(&[word]) {
+                for id in ids.iter_mut() {
+                    if !stored(&[*id]) {
+                        *id = quern::words::unk_id();
+                    }
+                }
+                ids.push(word);
+                let n = ids.len();
+                (1..=n.min(3))
+                    .rev()
+                    .find(|&k| stored(&ids[n - k..]))
+                    .unwrap()
+            } else {
+                0
+            };
+            assert_eq!(v["matched"], want, "{m}: {l}");
+            seen[want] += 1;
+        }
+        assert!(seen.iter().all(|&n| n > 0), "{seen:?}");
+    }
+    // A word outside V matches 0 words even where `<unk>`, which it is
+    // scored as, is stored after its context: this text has a literal
+    // `<unk>` (counted as `<unk>`) after "the", so "the <unk>" is stored.
+    let tmp = tempfile::tempdir().unwrap();
+    let text = tmp.path().join("t.txt");
+    std::fs::write(&text, "the <unk> sat\nthe cat sat\n").unwrap();
+    let small = tmp.path().join("store");
+    ingest_ok(&small, &["--order", "2", "--quiet"], &[text]);
+    let small = small.display().to_string();
+    for (q, want) in [
+        ("the dog", 0),
+        ("the cat", 2),
+        ("the <unk>", 2),
+        ("dog sat", 2),
+        ("cat the", 1),
+    ] {
+        let mut a = vec!["prob", "--json", "--store", &small];
+        a.extend(q.split(' '));
+        let v: serde_json::Value = serde_json::from_str(&run_ok(&a).stdout).unwrap();
+        assert_eq!(v["matched"], want, "{q}: {v}");
     }
 }
 

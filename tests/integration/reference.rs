@@ -333,7 +333,7 @@ impl Reference {
             })
             .collect();
         json!({
-            "format_version": 2,
+            "format_version": 3,
             "settings": {"order": self.settings.order, "lowercase": self.settings.lowercase},
             "totals": {
                 "sentences": self.sentences,
@@ -486,7 +486,7 @@ mod tests {
             ])
         );
         let s = &view.stats;
-        assert_eq!(s["format_version"], json!(2));
+        assert_eq!(s["format_version"], json!(3));
         assert_eq!(s["settings"], json!({"order": 3, "lowercase": false}));
         assert_eq!(
             s["totals"],

@@ -234,8 +234,8 @@ fn check_next(srv: &Server, model: bool, methods: &[&str]) {
             let want = cli_next(model, Some(m), ctx, 10);
             let (st, got) = srv.post("/next", &json!({ "context": ctx, "top": 10, "method": m }));
             assert_eq!(st, 200, "{got}");
-            // Source of truth: `quern next --json` (its `top` is our `words`).
-            assert_eq!(got["words"], want["top"], "/next {m} {ctx:?}");
+            // Source of truth: `quern next --json`, the same `words`.
+            assert_eq!(got["words"], want["words"], "/next {m} {ctx:?}");
             assert_eq!(got["rest"], want["rest"], "/next {m} {ctx:?}");
             assert_eq!(got["context"], want["context"], "/next {m} {ctx:?}");
             assert_eq!(got["method"], want["method"]);
@@ -256,7 +256,7 @@ fn check_next(srv: &Server, model: bool, methods: &[&str]) {
         ("in the", "zq"),
     ] {
         let all = cli_next(model, None, ctx, v);
-        let want: Vec<&Value> = all["top"]
+        let want: Vec<&Value> = all["words"]
             .as_array()
             .unwrap()
             .iter()

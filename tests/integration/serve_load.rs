@@ -40,7 +40,7 @@ fn cases(model: bool) -> Vec<Case> {
         out.push(Case {
             path: "/next",
             body: json!({ "context": ctx, "top": 10 }).to_string(),
-            want: cli_next(model, None, ctx, 10)["top"].clone(),
+            want: cli_next(model, None, ctx, 10)["words"].clone(),
         });
     }
     out

@@ -92,7 +92,7 @@ fn shown(dom: &str) -> Vec<(String, Vec<(String, f64)>)> {
 }
 
 fn cli_words(v: &Value) -> Vec<(String, f64)> {
-    v["top"]
+    v["words"]
         .as_array()
         .unwrap()
         .iter()
@@ -171,7 +171,7 @@ fn page_in_chromium_shows_the_clis_words() {
         "/next",
         &serde_json::json!({ "context": context, "prefix": "he", "top": 5 }),
     );
-    let want: Vec<(String, f64)> = cli_words(&serde_json::json!({ "top": api["words"] }));
+    let want: Vec<(String, f64)> = cli_words(&api);
     assert_eq!(got.len(), 1);
     assert_eq!(got[0].0, "mkn");
     same(&got[0].1, &want, "mkn with a word start");

@@ -67,8 +67,10 @@ def test_next_equals_quern_next(preds, cli):
                 # No context words: `quern next` reads queries from standard
                 # input, and an empty line asks after the empty context.
                 want = cli.json_lines("next", *flags, "--json", "--top", 12, input="\n")[0]
-            key = "probability" if p.is_probability else "score"
-            assert got == [(x["word"], x[key]) for x in want["top"]], (name, ctx)
+            # The same items, field for field (word, probability or score,
+            # log10), in the same order.
+            assert got == want["words"], (name, ctx)
+            assert [list(x) for x in got] == [list(x) for x in want["words"]], (name, ctx)
             assert len(got) == 12
 
 
@@ -77,10 +79,10 @@ def test_next_with_prefix_is_the_full_ranking_filtered(preds, cli):
     # V, kept where the word begins with it (never <s>, <unk> or </s>).
     for name, p, flags in preds[:1] + preds[-2:-1]:
         for ctx, prefix in [("it was", "th"), ("<s>", "A"), ("of", "zz")]:
-            full = cli.json("next", *flags, "--json", "--top", 10 ** 6, *ctx.split())["top"]
+            full = cli.json("next", *flags, "--json", "--top", 10 ** 6, *ctx.split())["words"]
             want = [(x["word"], x["probability"]) for x in full
                     if x["word"].startswith(prefix) and x["word"] not in ("<s>", "<unk>", "</s>")][:7]
-            got = p.next(ctx.split(), top=7, prefix=prefix)
+            got = [(x["word"], x["probability"]) for x in p.next(ctx.split(), top=7, prefix=prefix)]
             assert [w for w, _ in got] == [w for w, _ in want], (name, ctx, prefix)
             for (_, a), (_, b) in zip(got, want):
                 assert a == pytest.approx(b, rel=1e-12, abs=0), (name, ctx, prefix)

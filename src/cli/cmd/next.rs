@@ -18,7 +18,7 @@ struct NextJson<'a> {
     context: &'a str,
     prefix: &'a str,
     method: &'static str,
-    top: Vec<WordJson<'a>>,
+    words: Vec<WordJson<'a>>,
     rest: serde_json::Value,
     words_scored: usize,
     seconds: f64,
@@ -41,7 +41,7 @@ fn write_json(
     secs: f64,
 ) -> anyhow::Result<()> {
     let names = names(est, next)?;
-    let top = next
+    let list = next
         .items
         .iter()
         .zip(&names)
@@ -52,7 +52,7 @@ fn write_json(
         context,
         prefix,
         method: est.method().name(),
-        top,
+        words: list,
         rest: if est.method().is_probability() {
             jnum(next.rest)
         } else {

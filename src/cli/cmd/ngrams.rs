@@ -65,7 +65,7 @@ pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
         for (i, (k, c, cont)) in page.items.iter().enumerate() {
             let (probability, score, log10) = match (&probs, &est) {
                 (Some(ps), Some(e)) => {
-                    let j = ProbJson::new("", e.method(), ps[i].p, None, None);
+                    let j = ProbJson::new("", e.method(), ps[i].p, None);
                     (j.probability, j.score, Some(j.log10))
                 }
                 _ => (None, None, None),

@@ -205,7 +205,7 @@ fn write_one(
     p: &Prob,
 ) -> anyhow::Result<()> {
     if json_out {
-        let v = ProbJson::new(text, method, p.p, Some(p.order), Some(p.oov));
+        let v = ProbJson::new(text, method, p.p, Some(p.matched()));
         serde_json::to_writer(&mut *out, &v)?;
         writeln!(out)?;
     } else {

@@ -90,9 +90,11 @@ class _Predictor:
         """P(word | context) (for `stupid`, the score): `quern prob`."""
     def log10(self, context: Words, word: str) -> float:
         """log10 P(word | context); -inf for probability 0."""
-    def next(self, context: Words, top: int = 10, prefix: str = "") -> list[tuple[str, float]]:
-        """The `top` most probable next words, `(word, probability)`, most
-        probable first; with `prefix`, only words beginning with it."""
+    def next(self, context: Words, top: int = 10, prefix: str = "") -> list[dict[str, Any]]:
+        """The `top` most probable next words, most probable first: the
+        items of `words` of `quern next --json`, each `{"word",
+        "probability" (or "score" for `stupid`), "log10"}` (log10 None for
+        -infinity); with `prefix`, only words beginning with it."""
     def score(self, text: str) -> dict[str, Any]:
         """One document (each line a sentence): `sentences`,
         `predictions`, `outside_vocabulary`, `probability_zero`,
