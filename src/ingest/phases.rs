@@ -90,9 +90,10 @@ impl Run<'_> {
             let cfg = CountConfig {
                 inputs,
                 order: m.settings.order,
-                lowercase: m.settings.lowercase,
+                preparation: m.settings.preparation,
                 word_list: run.word_list,
                 max_line_bytes: m.settings.max_line_bytes,
+                format: &m.format.clone(),
                 partitions: m.partitions,
                 threads: run.threads,
                 worker_bytes: run.plan.count_worker,
@@ -114,6 +115,7 @@ impl Run<'_> {
                     covers: s.covers,
                     hashes: s.hashes,
                     totals: s.totals,
+                    bad: s.bad,
                 });
                 g.0.next_id = next_id.load(Ordering::SeqCst);
                 g.0.save(work)

@@ -59,11 +59,7 @@ impl Estimator<'_> {
         if prefix.is_empty() {
             return self.complete_in(context, Filter::NoMarkers, k);
         }
-        let prefix = if self.store.meta().settings.lowercase {
-            prefix.to_lowercase()
-        } else {
-            prefix.to_string()
-        };
+        let prefix = self.store.meta().settings.preparation.prefix(prefix);
         let ix = self.text_index()?;
         let lo = ix.texts.partition_point(|t| t.as_str() < prefix.as_str());
         let hi = lo + ix.texts[lo..].partition_point(|t| t.starts_with(prefix.as_str()));

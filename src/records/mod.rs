@@ -18,4 +18,6 @@ mod meta;
 mod partition;
 
 pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
-pub use partition::{store_meta, ContextStats, Joined, Merged, PartitionStats, ReadTotals};
+pub use partition::{
+    store_meta, BadLineAt, ContextStats, Joined, Merged, PartitionStats, ReadTotals,
+};

@@ -207,7 +207,7 @@ pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
         )));
     }
     let line = format!("{} {}", q.context, q.word);
-    let ids = query_ids(&line, p.lowercase());
+    let ids = query_ids(&line, &p.preparation());
     let (&w, ctx) = ids.split_last().expect("the word is one token");
     let r = p.prob(ctx, w)?;
     let text = line.split_whitespace().collect::<Vec<_>>().join(" ");
@@ -237,7 +237,7 @@ pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
     }
     let lent = l.get(m)?;
     let p = lent.pred();
-    let ids = query_ids(&q.context, p.lowercase());
+    let ids = query_ids(&q.context, &p.preparation());
     // As `quern next`: always through completion (an empty prefix is all
     // of V), which never suggests `<s>` or `<unk>`.
     let next = p.complete(&ids, &q.prefix, q.top)?;
@@ -283,7 +283,7 @@ pub fn score(l: &mut dyn Local, q: ScoreRequest) -> Answer {
         .collect();
     let mut opts = Options::new(Format::Lines);
     opts.threads = 1;
-    let results = Worker::new(p.lowercase()).score(&opts, lent.doc(), None, &batch)?;
+    let results = Worker::new(p.preparation()).score(&opts, lent.doc(), None, &batch)?;
     let probability = p.method().is_probability();
     to_text(&ScoreAnswer {
         method: p.method().name(),
@@ -319,7 +319,7 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
             )))
         }
     };
-    let prefix = query_ids(&q.words, store.meta().settings.lowercase);
+    let prefix = query_ids(&q.words, &store.meta().settings.preparation);
     let order = q.order.unwrap_or(prefix.len() + 1);
     let page = prefix_page(store, &prefix, order, q.limit, after.as_deref())?;
     let mut list = Vec::with_capacity(page.items.len());
@@ -355,7 +355,8 @@ pub fn info(src: Source<'_>, path: &str) -> Value {
                 "methods": Method::ALL.map(|m| m.name()),
                 "vocabulary_size": meta.totals.vocabulary,
                 "ngrams": meta.orders.iter().map(|o| o.ngrams).collect::<Vec<_>>(),
-                "lowercase": meta.settings.lowercase,
+                "lowercase": meta.settings.preparation.lowercase,
+                "preparation": meta.settings.preparation.to_json(),
                 "tokens": meta.totals.tokens,
                 "sentences": meta.totals.sentences,
                 "counts": true,
@@ -372,7 +373,8 @@ pub fn info(src: Source<'_>, path: &str) -> Value {
                 "vocabulary_size": meta.vocabulary,
                 "ngrams": meta.ngrams,
                 "store_ngrams": meta.store_ngrams,
-                "lowercase": meta.lowercase,
+                "lowercase": meta.preparation.lowercase,
+                "preparation": meta.preparation.to_json(),
                 "probabilities": meta.probabilities,
                 "counts": false,
             })

@@ -126,7 +126,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     let heldout = if a.heldout.is_empty() || !est.method().is_probability() {
         None
     } else {
-        let s = read_sentences(&a.heldout, store.meta().settings.lowercase)?;
+        let s = read_sentences(&a.heldout, store.meta().settings.preparation)?;
         let n = store.order();
         let before = perplexity(&s, n, |q| est.prob_batch(q))?;
         let after = perplexity(&s, n, |q| model.prob_batch(q))?;
