@@ -74,7 +74,7 @@ pub(crate) fn crawl_of(dir: &Path, novels: &[&str]) -> (Vec<PathBuf>, Vec<PathBu
 
 /// A store's view without `input_bytes` (JSON lines are longer than their
 /// texts) and the bad-line count (the plain texts have none).
-fn view(store: &Path) -> StoreView {
+pub(crate) fn view(store: &Path) -> StoreView {
     let mut v = store_view(store);
     strip(&mut v.stats);
     v

@@ -164,6 +164,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             "ngrams_store": report.store_ngrams,
             "min_counts": opts.min_counts,
             "notes": report.notes,
+            "preparation": store.meta().settings.preparation.to_json(),
             "heldout": heldout.map(|(b, a, s)| json!({
                 "sentences": s,
                 "perplexity_store": b.map_or(serde_json::Value::Null, jnum),
@@ -187,6 +188,10 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         est.method(),
         store.order()
     )?;
+    let prep = store.meta().settings.preparation;
+    if prep != quern::tokenize::Preparation::lowercasing(prep.lowercase) {
+        writeln!(o, "  text prepared: {}", prep.describe())?;
+    }
     if !est.method().is_probability() {
         writeln!(
             o,
