@@ -61,6 +61,11 @@ def parse_args(argv):
                    help="a fixed vocabulary, one word a line, on the shared storage (the plan task "
                         "reads it and keeps a copy in --dir); every other token counts as <unk> "
                         "(default: every token counts)")
+    p.add_argument("--jsonl", action="store_true",
+                   help="the inputs are JSON lines, one document a line: the text field of each is "
+                        "counted, its lines as sentences (default: plain text, a line a sentence)")
+    p.add_argument("--text-field", default="text", metavar="NAME",
+                   help="with --jsonl: the field holding the text (default: text)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one merge and one join task each (default 64)")
@@ -231,6 +236,8 @@ def main(argv):
                  "--partitions", a.partitions, "--map-tasks", map_tasks]
     if a.lowercase:
         plan_args.append("--lowercase")
+    if a.jsonl:
+        plan_args += ["--jsonl", "--text-field", a.text_field]
     if a.word_list:
         plan_args += ["--word-list", os.path.abspath(a.word_list)]
     plan_args += [os.path.abspath(i) for i in a.inputs]

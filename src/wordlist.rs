@@ -10,7 +10,7 @@ use crate::error::{Error, Result};
 use crate::fsutil;
 use crate::layout;
 use crate::records::WordListInfo;
-use crate::tokenize::{normalise, WordSet};
+use crate::tokenize::{Preparation, WordSet};
 use crate::words::{BOS, EOS, UNK};
 
 /// A word list read from its file: the set, its record, and its canonical
@@ -63,9 +63,9 @@ pub fn load_kept(dir: &Path, info: &WordListInfo) -> Result<WordList> {
 /// Reads `path`: one word a line (surrounding whitespace ignored, empty
 /// lines skipped; the markers `<s>`, `</s>` and `<unk>` are skipped, as
 /// they are always in V). A line holding whitespace inside it cannot be a
-/// token: an error names the file and line. Words are lowercased when the
-/// ingest lowercases.
-pub fn load(path: &Path, lowercase: bool) -> Result<WordList> {
+/// token: an error names the file and line. Words are prepared as tokens
+/// are at ingest (normalized, lowercased, digits: [`Preparation::prefix`]).
+pub fn load(path: &Path, prep: &Preparation) -> Result<WordList> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, "read", e))?;
     let text = std::str::from_utf8(&bytes).map_err(|e| Error::Input {
         path: path.to_path_buf(),
@@ -86,7 +86,7 @@ pub fn load(path: &Path, lowercase: bool) -> Result<WordList> {
                 ),
             });
         }
-        words.push(normalise(w, lowercase).into_owned());
+        words.push(prep.prefix(w));
     }
     words.sort_unstable();
     words.dedup();

@@ -9,6 +9,7 @@ use quern::query::{DiscountPolicy, Method};
 
 pub use super::stage_args::StageCommand;
 use super::values::{self, method_list, size_syntax, ByteSize};
+use quern::tokenize::{Digits, Normalize, Preparation, Sentences, Tokens};
 
 /// Count n-grams of large corpora in bounded memory, and query the counts.
 #[derive(Parser, Debug)]
@@ -367,6 +368,23 @@ pub struct IngestArgs {
     /// Lowercase every token (Unicode lowercasing). Default: off.
     #[arg(long)]
     pub lowercase: bool,
+    /// Unicode normalization of the text, first of the preparation steps:
+    /// none, nfc or nfkc (UAX #15).
+    #[arg(long, value_name = "FORM", default_value = "none", value_parser = setting::<Normalize>)]
+    pub normalize: Normalize,
+    /// Where sentences end: lines (a line is a sentence), split (UAX #29
+    /// sentence boundaries) or document (a document, or an input line, is
+    /// one sentence).
+    #[arg(long, value_name = "HOW", default_value = "lines", value_parser = setting::<Sentences>)]
+    pub sentences: Sentences,
+    /// What a token is: whitespace (runs of characters that are not
+    /// White_Space) or words (UAX #29 word-boundary segments that are not
+    /// all White_Space: punctuation apart, "can't" and "3.14" whole).
+    #[arg(long, value_name = "HOW", default_value = "whitespace", value_parser = setting::<Tokens>)]
+    pub tokens: Tokens,
+    /// Decimal digits (Unicode Nd): keep, or zero (each becomes 0).
+    #[arg(long, value_name = "HOW", default_value = "keep", value_parser = setting::<Digits>)]
+    pub digits: Digits,
     /// A fixed vocabulary: FILE holds one word a line, and every other
     /// token is counted as `<unk>` (lowercased first with --lowercase). The
     /// store keeps the list; --append and a resume must give the same one.
@@ -376,6 +394,15 @@ pub struct IngestArgs {
     /// Skip (and report) lines longer than this many bytes.
     #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,
+    /// The inputs are JSON lines, one document a line: the text field of
+    /// each (a string) is counted, its lines as sentences. A line that holds
+    /// no document is named, counted and skipped. Default: plain text, a
+    /// line a sentence.
+    #[arg(long)]
+    pub jsonl: bool,
+    /// --jsonl: the field holding the text.
+    #[arg(long, default_value = "text", value_name = "NAME", requires = "jsonl")]
+    pub text_field: String,
     /// Number of partitions the merge is cut into. Default: 16 per thread,
     /// at least 16 and at most 256.
     #[arg(long, value_name = "N")]
@@ -599,4 +626,24 @@ pub struct CheckModelArgs {
     /// One JSON object instead of text. Default: text.
     #[arg(long)]
     pub json: bool,
+}
+
+/// A preparation setting from its name on the command line (the name it
+/// has in the store's records).
+pub(super) fn setting<T: serde::de::DeserializeOwned>(s: &str) -> Result<T, String> {
+    serde_json::from_value(serde_json::Value::String(s.to_string()))
+        .map_err(|_| format!("{s:?} is not one of the values listed in --help"))
+}
+
+impl IngestArgs {
+    /// The preparation the flags ask for.
+    pub fn preparation(&self) -> Preparation {
+        Preparation {
+            normalize: self.normalize,
+            sentences: self.sentences,
+            tokens: self.tokens,
+            lowercase: self.lowercase,
+            digits: self.digits,
+        }
+    }
 }

@@ -7,8 +7,10 @@
 //! share it; a compressed file or standard input is one chunk. Positions are
 //! byte offsets in the (decompressed) stream; a chunk covers whole lines.
 
+pub mod docs;
 mod lines;
 
+pub use docs::{read_document, sentences, BadLine, Document, Format};
 pub use lines::{CoverDigest, Line, LineReader};
 
 use std::fs::File;
@@ -273,4 +275,32 @@ pub fn digest_range(f: &InputFile, start: u64, end: u64, max_line: usize) -> Res
         }
         d.add(kind, &line, lines.position());
     }
+}
+
+/// The line number (1-based) of the line starting at each of `offsets`
+/// (ascending) in input `f`: one plus the line ends before it, counted by
+/// reading the input up to the last offset.
+pub fn line_numbers(f: &InputFile, offsets: &[u64]) -> Result<Vec<u64>> {
+    let mut r = open_at(f, 0)?;
+    let mut pos = 0u64;
+    let mut ends = 0u64;
+    let mut out = Vec::with_capacity(offsets.len());
+    for &at in offsets {
+        while pos < at {
+            let buf = r.fill_buf().map_err(|e| Error::BadInput {
+                path: f.path.clone(),
+                offset: pos,
+                detail: e.to_string(),
+            })?;
+            if buf.is_empty() {
+                break;
+            }
+            let take = buf.len().min((at - pos) as usize);
+            ends += memchr::memchr_iter(b'\n', &buf[..take]).count() as u64;
+            r.consume(take);
+            pos += take as u64;
+        }
+        out.push(ends + 1);
+    }
+    Ok(out)
 }

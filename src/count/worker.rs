@@ -7,13 +7,13 @@ use std::sync::Mutex;
 use super::prefixes::each_with_prefixes;
 use super::Table;
 use crate::corpus::Span;
-use crate::corpus::{open_at, CoverDigest, InputFile, Line, LineReader};
+use crate::corpus::{open_at, read_document, CoverDigest, Format, InputFile, Line, LineReader};
 use crate::error::{Error, Result};
 use crate::growth::{self, FirstSeen};
 use crate::key::partition_of;
-use crate::records::ReadTotals;
+use crate::records::{BadLineAt, ReadTotals};
 use crate::shard::{DictWriter, RunWriter};
-use crate::tokenize::Tokenizer;
+use crate::tokenize::{Preparation, Tokenizer};
 use crate::words::Dictionary;
 
 /// What the counting workers need to know.
@@ -22,12 +22,14 @@ pub struct CountConfig<'a> {
     pub inputs: &'a [InputFile],
     /// Highest order N.
     pub order: usize,
-    /// Lowercase tokens.
-    pub lowercase: bool,
+    /// How the text is prepared.
+    pub preparation: Preparation,
     /// Count every token outside this list as `<unk>`.
     pub word_list: Option<&'a crate::tokenize::WordSet>,
     /// Longest line kept, in bytes.
     pub max_line_bytes: usize,
+    /// How input lines hold documents.
+    pub format: &'a Format,
     /// Number of partitions.
     pub partitions: u32,
     /// Worker threads.
@@ -58,9 +60,14 @@ pub struct Spill {
     pub hashes: Vec<u64>,
     /// What was read in them.
     pub totals: ReadTotals,
+    /// The first [`BAD_LINES_KEPT`] bad lines of them.
+    pub bad: Vec<BadLineAt>,
     /// Bytes written.
     pub bytes: u64,
 }
+
+/// Bad lines named per spill (the rest are counted only).
+pub const BAD_LINES_KEPT: usize = 10;
 
 /// Counts `spans` with `cfg.threads` workers. `commit` is called (from the
 /// worker, serialised by a lock) after each spill's files are durable; the
@@ -102,7 +109,11 @@ struct Worker<'a> {
     covers: Vec<Span>,
     hashes: Vec<u64>,
     totals: ReadTotals,
+    bad: Vec<BadLineAt>,
     pending: Vec<(String, u64)>,
+    /// A document's ids and where each of its sentences ends.
+    doc: Vec<crate::words::WordId>,
+    ends: Vec<usize>,
 }
 
 impl<'a> Worker<'a> {
@@ -117,7 +128,10 @@ impl<'a> Worker<'a> {
             covers: Vec::new(),
             hashes: Vec::new(),
             totals: ReadTotals::default(),
+            bad: Vec::new(),
             pending: Vec::new(),
+            doc: Vec::new(),
+            ends: Vec::new(),
         }
     }
 
@@ -155,12 +169,10 @@ impl<'a> Worker<'a> {
             span.end,
             self.cfg.max_line_bytes,
         );
-        let tok = Tokenizer::new(self.cfg.lowercase).with_word_list(self.cfg.word_list);
+        let tok = Tokenizer::new(self.cfg.preparation).with_word_list(self.cfg.word_list);
         let mut line = Vec::new();
-        let mut ids = Vec::new();
         let mut from = span.start;
         let mut digest = CoverDigest::default();
-        let n = self.cfg.order;
         loop {
             let before = lines.position();
             let step = (|| -> Result<Line> {
@@ -171,42 +183,20 @@ impl<'a> Worker<'a> {
                 match kind {
                     Line::End => {}
                     Line::TooLong => self.totals.skipped_lines += 1,
-                    Line::Text => {
-                        let words = self.dict.len();
-                        let r = tok.sentence(&line, &mut self.dict, &mut ids)?;
-                        // Only a sentence that added a word to the
-                        // dictionary (or holds a marker) can hold a first
-                        // sighting; `</s>` is looked for until seen.
-                        let scan = self.dict.len() != words
-                            || r.marker_tokens > 0
-                            || !self.first.contains(crate::words::eos_id());
-                        self.first.sentence(&ids, scan);
-                        self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
-                        self.totals.marker_tokens += r.marker_tokens;
-                        self.totals.mapped_tokens += r.mapped_tokens;
-                        if !ids.is_empty() {
-                            self.totals.sentences += 1;
-                            // Only the longest k-gram of each position:
-                            // the shorter ones are its prefixes, counted
-                            // when the table is written (`prefixes`).
-                            for i in 0..ids.len() {
-                                // Ask for the next position's slot now:
-                                // a likely cache miss, which loads while
-                                // this position's is updated.
-                                if i + 1 < ids.len() {
-                                    let end = (i + 1 + n).min(ids.len());
-                                    self.table.prefetch(&ids[i + 1..end]);
-                                }
-                                self.table.add(&ids[i..(i + n).min(ids.len())], &[1]);
-                                if self.table.is_critical() {
-                                    // A huge sentence: write the table out
-                                    // now, record it at the next line end.
-                                    let run = self.write_run()?;
-                                    self.pending.push(run);
-                                }
+                    Line::Text if self.cfg.format.is_lines() => self.count_document(&tok, &line)?,
+                    Line::Text => match read_document(self.cfg.format, &line) {
+                        Err(why) => {
+                            self.totals.bad_lines += 1;
+                            if self.bad.len() < BAD_LINES_KEPT {
+                                self.bad.push(BadLineAt {
+                                    file: span.file,
+                                    offset: before,
+                                    detail: why.to_string(),
+                                });
                             }
                         }
-                    }
+                        Ok(doc) => self.count_document(&tok, &doc.text)?,
+                    },
                 }
                 Ok(kind)
             })();
@@ -251,6 +241,54 @@ impl<'a> Worker<'a> {
         Ok(())
     }
 
+    /// Counts the sentences of one document's text (a plain input line,
+    /// or a JSON line's text). Every sentence is tokenized before any is
+    /// counted, so a document that fails adds nothing.
+    fn count_document(&mut self, tok: &Tokenizer, text: &[u8]) -> Result<()> {
+        let words = self.dict.len();
+        let r = tok.document(text, &mut self.dict, &mut self.doc, &mut self.ends)?;
+        // Only a document that added a word to the dictionary (or holds a
+        // marker) can hold a first sighting; `</s>` is looked for until
+        // seen.
+        let scan = self.dict.len() != words
+            || r.marker_tokens > 0
+            || !self.first.contains(crate::words::eos_id());
+        self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
+        self.totals.marker_tokens += r.marker_tokens;
+        self.totals.mapped_tokens += r.mapped_tokens;
+        let n = self.cfg.order;
+        let doc = std::mem::take(&mut self.doc);
+        let ends = std::mem::take(&mut self.ends);
+        let mut start = 0;
+        for &end in &ends {
+            let ids = &doc[start..end];
+            start = end;
+            self.first.sentence(ids, scan);
+            self.totals.sentences += 1;
+            // Only the longest k-gram of each position: the shorter ones
+            // are its prefixes, counted when the table is written
+            // (`prefixes`).
+            for i in 0..ids.len() {
+                // Ask for the next position's slot now: a likely cache
+                // miss, which loads while this position's is updated.
+                if i + 1 < ids.len() {
+                    let end = (i + 1 + n).min(ids.len());
+                    self.table.prefetch(&ids[i + 1..end]);
+                }
+                self.table.add(&ids[i..(i + n).min(ids.len())], &[1]);
+                if self.table.is_critical() {
+                    // A huge sentence: write the table out now, record it
+                    // at the next line end.
+                    let run = self.write_run()?;
+                    self.pending.push(run);
+                }
+            }
+        }
+        self.doc = doc;
+        self.ends = ends;
+        Ok(())
+    }
+
     /// Writes the table as a run file and empties it.
     fn write_run(&mut self) -> Result<(String, u64)> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
@@ -286,6 +324,7 @@ impl<'a> Worker<'a> {
             covers: std::mem::take(&mut self.covers),
             hashes: std::mem::take(&mut self.hashes),
             totals: std::mem::take(&mut self.totals),
+            bad: std::mem::take(&mut self.bad),
             bytes: pending.iter().map(|p| p.1).sum::<u64>() + dict_bytes + first_bytes,
         };
         commit(spill)?;

@@ -8,9 +8,12 @@
 //! Each input line is one document: a JSON object whose text field holds
 //! the text ([`Format::JsonLines`]), or the line itself ([`Format::Lines`]).
 //! Inputs are plain, `.gz` or `.zst` files, or `-` (standard input), read
-//! as [`crate::corpus`] reads them. A document's sentences are the lines of
-//! its text (split at `\n`, one trailing `\r` dropped), each tokenized as
-//! at ingest ([`crate::tokenize`]); a line without tokens is no sentence.
+//! as [`crate::corpus`] reads them (the document reader is
+//! [`crate::corpus::read_document`], the ingest's too). A document's text
+//! is prepared as the model's store was at ingest
+//! ([`crate::tokenize::Preparation`]: by default its sentences are its
+//! lines, split at `\n`, one trailing `\r` dropped); a sentence without
+//! tokens is none.
 //!
 //! A line that is not a JSON object, lacks the text field, or whose field
 //! is not a string, or a line longer than the limit, is a *bad line*: its
@@ -61,8 +64,10 @@ use serde_json::{json, Value};
 
 use crate::error::Result;
 use crate::query::{Predictor, Prob};
+use crate::tokenize::Preparation;
 use crate::words::WordId;
 
+pub use crate::corpus::docs::Format;
 pub use dist::Distribution;
 pub use read::{RawLine, Worker};
 pub use run::score_inputs;
@@ -73,9 +78,8 @@ pub use texts::{score_text, score_texts};
 pub trait DocModel {
     /// Highest order N.
     fn order(&self) -> usize;
-    /// Whether tokens are lowercased (the store was built with
-    /// `--lowercase`).
-    fn lowercase(&self) -> bool;
+    /// How text is prepared (as the store's was at ingest).
+    fn preparation(&self) -> Preparation;
     /// Whether its scores are probabilities (false for `stupid`).
     fn is_probability(&self) -> bool;
     /// The probabilities of many predictions, each query the context
@@ -88,8 +92,8 @@ impl<P: Predictor + ?Sized> DocModel for P {
     fn order(&self) -> usize {
         Predictor::order(self)
     }
-    fn lowercase(&self) -> bool {
-        Predictor::lowercase(self)
+    fn preparation(&self) -> Preparation {
+        Predictor::preparation(self)
     }
     fn is_probability(&self) -> bool {
         Predictor::method(self).is_probability()
@@ -106,8 +110,8 @@ impl DocModel for Shared<'_> {
     fn order(&self) -> usize {
         self.0.order()
     }
-    fn lowercase(&self) -> bool {
-        self.0.lowercase()
+    fn preparation(&self) -> Preparation {
+        self.0.preparation()
     }
     fn is_probability(&self) -> bool {
         self.0.method().is_probability()
@@ -138,30 +142,16 @@ impl<'a> Models<'a> {
         let main = (self.main)()?;
         let general = self.general.map(|g| g()).transpose()?;
         if let Some(g) = &general {
-            if g.lowercase() != main.lowercase() {
-                return Err(crate::error::Error::Config(
-                    "the two models tokenize differently (one was built with --lowercase, the other not)"
-                        .into(),
-                ));
+            if g.preparation() != main.preparation() {
+                return Err(crate::error::Error::Config(format!(
+                    "the two models prepare text differently ({}; {})",
+                    main.preparation().describe(),
+                    g.preparation().describe()
+                )));
             }
         }
         Ok((main, general))
     }
-}
-
-/// How input lines hold documents.
-#[derive(Clone, Debug, PartialEq, Eq)]
-pub enum Format {
-    /// One JSON object a line.
-    JsonLines {
-        /// The field that holds the text (a string).
-        text_field: String,
-        /// The field whose value is copied as the document's id (`null` if
-        /// absent).
-        id_field: String,
-    },
-    /// One document a line; its id is its line number.
-    Lines,
 }
 
 /// Options of a scoring run.

@@ -4,11 +4,11 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
-use super::{DocModel, DocResult, DocScore, Format, Options, Outcome, Tally, WordScore};
-use crate::corpus::{self, Line, LineReader};
+use super::{DocModel, DocResult, DocScore, Options, Outcome, Tally, WordScore};
+use crate::corpus::{self, read_document, Line, LineReader};
 use crate::error::{Error, Result};
 use crate::query::{prediction, Prob};
-use crate::tokenize::Tokenizer;
+use crate::tokenize::{Preparation, Tokenizer};
 use crate::words::{eos_id, unk_id, Dictionary, WordId, EOS, UNK};
 
 /// A batch closes at this many bytes of lines …
@@ -127,10 +127,10 @@ enum Parsed {
 }
 
 impl Worker {
-    /// A worker tokenizing as a model built with `lowercase` expects.
-    pub fn new(lowercase: bool) -> Worker {
+    /// A worker preparing text as a model built with `prep` expects.
+    pub fn new(prep: Preparation) -> Worker {
         Worker {
-            tok: Tokenizer::new(lowercase),
+            tok: Tokenizer::new(prep),
             dict: Dictionary::new(),
         }
     }
@@ -231,41 +231,28 @@ impl Worker {
                 opts.max_line_bytes
             ));
         }
-        let (id, text): (Value, std::borrow::Cow<[u8]>) = match &opts.format {
-            Format::Lines => (Value::from(l.line), l.bytes.as_slice().into()),
-            Format::JsonLines {
-                text_field,
-                id_field,
-            } => {
-                let v: Value = match serde_json::from_slice(&l.bytes) {
-                    Ok(v) => v,
-                    Err(e) => return Parsed::Bad(format!("not JSON: {e}")),
-                };
-                let Value::Object(mut o) = v else {
-                    return Parsed::Bad("not a JSON object".into());
-                };
-                let text = match o.remove(text_field) {
-                    Some(Value::String(s)) => s,
-                    Some(_) => {
-                        return Parsed::Bad(format!("the field {text_field:?} is not a string"))
-                    }
-                    None => return Parsed::Bad(format!("no field {text_field:?}")),
-                };
-                let id = o.remove(id_field).unwrap_or(Value::Null);
-                (id, text.into_bytes().into())
-            }
+        let doc = match read_document(&opts.format, &l.bytes) {
+            Ok(d) => d,
+            Err(e) => return Parsed::Bad(e.to_string()),
         };
-        let mut sentences = Vec::new();
-        for s in text.split(|&b| b == b'\n') {
-            let s = s.strip_suffix(b"\r").unwrap_or(s);
-            let mut ids = Vec::new();
-            if let Err(e) = self.tok.sentence(s, &mut self.dict, &mut ids) {
-                return Parsed::Bad(e.to_string());
-            }
-            if !ids.is_empty() {
-                sentences.push(ids);
-            }
+        let id = doc.id.unwrap_or_else(|| Value::from(l.line));
+        let text = doc.text;
+        let (mut ids, mut ends) = (Vec::new(), Vec::new());
+        if let Err(e) = self
+            .tok
+            .document(&text, &mut self.dict, &mut ids, &mut ends)
+        {
+            return Parsed::Bad(e.to_string());
         }
-        Parsed::Doc { id, sentences }
+        let mut found = Vec::with_capacity(ends.len());
+        let mut start = 0;
+        for end in ends {
+            found.push(ids[start..end].to_vec());
+            start = end;
+        }
+        Parsed::Doc {
+            id,
+            sentences: found,
+        }
     }
 }

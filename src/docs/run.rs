@@ -48,7 +48,7 @@ pub fn score_inputs(
                 return Ok(());
             }
         };
-        let mut w = Worker::new(main.lowercase());
+        let mut w = Worker::new(main.preparation());
         while let Ok((seq, batch)) = work_rx.recv() {
             let r = w.score(opts, &*main, general.as_deref(), &batch);
             let failed = r.is_err();

@@ -62,7 +62,7 @@ pub fn score_texts(
     let next = AtomicUsize::new(0);
     let worker = || -> Result<()> {
         let (main, general) = models.make()?;
-        let mut w = Worker::new(main.lowercase());
+        let mut w = Worker::new(main.preparation());
         loop {
             let i = next.fetch_add(1, Ordering::Relaxed);
             let Some(b) = batches.get(i) else {
@@ -96,7 +96,7 @@ pub fn score_text<M: DocModel + ?Sized>(model: &M, text: String, words: bool) ->
         bytes: text.into_bytes(),
         too_long: false,
     };
-    let mut w = Worker::new(model.lowercase());
+    let mut w = Worker::new(model.preparation());
     let mut r = w.score(&opts, &Lent(model), None, std::slice::from_ref(&line))?;
     r.pop()
         .ok_or_else(|| Error::Config("no result for the text".into()))
@@ -110,8 +110,8 @@ impl<M: DocModel + ?Sized> DocModel for Lent<'_, M> {
     fn order(&self) -> usize {
         self.0.order()
     }
-    fn lowercase(&self) -> bool {
-        self.0.lowercase()
+    fn preparation(&self) -> crate::tokenize::Preparation {
+        self.0.preparation()
     }
     fn is_probability(&self) -> bool {
         self.0.is_probability()

@@ -39,12 +39,15 @@ pub(super) fn export_base(
             ),
         ));
     }
-    if have.order != settings.order || have.lowercase != settings.lowercase {
+    if have.order != settings.order || have.preparation != settings.preparation {
         return Err(Error::state(
             store_dir,
             format!(
-                "the store was built with order {} and lowercase {}; --append must use the same settings",
-                have.order, have.lowercase
+                "the store was built with order {} and {}; this command asks for order {} and {}: --append must use the same settings",
+                have.order,
+                have.preparation.describe(),
+                settings.order,
+                settings.preparation.describe()
             ),
         ));
     }
@@ -122,6 +125,7 @@ pub(super) fn export_base(
             marker_tokens: t.marker_tokens,
             mapped_tokens: t.mapped_tokens,
             bytes: t.input_bytes,
+            bad_lines: t.bad_lines,
         },
     })
 }

@@ -11,10 +11,10 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use crate::corpus::{InputFile, Span};
+use crate::corpus::{Format, InputFile, Span};
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
-use crate::records::{GrowthCurve, Joined, Merged, ReadTotals, Settings};
+use crate::records::{BadLineAt, GrowthCurve, Joined, Merged, ReadTotals, Settings};
 
 /// Format version of the manifest. Version 1 is read too, converted by
 /// [`crate::records::upgrade_partition_records`].
@@ -70,6 +70,9 @@ pub struct RunSet {
     pub hashes: Vec<u64>,
     /// What the readers saw in those ranges.
     pub totals: ReadTotals,
+    /// The first bad lines of those ranges (`--jsonl`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub bad: Vec<BadLineAt>,
 }
 
 /// The counts of an existing store, exported for `--append`.
@@ -115,6 +118,9 @@ pub struct Manifest {
     pub format_version: u32,
     /// Counting settings (must match on resume).
     pub settings: Settings,
+    /// How the input lines hold documents (must match on resume).
+    #[serde(default, skip_serializing_if = "Format::is_lines")]
+    pub format: Format,
     /// Fresh or append.
     pub mode: Mode,
     /// The inputs, as found when planned (must match on resume).
@@ -297,10 +303,11 @@ mod tests {
             format_version: MANIFEST_VERSION,
             settings: Settings {
                 order: 3,
-                lowercase: false,
+                preparation: Default::default(),
                 max_line_bytes: 10,
                 word_list: None,
             },
+            format: Format::Lines,
             mode: Mode::Fresh,
             inputs: vec![],
             chunks: vec![
@@ -338,6 +345,7 @@ mod tests {
             covers: vec![span(0, 0, 40), span(0, 100, 150), span(1, 0, u64::MAX)],
             hashes: vec![],
             totals: ReadTotals::default(),
+            bad: vec![],
         });
         assert_eq!(
             m.uncovered(),
@@ -363,10 +371,11 @@ mod tests {
             format_version: MANIFEST_VERSION,
             settings: Settings {
                 order: 2,
-                lowercase: false,
+                preparation: Default::default(),
                 max_line_bytes: 10,
                 word_list: None,
             },
+            format: Format::Lines,
             mode: Mode::Fresh,
             inputs: vec![],
             chunks: vec![],
@@ -446,6 +455,7 @@ mod tests {
             covers,
             hashes: vec![],
             totals: ReadTotals::default(),
+            bad: vec![],
         };
         let mut m = Manifest {
             inputs: vec![

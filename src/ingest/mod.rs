@@ -23,13 +23,14 @@ mod status;
 mod verify;
 
 pub use manifest::{Manifest, Phase};
-pub use options::{IngestOptions, IngestSummary, Progress, Silent};
+pub use options::{BadLineReport, IngestOptions, IngestSummary, Progress, Silent};
 pub use status::{status, IngestStatus};
 
 use std::collections::BTreeMap;
 use std::time::Instant;
 
 use crate::corpus;
+use crate::count::BAD_LINES_KEPT;
 use crate::error::{Error, IoContext, Result};
 use crate::fsutil;
 use crate::key::MAX_ORDER;
@@ -85,12 +86,12 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     let _lock = lock(&opts.store)?;
     let dirs = WorkDirs::of(&opts.store);
     let list = match &opts.word_list {
-        Some(p) => Some(wordlist::load(p, opts.lowercase)?),
+        Some(p) => Some(wordlist::load(p, &opts.preparation)?),
         None => None,
     };
     let settings = Settings {
         order: opts.order,
-        lowercase: opts.lowercase,
+        preparation: opts.preparation,
         max_line_bytes: opts.max_line_bytes,
         word_list: list.as_ref().map(|l| l.info),
     };
@@ -193,6 +194,15 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         }
     }
     run.joining(&mut m)?;
+    // The bad lines are named before the work folder goes: by input and
+    // line number, counted in the inputs (which are still as counted: the
+    // checksums of a resume saw to that).
+    let bad: Vec<_> = m.runsets.iter().flat_map(|r| r.bad.clone()).collect();
+    let bad_lines = if bad.is_empty() {
+        Vec::new()
+    } else {
+        BadLineReport::name(&m.inputs, bad, BAD_LINES_KEPT)?
+    };
     run.building(&mut m)?;
     let s = Store::open(&opts.store)?;
     let meta = s.meta().clone();
@@ -209,5 +219,6 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         seconds: t0.elapsed().as_secs_f64(),
         peak_rss_bytes: peak_rss(),
         repaired,
+        bad_lines,
     })
 }

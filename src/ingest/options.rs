@@ -7,7 +7,9 @@ use std::path::PathBuf;
 use serde::Serialize;
 
 use super::manifest::Phase;
-use crate::records::Totals;
+use crate::corpus::Format;
+use crate::records::{BadLineAt, Totals};
+use crate::tokenize::Preparation;
 
 /// What to ingest and how.
 #[derive(Clone, Debug)]
@@ -22,8 +24,9 @@ pub struct IngestOptions {
     pub memory: u64,
     /// Worker threads.
     pub threads: usize,
-    /// Lowercase every token.
-    pub lowercase: bool,
+    /// How the text is prepared (normalization, sentences, tokens, case,
+    /// digits).
+    pub preparation: Preparation,
     /// A fixed vocabulary: every other token counts as `<unk>`.
     pub word_list: Option<PathBuf>,
     /// Skip lines longer than this (bytes, without the line end).
@@ -36,6 +39,9 @@ pub struct IngestOptions {
     pub append: bool,
     /// Size of the chunks plain files are cut into.
     pub chunk_bytes: u64,
+    /// How the input lines hold documents (plain lines, or JSON lines
+    /// whose text field is counted).
+    pub format: Format,
 }
 
 impl IngestOptions {
@@ -47,13 +53,14 @@ impl IngestOptions {
             order: 5,
             memory: 1 << 30,
             threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
-            lowercase: false,
+            preparation: Preparation::default(),
             word_list: None,
             max_line_bytes: 1 << 20,
             partitions: None,
             restart: false,
             append: false,
             chunk_bytes: 16 << 20,
+            format: Format::Lines,
         }
     }
 }
@@ -101,4 +108,59 @@ pub struct IngestSummary {
     pub peak_rss_bytes: Option<u64>,
     /// Damaged intermediate files found and the work redone because of them.
     pub repaired: Vec<String>,
+    /// The first bad lines (`--jsonl`; [`Totals::bad_lines`] counts them
+    /// all), by input and line, in input order.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub bad_lines: Vec<BadLineReport>,
+}
+
+/// A bad line, named by input and line number.
+#[derive(Clone, Debug, Serialize)]
+pub struct BadLineReport {
+    /// The input.
+    pub path: PathBuf,
+    /// Line number (1-based); `None` on standard input, which cannot be
+    /// read again to count them.
+    pub line: Option<u64>,
+    /// Offset of the line's first byte in the (decompressed) input.
+    pub offset: u64,
+    /// Why it holds no document.
+    pub detail: String,
+}
+
+impl BadLineReport {
+    /// The bad lines `bad` of `inputs`, ordered by input and position, at
+    /// most `limit`, each named by its line number (counted by reading the
+    /// input up to it).
+    pub fn name(
+        inputs: &[crate::corpus::InputFile],
+        mut bad: Vec<BadLineAt>,
+        limit: usize,
+    ) -> crate::error::Result<Vec<BadLineReport>> {
+        bad.sort_by_key(|b| (b.file, b.offset));
+        bad.dedup_by_key(|b| (b.file, b.offset));
+        bad.truncate(limit);
+        let mut out = Vec::with_capacity(bad.len());
+        for group in bad.chunk_by(|a, b| a.file == b.file) {
+            let f = &inputs[group[0].file as usize];
+            let offsets: Vec<u64> = group.iter().map(|b| b.offset).collect();
+            let lines = if f.is_stdin() {
+                vec![None; offsets.len()]
+            } else {
+                crate::corpus::line_numbers(f, &offsets)?
+                    .into_iter()
+                    .map(Some)
+                    .collect()
+            };
+            for (b, line) in group.iter().zip(lines) {
+                out.push(BadLineReport {
+                    path: f.path.clone(),
+                    line,
+                    offset: b.offset,
+                    detail: b.detail.clone(),
+                });
+            }
+        }
+        Ok(out)
+    }
 }

@@ -91,9 +91,10 @@ impl Run<'_> {
             let cfg = CountConfig {
                 inputs,
                 order: m.settings.order,
-                lowercase: m.settings.lowercase,
+                preparation: m.settings.preparation,
                 word_list: run.word_list,
                 max_line_bytes: m.settings.max_line_bytes,
+                format: &m.format.clone(),
                 partitions: m.partitions,
                 threads: run.threads,
                 worker_bytes: run.plan.count_worker,
@@ -119,6 +120,7 @@ impl Run<'_> {
                     covers: s.covers,
                     hashes: s.hashes,
                     totals: s.totals,
+                    bad: s.bad,
                 });
                 g.manifest.next_id = next_id.load(Ordering::SeqCst);
                 g.manifest.save(work)

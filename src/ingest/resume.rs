@@ -40,9 +40,19 @@ pub(super) fn check_resume(
         return Err(Error::state(
             &opts.store,
             format!(
-                "an unfinished ingest here was started with order {}, lowercase {}, max line bytes {}; this command asks for order {}, lowercase {}, max line bytes {}: {hint}",
-                m.settings.order, m.settings.lowercase, m.settings.max_line_bytes,
-                settings.order, settings.lowercase, settings.max_line_bytes
+                "an unfinished ingest here was started with order {}, {}, max line bytes {}; this command asks for order {}, {}, max line bytes {}: {hint}",
+                m.settings.order, m.settings.preparation.describe(), m.settings.max_line_bytes,
+                settings.order, settings.preparation.describe(), settings.max_line_bytes
+            ),
+        ));
+    }
+    if m.format != opts.format {
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "an unfinished ingest here was started reading {}; this command reads {}: {hint}",
+                m.format.describe(),
+                opts.format.describe()
             ),
         ));
     }

@@ -22,6 +22,7 @@ pub(super) fn plan_new(
     let mut m = Manifest {
         format_version: manifest::MANIFEST_VERSION,
         settings,
+        format: opts.format.clone(),
         mode: if opts.append {
             Mode::Append
         } else {

@@ -55,6 +55,10 @@ pub struct FinishedStore {
     pub order: usize,
     /// Lowercased.
     pub lowercase: bool,
+    /// The other steps of the text's preparation, where not the default
+    /// (absent for the default preparation).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub preparation: Option<serde_json::Value>,
     /// Sentences.
     pub sentences: u64,
     /// Tokens T.
@@ -109,7 +113,10 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
         let m = s.meta();
         Some(FinishedStore {
             order: m.settings.order,
-            lowercase: m.settings.lowercase,
+            lowercase: m.settings.preparation.lowercase,
+            preparation: (m.settings.preparation
+                != crate::tokenize::Preparation::lowercasing(m.settings.preparation.lowercase))
+            .then(|| m.settings.preparation.to_json()),
             sentences: m.totals.sentences,
             tokens: m.totals.tokens,
             vocabulary: m.totals.vocabulary,

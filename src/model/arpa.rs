@@ -78,10 +78,12 @@ pub fn write_arpa(model: &Model, out: &mut impl Write) -> std::io::Result<()> {
         m.method,
         n,
         m.vocabulary,
-        if m.lowercase {
-            " built with --lowercase"
+        if m.preparation == crate::tokenize::Preparation::default() {
+            String::new()
+        } else if m.preparation == crate::tokenize::Preparation::lowercasing(true) {
+            " built with --lowercase".to_string()
         } else {
-            ""
+            format!(" whose text was prepared: {}", m.preparation.describe())
         }
     )?;
     if !m.probabilities {

@@ -91,11 +91,7 @@ impl Model {
         if prefix.is_empty() {
             return Ok(self.top_words(context, Filter::NoUnk, k));
         }
-        let prefix = if self.lowercase() {
-            prefix.to_lowercase()
-        } else {
-            prefix.to_string()
-        };
+        let prefix = self.preparation().prefix(prefix);
         let ix = self.text_index();
         let places = ix
             .index

@@ -170,8 +170,11 @@ pub struct ModelMeta {
     pub default_backoff: f64,
     /// The highest order N.
     pub order: usize,
-    /// The store was built with `--lowercase` (queries are lowercased too).
-    pub lowercase: bool,
+    /// How the store's text was prepared (queries are prepared the same
+    /// way): `lowercase`, and the other steps when not the default (a
+    /// model written before they could be chosen reads as the default).
+    #[serde(flatten)]
+    pub preparation: crate::tokenize::Preparation,
     /// |V|: the words but `<s>`.
     pub vocabulary: u64,
     /// Whether `<unk>` was seen in the text (otherwise its count is 0).

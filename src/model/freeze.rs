@@ -380,7 +380,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
             _ => 1.0,
         },
         order: n,
-        lowercase: meta.settings.lowercase,
+        preparation: meta.settings.preparation,
         vocabulary: meta.totals.vocabulary,
         unk_seen,
         ngrams: kept_counts.clone(),

@@ -119,9 +119,9 @@ impl Model {
         self.meta().constants.clone()
     }
 
-    /// Whether queries are lowercased (the store was built with `--lowercase`).
-    pub fn lowercase(&self) -> bool {
-        self.meta().lowercase
+    /// How queries are prepared (as the store's text was).
+    pub fn preparation(&self) -> crate::tokenize::Preparation {
+        self.meta().preparation
     }
 
     /// The word with id `id`, if the model has it (markers included).
@@ -465,8 +465,8 @@ impl crate::query::Predictor for Model {
     fn vocabulary_size(&self) -> u64 {
         Model::vocabulary_size(self)
     }
-    fn lowercase(&self) -> bool {
-        Model::lowercase(self)
+    fn preparation(&self) -> crate::tokenize::Preparation {
+        Model::preparation(self)
     }
     fn notes(&self) -> &[String] {
         Model::notes(self)

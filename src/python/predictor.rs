@@ -121,12 +121,15 @@ fn score_with<'a>(
 
 /// The ids of a context.
 fn context_ids(p: &dyn Predictor, context: &Bound<'_, PyAny>) -> PyResult<Vec<WordId>> {
-    Ok(query_ids(&words_text("context", context)?, p.lowercase()))
+    Ok(query_ids(
+        &words_text("context", context)?,
+        &p.preparation(),
+    ))
 }
 
 /// The id of one word.
 fn word_id(p: &dyn Predictor, word: &str) -> PyResult<WordId> {
-    match query_ids(word, p.lowercase())[..] {
+    match query_ids(word, &p.preparation())[..] {
         [w] => Ok(w),
         ref ids => Err(PyValueError::new_err(format!(
             "word={word:?}: one word is predicted, not {}",
@@ -268,7 +271,15 @@ macro_rules! predictor_methods {
             /// built with `--lowercase`).
             #[getter]
             fn lowercase(&self) -> bool {
-                self.pred().lowercase()
+                self.pred().preparation().lowercase
+            }
+
+            /// How text is prepared before lookup, as the store's was at
+            /// ingest: a dict with `normalize`, `sentences`, `tokens`,
+            /// `lowercase` and `digits`.
+            #[getter]
+            fn preparation(&self, py: Python<'_>) -> PyResult<Py<PyAny>> {
+                json_to_py(py, &self.pred().preparation().to_json())
             }
 
             /// Whether the scores are probabilities (false for `stupid`).

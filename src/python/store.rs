@@ -95,7 +95,7 @@ impl PyStore {
     fn count(&self, py: Python<'_>, ngram: &Bound<'_, PyAny>) -> PyResult<u64> {
         let ids = query_ids(
             &words_text("ngram", ngram)?,
-            self.store.meta().settings.lowercase,
+            &self.store.meta().settings.preparation,
         );
         if ids.is_empty() || ids.len() > self.store.order() {
             return Err(PyValueError::new_err(format!(
@@ -127,7 +127,7 @@ impl PyStore {
             Some(p) => words_text("prefix", p)?,
             None => String::new(),
         };
-        let prefix = query_ids(&text, self.store.meta().settings.lowercase);
+        let prefix = query_ids(&text, &self.store.meta().settings.preparation);
         let order = order.unwrap_or(prefix.len() + 1);
         let after = match after {
             None => None,

@@ -71,11 +71,7 @@ impl Estimator<'_> {
         if prefix.is_empty() {
             return self.top_words(context, Filter::NoMarkers, k);
         }
-        let prefix = if self.store.meta().settings.lowercase {
-            prefix.to_lowercase()
-        } else {
-            prefix.to_string()
-        };
+        let prefix = self.store.meta().settings.preparation.prefix(prefix);
         let ix = self.text_index()?;
         let range = ix
             .index

@@ -76,7 +76,7 @@ pub fn keystrokes(
         ));
     }
     let kmax = *tops.iter().max().expect("not empty");
-    let lc = pred.lowercase();
+    let prep = pred.preparation();
     let mut found_at: Vec<Option<usize>> = vec![None; tops.len()];
     let mut report = KeystrokeReport {
         words: 0,
@@ -101,13 +101,11 @@ pub fn keystrokes(
             let line = line.map_err(|e| Error::io(p, "read", e))?;
             let line = line.strip_suffix(b"\r").unwrap_or(&line);
             let text = String::from_utf8_lossy(line);
+            let text = prep.normalized(&text);
+            let mut tokens = Vec::new();
+            prep.each_token(&text, |t| tokens.push(t.into_owned()));
             let mut sentence = Vec::new();
-            for raw in text.split_whitespace() {
-                let t = if lc {
-                    raw.to_lowercase()
-                } else {
-                    raw.to_string()
-                };
+            for t in tokens {
                 // A token spelled like a marker is `<unk>` at ingest: it
                 // can never be shown.
                 let marker = t == BOS || t == EOS || t == UNK;

@@ -20,7 +20,7 @@
 //!
 //! let store = Store::open("/tmp/store".as_ref())?;
 //! let est = Estimator::new(&store, Method::Mkn, Params::default())?;
-//! let ids = query_ids("<s> the ferry", store.meta().settings.lowercase);
+//! let ids = query_ids("<s> the ferry", &store.meta().settings.preparation);
 //! let p = est.prob(&ids[..ids.len() - 1], ids[ids.len() - 1])?;
 //! println!("P = {} (longest match: order {})", p.p, p.order);
 //! let top = est.next(&ids, 5)?;

@@ -4,6 +4,7 @@
 //! depends on the query layer, never the reverse) alike.
 
 use crate::error::Result;
+use crate::tokenize::Preparation;
 use crate::words::WordId;
 
 use super::{Estimator, Method, Next, Prob};
@@ -16,9 +17,8 @@ pub trait Predictor {
     fn order(&self) -> usize;
     /// |V|.
     fn vocabulary_size(&self) -> u64;
-    /// Whether query words are lowercased (the store was built with
-    /// `--lowercase`).
-    fn lowercase(&self) -> bool;
+    /// How query text is prepared (as the store's text was at ingest).
+    fn preparation(&self) -> Preparation;
     /// Notes for the user (fallback discounts, Katz's K lowered, …).
     fn notes(&self) -> &[String];
     /// The per-order constants in use, for reports.
@@ -35,7 +35,8 @@ pub trait Predictor {
     fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>>;
 
     /// The `k` most probable next words that begin with `prefix` (Unicode
-    /// scalar values; lowercased first when [`Predictor::lowercase`]),
+    /// scalar values; prepared first as one token by
+    /// [`Predictor::preparation`]: normalized, lowercased, digits),
     /// exact. `<s>` and `<unk>` are never suggested; `</s>` only when the
     /// prefix is empty. `rest` is 1 − the sum shown, over all of V.
     ///
@@ -43,11 +44,7 @@ pub trait Predictor {
     /// scores all of V ([`Predictor::distribution`]): exact but slow;
     /// implementations override it with a faster exact search.
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
-        let prefix = if self.lowercase() {
-            prefix.to_lowercase()
-        } else {
-            prefix.to_string()
-        };
+        let prefix = self.preparation().prefix(prefix);
         let (bos, unk, eos) = (
             crate::words::bos_id(),
             crate::words::unk_id(),
@@ -85,8 +82,8 @@ impl Predictor for Estimator<'_> {
     fn vocabulary_size(&self) -> u64 {
         Estimator::vocabulary_size(self)
     }
-    fn lowercase(&self) -> bool {
-        self.store().meta().settings.lowercase
+    fn preparation(&self) -> Preparation {
+        self.store().meta().settings.preparation
     }
     fn notes(&self) -> &[String] {
         Estimator::notes(self)

@@ -106,7 +106,7 @@ impl<'a> Scorer<'a> {
     pub fn new(est: &'a dyn Predictor, per_sentence: bool) -> Self {
         Scorer {
             est,
-            tok: Tokenizer::new(est.lowercase()),
+            tok: Tokenizer::new(est.preparation()),
             dict: Dictionary::new(),
             batch: Vec::new(),
             batch_predictions: 0,
@@ -116,16 +116,23 @@ impl<'a> Scorer<'a> {
         }
     }
 
-    /// Adds one line (without its line end; a trailing `\r` is dropped);
-    /// a line without tokens is no sentence.
+    /// Adds one line (without its line end; a trailing `\r` is dropped):
+    /// its sentences as the store's preparation cuts them (the line itself
+    /// by default); a sentence without tokens is none.
     pub fn add_line(&mut self, line_no: u64, line: &[u8]) -> Result<()> {
         let line = line.strip_suffix(b"\r").unwrap_or(line);
-        let mut ids = Vec::new();
-        self.tok.sentence(line, &mut self.dict, &mut ids)?;
+        let (mut ids, mut ends) = (Vec::new(), Vec::new());
+        self.tok
+            .document(line, &mut self.dict, &mut ids, &mut ends)?;
         if self.dict.heap_bytes() > 64 << 20 {
             self.dict = Dictionary::new();
         }
-        self.add_padded(line_no, ids)
+        let mut start = 0;
+        for end in ends {
+            self.add_padded(line_no, ids[start..end].to_vec())?;
+            start = end;
+        }
+        Ok(())
     }
 
     /// Adds one padded sentence (`<s> w1 … wm </s>`, as the tokenizer makes
@@ -219,10 +226,13 @@ pub fn score_padded(est: &dyn Predictor, sentences: &[Vec<WordId>]) -> Result<Sc
 }
 
 /// Reads text files (one sentence a line, `-` for standard input) into
-/// padded sentences, tokenized as at ingest.
-pub fn read_sentences(paths: &[std::path::PathBuf], lowercase: bool) -> Result<Vec<Vec<WordId>>> {
+/// padded sentences, prepared as at ingest.
+pub fn read_sentences(
+    paths: &[std::path::PathBuf],
+    prep: crate::tokenize::Preparation,
+) -> Result<Vec<Vec<WordId>>> {
     use std::io::BufRead;
-    let tok = Tokenizer::new(lowercase);
+    let tok = Tokenizer::new(prep);
     let mut dict = Dictionary::new();
     let mut out = Vec::new();
     for p in paths {
@@ -236,10 +246,12 @@ pub fn read_sentences(paths: &[std::path::PathBuf], lowercase: bool) -> Result<V
         for line in reader.split(b'\n') {
             let line = line.map_err(|e| crate::Error::io(p, "read", e))?;
             let line = line.strip_suffix(b"\r").unwrap_or(&line);
-            let mut ids = Vec::new();
-            tok.sentence(line, &mut dict, &mut ids)?;
-            if !ids.is_empty() {
-                out.push(ids);
+            let (mut ids, mut ends) = (Vec::new(), Vec::new());
+            tok.document(line, &mut dict, &mut ids, &mut ends)?;
+            let mut start = 0;
+            for end in ends {
+                out.push(ids[start..end].to_vec());
+                start = end;
             }
             if dict.heap_bytes() > 64 << 20 {
                 dict = Dictionary::new();

@@ -3,6 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::ContextStats;
+use crate::tokenize::Preparation;
 
 /// Format version of the store; checked on open. Version 2 is read too,
 /// converted by [`super::upgrade_store_meta`].
@@ -13,8 +14,10 @@ pub const STORE_VERSION: u32 = 3;
 pub struct Settings {
     /// Highest order N.
     pub order: usize,
-    /// Tokens were lowercased.
-    pub lowercase: bool,
+    /// How the text was prepared (its fields sit at this level of the
+    /// record: `lowercase`, and the other steps when not the default).
+    #[serde(flatten)]
+    pub preparation: Preparation,
     /// Lines longer than this many bytes were skipped.
     pub max_line_bytes: usize,
     /// Tokens outside a fixed word list were counted as `<unk>`
@@ -64,6 +67,10 @@ pub struct Totals {
     pub mapped_tokens: u64,
     /// Input bytes read (decompressed).
     pub input_bytes: u64,
+    /// Input lines that held no document (`ingest --jsonl`), skipped (0,
+    /// and absent from the JSON, when there were none).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub bad_lines: u64,
 }
 
 /// Statistics of one order.

@@ -23,5 +23,5 @@ mod upgrade;
 
 pub use context::ContextStats;
 pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
-pub use partition::{store_meta, Joined, Merged, PartitionStats, ReadTotals};
+pub use partition::{store_meta, BadLineAt, Joined, Merged, PartitionStats, ReadTotals};
 pub use upgrade::{upgrade_partition_records, upgrade_store_meta};

@@ -23,6 +23,24 @@ pub struct ReadTotals {
     pub mapped_tokens: u64,
     /// Input bytes read (decompressed).
     pub bytes: u64,
+    /// Lines that held no document (`ingest --jsonl`: not JSON, not an
+    /// object, no text field, or not a string), skipped.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub bad_lines: u64,
+}
+
+/// A bad line (see [`ReadTotals::bad_lines`]): where it starts and why it
+/// holds no document. Kept for the first few of each spill, so that the
+/// ingest's summary can name them.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct BadLineAt {
+    /// Index of the input.
+    pub file: u32,
+    /// Offset of the line's first byte in the input's (decompressed)
+    /// stream.
+    pub offset: u64,
+    /// Why the line holds no document.
+    pub detail: String,
 }
 
 fn is_zero(x: &u64) -> bool {
@@ -38,6 +56,7 @@ impl ReadTotals {
         self.marker_tokens += o.marker_tokens;
         self.mapped_tokens += o.mapped_tokens;
         self.bytes += o.bytes;
+        self.bad_lines += o.bad_lines;
     }
 }
 
@@ -112,6 +131,7 @@ pub fn store_meta<'a>(
         marker_tokens: read.marker_tokens,
         mapped_tokens: read.mapped_tokens,
         input_bytes: read.bytes,
+        bad_lines: read.bad_lines,
     };
     let orders = (0..n)
         .map(|k| OrderStats {

@@ -207,7 +207,7 @@ pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
         )));
     }
     let line = format!("{} {}", q.context, q.word);
-    let ids = query_ids(&line, p.lowercase());
+    let ids = query_ids(&line, &p.preparation());
     let (&w, ctx) = ids.split_last().expect("the word is one token");
     let r = p.prob(ctx, w)?;
     let text = line.split_whitespace().collect::<Vec<_>>().join(" ");
@@ -231,7 +231,7 @@ pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
     }
     let lent = l.get(m)?;
     let p = lent.pred();
-    let ids = query_ids(&q.context, p.lowercase());
+    let ids = query_ids(&q.context, &p.preparation());
     // As `quern next`: always through completion (an empty prefix is all
     // of V), which never suggests `<s>` or `<unk>`.
     let next = p.complete(&ids, &q.prefix, q.top)?;
@@ -277,7 +277,7 @@ pub fn score(l: &mut dyn Local, q: ScoreRequest) -> Answer {
         .collect();
     let mut opts = Options::new(Format::Lines);
     opts.threads = 1;
-    let results = Worker::new(p.lowercase()).score(&opts, lent.doc(), None, &batch)?;
+    let results = Worker::new(p.preparation()).score(&opts, lent.doc(), None, &batch)?;
     let probability = p.method().is_probability();
     to_text(&ScoreAnswer {
         method: p.method().name(),
@@ -313,7 +313,7 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
             )))
         }
     };
-    let prefix = query_ids(&q.words, store.meta().settings.lowercase);
+    let prefix = query_ids(&q.words, &store.meta().settings.preparation);
     let order = q.order.unwrap_or(prefix.len() + 1);
     let page = prefix_page(store, &prefix, order, q.limit, after.as_deref())?;
     let mut list = Vec::with_capacity(page.items.len());

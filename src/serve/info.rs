@@ -35,6 +35,8 @@ pub struct StoreInfo {
     pub ngrams: Vec<u64>,
     /// Tokens were lowercased when counted (queries are too).
     pub lowercase: bool,
+    /// The text preparation of the ingest, which queries get too.
+    pub preparation: serde_json::Value,
     /// Tokens counted.
     pub tokens: u64,
     /// Sentences counted.
@@ -64,6 +66,8 @@ pub struct ModelInfo {
     pub store_ngrams: Vec<u64>,
     /// Tokens were lowercased when counted (queries are too).
     pub lowercase: bool,
+    /// The text preparation of the ingest, which queries get too.
+    pub preparation: serde_json::Value,
     /// False for `stupid`: the values are scores, not probabilities.
     pub probabilities: bool,
     /// `false`: a model keeps no counts.
@@ -84,7 +88,8 @@ impl Info {
                     methods: Method::ALL.map(|m| m.name()).to_vec(),
                     vocabulary_size: meta.totals.vocabulary,
                     ngrams: meta.orders.iter().map(|o| o.ngrams).collect(),
-                    lowercase: meta.settings.lowercase,
+                    lowercase: meta.settings.preparation.lowercase,
+                    preparation: meta.settings.preparation.to_json(),
                     tokens: meta.totals.tokens,
                     sentences: meta.totals.sentences,
                     counts: true,
@@ -101,7 +106,8 @@ impl Info {
                     vocabulary_size: meta.vocabulary,
                     ngrams: meta.ngrams.clone(),
                     store_ngrams: meta.store_ngrams.clone(),
-                    lowercase: meta.lowercase,
+                    lowercase: meta.preparation.lowercase,
+                    preparation: meta.preparation.to_json(),
                     probabilities: meta.probabilities,
                     counts: false,
                 })

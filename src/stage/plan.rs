@@ -9,7 +9,7 @@ use serde::{Deserialize, Serialize};
 
 use super::commit::{unique, Outcome};
 use super::{JOB_FILE, STAGE_VERSION};
-use crate::corpus::{self, InputFile, Span};
+use crate::corpus::{self, Format, InputFile, Span};
 use crate::error::{Error, Result};
 use crate::fsutil;
 use crate::key::MAX_ORDER;
@@ -24,6 +24,9 @@ pub struct Job {
     pub format_version: u32,
     /// Counting settings.
     pub settings: Settings,
+    /// How the input lines hold documents (absent: plain lines).
+    #[serde(default, skip_serializing_if = "Format::is_lines")]
+    pub format: Format,
     /// Number of hash partitions (merge and join tasks).
     pub partitions: u32,
     /// The inputs, as found when planned.
@@ -99,6 +102,8 @@ pub struct PlanOptions {
     /// token outside it is counted as `<unk>`. The plan keeps a copy, so
     /// the tasks need not see this file.
     pub word_list: Option<PathBuf>,
+    /// How the input lines hold documents.
+    pub format: Format,
     /// Number of partitions.
     pub partitions: u32,
     /// Number of map tasks wanted (fewer when there are fewer chunks).
@@ -124,7 +129,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
         return Err(Error::Config("no inputs given".into()));
     }
     let list = match &o.word_list {
-        Some(p) => Some(wordlist::load(p, o.settings.lowercase)?),
+        Some(p) => Some(wordlist::load(p, &o.settings.preparation)?),
         None => None,
     };
     let settings = Settings {
@@ -168,6 +173,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     let job = Job {
         format_version: STAGE_VERSION,
         settings,
+        format: o.format.clone(),
         partitions: o.partitions,
         inputs,
         map_tasks,
@@ -180,7 +186,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
             return Err(Error::state(
                 &o.dir,
                 format!(
-                    "{} holds another plan (other settings, word list, partitions, map tasks or inputs, or an input changed since): give another --dir, or delete this one",
+                    "{} holds another plan (other settings, input format, word list, partitions, map tasks or inputs, or an input changed since): give another --dir, or delete this one",
                     path.display()
                 ),
             ));
@@ -226,11 +232,12 @@ mod tests {
             inputs: paths,
             settings: Settings {
                 order: 3,
-                lowercase: false,
+                preparation: Default::default(),
                 max_line_bytes: 1 << 20,
                 word_list: None,
             },
             word_list: None,
+            format: Format::Lines,
             partitions: 5,
             map_tasks: 3,
         };

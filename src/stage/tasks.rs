@@ -118,9 +118,10 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
         let cfg = CountConfig {
             inputs: &job.inputs,
             order: job.settings.order,
-            lowercase: job.settings.lowercase,
+            preparation: job.settings.preparation,
             word_list: list.as_ref().map(|l| &l.set),
             max_line_bytes: job.settings.max_line_bytes,
+            format: &job.format,
             partitions: job.partitions,
             threads,
             worker_bytes: plan.count_worker,

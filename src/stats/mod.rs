@@ -20,6 +20,7 @@ pub mod fits;
 pub mod plot;
 pub mod tables;
 
+use crate::tokenize::Preparation;
 use serde::Serialize;
 
 use crate::store::StoreMeta;
@@ -41,6 +42,10 @@ pub struct ReportSettings {
     pub order: usize,
     /// Tokens were lowercased.
     pub lowercase: bool,
+    /// The other steps of the text's preparation, where not the default
+    /// (absent for the default preparation).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub preparation: Option<serde_json::Value>,
     /// The fixed word list the store was counted with (`--word-list`);
     /// `None` (JSON `null`) when every token counted.
     pub word_list: Option<ReportWordList>,
@@ -75,6 +80,14 @@ pub struct ReportTotals {
     pub skipped_lines: u64,
     /// Lines with invalid UTF-8.
     pub invalid_utf8_lines: u64,
+    /// Input lines that held no document (`ingest --jsonl`), skipped;
+    /// absent when there were none.
+    #[serde(skip_serializing_if = "is_zero")]
+    pub bad_lines: u64,
+}
+
+fn is_zero(x: &u64) -> bool {
+    *x == 0
 }
 
 /// Vocabulary growth and Heaps' law.
@@ -161,7 +174,10 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
         format_version: meta.format_version,
         settings: ReportSettings {
             order: meta.settings.order,
-            lowercase: meta.settings.lowercase,
+            lowercase: meta.settings.preparation.lowercase,
+            preparation: (meta.settings.preparation
+                != Preparation::lowercasing(meta.settings.preparation.lowercase))
+            .then(|| meta.settings.preparation.to_json()),
             word_list: meta
                 .settings
                 .word_list
@@ -177,6 +193,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
             mapped_tokens: meta.settings.word_list.map(|_| t.mapped_tokens),
             skipped_lines: t.skipped_lines,
             invalid_utf8_lines: t.invalid_utf8_lines,
+            bad_lines: t.bad_lines,
         },
         orders,
         growth: meta.growth.as_ref().map(|g| Growth {

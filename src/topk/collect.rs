@@ -211,7 +211,7 @@ mod tests {
     fn a_tied_group_in_bytes_order_gives_its_first_k() {
         let group: Vec<R> = ["ant", "bee", "cat", "dog"].map(|w| Ok((0.25, w))).to_vec();
         let mut top = TopK::new(2);
-        top.take_all(vec![Ok((0.25, "cow")), Ok((0.5, "zebra"))])
+        top.take_all(vec![Ok::<_, ()>((0.25, "cow")), Ok((0.5, "zebra"))])
             .unwrap();
         top.take_tied(group).unwrap();
         assert_eq!(top.scored(), 4);

@@ -107,7 +107,11 @@ fn main() {
     );
     let est = Estimator::new(&store, m, Params::default()).expect("estimator");
     let n = store.order();
-    let s = quern::query::score::read_sentences(&[text.expect("--text")], false).expect("text");
+    let s = quern::query::score::read_sentences(
+        &[text.expect("--text")],
+        quern::tokenize::Preparation::default(),
+    )
+    .expect("text");
     let queries: Vec<&[WordId]> = s
         .iter()
         .flat_map(|x| (1..x.len()).map(move |i| prediction(x, i, n)))

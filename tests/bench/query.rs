@@ -39,7 +39,11 @@ fn main() {
     let store = Store::open_with_cache(&store_path, cache).expect("open store");
     let m: Method = method.parse().expect("method");
     let n = store.order();
-    let s = quern::query::score::read_sentences(&[text.expect("--text")], false).expect("text");
+    let s = quern::query::score::read_sentences(
+        &[text.expect("--text")],
+        quern::tokenize::Preparation::default(),
+    )
+    .expect("text");
     let queries: Vec<&[WordId]> = s
         .iter()
         .flat_map(|x| (1..x.len()).map(move |i| prediction(x, i, n)))

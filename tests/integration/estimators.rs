@@ -59,7 +59,7 @@ fn est(store: &Store, m: Method, p: Params) -> Estimator<'_> {
 
 /// P(last word | the words before it) for a query written as text.
 fn p(e: &Estimator<'_>, q: &str) -> f64 {
-    let ids = query_ids(q, false);
+    let ids = query_ids(q, &quern::tokenize::Preparation::default());
     e.prob(&ids[..ids.len() - 1], ids[ids.len() - 1]).unwrap().p
 }
 
@@ -84,7 +84,7 @@ fn ctx(c: u64, t: u64, a: u64, n1: u64, n2: u64, n3: u64) -> ContextStats {
 #[test]
 fn the_tiny_store_holds_the_hand_counts() {
     let s = Store::open(tiny()).unwrap();
-    let id = |w: &str| query_ids(w, false);
+    let id = |w: &str| query_ids(w, &quern::tokenize::Preparation::default());
     let m = s.meta();
     assert_eq!(m.totals.tokens, 12);
     assert_eq!(m.totals.vocabulary, 5);
@@ -472,7 +472,7 @@ fn laplace_matches_the_textbook_example_from_memory() {
 fn score_report_by_hand() {
     use quern::query::score::score_padded;
     let s = Store::open(tiny()).unwrap();
-    let sent = query_ids("<s> c x </s>", false);
+    let sent = query_ids("<s> c x </s>", &quern::tokenize::Preparation::default());
     let e = est(&s, Method::Katz, Params::default());
     let r = score_padded(&e, std::slice::from_ref(&sent)).unwrap();
     assert_eq!((r.sentences, r.predictions, r.oov, r.zero), (1, 3, 1, 0));
@@ -591,7 +591,7 @@ fn tiny3() -> &'static PathBuf {
 #[test]
 fn the_order3_store_holds_the_hand_counts() {
     let s = Store::open(tiny3()).unwrap();
-    let id = |w: &str| query_ids(w, false);
+    let id = |w: &str| query_ids(w, &quern::tokenize::Preparation::default());
     assert_eq!(s.meta().totals.tokens, 23);
     assert_eq!(s.meta().totals.vocabulary, 6);
     assert_eq!(s.get(&id("a a")).unwrap(), Some((5, Some(4))));

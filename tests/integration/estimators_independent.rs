@@ -639,7 +639,7 @@ fn pairs(t: &Tables, per_class: usize) -> Vec<(Gram, String)> {
 }
 
 fn ids_of(words: &[String]) -> Vec<u64> {
-    query_ids(&words.join(" "), false)
+    query_ids(&words.join(" "), &quern::tokenize::Preparation::default())
 }
 
 /// The methods and parameters compared: defaults, plus weights that differ

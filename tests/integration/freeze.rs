@@ -280,7 +280,7 @@ fn queries(store: &Store, est: &Estimator<'_>, path: &Path) -> Vec<f64> {
         toks.push("</s>");
         for i in 1..toks.len() {
             let q = toks[(i + 1).saturating_sub(n)..=i].join(" ");
-            let ids = quern::query::query_ids(&q, false);
+            let ids = quern::query::query_ids(&q, &quern::tokenize::Preparation::default());
             let p = est.prob(&ids[..ids.len() - 1], ids[ids.len() - 1]).unwrap();
             text.push_str(&q);
             text.push('\n');

@@ -92,6 +92,16 @@ mod query_tune;
 // two models = two runs, the kept/dropped split, .gz/.zst, --words.
 mod docs;
 
+// `ingest --jsonl`: documents as JSON lines equal a plain ingest of their
+// texts (chunks and threads, kill and resume, --append, the stage tasks);
+// bad lines counted and named by file and line.
+mod crawl;
+
+// Text preparation (normalize, sentences, tokens, case, digits) against
+// scripts/prepare_reference.py (Python's unicodedata and uniseg, UAX #29):
+// stores and queries equal; --append with other settings refused.
+mod prepare;
+
 // Benchmarks of prob throughput and next latency (ignored; run by hand).
 mod query_bench;
 

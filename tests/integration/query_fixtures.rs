@@ -55,5 +55,11 @@ pub fn train5() -> &'static Path {
 /// The held-out novel's padded sentences (tokenized as at ingest).
 pub fn heldout_sentences() -> &'static [Vec<WordId>] {
     static S: OnceLock<Vec<Vec<WordId>>> = OnceLock::new();
-    S.get_or_init(|| quern::query::score::read_sentences(&[heldout_path()], false).unwrap())
+    S.get_or_init(|| {
+        quern::query::score::read_sentences(
+            &[heldout_path()],
+            quern::tokenize::Preparation::default(),
+        )
+        .unwrap()
+    })
 }

@@ -256,3 +256,28 @@ fn spark_job_with_a_missing_input_fails_naming_it() {
     );
     assert!(!store.exists(), "a store was created");
 }
+
+/// `--jsonl`: a crawl of two novels as JSON lines (crawl.rs), through
+/// Spark: the store equals the single-machine plain ingest of their texts
+/// at order 5 (the input bytes and the bad-line count aside, which only the
+/// JSON lines have).
+#[test]
+fn spark_jsonl_store_equals_plain_ingest_of_the_texts() {
+    let submit = spark_submit();
+    let tmp = tempfile::tempdir().unwrap();
+    let (crawls, texts, _) =
+        crate::crawl::crawl_of(tmp.path(), &["persuasion.txt", "northangerabbey.txt"]);
+    let plain = tmp.path().join("plain");
+    ingest_ok(&plain, &["--order", "5", "--quiet"], &texts);
+    let (dir, store) = (tmp.path().join("shared"), tmp.path().join("store"));
+    let mut args = job_args(&dir, &store, 3, 2);
+    args.push("--jsonl".into());
+    args.extend(crawls.iter().map(|p| p.display().to_string()));
+    let r = spark(&submit, tmp.path(), &args);
+    assert!(r.ok, "spark job failed:\n{}", tail(&r.output));
+    crate::common::assert_views_eq(
+        "spark --jsonl against plain texts",
+        &crate::crawl::view(&plain),
+        &crate::crawl::view(&store),
+    );
+}

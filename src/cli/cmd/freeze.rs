@@ -126,7 +126,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     let heldout = if a.heldout.is_empty() || !est.method().is_probability() {
         None
     } else {
-        let s = read_sentences(&a.heldout, store.meta().settings.lowercase)?;
+        let s = read_sentences(&a.heldout, store.meta().settings.preparation)?;
         let n = store.order();
         let before = perplexity(&s, n, |q| est.prob_batch(q))?;
         let after = perplexity(&s, n, |q| model.prob_batch(q))?;
@@ -164,6 +164,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             "ngrams_store": report.store_ngrams,
             "min_counts": opts.min_counts,
             "notes": report.notes,
+            "preparation": store.meta().settings.preparation.to_json(),
             "heldout": heldout.map(|(b, a, s)| json!({
                 "sentences": s,
                 "perplexity_store": b.map_or(serde_json::Value::Null, jnum),
@@ -187,6 +188,10 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         est.method(),
         store.order()
     )?;
+    let prep = store.meta().settings.preparation;
+    if prep != quern::tokenize::Preparation::lowercasing(prep.lowercase) {
+        writeln!(o, "  text prepared: {}", prep.describe())?;
+    }
     if !est.method().is_probability() {
         writeln!(
             o,

@@ -3,6 +3,7 @@
 use std::io::Write;
 
 use anyhow::Context;
+use quern::corpus::Format;
 use quern::ingest::{ingest, IngestOptions};
 
 use super::{bytes, thousands};
@@ -13,18 +14,22 @@ use crate::cli::progress::Bar;
 const RUN_ORDER: [&str; 4] = ["counting", "merging", "joining", "building"];
 
 pub fn run(a: IngestArgs) -> anyhow::Result<()> {
-    let mut o = IngestOptions::new(&a.store, a.inputs);
+    let preparation = a.preparation();
+    let mut o = IngestOptions::new(&a.store, a.inputs.clone());
     o.order = a.order;
     o.memory = a.memory.bytes();
     if let Some(t) = a.threads {
         o.threads = t;
     }
-    o.lowercase = a.lowercase;
+    o.preparation = preparation;
     o.word_list = a.word_list.clone();
     o.max_line_bytes = a.max_line_bytes;
     o.partitions = a.partitions;
     o.restart = a.restart;
     o.append = a.append;
+    if a.jsonl {
+        o.format = Format::json_lines(&a.text_field);
+    }
     let bar = Bar::new(a.quiet);
     let result = ingest(&o, &bar);
     bar.finish();
@@ -59,6 +64,23 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
             thousands(t.invalid_utf8_lines),
             thousands(t.marker_tokens)
         )?;
+    }
+    if t.bad_lines > 0 {
+        writeln!(
+            out,
+            "  lines without a document, skipped: {}",
+            thousands(t.bad_lines)
+        )?;
+        for b in &s.bad_lines {
+            let at = match b.line {
+                Some(l) => format!("line {l}"),
+                None => format!("byte {}", b.offset),
+            };
+            writeln!(out, "    {}, {at}: {}", b.path.display(), b.detail)?;
+        }
+        if t.bad_lines > s.bad_lines.len() as u64 {
+            writeln!(out, "    (the first {} shown)", s.bad_lines.len())?;
+        }
     }
     if a.word_list.is_some() {
         writeln!(

@@ -38,3 +38,10 @@ pub fn print_json(out: &mut impl std::io::Write, v: &impl serde::Serialize) -> a
     writeln!(out)?;
     Ok(())
 }
+
+/// A preparation as a report's JSON holds it, in words (`normalize nfkc,
+/// sentences lines, …`).
+pub fn preparation_text(p: &serde_json::Value) -> String {
+    serde_json::from_value::<quern::tokenize::Preparation>(p.clone())
+        .map_or_else(|_| p.to_string(), |p| p.describe())
+}

@@ -73,7 +73,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
     if a.words.is_empty() {
         return batch(est, &a);
     }
-    let ids = query_ids(&a.words.join(" "), est.lowercase());
+    let ids = query_ids(&a.words.join(" "), &est.preparation());
     let t = std::time::Instant::now();
     let next = est.complete(&ids, &a.prefix, a.top)?;
     let secs = t.elapsed().as_secs_f64();
@@ -136,7 +136,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
 /// query's line number, from 1; a query with no word to show has no row);
 /// with `--json`, one object a line, one per query, in order.
 fn batch(est: &dyn Predictor, a: &NextArgs) -> anyhow::Result<()> {
-    let lc = est.lowercase();
+    let prep = est.preparation();
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let what = if est.method().is_probability() {
         "probability"
@@ -167,7 +167,7 @@ fn batch(est: &dyn Predictor, a: &NextArgs) -> anyhow::Result<()> {
             Some((c, p)) => (c, p),
             None => (&line[..], a.prefix.as_str()),
         };
-        let ids = query_ids(ctx_text, lc);
+        let ids = query_ids(ctx_text, &prep);
         let t = std::time::Instant::now();
         let next = est
             .complete(&ids, prefix, a.top)

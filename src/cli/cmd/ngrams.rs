@@ -40,7 +40,7 @@ fn parse_after(s: &str) -> anyhow::Result<Vec<WordId>> {
 
 pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
-    let prefix = query_ids(&a.words.join(" "), store.meta().settings.lowercase);
+    let prefix = query_ids(&a.words.join(" "), &store.meta().settings.preparation);
     let order = a.order.unwrap_or(prefix.len() + 1);
     let after = a.after.as_deref().map(parse_after).transpose()?;
     if a.limit == 0 {

@@ -220,11 +220,11 @@ pub fn run(a: ProbArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
     let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
-    let lc = est.lowercase();
+    let prep = est.preparation();
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     if !a.words.is_empty() {
         let line = a.words.join(" ");
-        let ids = query_ids(&line, lc);
+        let ids = query_ids(&line, &prep);
         if ids.is_empty() {
             bail!("no words in the query");
         }
@@ -250,7 +250,7 @@ pub fn run(a: ProbArgs) -> anyhow::Result<()> {
             lines.push(String::from_utf8_lossy(l).into_owned());
         }
         if lines.len() == BATCH || (n == 0 && !lines.is_empty()) {
-            batch(est, lc, &lines, a.json, &mut out)?;
+            batch(est, &prep, &lines, a.json, &mut out)?;
             lines.clear();
         }
         if n == 0 {
@@ -263,12 +263,12 @@ pub fn run(a: ProbArgs) -> anyhow::Result<()> {
 
 fn batch(
     est: &dyn Predictor,
-    lc: bool,
+    prep: &quern::tokenize::Preparation,
     lines: &[String],
     json_out: bool,
     out: &mut impl Write,
 ) -> anyhow::Result<()> {
-    let ids: Vec<Vec<WordId>> = lines.iter().map(|l| query_ids(l, lc)).collect();
+    let ids: Vec<Vec<WordId>> = lines.iter().map(|l| query_ids(l, prep)).collect();
     let queries: Vec<&[WordId]> = ids
         .iter()
         .filter(|q| !q.is_empty())

@@ -3,6 +3,7 @@
 use std::io::Write;
 
 use anyhow::Context;
+use quern::corpus::Format;
 use quern::stage::{self, PlanOptions};
 use quern::store::Settings;
 
@@ -11,16 +12,22 @@ use crate::cli::args::StageCommand;
 pub fn run(c: StageCommand) -> anyhow::Result<()> {
     let report = match c {
         StageCommand::Plan(a) => {
+            let preparation = a.preparation();
             let o = PlanOptions {
                 dir: a.dir.clone(),
                 inputs: a.inputs,
                 settings: Settings {
                     order: a.order,
-                    lowercase: a.lowercase,
+                    preparation,
                     word_list: None,
                     max_line_bytes: a.max_line_bytes,
                 },
                 word_list: a.word_list,
+                format: if a.jsonl {
+                    Format::json_lines(&a.text_field)
+                } else {
+                    Format::Lines
+                },
                 partitions: a.partitions,
                 map_tasks: a.map_tasks,
             };

@@ -155,6 +155,16 @@ fn rows(out: &mut impl Write, delim: u8, r: &Report) -> anyhow::Result<()> {
     ] {
         put("totals", None, None, name, v.to_string(), "")?;
     }
+    if t.bad_lines > 0 {
+        put(
+            "totals",
+            None,
+            None,
+            "bad_lines",
+            t.bad_lines.to_string(),
+            "",
+        )?;
+    }
     // Empty, with a note, for a store counted without a word list.
     let list_words = r.settings.word_list.as_ref().map(|l| l.words);
     for (name, v) in [
@@ -294,6 +304,9 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
                 thousands(l.words)
             ))
     )?;
+    if let Some(p) = &r.settings.preparation {
+        writeln!(out, "preparation {}", super::preparation_text(p))?;
+    }
     writeln!(out, "sentences  {:>14}", thousands(t.sentences))?;
     writeln!(
         out,
@@ -312,6 +325,13 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
             out,
             "mapped     {:>14}   (tokens outside the word list, counted as <unk>)",
             thousands(m)
+        )?;
+    }
+    if t.bad_lines > 0 {
+        writeln!(
+            out,
+            "bad lines  {:>14}   (input lines without a document, skipped)",
+            thousands(t.bad_lines)
         )?;
     }
     match r.growth.as_ref() {

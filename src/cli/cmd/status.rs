@@ -52,6 +52,9 @@ pub fn run(a: StatusArgs) -> anyhow::Result<()> {
             thousands(f.vocabulary),
             bytes(f.disk_bytes)
         )?;
+        if let Some(p) = &f.preparation {
+            writeln!(out, "  preparation {}", super::preparation_text(p))?;
+        }
         for (k, n) in f.ngrams.iter().enumerate() {
             writeln!(out, "  {}-grams {:>14}", k + 1, thousands(*n))?;
         }

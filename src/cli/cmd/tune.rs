@@ -32,7 +32,7 @@ pub fn run(a: TuneArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
     let method = a.method;
     let start = params(method, &a.params)?;
-    let sentences = read_sentences(&a.heldout, store.meta().settings.lowercase)?;
+    let sentences = read_sentences(&a.heldout, store.meta().settings.preparation)?;
     let t = std::time::Instant::now();
     let r = tune(&store, method, &start, &sentences, a.buckets)?;
     let secs = t.elapsed().as_secs_f64();

@@ -77,6 +77,9 @@ class _Predictor:
     @property
     def lowercase(self) -> bool: ...
     @property
+    def preparation(self) -> dict[str, Any]:
+        """How text is prepared before lookup (normalize, sentences, tokens, lowercase, digits)."""
+    @property
     def is_probability(self) -> bool:
         """False for `stupid`, whose scores are not probabilities."""
     @property
