@@ -514,13 +514,13 @@ fn prune_selection(
     let threshold = match (opts.relative_entropy, opts.max_ngrams) {
         (None, None) => None,
         (theta, max) => {
-            let d = prune::criterion(&m, &links, dir)?;
+            let d = prune::criterion(m, links, dir)?;
             let theta = match (theta, max) {
                 (Some(t), _) => Some(t),
-                (None, Some(max)) => prune::threshold_for(&m, &links, &d, max)?,
+                (None, Some(max)) => prune::threshold_for(m, links, &d, max)?,
                 (None, None) => unreachable!(),
             };
-            theta.map(|t| (t, prune::select(&m, &links, &d, t).0))
+            theta.map(|t| (t, prune::select(m, links, &d, t).0))
         }
     };
     Ok(match threshold {
