@@ -108,12 +108,14 @@
 //! 64 bits, so it is within about 3e-7 relative of the estimator's.
 
 pub mod arpa;
+mod built;
 mod bytes;
 mod cache;
 pub mod complete;
 mod file;
 pub mod format;
 pub mod freeze;
+mod orders;
 pub mod packed;
 mod pass;
 pub(crate) mod prune;

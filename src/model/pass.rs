@@ -8,7 +8,7 @@
 //! order k − 1 that every part wrote before ([`Built`], shared); for each
 //! kept context h of the range it writes where its children start (counted
 //! from the part's first child) and β(h). A context's children all share
-//! its first word, so parts never split one; [`super::freeze`] runs the
+//! its first word, so parts never split one; [`super::orders`] runs the
 //! parts on threads side by side and joins their arrays in order.
 //!
 //! Pruning by count keeps an n-gram of order k only if its raw count
@@ -17,10 +17,9 @@
 //! that lost a child is recomputed so that its distribution sums to 1:
 //! β(h) = (1 − Σ q(h·v)) / (1 − Σ q(h'·v)) over its kept children v.
 
-use std::fs::File;
 use std::path::{Path, PathBuf};
 
-use crate::error::{Error, IoContext, Result};
+use crate::error::{Error, Result};
 use crate::key::Key;
 use crate::query::backoff::BackoffKind;
 use crate::query::katz::EPS;
@@ -28,131 +27,9 @@ use crate::query::Estimator;
 use crate::store::NgramRecord;
 use crate::words::WordId;
 
-use super::bytes::{map_read_only, u32_at};
+use super::built::{Built, Bytes, Cursor};
 use super::writer::ArrayFile;
 use crate::search::find_in;
-
-/// A file's bytes, memory-mapped (or empty).
-pub(super) enum Bytes {
-    Map(memmap2::Mmap),
-    Empty,
-}
-
-impl std::ops::Deref for Bytes {
-    type Target = [u8];
-    fn deref(&self) -> &[u8] {
-        match self {
-            Bytes::Map(m) => m,
-            Bytes::Empty => &[],
-        }
-    }
-}
-
-/// Maps the file at `path` read-only.
-pub(super) fn map(path: &Path) -> Result<Bytes> {
-    let f = File::open(path).at(path, "open")?;
-    if f.metadata().at(path, "stat")?.len() == 0 {
-        return Ok(Bytes::Empty);
-    }
-    Ok(Bytes::Map(map_read_only(&f, path)?))
-}
-
-/// The arrays of the finished orders, searchable: `words[k]` and
-/// `children[k]` (index k − 1 … as the order), mapped and shared by the
-/// parts.
-pub(super) struct Built {
-    pub words: Vec<Bytes>,
-    pub children: Vec<Bytes>,
-}
-
-/// One reader's place in [`Built`]: the path of its last lookup (word
-/// indices and entries), and where the last search of each level ended
-/// (the entry found, or where the word would be) and under which parent
-/// entry: the n-grams of one context come in word order, so their suffixes
-/// are children of one entry in increasing order, and the next search
-/// gallops forward from there.
-#[derive(Default)]
-pub(super) struct Cursor {
-    path_x: Vec<u32>,
-    path_e: Vec<u32>,
-    hint: Vec<(u32, usize)>,
-}
-
-impl Built {
-    /// The entry of order |xs| of the n-gram of word indices `xs`.
-    pub fn lookup(&self, c: &mut Cursor, xs: &[u32]) -> Option<u32> {
-        let mut same = 0;
-        while same < xs.len() && same < c.path_x.len() && c.path_x[same] == xs[same] {
-            same += 1;
-        }
-        c.path_x.truncate(same);
-        c.path_e.truncate(same);
-        if c.hint.len() < xs.len() {
-            c.hint.resize(xs.len(), (u32::MAX, 0));
-        }
-        for t in same..xs.len() {
-            let e = if t == 0 {
-                xs[0]
-            } else {
-                // Entry path_e[t-1] of order t; its children are of order t + 1.
-                let ch = &self.children[t - 1];
-                let w = &self.words[t];
-                let n = w.len() / 4;
-                let p = c.path_e[t - 1];
-                let lo = (u32_at(ch, p as usize) as usize).min(n);
-                let hi = (u32_at(ch, p as usize + 1) as usize).clamp(lo, n);
-                let (hp, hpos) = c.hint[t];
-                let from = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
-                    hpos
-                } else {
-                    lo
-                };
-                match gallop(w, from, hi, xs[t]) {
-                    Ok(i) => {
-                        c.hint[t] = (p, i + 1);
-                        i as u32
-                    }
-                    Err(i) => {
-                        c.hint[t] = (p, i);
-                        return None;
-                    }
-                }
-            };
-            c.path_x.push(xs[t]);
-            c.path_e.push(e);
-        }
-        c.path_e.last().copied()
-    }
-}
-
-/// The position of `w` among the increasing u32 words `words[lo..hi]`
-/// (little-endian bytes), or where it would be: galloping from `lo`
-/// (1, 2, 4, … ahead), then bisecting, so that a word near `lo` costs few
-/// reads.
-fn gallop(words: &[u8], lo: usize, hi: usize, w: u32) -> std::result::Result<usize, usize> {
-    let (mut a, mut step) = (lo, 1usize);
-    let mut b = lo;
-    while b < hi && u32_at(words, b) < w {
-        a = b + 1;
-        b = lo + step;
-        step *= 2;
-    }
-    let b = b.min(hi);
-    let (mut a, mut b) = (a.min(b), b);
-    while a < b {
-        let m = a + (b - a) / 2;
-        if u32_at(words, m) < w {
-            a = m + 1;
-        } else {
-            b = m;
-        }
-    }
-    if a < hi && u32_at(words, a) == w {
-        Ok(a)
-    } else {
-        Err(a)
-    }
-}
 
 /// Katz's contexts that back off past h' (all orders; and whether the
 /// current order has one), and those it cannot represent.
@@ -340,16 +217,57 @@ pub(super) fn left_type(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
 
 /// Runs one part of order `o.k` with the estimator `est`.
 pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result<PartOut> {
+    let (first, end) = (part.first, part.end);
+    let mut run = open_part(est, o, part)?;
+    for (pos, item) in est.store().scan_first_ranks(o.k, first, end)?.enumerate() {
+        let (g, rec) = item?;
+        run.ngram(pos, g.ids(), rec)?;
+    }
+    run.close()
+}
+
+/// One part's pass in progress: its output files, the parent context met
+/// last with the sums over its kept children so far, and the n-grams of
+/// order k read and kept.
+struct PartRun<'a, 'e, I> {
+    est: &'a Estimator<'e>,
+    o: &'a Order<'a>,
+    part: Part,
+    /// Order k: last words (u32), q (f32), exact q (f64).
+    w_file: ArrayFile,
+    q_file: ArrayFile,
+    q64_file: ArrayFile,
+    ctx_out: ContextOut,
+    cursor: Cursor,
+    tally: KatzTally,
+    /// Which n-grams of order k were kept, by position within the part.
+    kept_now: Vec<u64>,
+    parents: ParentStream<I>,
+    /// The current parent: key, record, model index if kept.
+    cur: Option<(Key, NgramRecord, Option<u32>)>,
+    acc: Acc,
+    /// F(h)/Σc of a Katz context that every word follows (0 otherwise).
+    spread_f: f64,
+    written: u64,
+    /// The word indices of the last kept n-gram's h'·w, and their ranks.
+    xs: Vec<u32>,
+    xs_ids: Vec<u64>,
+    store_n: u64,
+}
+
+/// Creates the part's files in the temporary folder and starts reading
+/// its n-grams of order k − 1.
+fn open_part<'a, 'e>(
+    est: &'a Estimator<'e>,
+    o: &'a Order<'a>,
+    part: Part,
+) -> Result<PartRun<'a, 'e, impl Iterator<Item = Result<(Key, NgramRecord)>> + 'e>> {
     let k = o.k;
-    let kind = o.kind;
-    let v = o.v;
-    let store = est.store();
-    let lower_q = &o.q64[k - 2];
     let tp = |name: &str| o.dir.join(format!("{name}{k}-{}", part.t));
-    let mut w_file = ArrayFile::create(tp("w"))?;
-    let mut q_file = ArrayFile::create(tp("q"))?;
-    let mut q64_file = ArrayFile::create(tp("q64-"))?;
-    let mut ctx_out = ContextOut {
+    let w_file = ArrayFile::create(tp("w"))?;
+    let q_file = ArrayFile::create(tp("q"))?;
+    let q64_file = ArrayFile::create(tp("q64-"))?;
+    let ctx_out = ContextOut {
         b: ArrayFile::create(tp("b"))?,
         f: ArrayFile::create(tp("f"))?,
         s: ArrayFile::create(tp("s"))?,
@@ -357,26 +275,210 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
         default_beta: o.default_beta,
         k,
     };
-    let mut cursor = Cursor::default();
-    let mut tally = KatzTally::default();
-    let mut kept_now: Vec<u64> = Vec::new();
-    let mut parents = ParentStream {
-        it: store.scan_first_ranks(k - 1, part.first, part.end)?,
+    let parents = ParentStream {
+        it: est.store().scan_first_ranks(k - 1, part.first, part.end)?,
         pos: 0,
         rank: part.entries.0,
     };
-    // The current parent: key, record, model index if kept.
-    let mut cur: Option<(Key, NgramRecord, Option<u32>)> = None;
-    let mut acc = Acc::default();
-    let mut spread_f = 0.0;
-    let mut written: u64 = 0;
-    let mut xs: Vec<u32> = Vec::with_capacity(k);
-    // The ranks of the words of `xs`.
-    let mut xs_ids: Vec<u64> = Vec::with_capacity(k);
-    let mut store_n: u64 = 0;
-    // β of a finished context; `None`: Katz must look past h'.
-    let beta_of = |rec: &NgramRecord, acc: &Acc| -> Option<f64> {
+    Ok(PartRun {
+        est,
+        o,
+        part,
+        w_file,
+        q_file,
+        q64_file,
+        ctx_out,
+        cursor: Cursor::default(),
+        tally: KatzTally::default(),
+        kept_now: Vec::new(),
+        parents,
+        cur: None,
+        acc: Acc::default(),
+        spread_f: 0.0,
+        written: 0,
+        xs: Vec::with_capacity(k),
+        xs_ids: Vec::with_capacity(k),
+        store_n: 0,
+    })
+}
+
+impl<I> PartRun<'_, '_, I>
+where
+    I: Iterator<Item = Result<(Key, NgramRecord)>>,
+{
+    /// Takes the stored n-gram h·w of ranks `gi`, the `pos`-th of the
+    /// part: moves to its parent h, and if h is kept and h·w is not pruned,
+    /// writes its last word and q and adds it to h's sums.
+    fn ngram(&mut self, pos: usize, gi: &[u64], rec: NgramRecord) -> Result<()> {
+        let (est, o) = (self.est, self.o);
+        let k = o.k;
+        self.store_n += 1;
+        self.move_to(&gi[..k - 1])?;
+        let (_, prec, kept) = self.cur.as_ref().expect("set above");
+        let (prec, kept) = (*prec, *kept);
+        if o.kind == BackoffKind::Katz {
+            self.acc.freed += est.katz_freed(k - 1, rec.count);
+        }
+        if kept.is_none() {
+            return Ok(());
+        }
+        let Some(lower) = self.lower(gi, rec.count)? else {
+            return Ok(());
+        };
         let j = k - 1;
+        let q = match o.kind {
+            BackoffKind::Interpolated => {
+                let a = left_type(rec.count, rec.continuation, gi[0] == o.bos_rank);
+                est.step(j, rec.count, a, prec.context, prec.count, lower)
+            }
+            BackoffKind::Katz => {
+                let s = prec.context.unwrap_or_default();
+                let p = est.katz_seen(j, rec.count, s.count_sum);
+                if s.types as f64 >= o.v && self.spread_f > EPS {
+                    p + self.spread_f * lower
+                } else {
+                    p
+                }
+            }
+            BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
+        };
+        self.w_file.u32(*self.xs.last().expect("k ≥ 2"))?;
+        self.q_file.f32(q as f32)?;
+        self.q64_file.f64(q)?;
+        let word = pos / 64;
+        if self.kept_now.len() <= word {
+            self.kept_now.resize(word + 1, 0);
+        }
+        self.kept_now[word] |= 1 << (pos % 64);
+        self.written += 1;
+        self.acc.kept += 1;
+        self.acc.sum_q += q;
+        self.acc.sum_lower += lower;
+        Ok(())
+    }
+
+    /// Moves to the parent context `h` (ranks), finishing the contexts
+    /// passed; an n-gram whose context is not stored is an error.
+    fn move_to(&mut self, h: &[u64]) -> Result<()> {
+        let (est, o) = (self.est, self.o);
+        let k = o.k;
+        let not_stored = || {
+            Error::corrupt(
+                est.store().dir(),
+                format!("order {k}: an n-gram whose context is not stored"),
+            )
+        };
+        while self.cur.as_ref().is_none_or(|c| c.0.ids() != h) {
+            self.finish_context()?;
+            self.acc = Acc::default();
+            let (pk, prec) = self.parents.it.next().ok_or_else(not_stored)??;
+            if pk.ids() > h {
+                return Err(not_stored());
+            }
+            let kept = if k - 1 == 1 {
+                o.index_of_rank(pk.ids()[0])
+            } else {
+                self.parents.next_kept(&self.part.kept_prev)
+            };
+            self.spread_f = 0.0;
+            if o.kind == BackoffKind::Katz && kept.is_some() {
+                if let Some(s) = prec.context {
+                    if s.types as f64 >= o.v {
+                        // Every word follows this context: Katz spreads
+                        // its freed mass, which needs F(h) first.
+                        let mut freed = 0.0;
+                        for c in est.store().children(&o.ids_of(pk.ids()))? {
+                            freed += est.katz_freed(k - 1, c?.1);
+                        }
+                        self.spread_f = freed / s.count_sum as f64;
+                    }
+                }
+            }
+            self.cur = Some((pk, prec, kept));
+        }
+        Ok(())
+    }
+
+    /// The word indices of h'·w (in `xs`) for the n-gram of ranks `gi`,
+    /// and q(h'·w) from order k − 1; `None` (h·w pruned) where h'·w was
+    /// not kept or h·w's count `count` is below the threshold.
+    fn lower(&mut self, gi: &[u64], count: u64) -> Result<Option<f64>> {
+        let o = self.o;
+        let (k, store) = (o.k, self.est.store());
+        // Consecutive n-grams share their leading words, so only those
+        // after the shared ones are looked up.
+        let mut same = 0;
+        while same < self.xs.len() && same + 1 < k && self.xs_ids[same] == gi[same + 1] {
+            same += 1;
+        }
+        self.xs.truncate(same);
+        self.xs_ids.truncate(same);
+        for &r in &gi[same + 1..] {
+            self.xs.push(o.index_of_rank(r).ok_or_else(|| {
+                Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
+            })?);
+            self.xs_ids.push(r);
+        }
+        let lower_e = if k == 2 {
+            Some(self.xs[0])
+        } else {
+            o.built.lookup(&mut self.cursor, &self.xs)
+        };
+        let Some(lower_e) = lower_e else {
+            if !o.pruning {
+                return Err(Error::corrupt(
+                    store.dir(),
+                    format!("order {k}: the suffix of a stored n-gram is not stored"),
+                ));
+            }
+            self.acc.pruned = true;
+            return Ok(None);
+        };
+        if count < o.min(k) {
+            self.acc.pruned = true;
+            return Ok(None);
+        }
+        let at = 8 * lower_e as usize;
+        Ok(Some(f64::from_le_bytes(
+            o.q64[k - 2]
+                .get(at..at + 8)
+                .ok_or_else(|| Error::corrupt(o.q64_prev, "short temporary array"))?
+                .try_into()
+                .expect("8 bytes"),
+        )))
+    }
+
+    /// Writes the children start and β of the current context, if kept
+    /// (finished: all its children were read).
+    fn finish_context(&mut self) -> Result<()> {
+        let Some((pk, prec, Some(p))) = &self.cur else {
+            return Ok(());
+        };
+        let (est, o) = (self.est, self.o);
+        let (beta, skip) = match self.beta(prec) {
+            Some(b) => (b, 1),
+            None => katz_deep(
+                est,
+                o,
+                &o.ids_of(pk.ids()),
+                prec,
+                &mut self.cursor,
+                &mut self.tally.unrepresentable,
+                (self.acc.pruned, 1.0 - self.acc.sum_q, o.min(o.k)),
+            )?,
+        };
+        self.tally.order_skips |= skip > 1;
+        self.tally.skips += u64::from(skip > 1);
+        self.ctx_out
+            .put(*p, self.written - self.acc.kept, beta, skip)
+    }
+
+    /// β of the finished context with the record `rec` (and the sums in
+    /// `acc`); `None`: Katz must look past h'.
+    fn beta(&self, rec: &NgramRecord) -> Option<f64> {
+        let (est, o, acc) = (self.est, self.o, &self.acc);
+        let j = o.k - 1;
+        let kind = o.kind;
         Some(match kind {
             BackoffKind::Stupid(a) => a,
             _ if acc.kept == 0 => 1.0,
@@ -389,7 +491,7 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
                 let den = 1.0 - acc.sum_lower;
                 if f <= EPS {
                     0.0
-                } else if s.types as f64 >= v {
+                } else if s.types as f64 >= o.v {
                     f
                 } else if den > EPS {
                     f / den
@@ -410,168 +512,26 @@ pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result
                 }
             }
         })
-    };
-    // Writes the children start and β of a finished kept context.
-    let finish = |cur: &Option<(Key, NgramRecord, Option<u32>)>,
-                  acc: &Acc,
-                  written: u64,
-                  cursor: &mut Cursor,
-                  ctx_out: &mut ContextOut,
-                  tally: &mut KatzTally|
-     -> Result<()> {
-        let Some((pk, prec, Some(p))) = cur else {
-            return Ok(());
-        };
-        let (beta, skip) = match beta_of(prec, acc) {
-            Some(b) => (b, 1),
-            None => katz_deep(
-                est,
-                o,
-                &o.ids_of(pk.ids()),
-                prec,
-                cursor,
-                &mut tally.unrepresentable,
-                (acc.pruned, 1.0 - acc.sum_q, o.min(k)),
-            )?,
-        };
-        tally.order_skips |= skip > 1;
-        tally.skips += u64::from(skip > 1);
-        ctx_out.put(*p, written - acc.kept, beta, skip)
-    };
-    let not_stored = || {
-        Error::corrupt(
-            store.dir(),
-            format!("order {k}: an n-gram whose context is not stored"),
-        )
-    };
-    for (pos, item) in store.scan_first_ranks(k, part.first, part.end)?.enumerate() {
-        let (g, rec) = item?;
-        store_n += 1;
-        let gi = g.ids();
-        let h = &gi[..k - 1];
-        // Move to the parent h, finishing the ones passed.
-        while cur.as_ref().is_none_or(|c| c.0.ids() != h) {
-            finish(&cur, &acc, written, &mut cursor, &mut ctx_out, &mut tally)?;
-            acc = Acc::default();
-            let (pk, prec) = parents.it.next().ok_or_else(not_stored)??;
-            if pk.ids() > h {
-                return Err(not_stored());
-            }
-            let kept = if k - 1 == 1 {
-                o.index_of_rank(pk.ids()[0])
-            } else {
-                parents.next_kept(&part.kept_prev)
-            };
-            spread_f = 0.0;
-            if kind == BackoffKind::Katz && kept.is_some() {
-                if let Some(s) = prec.context {
-                    if s.types as f64 >= v {
-                        // Every word follows this context: Katz spreads
-                        // its freed mass, which needs F(h) first.
-                        let mut freed = 0.0;
-                        for c in store.children(&o.ids_of(pk.ids()))? {
-                            freed += est.katz_freed(k - 1, c?.1);
-                        }
-                        spread_f = freed / s.count_sum as f64;
-                    }
-                }
-            }
-            cur = Some((pk, prec, kept));
-        }
-        let (_, prec, kept) = cur.as_ref().expect("set above");
-        if kind == BackoffKind::Katz {
-            acc.freed += est.katz_freed(k - 1, rec.count);
-        }
-        if kept.is_none() {
-            continue;
-        }
-        // The word indices of h'·w: consecutive n-grams share their
-        // leading words, so only those after the shared ones are looked
-        // up.
-        let mut same = 0;
-        while same < xs.len() && same + 1 < k && xs_ids[same] == gi[same + 1] {
-            same += 1;
-        }
-        xs.truncate(same);
-        xs_ids.truncate(same);
-        for &r in &gi[same + 1..] {
-            xs.push(o.index_of_rank(r).ok_or_else(|| {
-                Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
-            })?);
-            xs_ids.push(r);
-        }
-        let lower_e = if k == 2 {
-            Some(xs[0])
-        } else {
-            o.built.lookup(&mut cursor, &xs)
-        };
-        let Some(lower_e) = lower_e else {
-            if !o.pruning {
-                return Err(Error::corrupt(
-                    store.dir(),
-                    format!("order {k}: the suffix of a stored n-gram is not stored"),
-                ));
-            }
-            acc.pruned = true;
-            continue;
-        };
-        if rec.count < o.min(k) {
-            acc.pruned = true;
-            continue;
-        }
-        let at = 8 * lower_e as usize;
-        let lower = f64::from_le_bytes(
-            lower_q
-                .get(at..at + 8)
-                .ok_or_else(|| Error::corrupt(o.q64_prev, "short temporary array"))?
-                .try_into()
-                .expect("8 bytes"),
-        );
-        let j = k - 1;
-        let q = match kind {
-            BackoffKind::Interpolated => {
-                let a = left_type(rec.count, rec.continuation, gi[0] == o.bos_rank);
-                est.step(j, rec.count, a, prec.context, prec.count, lower)
-            }
-            BackoffKind::Katz => {
-                let s = prec.context.unwrap_or_default();
-                let p = est.katz_seen(j, rec.count, s.count_sum);
-                if s.types as f64 >= v && spread_f > EPS {
-                    p + spread_f * lower
-                } else {
-                    p
-                }
-            }
-            BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
-        };
-        w_file.u32(*xs.last().expect("k ≥ 2"))?;
-        q_file.f32(q as f32)?;
-        q64_file.f64(q)?;
-        let word = pos / 64;
-        if kept_now.len() <= word {
-            kept_now.resize(word + 1, 0);
-        }
-        kept_now[word] |= 1 << (pos % 64);
-        written += 1;
-        acc.kept += 1;
-        acc.sum_q += q;
-        acc.sum_lower += lower;
     }
-    finish(&cur, &acc, written, &mut cursor, &mut ctx_out, &mut tally)?;
-    // Every later context of the part has no kept child.
-    ctx_out.fill_to(part.entries.1, written)?;
-    Ok(PartOut {
-        w: w_file.close()?,
-        q: q_file.close()?,
-        q64: q64_file.close()?,
-        b: ctx_out.b.close()?,
-        f: ctx_out.f.close()?,
-        s: ctx_out.s.close()?,
-        written,
-        store_n,
-        kept: kept_now,
-        tally,
-    })
+
+    /// Finishes the last context, gives every later context of the part
+    /// no kept child, and closes the files.
+    fn close(mut self) -> Result<PartOut> {
+        self.finish_context()?;
+        self.ctx_out.fill_to(self.part.entries.1, self.written)?;
+        Ok(PartOut {
+            w: self.w_file.close()?,
+            q: self.q_file.close()?,
+            q64: self.q64_file.close()?,
+            b: self.ctx_out.b.close()?,
+            f: self.ctx_out.f.close()?,
+            s: self.ctx_out.s.close()?,
+            written: self.written,
+            store_n: self.store_n,
+            kept: self.kept_now,
+            tally: self.tally,
+        })
+    }
 }
 
 /// Katz's back-off weight for a context h whose children take all the
