@@ -405,7 +405,7 @@ fn completion_in_several_scripts_equals_brute_force() {
             assert!(check_with(&est, &what, &text, &ctxs, &prefixes) > 500);
             // Matches for non-ASCII prefixes exist, so that the check says
             // something about them.
-            let found = est.complete(&[], &prefixes[1], 40).unwrap();
+            let found = est.complete(&[], prefixes[1], 40).unwrap();
             assert!(
                 found.items.len() >= 3,
                 "{what}: {} words begin with {:?}",

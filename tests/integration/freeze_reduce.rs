@@ -586,9 +586,9 @@ struct WeightErrors {
 
 /// The weights of both models; a weight of 0 must stay 0.
 fn weight_errors(exact: &Arpa, coded: &Arpa) -> WeightErrors {
-    for k in 0..exact.len() - 1 {
-        for (w, &(_, b)) in &exact[k] {
-            if let (Some(b), Some(c)) = (b, coded[k][w].1) {
+    for (k, (ek, ck)) in exact.iter().zip(coded).enumerate().take(exact.len() - 1) {
+        for (w, &(_, b)) in ek {
+            if let (Some(b), Some(c)) = (b, ck[w].1) {
                 assert!(
                     b > -99.0 || c <= -99.0,
                     "order {}: {w}: β 0 became {c}",
