@@ -96,25 +96,6 @@ named! {
     }
 }
 
-/// What [`point`] takes: a [`Point`], or its name (which must be one of
-/// [`Point::ALL`]'s; an unknown name panics when a kill point is set).
-pub trait IntoPoint {
-    /// The point.
-    fn into_point(self) -> Point;
-}
-
-impl IntoPoint for Point {
-    fn into_point(self) -> Point {
-        self
-    }
-}
-
-impl IntoPoint for &str {
-    fn into_point(self) -> Point {
-        Point::from_name(self).unwrap_or_else(|| panic!("no fault point is named {self:?}"))
-    }
-}
-
 /// The point and count that `var` holds (`<name>:<n>`), `None` where it is
 /// not set; an error naming the variable where its value is not a point
 /// of `T` and a count of at least 1.
@@ -162,10 +143,10 @@ static TARGET: OnceLock<Option<(Point, u64)>> = OnceLock::new();
 static HITS: AtomicU64 = AtomicU64::new(0);
 
 /// Marks that execution reached `at`.
-pub fn point(at: impl IntoPoint) {
+pub fn point(at: Point) {
     let target = TARGET.get_or_init(|| kill_target().unwrap_or_else(|e| panic!("{e}")));
     if let Some((want, n)) = target {
-        if *want == at.into_point() && HITS.fetch_add(1, Ordering::SeqCst) + 1 == *n {
+        if *want == at && HITS.fetch_add(1, Ordering::SeqCst) + 1 == *n {
             unsafe_kill();
         }
     }
@@ -209,7 +190,5 @@ mod tests {
             assert_eq!(Full::from_name(f.name()), Some(*f));
         }
         assert_eq!(Point::from_name("merging"), None);
-        assert_eq!("stage-done".into_point(), Point::StageDone);
-        assert!(std::panic::catch_unwind(|| "comitted".into_point()).is_err());
     }
 }

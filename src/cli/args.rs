@@ -564,8 +564,8 @@ pub struct DocArgs {
 #[derive(Args, Debug)]
 pub struct FreezeArgs {
     /// Store directory.
-    #[arg(long, required_unless_present = "verify")]
-    pub store: Option<PathBuf>,
+    #[arg(long)]
+    pub store: PathBuf,
     #[command(flatten)]
     pub memory: CacheMemoryArgs,
     /// The method to freeze: mkn, kn, absolute, witten-bell, katz, interp
@@ -575,7 +575,7 @@ pub struct FreezeArgs {
     #[command(flatten)]
     pub params: ParamArgs,
     /// The model file to write.
-    #[arg(long, required_unless_present_any = ["verify", "arpa"])]
+    #[arg(long, required_unless_present = "arpa")]
     pub out: Option<PathBuf>,
     /// Also (or only) write the model as ARPA text; a name ending in .gz
     /// is compressed.
@@ -610,10 +610,6 @@ pub struct FreezeArgs {
     /// per core; the model is the same whatever the number).
     #[arg(long)]
     pub threads: Option<usize>,
-    /// The same as `quern check-model FILE`, for the tests that still call
-    /// it so; not shown in the help.
-    #[arg(long, hide = true, conflicts_with_all = ["store", "out", "arpa"])]
-    pub verify: Option<PathBuf>,
     /// The summary as JSON.
     #[arg(long)]
     pub json: bool,

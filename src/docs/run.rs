@@ -90,7 +90,7 @@ pub fn score_inputs(
                     sink(r, (!l.too_long).then_some(&l.bytes[..]))?;
                 }
                 next_out += 1;
-                crate::fault::point("score-batch");
+                crate::fault::point(crate::fault::Point::ScoreBatch);
             }
         }
         Ok(())

@@ -109,16 +109,32 @@ fn compare(
     }
     let sum: f64 = got.items.iter().map(|x| x.1).sum();
     assert!((got.rest - (1.0 - sum)).abs() < 1e-12);
+    // A word is listed once.
+    let mut words: Vec<WordId> = got.items.iter().map(|x| x.0).collect();
+    words.sort_unstable();
+    words.dedup();
+    assert_eq!(words.len(), got.items.len(), "{what}: a word listed twice");
 }
 
 fn check(pred: &dyn Predictor, what: &str, text: &HashMap<WordId, String>, n: usize) -> usize {
+    check_with(pred, what, text, &contexts(n), PREFIXES)
+}
+
+/// [`check`] over the given contexts and prefixes.
+fn check_with(
+    pred: &dyn Predictor,
+    what: &str,
+    text: &HashMap<WordId, String>,
+    contexts: &[Vec<WordId>],
+    prefixes: &[&str],
+) -> usize {
     let mut checked = 0;
-    for h in contexts(n) {
-        let dist = pred.distribution(&h).unwrap();
-        for prefix in PREFIXES {
+    for h in contexts {
+        let dist = pred.distribution(h).unwrap();
+        for prefix in prefixes {
             let all = brute(&dist, text, prefix, usize::MAX);
             for k in [1, 5, 40] {
-                let got = pred.complete(&h, prefix, k).unwrap();
+                let got = pred.complete(h, prefix, k).unwrap();
                 let want = &all[..k.min(all.len())];
                 compare(
                     &format!("{what}: after {h:x?}, prefix {prefix:?}, k {k}"),
@@ -295,5 +311,136 @@ fn prefix_lowercased_with_the_store() {
     assert_eq!(a.items.len(), 10);
     for (w, _) in &a.items {
         assert!(store.word(*w).unwrap().unwrap().starts_with("th"));
+    }
+}
+
+/// fixtures/unicode/several-scripts.txt: text written for these tests in
+/// several scripts (Latin with diacritics, a decomposed é, Greek,
+/// Cyrillic, Han, kana, Devanagari) and literal marker spellings.
+pub(crate) fn several_scripts() -> PathBuf {
+    crate::common::fixtures().join("unicode/several-scripts.txt")
+}
+
+/// Prefixes of the several-scripts fixture: one and more scalar values of
+/// two and three bytes, capitals and small letters, a base letter without
+/// its accent, a Han character, the markers' first characters.
+const SCRIPT_PREFIXES: &[&str] = &[
+    "",
+    "é",
+    "É",
+    "éc",
+    "e",
+    "ü",
+    "Ü",
+    "Š",
+    "š",
+    "ř",
+    "κ",
+    "Ο",
+    "ο",
+    "ж",
+    "Ж",
+    "Щ",
+    "щу",
+    "猫",
+    "河",
+    "河边",
+    "न",
+    "ना",
+    "caf",
+    "café",
+    "cafe\u{301}",
+    "Zo",
+    "Zoë",
+    "<",
+    "</",
+    "ω",
+];
+
+/// Completion on a store of text in several scripts equals the brute force
+/// (`str::starts_with` over every word of V), for a store and a frozen
+/// model, and with `--lowercase` (prefix and words lowercased by
+/// `str::to_lowercase`): the words shown are V's words that begin with the
+/// lowercased prefix.
+#[test]
+fn completion_in_several_scripts_equals_brute_force() {
+    let fixture = several_scripts();
+    for lowercase in [false, true] {
+        let dir = scratch(&format!("scripts-{lowercase}"));
+        let store_dir = dir.join("store");
+        if store_dir.exists() {
+            std::fs::remove_dir_all(&store_dir).unwrap();
+        }
+        let mut flags = vec!["--order", "3", "--quiet"];
+        if lowercase {
+            flags.push("--lowercase");
+        }
+        crate::common::ingest_ok(&store_dir, &flags, std::slice::from_ref(&fixture));
+        let store = Store::open(&store_dir).unwrap();
+        let text = store.vocabulary().unwrap();
+        // Words of several scripts are in V (so that the prefixes match).
+        for w in ["école", "жёлтый", "猫", "नदी", "café", "cafe\u{301}"] {
+            assert!(text.values().any(|x| x == w), "{w} is not in V");
+        }
+        let sentences = quern::query::score::read_sentences(
+            std::slice::from_ref(&fixture),
+            quern::tokenize::Preparation {
+                lowercase,
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let mut ctxs: Vec<Vec<WordId>> = vec![vec![], vec![bos_id()], vec![word_id(b"qqzzx")]];
+        for s in sentences.iter().step_by(3) {
+            ctxs.push(s[..2.min(s.len())].to_vec());
+            ctxs.push(s[..(s.len() / 2).max(1)].to_vec());
+        }
+        let prefixes: Vec<String> = SCRIPT_PREFIXES
+            .iter()
+            .map(|p| {
+                if lowercase {
+                    p.to_lowercase()
+                } else {
+                    p.to_string()
+                }
+            })
+            .collect();
+        let prefixes: Vec<&str> = prefixes.iter().map(String::as_str).collect();
+        for m in [Method::Mkn, Method::Katz, Method::Stupid] {
+            let est = Estimator::new(&store, m, Params::default()).unwrap();
+            let what = format!("several scripts, lowercase {lowercase}, store {m}");
+            assert!(check_with(&est, &what, &text, &ctxs, &prefixes) > 500);
+            // Matches for non-ASCII prefixes exist, so that the check says
+            // something about them.
+            let found = est.complete(&[], prefixes[1], 40).unwrap();
+            assert!(
+                found.items.len() >= 3,
+                "{what}: {} words begin with {:?}",
+                found.items.len(),
+                prefixes[1]
+            );
+            let path = dir.join(format!("{m}.model"));
+            freeze(&est, &path, &FreezeOptions::default()).unwrap();
+            let model = Model::open(&path).unwrap();
+            let what = format!("several scripts, lowercase {lowercase}, model {m}");
+            check_with(&model, &what, &text, &ctxs, &prefixes);
+            if lowercase {
+                // A capital prefix gives what its lowercase gives.
+                for (up, low) in [("É", "é"), ("Ж", "ж"), ("Ü", "ü"), ("ZOË", "zoë")] {
+                    for h in &ctxs[..4] {
+                        assert_eq!(
+                            est.complete(h, up, 10).unwrap(),
+                            est.complete(h, low, 10).unwrap(),
+                            "{up} and {low}"
+                        );
+                        assert_eq!(
+                            model.complete(h, up, 10).unwrap(),
+                            model.complete(h, low, 10).unwrap(),
+                            "{up} and {low}"
+                        );
+                    }
+                }
+            }
+        }
     }
 }

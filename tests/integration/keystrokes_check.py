@@ -15,11 +15,25 @@ usage: keystrokes_check.py QUERN STORE_DIR TOPS HELDOUT [SOURCE_ARGS...]
   e.g. --store DIR --method mkn, or --model FILE.
 Prints one JSON object: words, outside_vocabulary, keystrokes_without and
 results (top, savings, before_first_char, chars_per_word, keystrokes).
+
+With KEYSTROKES_LOWERCASE=1 in the environment (a store counted with
+--lowercase) the held-out tokens are lowercased by str.lower() first.
+Lengths are Python's len(), in Unicode code points (scalar values), and
+the prefixes typed are slices of code points. A token spelled like a
+marker counts as <unk>: it is never chosen, whatever `next` shows.
 """
 
 import json
+import os
 import subprocess
 import sys
+
+MARKERS = ("<s>", "</s>", "<unk>")
+
+
+def unk(w):
+    """A context word as a query writes it: a marker spelling is <unk>."""
+    return "<unk>" if w in MARKERS else w
 
 
 def main():
@@ -38,13 +52,14 @@ def main():
         text = f.read()
     # str.split and Rust's split_whitespace differ only on these.
     assert not any(c in text for c in "\x1c\x1d\x1e\x1f\x85"), "unusual whitespace"
-    sentences = [line.split() for line in text.split("\n")]
+    lower = os.environ.get("KEYSTROKES_LOWERCASE") == "1"
+    sentences = [[w.lower() if lower else w for w in line.split()] for line in text.split("\n")]
     sentences = [s for s in sentences if s]
 
     queries = []
     for s in sentences:
         for i, w in enumerate(s):
-            context = " ".join(["<s>"] + s[:i])
+            context = " ".join(["<s>"] + [unk(x) for x in s[:i]])
             for typed in range(len(w)):
                 queries.append(context + "\t" + w[:typed])
     out = subprocess.run(
@@ -66,15 +81,15 @@ def main():
         for i, w in enumerate(s):
             words += 1
             without += len(w) + 1
-            known = w in vocab and w not in ("<s>", "</s>", "<unk>")
+            known = w in vocab and w not in MARKERS
             if not known:
                 outside += 1
-            context = " ".join(["<s>"] + s[:i])
+            context = " ".join(["<s>"] + [unk(x) for x in s[:i]])
             for t, k in enumerate(tops):
                 cost = len(w) + 1
                 chars = len(w)
                 for typed in range(len(w)):
-                    if w in shown[context + "\t" + w[:typed]][:k]:
+                    if known and w in shown[context + "\t" + w[:typed]][:k]:
                         cost = typed + 1
                         chars = typed
                         break

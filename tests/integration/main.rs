@@ -76,12 +76,16 @@ mod keystrokes;
 mod word_list;
 
 // Hand-worked estimator cases on a tiny corpus (papers named beside each
-// check), discount formulas, and a textbook add-one example (from memory).
+// check), discount formulas, and a textbook add-one example (from memory);
+// a second tiny corpus at order 3 (mkn and Katz by hand).
 mod estimators;
+mod estimators_order3;
 
 // The nine estimators recomputed independently from the reference
-// counter's tables (published formulas), orders 3 and 5, within 1e-12.
+// counter's tables (published formulas), orders 3 and 5, within 1e-12
+// (the implementation in `independent`, the comparison beside it).
 mod estimators_independent;
+mod independent;
 
 // `tune` (add-k search, interp EM with and without buckets) lowers
 // held-out perplexity; its file round-trips through --tuned.
@@ -89,8 +93,11 @@ mod query_tune;
 
 // `score --jsonl`/`--lines`: order, ids and bad lines kept, any thread
 // count the same, documents = plain `score` runs, percentiles = a sort,
-// two models = two runs, the kept/dropped split, .gz/.zst, --words.
+// two models = two runs, the kept/dropped split, .gz/.zst, --words; the
+// Spark driver equal to single-machine runs.
 mod docs;
+mod docs_cut;
+mod docs_spark;
 
 // `ingest --jsonl`: documents as JSON lines equal a plain ingest of their
 // texts (chunks and threads, kill and resume, --append, the stage tasks);
@@ -116,8 +123,11 @@ mod spark;
 // Frozen models: every freezable method equals the store's estimator over
 // all of V (orders 3 and 5), running text, next; the ARPA export read by an
 // independent Python reader (sums to 1, closure, same probabilities);
-// count pruning stays normalised; add-k/mle refused; damaged files refused.
+// count pruning keeps what README says; add-k/mle refused; damaged files
+// refused; `--model` on the command line answers like `--store`.
 mod freeze;
+mod freeze_arpa;
+mod freeze_files;
 
 // `quern serve`: every endpoint equals the CLI's answer on the Gutenberg
 // fixtures (store and frozen model), bad requests get 4xx JSON errors,
@@ -127,6 +137,7 @@ mod http_client;
 mod serve;
 mod serve_load;
 mod serve_page;
+mod serve_stop;
 
 // Frozen models reduced: relative-entropy pruning and quantization.
 mod freeze_reduce;

@@ -24,7 +24,17 @@ first) of every n-gram that stays. It checks that PRUNED lists exactly
 those n-grams (but for ones whose D lies within the precision of the
 file's 7-decimal numbers of THETA, which it counts) and that every n-gram
 PRUNED lists has the probability FULL gives it. Prints one JSON object;
-exits 1 when a check fails.
+exits 1 when a check fails. The contexts listed in the file named by
+ARPA_SKIP_CONTEXTS (as arpa_check.py reads it: Katz contexts that back
+off past h') are not judged: their children are taken as PRUNED has them.
+
+The precision of D: every number of the file is within half a unit of its
+7th decimal of log10 (R = 5e-8 ln 10 relative, the same in ln), and that
+error is carried through the formula to first order, term by term (num
+and den are sums of such values; b'(h) their ratio), doubled for the
+second-order terms and the 32-bit values behind the text. An n-gram whose
+D lies within that bound of THETA is borderline: the bound is relative to
+the numbers of its own context, not one width for all.
 """
 
 import json
@@ -33,9 +43,10 @@ import os
 import sys
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from arpa_check import read  # noqa: E402  (the same directory)
+from arpa_check import SKIP, read  # noqa: E402  (the same directory)
 
 NEG = -99.0
+R = 5e-8 * math.log(10)
 
 
 def p10(x):
@@ -65,12 +76,25 @@ def main():
         return m
 
     d = {}
+    not_judged = 0
     for h, gs in kids.items():
         k = len(h) + 1
+        if h in SKIP:
+            # A Katz context that backs off past h': its weight in the
+            # text is not the method, so D cannot be recomputed from the
+            # text. Its children are taken as PRUNED has them (the closure
+            # below still applies), and counted.
+            for g in gs:
+                d[g] = math.inf if g in pruned[k] else (-math.inf, 0.0)
+                not_judged += 1
+            continue
         qs = [p10(full[k][g]) for g in gs]
         lows = [p10(full[k - 1][g[1:]]) for g in gs]
         num = 1.0 - sum(qs)
         den = 1.0 - sum(lows)
+        # Their errors: the sums of the values' errors.
+        e_num = sum(qs) * R
+        e_den = sum(lows) * R
         b = p10(bow.get(h, 0.0))
         ph = marginal(h)
         for g, qh, ql in zip(gs, qs, lows):
@@ -78,11 +102,16 @@ def main():
                 d[g] = math.inf
                 continue
             bp = (num + qh) / (den + ql)
-            t1 = qh * (math.log(ql) + math.log(bp) - math.log(qh)) if qh > 0 else 0.0
-            t2 = num * (math.log(bp) - math.log(b)) if num > 0 and b > 0 else 0.0
-            # The error of D from the file's rounding: each value is within
-            # 1.2e-7 relative, a log within 2.7e-7; a few of them combine.
-            d[g] = (-ph * (t1 + t2), ph * (qh + max(num, 0.0)) * 4e-6)
+            lbp = math.log(bp) if bp > 0 else 0.0
+            t1 = qh * (math.log(ql) + lbp - math.log(qh)) if qh > 0 else 0.0
+            t2 = num * (lbp - math.log(b)) if num > 0 and b > 0 else 0.0
+            dg = -ph * (t1 + t2)
+            # The error of D from the file's rounding, term by term.
+            e_bp = (e_num + qh * R) / max(num + qh, 1e-300) + (e_den + ql * R) / max(den + ql, 1e-300)
+            e_t1 = qh * (2 * R + e_bp) + abs(t1) * R
+            e_t2 = (max(num, 0.0) * (e_bp + R) + abs(lbp - math.log(b)) * e_num) if b > 0 else 0.0
+            err = 2 * (ph * (e_t1 + e_t2) + abs(dg) * k * R)
+            d[g] = (dg, err)
     keep = {k: set() for k in range(2, n + 1)}
     for k in range(2, n + 1):
         for g in full[k]:
@@ -95,6 +124,8 @@ def main():
             keep[k - 1].add(g[1:])
     wrong = 0
     borderline = 0
+    # The widest bound of a borderline n-gram, relative to THETA.
+    widest = 0.0
     examples = []
     for k in range(2, n + 1):
         listed = set(pruned[k])
@@ -104,8 +135,9 @@ def main():
                 wrong += 1
                 examples.append(f"{' '.join(g)!r} is not in the full model")
                 continue
-            if x != math.inf and abs(x[0] - theta) <= x[1]:
+            if x != math.inf and x[0] != -math.inf and abs(x[0] - theta) <= x[1]:
                 borderline += 1
+                widest = max(widest, x[1] / theta)
                 continue
             wrong += 1
             if len(examples) < 10:
@@ -132,6 +164,8 @@ def main():
         "ngrams_pruned": [len(pruned[k]) for k in range(1, n + 1)],
         "dropped": dropped,
         "borderline": borderline,
+        "widest_borderline_bound": widest,
+        "not_judged": not_judged,
         "wrong": wrong,
         "changed": changed,
         "examples": examples,

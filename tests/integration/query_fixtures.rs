@@ -16,7 +16,8 @@ pub fn heldout_path() -> PathBuf {
     gutenberg_dir().join("persuasion.txt")
 }
 
-fn train_inputs() -> Vec<PathBuf> {
+/// The five training novels (all but the held-out one).
+pub fn train_inputs() -> Vec<PathBuf> {
     crate::common::files_under(&gutenberg_dir())
         .into_iter()
         .filter(|p| p.file_name().is_some_and(|n| n != "persuasion.txt"))

@@ -83,12 +83,38 @@ fn shown(dom: &str) -> Vec<(String, Vec<(String, f64)>)> {
         for cell in part.split("<td class=\"word\">").skip(1) {
             let w = unescape(&cell[..cell.find("</td>").unwrap()]);
             let p = cell.split("data-p=\"").nth(1).unwrap();
+            let shown = &p[p.find('>').unwrap() + 1..p.find("</td>").unwrap()];
             let p: f64 = p[..p.find('"').unwrap()].parse().unwrap();
+            // The number the reader sees is the probability written as
+            // the page's script promises (4 decimals from 0.001, else 3
+            // significant digits), by Rust's formatting here.
+            let want = if p >= 0.001 {
+                format!("{p:.4}")
+            } else {
+                format!("{p:.2e}")
+            };
+            assert_eq!(shown, want, "{method}: {w}: the number shown for {p}");
             words.push((w, p));
         }
         out.push((method, words));
     }
     out
+}
+
+/// The rows of the page's n-gram list: words, count, continuation.
+fn ngram_rows(dom: &str) -> Vec<(String, String, String)> {
+    let cell = |s: &str, class: &str| -> String {
+        let tag = format!("<td class=\"{class}\">");
+        let s = &s[s.find(&tag).unwrap() + tag.len()..];
+        unescape(&s[..s.find("</td>").unwrap()])
+    };
+    dom.split("<td class=\"ngram\">")
+        .skip(1)
+        .map(|r| {
+            let r = format!("<td class=\"ngram\">{r}");
+            (cell(&r, "ngram"), cell(&r, "count"), cell(&r, "cont"))
+        })
+        .collect()
 }
 
 fn cli_words(v: &Value) -> Vec<(String, f64)> {
@@ -132,13 +158,16 @@ fn page_in_chromium_shows_the_clis_words() {
     let browser = chromium();
     let srv = Server::start(&strs(&source_args(false)));
     let context = "she could not";
+    // The n-gram list's words: the 3-grams that begin with them.
+    let listed = "she could";
     // In the order the page lists methods (the order of /info).
     let methods = ["mkn", "witten-bell", "katz"];
     let url = format!(
-        "http://{}/?context={}&methods={}&top=10",
+        "http://{}/?context={}&methods={}&top=10&ngrams={}",
         srv.addr,
         encode(context),
-        methods.join(",")
+        methods.join(","),
+        encode(listed)
     );
     let dom = dump_dom(&url, "store");
     assert!(
@@ -155,8 +184,36 @@ fn page_in_chromium_shows_the_clis_words() {
         let want = cli_words(&cli_next(false, Some(m), context, 10));
         same(words, &want, m);
     }
-    // The figure and the n-gram list are on the page too.
+    // The figure and the n-gram list are on the page too: every row of the
+    // list is an n-gram beginning with the words asked, with the count and
+    // continuation count `quern dump` gives it (dump is checked against
+    // the reference counter in gutenberg.rs).
     assert!(dom.contains("src=\"/stats.svg\""));
+    let dump = crate::common::dump_map(&crate::serve::fixture().0);
+    let rows = ngram_rows(&dom);
+    assert!(!rows.is_empty(), "no n-gram listed:\n{dom}");
+    let mut seen = std::collections::HashSet::new();
+    for (w, c, x) in &rows {
+        assert!(
+            w.starts_with(&format!("{listed} ")),
+            "{w} listed for {listed:?}"
+        );
+        assert!(seen.insert(w.clone()), "{w} listed twice");
+        let (count, cont) = dump
+            .get(w)
+            .unwrap_or_else(|| panic!("{w} is not in the store's dump"));
+        assert_eq!(c, &count.to_string(), "{w}: count");
+        assert_eq!(
+            x,
+            &cont.map_or("-".to_string(), |v| v.to_string()),
+            "{w}: continuation"
+        );
+    }
+    let all = dump
+        .keys()
+        .filter(|k| k.starts_with(&format!("{listed} ")) && k.split(' ').count() == 3)
+        .count();
+    assert_eq!(rows.len(), all.min(12), "the n-grams listed, at most 12");
 
     // A word start: the page's column equals the service's /next (checked
     // against the CLI's brute force in serve.rs).

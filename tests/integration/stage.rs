@@ -214,6 +214,15 @@ fn stages_with_a_word_list_equal_ingest_with_it() {
         extra.extend(flags.iter().map(String::as_str));
         ingest_ok(&single, &extra, &inputs);
         let expected = raw_view(&single);
+        // The single-machine store the stages must equal, every order,
+        // against Python's count of the mapped text (collections.Counter,
+        // scripts/reference_ngrams.py), so that the two do not merely
+        // agree with each other.
+        crate::common::assert_lines_eq(
+            &format!("ingest --word-list, lowercase {lowercase}: Python vs dump"),
+            &crate::word_list::python_dump(tmp.path(), &inputs, &file, lowercase, 5),
+            &crate::common::dump_sorted(&single, &[]),
+        );
         let stats: Value = serde_json::from_str(&expected.stats).unwrap();
         assert!(
             stats["totals"]["mapped_tokens"].as_u64().unwrap() > 0,
@@ -338,10 +347,54 @@ fn stage_tasks_twice_at_once_killed_or_damaged() {
         .find(|p| p.extension().is_some_and(|x| x == "run"))
         .unwrap();
     let mut bytes = std::fs::read(&run_file).unwrap();
+    let before = map_files(&dir);
     bytes[20] ^= 0x40;
     std::fs::write(&run_file, bytes).unwrap();
     assert_eq!(outcome(&stage_ok(&task_args("map", &dir, 0))), "repaired");
     assert_eq!(outcome(&stage_ok(&task_args("map", &dir, 0))), "skipped");
+    // The repaired output is the one first written, file for file.
+    assert!(
+        map_files(&dir) == before,
+        "the repaired map output differs from the first one"
+    );
+
+    // The store these outputs make (the redone and the skipped reduce,
+    // the repaired map's dictionaries) equals the single-machine ingest.
+    for p in 0..2 {
+        stage_ok(&task_args("join", &dir, p));
+    }
+    let store = tmp.path().join("store");
+    stage_ok(&[
+        "assemble".into(),
+        "--dir".into(),
+        s(&dir),
+        "--store".into(),
+        s(&store),
+    ]);
+    let single = tmp.path().join("single");
+    ingest_ok(&single, &["--order", "5", "--quiet"], &inputs);
+    assert_raw_eq(
+        "stages after a killed reduce and a repaired map",
+        &raw_view(&single),
+        &raw_view(&store),
+    );
+}
+
+/// The files of map task 0's finished output, by name, with their bytes.
+fn map_files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir.join("map/m000000"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_none_or(|x| x != "json"))
+        .map(|p| {
+            (
+                p.file_name().unwrap().to_string_lossy().into_owned(),
+                std::fs::read(&p).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
 }
 
 /// Missing inputs: a map task whose input vanished after planning fails

@@ -4,6 +4,11 @@
 //! these files: no whitespace there that the two treat differently); the
 //! store keeps the list, `--append` and a resume insist on the same list,
 //! and an interrupted ingest resumed with it equals an uninterrupted one.
+//! Every order is checked too, continuation counts included: Python maps
+//! the text (each token outside the list written as `<unk>`, which the
+//! counting contract reads as the marker) and scripts/reference_ngrams.py
+//! (`collections.Counter`) counts the mapped text; its dump must equal the
+//! store's line for line.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -12,7 +17,8 @@ use std::process::Command;
 use quern::fault::{Point, KILL_VAR};
 
 use crate::common::{
-    dump_map, gutenberg_dir, ingest_args, python3, run, run_env, run_ok, SMALL_BUDGET,
+    assert_lines_eq, dump_map, dump_sorted, gutenberg_dir, ingest_args, manifest_dir, python3, run,
+    run_env, run_ok, sorted_lines, SMALL_BUDGET,
 };
 
 fn scratch(name: &str) -> PathBuf {
@@ -62,6 +68,60 @@ print(json.dumps({"in": c, "outside": outside, "tokens": total}))
         String::from_utf8_lossy(&out.stderr)
     );
     serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// Every n-gram of every order with its count and continuation count, as
+/// `quern dump` prints them, from Python: the inputs mapped by the list
+/// (a token outside it, after lowercasing, written as `<unk>`), one line
+/// for one line, then counted by scripts/reference_ngrams.py at `order`.
+pub(crate) fn python_dump(
+    dir: &Path,
+    inputs: &[PathBuf],
+    list: &Path,
+    lowercase: bool,
+    order: usize,
+) -> Vec<String> {
+    let prog = r#"
+import sys
+lower = sys.argv[1] == "1"
+words = {w.strip() for w in open(sys.argv[2], encoding="utf-8") if w.strip()}
+if lower:
+    words = {w.lower() for w in words}
+with open(sys.argv[3], "w", encoding="utf-8") as out:
+    for p in sys.argv[4:]:
+        for line in open(p, encoding="utf-8"):
+            toks = [t.lower() if lower else t for t in line.split()]
+            out.write(" ".join(t if t in words else "<unk>" for t in toks) + "\n")
+"#;
+    let mapped = dir.join(format!("mapped-{lowercase}.txt"));
+    let out = Command::new(python3())
+        .arg("-c")
+        .arg(prog)
+        .arg(if lowercase { "1" } else { "0" })
+        .arg(list)
+        .arg(&mapped)
+        .args(inputs)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let dump = dir.join(format!("mapped-{lowercase}.dump"));
+    let out = Command::new(python3())
+        .arg(manifest_dir().join("scripts/reference_ngrams.py"))
+        .args(["--order", &order.to_string(), "--dump"])
+        .arg(&dump)
+        .arg(&mapped)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "scripts/reference_ngrams.py failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    sorted_lines(&std::fs::read_to_string(&dump).unwrap())
 }
 
 /// A list of the 300 most frequent tokens of two novels, plus words that
@@ -143,6 +203,13 @@ fn counts_outside_the_list_as_unk() {
             &store,
             &want,
             s["totals"]["mapped_tokens"].as_u64().unwrap(),
+        );
+        // Every order, continuation counts included: Python's count of the
+        // mapped text (collections.Counter, scripts/reference_ngrams.py).
+        assert_lines_eq(
+            &format!("word list, lowercase {lowercase}: Python's count of the mapped text vs dump"),
+            &python_dump(&d, &inputs, &list, lowercase, 3),
+            &dump_sorted(&store, &[]),
         );
         // The store keeps the list (canonical: as counted, sorted, one a line).
         let kept = std::fs::read_to_string(store.join("word-list.txt")).unwrap();
@@ -257,6 +324,13 @@ fn append_and_resume_insist_on_the_same_list() {
     // With it: the same store as counting both at once.
     let s = summary(&store, &list, &["--order", "3", "--quiet", "--append"], &b);
     assert_eq!(dump_map(&store), dump_map(&once));
+    // Every order of the appended store against Python's count of the
+    // mapped text (collections.Counter, scripts/reference_ngrams.py).
+    assert_lines_eq(
+        "word list, appended: Python's count of the mapped text vs dump",
+        &python_dump(&d, &both, &list, false, 3),
+        &dump_sorted(&store, &[]),
+    );
     let want = python_counts(&both, &list, false);
     check_counts(
         &store,
@@ -280,4 +354,11 @@ fn append_and_resume_insist_on_the_same_list() {
     fargs.extend(["--word-list".to_string(), list.display().to_string()]);
     run_ok(&fargs);
     assert_eq!(dump_map(&killed), dump_map(&full));
+    // The resumed store, every order, against Python's count of the
+    // mapped text (collections.Counter, scripts/reference_ngrams.py).
+    assert_lines_eq(
+        "word list, resumed: Python's count of the mapped text vs dump",
+        &python_dump(&d, &both, &list, false, 5),
+        &dump_sorted(&killed, &[]),
+    );
 }

@@ -78,10 +78,7 @@ pub fn check_model(path: &Path, json_out: bool) -> anyhow::Result<()> {
 }
 
 pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
-    if let Some(p) = &a.verify {
-        return check_model(p, a.json);
-    }
-    let store_dir = a.store.clone().expect("clap requires --store");
+    let store_dir = a.store.clone();
     let method = a.method.unwrap_or(Method::Mkn);
     let store = Store::open_with_cache(&store_dir, a.memory.block_cache())?;
     let est = estimator(&store, method, &a.params)?;
