@@ -296,7 +296,7 @@ fn staged_jsonl_equals_plain_ingest_of_the_texts() {
             t.to_string(),
         ]);
     }
-    for st in ["reduce", "join"] {
+    for st in ["merge", "join"] {
         for q in 0..3 {
             stage(vec![
                 st.into(),
