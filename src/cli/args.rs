@@ -29,6 +29,8 @@ pub enum Command {
     Next(NextArgs),
     /// The stored n-grams that begin with given words, a page at a time.
     Ngrams(NgramsArgs),
+    /// A frequency list: the n-grams of one order by descending count.
+    Top(TopArgs),
     /// Perplexity of held-out text, with its predictions, words outside the
     /// vocabulary and log10 probability.
     Score(ScoreArgs),
@@ -644,4 +646,37 @@ pub struct FreezeArgs {
     /// The summary as JSON.
     #[arg(long)]
     pub json: bool,
+}
+
+// Corpus statistics (`top`, `collocations`, `keyness`, `lines`).
+
+/// How a list is written: TSV by default.
+#[derive(Args, Debug, Clone, Copy)]
+pub struct ListFormatArgs {
+    /// One JSON object a line. Default: TSV with a header line.
+    #[arg(long, conflicts_with = "csv")]
+    pub json: bool,
+    /// CSV with a header line. Default: TSV.
+    #[arg(long)]
+    pub csv: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct TopArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// The order of the n-grams listed.
+    #[arg(long, value_name = "K", default_value_t = 1)]
+    pub order: usize,
+    /// Leave out n-grams seen fewer times.
+    #[arg(long, value_name = "C", default_value_t = 1)]
+    pub min_count: u64,
+    /// List at most N n-grams (memory: N entries and the vocabulary).
+    #[arg(long, value_name = "N", default_value_t = 100)]
+    pub limit: usize,
+    /// Also list n-grams that hold <s> or </s>. Default: leave them out.
+    #[arg(long)]
+    pub markers: bool,
+    #[command(flatten)]
+    pub format: ListFormatArgs,
 }

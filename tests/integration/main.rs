@@ -120,3 +120,7 @@ mod serve_page;
 
 // Frozen models reduced: relative-entropy pruning and quantization.
 mod freeze_reduce;
+
+// Corpus statistics against plain Python over the Gutenberg texts:
+// frequency lists and patterns.
+mod corpus_lists;

@@ -5,6 +5,7 @@ pub mod dump;
 pub mod freeze;
 pub mod ingest;
 pub mod keystrokes;
+pub mod list;
 pub mod next;
 pub mod ngrams;
 pub mod prob;
@@ -13,6 +14,7 @@ pub mod serve;
 pub mod stage;
 pub mod stats;
 pub mod status;
+pub mod top;
 pub mod tune;
 
 /// `12345678` → `12,345,678`.
