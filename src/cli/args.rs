@@ -27,7 +27,8 @@ pub enum Command {
     Prob(ProbArgs),
     /// The most probable next words after a context.
     Next(NextArgs),
-    /// The stored n-grams that begin with given words, a page at a time.
+    /// The stored n-grams that begin with given words, a page at a time;
+    /// or those that fit a pattern (--pattern), by count.
     Ngrams(NgramsArgs),
     /// A frequency list: the n-grams of one order by descending count.
     Top(TopArgs),
@@ -350,6 +351,10 @@ pub struct NgramsArgs {
     /// Leave out the TSV header line. Default: print it.
     #[arg(long)]
     pub no_header: bool,
+    /// The n-grams that fit PATTERN, by descending count: words and `*`
+    /// (any one word), e.g. "the * of" (instead of WORDS).
+    #[arg(long, value_name = "PATTERN", conflicts_with_all = ["words", "after", "method", "order"])]
+    pub pattern: Option<String>,
     /// The words the n-grams begin with.
     pub words: Vec<String>,
 }

@@ -29,6 +29,7 @@
 
 pub mod best;
 pub mod freq;
+pub mod pattern;
 pub mod scan;
 
 use std::collections::HashMap;

@@ -1,4 +1,5 @@
-//! Frequency lists (`quern top`) against plain Python over the same text
+//! Frequency lists (`quern top`) and pattern results (`quern ngrams
+//! --pattern`) against plain Python over the same text
 //! (tests/integration/corpus_check.py: collections.Counter over the
 //! sentences as scripts/reference_ngrams.py reads them), on the Gutenberg
 //! texts; and the helpers the other corpus tests share.
@@ -151,4 +152,35 @@ fn min_count_and_formats_of_top() {
         csv,
         "CSV is the TSV with commas here"
     );
+}
+
+#[test]
+fn patterns_equal_python_on_gutenberg() {
+    let tmp = tempfile::tempdir().unwrap();
+    let files = gutenberg_files(2);
+    let store = store_of(tmp.path(), &files, true);
+    // A fixed lead (prefix scan), a leading wildcard (scan of the order),
+    // two wildcards, a sentence opening, a word absent from the text.
+    for pattern in ["the * of", "* of the", "in * *", "<s> she *", "* zyzzyva"] {
+        let mut py = vec![s("pattern"), s("--pattern"), s(pattern), s("--lowercase")];
+        py.extend([s("--limit"), s("250")]);
+        py.extend(path_args(&files));
+        let python = python_json(&py);
+        let q = quern_json(&[
+            s("ngrams"),
+            s("--store"),
+            store.display().to_string(),
+            s("--pattern"),
+            s(pattern),
+            s("--limit"),
+            s("250"),
+            s("--json"),
+        ]);
+        // Source: Python's Counter over the padded sentences, `*` any word
+        // but <s> and </s>.
+        assert_same_list(&format!("pattern {pattern:?}"), &python, &q);
+        if pattern != "* zyzzyva" {
+            assert!(!q.is_empty(), "pattern {pattern:?} found nothing");
+        }
+    }
 }
