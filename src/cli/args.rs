@@ -32,6 +32,8 @@ pub enum Command {
     Ngrams(NgramsArgs),
     /// A frequency list: the n-grams of one order by descending count.
     Top(TopArgs),
+    /// The words that keep company with a node word, by association measure.
+    Collocations(CollocationsArgs),
     /// Perplexity of held-out text, with its predictions, words outside the
     /// vocabulary and log10 probability.
     Score(ScoreArgs),
@@ -680,6 +682,33 @@ pub struct TopArgs {
     #[arg(long, value_name = "N", default_value_t = 100)]
     pub limit: usize,
     /// Also list n-grams that hold <s> or </s>. Default: leave them out.
+    #[arg(long)]
+    pub markers: bool,
+    #[command(flatten)]
+    pub format: ListFormatArgs,
+}
+
+#[derive(Args, Debug)]
+pub struct CollocationsArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// The node: a word, or several words (an n-gram).
+    #[arg(long, value_name = "WORDS")]
+    pub node: String,
+    /// Words to the left and to the right of the node. Default: as many as
+    /// the store's order allows on each side.
+    #[arg(long, value_name = "L,R")]
+    pub window: Option<String>,
+    /// Sort by: observed, pmi, t_score, g2, log_dice, dice (descending).
+    #[arg(long, value_name = "MEASURE", default_value = "log_dice")]
+    pub sort: String,
+    /// Leave out collocates seen fewer times in the window.
+    #[arg(long, value_name = "C", default_value_t = 1)]
+    pub min_count: u64,
+    /// List at most N collocates.
+    #[arg(long, value_name = "N", default_value_t = 50)]
+    pub limit: usize,
+    /// Also list <s> and </s> as collocates. Default: leave them out.
     #[arg(long)]
     pub markers: bool,
     #[command(flatten)]

@@ -37,6 +37,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Next(a) => cmd::next::run(a),
         args::Command::Ngrams(a) => cmd::ngrams::run(a),
         args::Command::Top(a) => cmd::top::run(a),
+        args::Command::Collocations(a) => cmd::collocations::run(a),
         args::Command::Score(a) => cmd::score::run(a),
         args::Command::Tune(a) => cmd::tune::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),

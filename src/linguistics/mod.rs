@@ -28,7 +28,9 @@
 //! ([`freq::FreqItem::documents`]): a store that records them fills it.
 
 pub mod best;
+pub mod collocations;
 pub mod freq;
+pub mod measures;
 pub mod pattern;
 pub mod scan;
 

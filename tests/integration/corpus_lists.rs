@@ -26,6 +26,20 @@ pub fn python_json(args: &[String]) -> Vec<Value> {
     json_lines(&String::from_utf8(out.stdout).unwrap())
 }
 
+/// `python3` with SciPy, which the statistics' G² is checked against.
+/// Panics with the remedy when SciPy is missing: never skipped quietly.
+pub fn require_scipy() {
+    let ok = Command::new(python3())
+        .args(["-c", "import scipy.stats"])
+        .output()
+        .is_ok_and(|o| o.status.success());
+    assert!(
+        ok,
+        "SciPy is not installed for python3: run scripts/setup (G² is checked against \
+         scipy.stats.power_divergence)"
+    );
+}
+
 /// One JSON value a line.
 pub fn json_lines(s: &str) -> Vec<Value> {
     s.lines()

@@ -122,5 +122,9 @@ mod serve_page;
 mod freeze_reduce;
 
 // Corpus statistics against plain Python over the Gutenberg texts:
-// frequency lists and patterns.
+// frequency lists and patterns (and the helpers of the next two).
 mod corpus_lists;
+
+// Collocation measures and keyness against their published formulas in
+// Python and G² against SciPy; the keyness figure.
+mod corpus_measures;

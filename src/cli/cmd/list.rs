@@ -48,6 +48,11 @@ pub fn write_list<T: serde::Serialize>(
     Ok(())
 }
 
+/// A statistic as printed in TSV and CSV: four decimals.
+pub fn fixed(x: f64) -> String {
+    format!("{x:.4}")
+}
+
 /// The rows of a frequency list (with the documents column when the store
 /// has document counts).
 pub fn freq_rows(

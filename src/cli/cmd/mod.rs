@@ -1,5 +1,6 @@
 //! One file per subcommand.
 
+pub mod collocations;
 pub mod docs;
 pub mod dump;
 pub mod freeze;
