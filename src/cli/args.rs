@@ -34,6 +34,8 @@ pub enum Command {
     Top(TopArgs),
     /// The words that keep company with a node word, by association measure.
     Collocations(CollocationsArgs),
+    /// The n-grams key in one store against a reference store.
+    Keyness(KeynessArgs),
     /// Perplexity of held-out text, with its predictions, words outside the
     /// vocabulary and log10 probability.
     Score(ScoreArgs),
@@ -711,6 +713,40 @@ pub struct CollocationsArgs {
     /// Also list <s> and </s> as collocates. Default: leave them out.
     #[arg(long)]
     pub markers: bool,
+    #[command(flatten)]
+    pub format: ListFormatArgs,
+}
+
+#[derive(Args, Debug)]
+pub struct KeynessArgs {
+    /// The study store (and its cache memory).
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// The reference store.
+    #[arg(long, value_name = "DIR")]
+    pub reference: PathBuf,
+    /// The order of the n-grams compared.
+    #[arg(long, value_name = "K", default_value_t = 1)]
+    pub order: usize,
+    /// The larger of the two counts must reach C.
+    #[arg(long, value_name = "C", default_value_t = 5)]
+    pub min_count: u64,
+    /// G² must reach X (3.84: p < 0.05 with one degree of freedom; 6.63:
+    /// p < 0.01; 15.13: p < 0.0001).
+    #[arg(long, value_name = "X", default_value_t = 3.84)]
+    pub min_g2: f64,
+    /// At most N positive and N negative key n-grams.
+    #[arg(long, value_name = "N", default_value_t = 25)]
+    pub limit: usize,
+    /// Sort by: g2, log_ratio (its size), descending.
+    #[arg(long, value_name = "BY", default_value = "g2")]
+    pub sort: String,
+    /// Also compare n-grams that hold <s> or </s>. Default: leave them out.
+    #[arg(long)]
+    pub markers: bool,
+    /// Draw the key n-grams by log ratio into FILE (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub figure: Option<PathBuf>,
     #[command(flatten)]
     pub format: ListFormatArgs,
 }

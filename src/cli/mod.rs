@@ -38,6 +38,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Ngrams(a) => cmd::ngrams::run(a),
         args::Command::Top(a) => cmd::top::run(a),
         args::Command::Collocations(a) => cmd::collocations::run(a),
+        args::Command::Keyness(a) => cmd::keyness::run(a),
         args::Command::Score(a) => cmd::score::run(a),
         args::Command::Tune(a) => cmd::tune::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),

@@ -29,7 +29,10 @@
 
 pub mod best;
 pub mod collocations;
+#[cfg(feature = "plot")]
+pub mod figure;
 pub mod freq;
+pub mod keyness;
 pub mod measures;
 pub mod pattern;
 pub mod scan;

@@ -19,7 +19,7 @@ use std::collections::HashMap;
 
 use serde_json::Value;
 
-use crate::common::gutenberg_files;
+use crate::common::{gutenberg_files, run_ok};
 use crate::corpus_lists::{close, path_args, python_json, quern_json, require_scipy, s, store_of};
 
 fn f(v: &Value, k: &str) -> f64 {
@@ -137,4 +137,128 @@ fn collocations_sort_and_filter() {
     ]);
     bad.assert_failure();
     assert!(bad.stderr.contains("window"), "{}", bad.stderr);
+}
+
+#[test]
+fn keyness_equals_its_formulas_and_scipy() {
+    require_scipy();
+    let tmp = tempfile::tempdir().unwrap();
+    let files = gutenberg_files(3);
+    let study = store_of(&tmp.path().join("s"), &files[..1], true);
+    let reference = store_of(&tmp.path().join("r"), &files[1..], true);
+    for order in [1, 2] {
+        let mut py = vec![
+            s("keyness"),
+            s("--lowercase"),
+            s("--order"),
+            order.to_string(),
+        ];
+        py.push(s("--study"));
+        py.extend(path_args(&files[..1]));
+        py.push(s("--reference"));
+        py.extend(path_args(&files[1..]));
+        let python: HashMap<String, Value> = python_json(&py)
+            .into_iter()
+            .map(|v| (v["ngram"].as_str().unwrap().to_string(), v))
+            .collect();
+        let args = |min_g2: &str, min_count: &str| {
+            vec![
+                s("keyness"),
+                s("--store"),
+                study.display().to_string(),
+                s("--reference"),
+                reference.display().to_string(),
+                s("--order"),
+                order.to_string(),
+                format!("--min-g2={min_g2}"),
+                s("--min-count"),
+                s(min_count),
+                s("--limit"),
+                s("10000000"),
+                s("--json"),
+            ]
+        };
+        // Every n-gram of either store (no threshold).
+        let all = quern_json(&args("-1", "1"));
+        assert_eq!(all.len(), python.len(), "order {order}: n-grams compared");
+        for row in &all {
+            let g = row["ngram"].as_str().unwrap();
+            let p = &python[g];
+            assert_eq!(row["study_count"], p["study_count"], "{g}");
+            assert_eq!(row["reference_count"], p["reference_count"], "{g}");
+            // Rayson & Garside 2000 (g2), Hardie 2014 (log_ratio),
+            // Gabrielatos & Marchi 2012 (percent_diff): formulas in
+            // corpus_check.py.
+            for k in ["g2", "log_ratio"] {
+                assert!(close(f(row, k), f(p, k)), "{g} {k}: {row} vs {p}");
+            }
+            match (row["percent_diff"].as_f64(), p["percent_diff"].as_f64()) {
+                (None, None) => {}
+                (Some(a), Some(b)) => assert!(close(a, b), "{g} %DIFF {a} vs {b}"),
+                other => panic!("{g} %DIFF {other:?}"),
+            }
+            assert_scipy(g, f(row, "g2"), f(p, "g2_scipy"));
+            let positive = row["key"] == "positive";
+            assert_eq!(positive, f(row, "log_ratio") > 0.0, "{g}: side");
+        }
+        // The default threshold (3.84) and a minimum count of 5: the same
+        // set as Python's, positives by G² descending first.
+        let key = quern_json(&args("3.84", "5"));
+        let mut want: Vec<&String> = python
+            .iter()
+            .filter(|(_, p)| {
+                let m = p["study_count"].as_u64().max(p["reference_count"].as_u64());
+                f(p, "g2") >= 3.84 && m.unwrap() >= 5
+            })
+            .map(|(g, _)| g)
+            .collect();
+        let mut got: Vec<&str> = key.iter().map(|v| v["ngram"].as_str().unwrap()).collect();
+        want.sort();
+        got.sort();
+        assert_eq!(got, want, "order {order}: key n-grams at G² ≥ 3.84");
+        let pos: Vec<&Value> = key.iter().filter(|v| v["key"] == "positive").collect();
+        assert!(pos.windows(2).all(|w| f(w[0], "g2") >= f(w[1], "g2")));
+    }
+}
+
+#[test]
+fn keyness_figure_is_written_where_asked() {
+    let tmp = tempfile::tempdir().unwrap();
+    let files = gutenberg_files(2);
+    let study = store_of(&tmp.path().join("s"), &files[..1], true);
+    let reference = store_of(&tmp.path().join("r"), &files[1..], true);
+    for ext in ["svg", "png"] {
+        let fig = tmp.path().join(format!("key.{ext}"));
+        let out = run_ok(&[
+            "keyness",
+            "--store",
+            &study.display().to_string(),
+            "--reference",
+            &reference.display().to_string(),
+            "--limit",
+            "10",
+            "--figure",
+            &fig.display().to_string(),
+        ]);
+        let bytes = std::fs::read(&fig).unwrap();
+        if ext == "svg" {
+            let text = String::from_utf8(bytes).unwrap();
+            assert!(text.starts_with("<svg"), "SVG output");
+            // One bar per key n-gram listed (10 a side).
+            let listed = out.stdout.lines().count() - 1;
+            assert_eq!(listed, 20, "{}", out.stdout);
+            let first = out
+                .stdout
+                .lines()
+                .nth(1)
+                .unwrap()
+                .split('\t')
+                .nth(1)
+                .unwrap();
+            assert!(text.contains(first), "the figure names {first:?}");
+        } else {
+            // PNG signature (ISO/IEC 15948, section 5.2).
+            assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
+        }
+    }
 }

@@ -5,6 +5,7 @@ pub mod docs;
 pub mod dump;
 pub mod freeze;
 pub mod ingest;
+pub mod keyness;
 pub mod keystrokes;
 pub mod list;
 pub mod next;
