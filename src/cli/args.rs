@@ -36,6 +36,9 @@ pub enum Command {
     Collocations(CollocationsArgs),
     /// The n-grams key in one store against a reference store.
     Keyness(KeynessArgs),
+    /// Concordance lines: each occurrence of a pattern in the corpus files,
+    /// with its context.
+    Lines(LinesArgs),
     /// Perplexity of held-out text, with its predictions, words outside the
     /// vocabulary and log10 probability.
     Score(ScoreArgs),
@@ -749,4 +752,44 @@ pub struct KeynessArgs {
     pub figure: Option<PathBuf>,
     #[command(flatten)]
     pub format: ListFormatArgs,
+}
+
+#[derive(Args, Debug)]
+pub struct LinesArgs {
+    #[command(flatten)]
+    pub store: QueryStoreArgs,
+    /// Words and `*` (any one word), e.g. "the * of".
+    #[arg(long, value_name = "PATTERN")]
+    pub pattern: String,
+    /// Words of context on each side.
+    #[arg(long, value_name = "K", default_value_t = 5)]
+    pub context: usize,
+    /// Print the first N occurrences only.
+    #[arg(long, value_name = "N", conflicts_with = "sample")]
+    pub limit: Option<usize>,
+    /// Print a random sample of N occurrences (uniform; the same for the
+    /// same --seed and input).
+    #[arg(long, value_name = "N")]
+    pub sample: Option<usize>,
+    /// Seed of --sample.
+    #[arg(long, value_name = "S", default_value_t = 1)]
+    pub seed: u64,
+    /// Sort by the words to the right of the match, or to the left (nearest
+    /// first). Default: in file order.
+    #[arg(long, value_name = "SIDE", value_parser = ["left", "right"])]
+    pub sort: Option<String>,
+    /// Width of each context column of the aligned output, in characters.
+    #[arg(long, value_name = "W", default_value_t = 40)]
+    pub width: usize,
+    /// TSV (file, line, left, match, right) with a header line. Default:
+    /// aligned columns.
+    #[arg(long, conflicts_with = "json")]
+    pub tsv: bool,
+    /// One JSON object a line: file, line, left, match, right.
+    #[arg(long)]
+    pub json: bool,
+    /// Corpus files or folders (plain, .gz, .zst; `-`: standard input):
+    /// those the store was counted from.
+    #[arg(required = true)]
+    pub inputs: Vec<PathBuf>,
 }

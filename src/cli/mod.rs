@@ -39,6 +39,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Top(a) => cmd::top::run(a),
         args::Command::Collocations(a) => cmd::collocations::run(a),
         args::Command::Keyness(a) => cmd::keyness::run(a),
+        args::Command::Lines(a) => cmd::lines::run(a),
         args::Command::Score(a) => cmd::score::run(a),
         args::Command::Tune(a) => cmd::tune::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),

@@ -29,6 +29,7 @@
 
 pub mod best;
 pub mod collocations;
+pub mod concordance;
 #[cfg(feature = "plot")]
 pub mod figure;
 pub mod freq;

@@ -128,3 +128,6 @@ mod corpus_lists;
 // Collocation measures and keyness against their published formulas in
 // Python and G² against SciPy; the keyness figure.
 mod corpus_measures;
+
+// Concordance lines against Python; occurrences equal the store's counts.
+mod corpus_lines;

@@ -7,6 +7,7 @@ pub mod freeze;
 pub mod ingest;
 pub mod keyness;
 pub mod keystrokes;
+pub mod lines;
 pub mod list;
 pub mod next;
 pub mod ngrams;
