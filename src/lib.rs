@@ -32,6 +32,10 @@
 //!   threads, one result each in input order, with the distribution of
 //!   their perplexities and a split into kept and dropped ones (filtering
 //!   a crawl).
+//! * [`linguistics`] answers a corpus linguist from a store: frequency
+//!   lists, n-grams that fit a pattern, collocations by association
+//!   measure, keyness against a reference store; and streams concordance
+//!   lines from the corpus files.
 //! * [`wordlist`] reads a fixed vocabulary (`--word-list`) and the copy a
 //!   store or a staged plan keeps of it.
 //! * [`growth`] records where each word is first seen while counting, and
@@ -78,6 +82,8 @@ pub mod hint;
 pub mod ingest;
 pub mod key;
 pub mod layout;
+#[cfg(feature = "store")]
+pub mod linguistics;
 pub mod memory;
 #[cfg(feature = "store")]
 pub mod merge;

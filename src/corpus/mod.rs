@@ -155,7 +155,7 @@ fn describe(p: &Path, meta: &std::fs::Metadata) -> Result<InputFile> {
 /// for users: it is documented in DEVELOPERS.md only.
 pub const CHUNK_BYTES_VAR: &str = "QUERN_CHUNK_BYTES";
 
-fn chunk_bytes_setting(requested: u64) -> Result<u64> {
+pub(crate) fn chunk_bytes_setting(requested: u64) -> Result<u64> {
     match std::env::var_os(CHUNK_BYTES_VAR) {
         None => Ok(requested),
         Some(v) => match v.to_str().and_then(|s| s.parse::<u64>().ok()) {

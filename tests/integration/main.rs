@@ -141,3 +141,14 @@ mod serve_stop;
 
 // Frozen models reduced: relative-entropy pruning and quantization.
 mod freeze_reduce;
+
+// Corpus statistics against plain Python over the Gutenberg texts:
+// frequency lists and patterns (and the helpers of the next two).
+mod corpus_lists;
+
+// Collocation measures and keyness against their published formulas in
+// Python and G² against SciPy; the keyness figure.
+mod corpus_measures;
+
+// Concordance lines against Python; occurrences equal the store's counts.
+mod corpus_lines;

@@ -1,10 +1,14 @@
 //! One file per subcommand.
 
+pub mod collocations;
 pub mod docs;
 pub mod dump;
 pub mod freeze;
 pub mod ingest;
+pub mod keyness;
 pub mod keystrokes;
+pub mod lines;
+pub mod list;
 pub mod next;
 pub mod ngrams;
 pub mod prob;
@@ -13,6 +17,7 @@ pub mod serve;
 pub mod stage;
 pub mod stats;
 pub mod status;
+pub mod top;
 pub mod tune;
 
 /// `12345678` → `12,345,678`.

@@ -31,6 +31,27 @@ struct PageJson {
     next: Option<String>,
 }
 
+/// `--pattern`: the n-grams that fit, by descending count (see
+/// `quern::linguistics::pattern` for the cost of each kind of pattern).
+fn run_pattern(store: &quern::store::Store, p: &str, a: &NgramsArgs) -> anyhow::Result<()> {
+    use quern::linguistics::{freq::FreqOptions, pattern, Markers, Vocabulary};
+    let pat = pattern::Pattern::parse(p, &store.meta().settings.preparation)?;
+    let opts = FreqOptions {
+        order: pat.len(),
+        min_count: 1,
+        limit: a.limit,
+        markers: Markers::With,
+    };
+    let items = pattern::best_matches(store, &Vocabulary::of(store)?, &pat, &opts)?;
+    let (header, rows) = super::list::freq_rows(items);
+    let header: &[&str] = if a.no_header { &[] } else { &header };
+    let format = crate::cli::args::ListFormatArgs {
+        json: a.json,
+        csv: false,
+    };
+    super::list::write_list(&mut std::io::stdout().lock(), format, header, rows)
+}
+
 fn parse_after(s: &str) -> anyhow::Result<Vec<WordId>> {
     match parse_cursor(s) {
         Some(ids) => Ok(ids),
@@ -40,6 +61,9 @@ fn parse_after(s: &str) -> anyhow::Result<Vec<WordId>> {
 
 pub fn run(a: NgramsArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
+    if let Some(p) = &a.pattern {
+        return run_pattern(&store, p, &a);
+    }
     let prefix = query_ids(&a.words.join(" "), &store.meta().settings.preparation);
     let order = a.order.unwrap_or(prefix.len() + 1);
     let after = a.after.as_deref().map(parse_after).transpose()?;
