@@ -23,6 +23,8 @@
 //! * [`store`] writes and reads the RocksDB store.
 //! * [`discount`] defines the Kneser-Ney discounts from count-of-counts,
 //!   once, for the estimators and the statistics report.
+//! * [`arpa`] reads ARPA back-off text (a model made elsewhere), checking
+//!   every line; [`model`] turns it into a model file.
 //! * [`model`] freezes a method into a memory-mapped back-off model file
 //!   (and ARPA text) and answers queries from it.
 //! * [`query`] turns the store's statistics into smoothed probabilities
@@ -60,6 +62,7 @@
 #![deny(missing_docs)]
 #![deny(unsafe_code)]
 
+pub mod arpa;
 pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;

@@ -591,8 +591,16 @@ pub struct DocArgs {
 #[derive(Args, Debug)]
 pub struct FreezeArgs {
     /// Store directory.
-    #[arg(long, required_unless_present = "verify")]
+    #[arg(long, required_unless_present_any = ["verify", "from_arpa"])]
     pub store: Option<PathBuf>,
+    /// Read a back-off model from ARPA text (FILE or FILE.gz, checked line
+    /// by line) instead of a store, and write it as a model file.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "verify", "method", "min_counts"])]
+    pub from_arpa: Option<PathBuf>,
+    /// With --from-arpa: lowercase query words, as for a store built with
+    /// --lowercase.
+    #[arg(long, requires = "from_arpa")]
+    pub lowercase: bool,
     /// Memory budget: three quarters go to the store's block cache.
     #[arg(long, default_value = "256MiB")]
     pub memory: String,

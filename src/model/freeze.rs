@@ -461,7 +461,7 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
 
 /// Prunes by relative entropy and/or quantizes the model just written at
 /// `full` into `out`.
-fn reduce_model(
+pub(crate) fn reduce_model(
     full: &Path,
     out: &Path,
     opts: &FreezeOptions,

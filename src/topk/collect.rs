@@ -58,9 +58,8 @@ impl<W: Copy> TopK<W> {
         if self.k == 0 {
             return Ok(());
         }
-        let mut taken = 0usize;
         let mut last = f64::INFINITY;
-        for c in group {
+        for (taken, c) in group.into_iter().enumerate() {
             let (p, w) = c?;
             self.scored += 1;
             if taken >= self.k && p.total_cmp(&last) == Ordering::Less {
@@ -71,7 +70,6 @@ impl<W: Copy> TopK<W> {
                 "a ranked group rose"
             );
             self.found.push((p, w));
-            taken += 1;
             last = p;
         }
         Ok(())
@@ -211,7 +209,7 @@ mod tests {
     fn a_tied_group_in_bytes_order_gives_its_first_k() {
         let group: Vec<R> = ["ant", "bee", "cat", "dog"].map(|w| Ok((0.25, w))).to_vec();
         let mut top = TopK::new(2);
-        top.take_all(vec![Ok((0.25, "cow")), Ok((0.5, "zebra"))])
+        top.take_all(Vec::<R>::from([Ok((0.25, "cow")), Ok((0.5, "zebra"))]))
             .unwrap();
         top.take_tied(group).unwrap();
         assert_eq!(top.scored(), 4);

@@ -109,6 +109,10 @@ mod spark;
 // count pruning stays normalised; add-k/mle refused; damaged files refused.
 mod freeze;
 
+// `freeze --from-arpa`: store → ARPA → model answers like the model frozen
+// directly (orders 3 and 5); malformed ARPA files refused at their line.
+mod arpa_read;
+
 // `quern serve`: every endpoint equals the CLI's answer on the Gutenberg
 // fixtures (store and frozen model), bad requests get 4xx JSON errors,
 // SIGTERM stops it; a bounded load test on loopback; the page in headless
