@@ -34,6 +34,8 @@
 //!   threads, one result each in input order, with the distribution of
 //!   their perplexities and a split into kept and dropped ones (filtering
 //!   a crawl).
+//! * [`vocab`] ranks a store's words for a vocabulary: coverage of the
+//!   training tokens and held-out rate outside, per size.
 //! * [`wordlist`] reads a fixed vocabulary (`--word-list`) and the copy a
 //!   store or a staged plan keeps of it.
 //! * [`growth`] records where each word is first seen while counting, and
@@ -105,6 +107,8 @@ pub mod store;
 pub mod tokenize;
 pub mod topk;
 pub mod varint;
+#[cfg(feature = "store")]
+pub mod vocab;
 pub mod wordlist;
 pub mod words;
 

@@ -14,6 +14,7 @@ pub mod stage;
 pub mod stats;
 pub mod status;
 pub mod tune;
+pub mod vocab;
 
 /// `12345678` → `12,345,678`.
 pub fn thousands(n: u64) -> String {
