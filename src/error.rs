@@ -70,6 +70,19 @@ pub enum Error {
         /// Why it cannot be used.
         detail: String,
     },
+    /// A line of a text input (ARPA, a count table) is not what the format
+    /// allows at that place.
+    #[error("{path}:{line}: expected {expected}, found {found}")]
+    BadLine {
+        /// The input file.
+        path: PathBuf,
+        /// The line number (1-based).
+        line: u64,
+        /// What the format allows there.
+        expected: String,
+        /// What the line holds.
+        found: String,
+    },
     /// The store's state does not allow the requested operation.
     #[error("{path}: {detail}")]
     State {

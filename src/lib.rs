@@ -23,6 +23,8 @@
 //! * [`store`] writes and reads the RocksDB store.
 //! * [`discount`] defines the Kneser-Ney discounts from count-of-counts,
 //!   once, for the estimators and the statistics report.
+//! * [`arpa`] reads ARPA back-off text (a model made elsewhere), checking
+//!   every line; [`model`] turns it into a model file.
 //! * [`model`] freezes a method into a memory-mapped back-off model file
 //!   (and ARPA text) and answers queries from it.
 //! * [`query`] turns the store's statistics into smoothed probabilities
@@ -36,6 +38,8 @@
 //!   lists, n-grams that fit a pattern, collocations by association
 //!   measure, keyness against a reference store; and streams concordance
 //!   lines from the corpus files.
+//! * [`vocab`] ranks a store's words for a vocabulary: coverage of the
+//!   training tokens and held-out rate outside, per size.
 //! * [`wordlist`] reads a fixed vocabulary (`--word-list`) and the copy a
 //!   store or a staged plan keeps of it.
 //! * [`growth`] records where each word is first seen while counting, and
@@ -64,6 +68,7 @@
 #![deny(missing_docs)]
 #![deny(unsafe_code)]
 
+pub mod arpa;
 pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;
@@ -108,6 +113,8 @@ pub mod store;
 pub mod tokenize;
 pub mod topk;
 pub mod varint;
+#[cfg(feature = "store")]
+pub mod vocab;
 pub mod wordlist;
 pub mod words;
 

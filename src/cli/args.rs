@@ -60,6 +60,9 @@ pub enum Command {
     /// Check every checksum and invariant of a model file written by
     /// `quern freeze`, and nothing else.
     CheckModel(CheckModelArgs),
+    /// A vocabulary by size: coverage of the training tokens and held-out
+    /// words outside it, or the top N words as a word list.
+    Vocab(VocabArgs),
     /// Run one stage of an ingest as a task over a shared directory (for a
     /// cluster; see scripts/spark_ingest.py).
     #[command(subcommand)]
@@ -67,6 +70,45 @@ pub enum Command {
     /// Answer queries over HTTP with JSON (and serve a page to explore the
     /// model) until SIGTERM or Ctrl-C.
     Serve(ServeArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct VocabArgs {
+    /// Store directory.
+    #[arg(long)]
+    pub store: PathBuf,
+    /// Held-out text: the rate of its tokens outside each vocabulary.
+    #[arg(long, value_name = "FILE")]
+    pub heldout: Vec<PathBuf>,
+    /// Vocabulary sizes (comma-separated; k = thousand, m = million), each
+    /// the most frequent words, ties broken by their bytes.
+    #[arg(long, value_delimiter = ',', value_parser = parse_count)]
+    pub sizes: Vec<u64>,
+    /// Write the N most frequent words, one a line (what `ingest
+    /// --word-list` reads), to --out.
+    #[arg(long, value_name = "N", value_parser = parse_count, requires = "out")]
+    pub top: Option<u64>,
+    /// The file --top writes.
+    #[arg(long, requires = "top")]
+    pub out: Option<PathBuf>,
+    /// JSON instead of TSV.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// `50k` → 50,000; `2m` → 2,000,000; `700` → 700.
+fn parse_count(s: &str) -> Result<u64, String> {
+    let t = s.trim();
+    let (num, mul) = match t.char_indices().last() {
+        Some((i, 'k' | 'K')) => (&t[..i], 1_000),
+        Some((i, 'm' | 'M')) => (&t[..i], 1_000_000),
+        _ => (t, 1),
+    };
+    num.parse::<u64>()
+        .ok()
+        .and_then(|n| n.checked_mul(mul))
+        .filter(|&n| n > 0)
+        .ok_or_else(|| format!("{s:?}: a count above 0, such as 700, 50k or 2m"))
 }
 
 #[derive(Args, Debug)]
@@ -578,8 +620,16 @@ pub struct DocArgs {
 #[derive(Args, Debug)]
 pub struct FreezeArgs {
     /// Store directory.
-    #[arg(long)]
-    pub store: PathBuf,
+    #[arg(long, required_unless_present = "from_arpa")]
+    pub store: Option<PathBuf>,
+    /// Read a back-off model from ARPA text (FILE or FILE.gz, checked line
+    /// by line) instead of a store, and write it as a model file.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "method", "min_counts"])]
+    pub from_arpa: Option<PathBuf>,
+    /// With --from-arpa: lowercase query words, as for a store built with
+    /// --lowercase.
+    #[arg(long, requires = "from_arpa")]
+    pub lowercase: bool,
     #[command(flatten)]
     pub memory: CacheMemoryArgs,
     /// The method to freeze: mkn, kn, absolute, witten-bell, katz, interp

@@ -60,6 +60,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),
         args::Command::Freeze(a) => cmd::freeze::run(a),
         args::Command::CheckModel(a) => cmd::freeze::check_model(&a.model, a.json),
+        args::Command::Vocab(a) => cmd::vocab::run(a),
         args::Command::Stage(c) => cmd::stage::run(c),
         args::Command::Serve(a) => cmd::serve::run(a),
     }

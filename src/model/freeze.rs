@@ -429,7 +429,7 @@ impl VocabularySections {
 
 /// Prunes by relative entropy and/or quantizes the model just written at
 /// `full` into `out`.
-fn reduce_model(
+pub(crate) fn reduce_model(
     full: &Path,
     out: &Path,
     opts: &FreezeOptions,

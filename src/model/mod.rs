@@ -4,7 +4,8 @@
 //! [`freeze()`] streams a store through an [`Estimator`](crate::query::Estimator)
 //! into a model file; [`Model::open`] maps it; [`Model`] answers the same
 //! questions as the estimator (`prob`, `prob_batch`, `next`,
-//! `distribution`), [`arpa`] writes it as ARPA text.
+//! `distribution`), [`arpa`] writes it as ARPA text, and [`import`] writes
+//! ARPA text read by [`crate::arpa`] as a model file.
 //!
 //! # The back-off form
 //!
@@ -115,6 +116,7 @@ pub mod complete;
 mod file;
 pub mod format;
 pub mod freeze;
+pub mod import;
 mod orders;
 pub mod packed;
 mod pass;
@@ -132,4 +134,5 @@ pub use bytes::Residence;
 pub use file::Model;
 pub use format::ModelMeta;
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
+pub use import::freeze_arpa;
 pub use query::State;

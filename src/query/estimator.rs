@@ -94,6 +94,11 @@ impl<'s> Estimator<'s> {
                 Model::AddK(params.k)
             }
             Method::Mle => Model::Mle,
+            Method::Arpa => {
+                return Err(Error::Config(
+                    "arpa names a model read from ARPA text; a store has no such method".into(),
+                ))
+            }
             Method::Stupid => {
                 if !(params.alpha > 0.0 && params.alpha.is_finite()) {
                     return Err(Error::Config(format!(

@@ -33,6 +33,10 @@ pub enum Method {
     Mle,
     /// Stupid back-off (Brants et al. 2007): scores, not probabilities.
     Stupid,
+    /// A back-off model read from ARPA text (`quern freeze --from-arpa`):
+    /// whatever method made it elsewhere, it exists only as a frozen
+    /// model, never over a store.
+    Arpa,
 }
 
 impl Method {
@@ -61,6 +65,7 @@ impl Method {
             Method::AddK => "add-k",
             Method::Mle => "mle",
             Method::Stupid => "stupid",
+            Method::Arpa => "arpa",
         }
     }
 

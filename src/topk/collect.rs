@@ -58,9 +58,8 @@ impl<W: Copy> TopK<W> {
         if self.k == 0 {
             return Ok(());
         }
-        let mut taken = 0usize;
         let mut last = f64::INFINITY;
-        for c in group {
+        for (taken, c) in group.into_iter().enumerate() {
             let (p, w) = c?;
             self.scored += 1;
             if taken >= self.k && p.total_cmp(&last) == Ordering::Less {
@@ -71,7 +70,6 @@ impl<W: Copy> TopK<W> {
                 "a ranked group rose"
             );
             self.found.push((p, w));
-            taken += 1;
             last = p;
         }
         Ok(())

@@ -269,6 +269,7 @@ impl<'t> Independent<'t> {
             Method::AddK => Model::AddK(params.k),
             Method::Mle => Model::Mle,
             Method::Stupid => Model::Stupid(params.alpha),
+            Method::Arpa => unreachable!("a model read from ARPA text has no store method"),
         };
         Independent {
             t,

@@ -129,6 +129,14 @@ mod freeze;
 mod freeze_arpa;
 mod freeze_files;
 
+// `freeze --from-arpa`: store → ARPA → model answers like the model frozen
+// directly (orders 3 and 5); malformed ARPA files refused at their line.
+mod arpa_read;
+
+// `vocab`: coverage and held-out words outside each size against a Python
+// count of the same text; the --top list read by `ingest --word-list`.
+mod vocab;
+
 // `quern serve`: every endpoint equals the CLI's answer on the Gutenberg
 // fixtures (store and frozen model), bad requests get 4xx JSON errors,
 // SIGTERM stops it; a bounded load test on loopback; the page in headless

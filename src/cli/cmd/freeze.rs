@@ -77,8 +77,133 @@ pub fn check_model(path: &Path, json_out: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// `--from-arpa`: ARPA text read, checked and written as a model file
+/// (and ARPA again, reduced, with `--arpa`).
+fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
+    let opts = FreezeOptions {
+        min_counts: Vec::new(),
+        relative_entropy: a.relative_entropy,
+        max_ngrams: a.max_ngrams,
+        bits: a.bits,
+        weight_bits: a.weight_bits,
+        threads: 1,
+    };
+    let (out, temporary) = match (&a.out, &a.arpa) {
+        (Some(o), _) => (o.clone(), false),
+        (None, Some(arpa)) => {
+            let mut p = arpa.as_os_str().to_owned();
+            p.push(".model.tmp");
+            (PathBuf::from(p), true)
+        }
+        (None, None) => unreachable!("clap requires --out or --arpa"),
+    };
+    let t = std::time::Instant::now();
+    let text = quern::arpa::read_arpa_file(src)?;
+    let read_secs = t.elapsed().as_secs_f64();
+    let report = quern::model::freeze_arpa(&text, src, &out, &opts, a.lowercase)
+        .with_context(|| format!("writing {}", out.display()))?;
+    drop(text);
+    for n in &report.notes[1..] {
+        eprintln!("quern: note: {n}");
+    }
+    let model = Model::open(&out)?;
+    let arpa_bytes = match &a.arpa {
+        Some(p) => Some(arpa::write_arpa_file(&model, p)?),
+        None => None,
+    };
+    let heldout = if a.heldout.is_empty() {
+        None
+    } else {
+        let s = read_sentences(&a.heldout, model.meta().preparation)?;
+        let pp = perplexity(&s, model.order(), |q| model.prob_batch(q))?;
+        Some((pp, s.len()))
+    };
+    let secs = t.elapsed().as_secs_f64();
+    drop(model);
+    if temporary {
+        std::fs::remove_file(&out).with_context(|| format!("removing {}", out.display()))?;
+    }
+    let kept: u64 = report.ngrams.iter().sum();
+    let mut o = std::io::stdout().lock();
+    if a.json {
+        let v = json!({
+            "arpa_in": src.display().to_string(),
+            "method": "arpa",
+            "order": report.ngrams.len(),
+            "model": a.out.as_ref().map(|p| p.display().to_string()),
+            "model_bytes": (!temporary).then_some(report.file_bytes),
+            "value_bits": report.value_bits,
+            "weight_bits": report.weight_bits,
+            "relative_entropy": report.threshold,
+            "ngrams_before_pruning": report.ngrams_unpruned,
+            "ngrams_kept": report.ngrams,
+            "arpa": a.arpa.as_ref().map(|p| p.display().to_string()),
+            "arpa_bytes": arpa_bytes,
+            "notes": report.notes,
+            "heldout": heldout.map(|(p, s)| json!({
+                "sentences": s,
+                "perplexity_model": p.map_or(serde_json::Value::Null, jnum),
+            })),
+            "seconds_read": read_secs,
+            "seconds": secs,
+        });
+        return super::print_json(&mut o, &v);
+    }
+    writeln!(
+        o,
+        "read {} (ARPA, order {}, {} n-grams, every line checked) into {}",
+        src.display(),
+        report.ngrams.len(),
+        thousands(report.ngrams_unpruned.iter().sum()),
+        match (&a.out, &a.arpa) {
+            (Some(m), Some(r)) => format!("{} and {}", m.display(), r.display()),
+            (Some(m), None) => m.display().to_string(),
+            (None, Some(r)) => r.display().to_string(),
+            (None, None) => unreachable!(),
+        }
+    )?;
+    writeln!(o, "  order   n-grams in the file     kept")?;
+    for (k, (s, kk)) in report
+        .ngrams_unpruned
+        .iter()
+        .zip(&report.ngrams)
+        .enumerate()
+    {
+        writeln!(
+            o,
+            "  {:>5} {:>21} {:>8}",
+            k + 1,
+            thousands(*s),
+            thousands(*kk)
+        )?;
+    }
+    if let Some(t) = report.threshold {
+        writeln!(o, "  relative-entropy pruning at {t:.3e} nats")?;
+    }
+    if !temporary {
+        writeln!(
+            o,
+            "  model {} ({:.2} bytes per n-gram)",
+            bytes(report.file_bytes),
+            report.file_bytes as f64 / kept.max(1) as f64
+        )?;
+    }
+    if let Some(b) = arpa_bytes {
+        writeln!(o, "  ARPA {}", bytes(b))?;
+    }
+    if let Some((p, s)) = heldout {
+        let f = p.map_or("infinite".to_string(), |v| format!("{v:.4}"));
+        writeln!(o, "  held-out perplexity ({s} sentences): {f}")?;
+    }
+    writeln!(o, "  time {secs:.2} s (reading {read_secs:.2} s)")?;
+    Ok(())
+}
+
 pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
-    let store_dir = a.store.clone();
+    if let Some(p) = a.from_arpa.clone() {
+        return from_arpa(&a, &p);
+    }
+    let store_dir = a.store.clone().expect("clap requires --store");
     let method = a.method.unwrap_or(Method::Mkn);
     let store = Store::open_with_cache(&store_dir, a.memory.block_cache())?;
     let est = estimator(&store, method, &a.params)?;

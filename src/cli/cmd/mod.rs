@@ -19,6 +19,7 @@ pub mod stats;
 pub mod status;
 pub mod top;
 pub mod tune;
+pub mod vocab;
 
 /// `12345678` → `12,345,678`.
 pub fn thousands(n: u64) -> String {
