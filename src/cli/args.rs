@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use clap::{Args, Parser, Subcommand};
 use quern::query::{DiscountPolicy, Method};
 
+pub use super::corpus_args::{CollocationsArgs, KeynessArgs, LinesArgs, ListFormatArgs, TopArgs};
 pub use super::stage_args::StageCommand;
 use super::values::{self, method_list, size_syntax, ByteSize};
 use quern::tokenize::{Digits, Normalize, Preparation, Sentences, Tokens};
@@ -421,44 +422,16 @@ pub struct IngestArgs {
     /// Worker threads. Default: all cores.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
-    /// Lowercase every token (Unicode lowercasing). Default: off.
-    #[arg(long)]
-    pub lowercase: bool,
-    /// Unicode normalization of the text, first of the preparation steps:
-    /// none, nfc or nfkc (UAX #15).
-    #[arg(long, value_name = "FORM", default_value = "none", value_parser = setting::<Normalize>)]
-    pub normalize: Normalize,
-    /// Where sentences end: lines (a line is a sentence), split (UAX #29
-    /// sentence boundaries) or document (a document, or an input line, is
-    /// one sentence).
-    #[arg(long, value_name = "HOW", default_value = "lines", value_parser = setting::<Sentences>)]
-    pub sentences: Sentences,
-    /// What a token is: whitespace (runs of characters that are not
-    /// White_Space) or words (UAX #29 word-boundary segments that are not
-    /// all White_Space: punctuation apart, "can't" and "3.14" whole).
-    #[arg(long, value_name = "HOW", default_value = "whitespace", value_parser = setting::<Tokens>)]
-    pub tokens: Tokens,
-    /// Decimal digits (Unicode Nd): keep, or zero (each becomes 0).
-    #[arg(long, value_name = "HOW", default_value = "keep", value_parser = setting::<Digits>)]
-    pub digits: Digits,
+    #[command(flatten)]
+    pub prep: PreparationArgs,
     /// A fixed vocabulary: FILE holds one word a line, and every other
     /// token is counted as `<unk>` (lowercased first with --lowercase). The
     /// store keeps the list; --append and a resume must give the same one.
     /// Default: every token counts.
     #[arg(long, value_name = "FILE")]
     pub word_list: Option<PathBuf>,
-    /// Skip (and report) lines longer than this many bytes.
-    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
-    pub max_line_bytes: usize,
-    /// The inputs are JSON lines, one document a line: the text field of
-    /// each (a string) is counted, its lines as sentences. A line that holds
-    /// no document is named, counted and skipped. Default: plain text, a
-    /// line a sentence.
-    #[arg(long)]
-    pub jsonl: bool,
-    /// --jsonl: the field holding the text.
-    #[arg(long, default_value = "text", value_name = "NAME", requires = "jsonl")]
-    pub text_field: String,
+    #[command(flatten)]
+    pub input: InputArgs,
     /// Number of partitions the merge is cut into. Default: 16 per thread,
     /// at least 16 and at most 256.
     #[arg(long, value_name = "N")]
@@ -688,14 +661,33 @@ pub struct CheckModelArgs {
     pub json: bool,
 }
 
-/// A preparation setting from its name on the command line (the name it
-/// has in the store's records).
-pub(super) fn setting<T: serde::de::DeserializeOwned>(s: &str) -> Result<T, String> {
-    serde_json::from_value(serde_json::Value::String(s.to_string()))
-        .map_err(|_| format!("{s:?} is not one of the values listed in --help"))
+/// The text preparation of an ingest (or a staged plan), chosen once and
+/// recorded in the store.
+#[derive(Args, Debug, Clone, Copy)]
+pub struct PreparationArgs {
+    /// Lowercase every token (Unicode lowercasing). Default: off.
+    #[arg(long)]
+    pub lowercase: bool,
+    /// Unicode normalization of the text, first of the preparation steps:
+    /// none, nfc or nfkc (UAX #15).
+    #[arg(long, value_name = "FORM", default_value = "none", value_parser = setting::<Normalize>)]
+    pub normalize: Normalize,
+    /// Where sentences end: lines (a line is a sentence), split (UAX #29
+    /// sentence boundaries) or document (a document, or an input line, is
+    /// one sentence).
+    #[arg(long, value_name = "HOW", default_value = "lines", value_parser = setting::<Sentences>)]
+    pub sentences: Sentences,
+    /// What a token is: whitespace (runs of characters that are not
+    /// White_Space) or words (UAX #29 word-boundary segments that are not
+    /// all White_Space: punctuation apart, "can't" and "3.14" whole).
+    #[arg(long, value_name = "HOW", default_value = "whitespace", value_parser = setting::<Tokens>)]
+    pub tokens: Tokens,
+    /// Decimal digits (Unicode Nd): keep, or zero (each becomes 0).
+    #[arg(long, value_name = "HOW", default_value = "keep", value_parser = setting::<Digits>)]
+    pub digits: Digits,
 }
 
-impl IngestArgs {
+impl PreparationArgs {
     /// The preparation the flags ask for.
     pub fn preparation(&self) -> Preparation {
         Preparation {
@@ -708,136 +700,37 @@ impl IngestArgs {
     }
 }
 
-// Corpus statistics (`top`, `collocations`, `keyness`, `lines`).
-
-/// How a list is written: TSV by default.
-#[derive(Args, Debug, Clone, Copy)]
-pub struct ListFormatArgs {
-    /// One JSON object a line. Default: TSV with a header line.
-    #[arg(long, conflicts_with = "csv")]
-    pub json: bool,
-    /// CSV with a header line. Default: TSV.
+/// How the inputs of an ingest (or a staged plan) are read.
+#[derive(Args, Debug, Clone)]
+pub struct InputArgs {
+    /// Skip (and report) lines longer than this many bytes.
+    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
+    pub max_line_bytes: usize,
+    /// The inputs are JSON lines, one document a line: the text field of
+    /// each (a string) is counted, its lines as sentences. A line that holds
+    /// no document is named, counted and skipped. Default: plain text, a
+    /// line a sentence.
     #[arg(long)]
-    pub csv: bool,
+    pub jsonl: bool,
+    /// --jsonl: the field holding the text.
+    #[arg(long, default_value = "text", value_name = "NAME", requires = "jsonl")]
+    pub text_field: String,
 }
 
-#[derive(Args, Debug)]
-pub struct TopArgs {
-    #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// The order of the n-grams listed.
-    #[arg(long, value_name = "K", default_value_t = 1)]
-    pub order: usize,
-    /// Leave out n-grams seen fewer times.
-    #[arg(long, value_name = "C", default_value_t = 1)]
-    pub min_count: u64,
-    /// List at most N n-grams (memory: N entries and the vocabulary).
-    #[arg(long, value_name = "N", default_value_t = 100)]
-    pub limit: usize,
-    /// Also list n-grams that hold <s> or </s>. Default: leave them out.
-    #[arg(long)]
-    pub markers: bool,
-    #[command(flatten)]
-    pub format: ListFormatArgs,
+impl InputArgs {
+    /// How the lines hold documents.
+    pub fn format(&self) -> quern::corpus::Format {
+        if self.jsonl {
+            quern::corpus::Format::json_lines(&self.text_field)
+        } else {
+            quern::corpus::Format::default()
+        }
+    }
 }
 
-#[derive(Args, Debug)]
-pub struct CollocationsArgs {
-    #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// The node: a word, or several words (an n-gram).
-    #[arg(long, value_name = "WORDS")]
-    pub node: String,
-    /// Words to the left and to the right of the node. Default: as many as
-    /// the store's order allows on each side.
-    #[arg(long, value_name = "L,R")]
-    pub window: Option<String>,
-    /// Sort by: observed, pmi, t_score, g2, log_dice, dice (descending).
-    #[arg(long, value_name = "MEASURE", default_value = "log_dice")]
-    pub sort: String,
-    /// Leave out collocates seen fewer times in the window.
-    #[arg(long, value_name = "C", default_value_t = 1)]
-    pub min_count: u64,
-    /// List at most N collocates.
-    #[arg(long, value_name = "N", default_value_t = 50)]
-    pub limit: usize,
-    /// Also list <s> and </s> as collocates. Default: leave them out.
-    #[arg(long)]
-    pub markers: bool,
-    #[command(flatten)]
-    pub format: ListFormatArgs,
-}
-
-#[derive(Args, Debug)]
-pub struct KeynessArgs {
-    /// The study store (and its cache memory).
-    #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// The reference store.
-    #[arg(long, value_name = "DIR")]
-    pub reference: PathBuf,
-    /// The order of the n-grams compared.
-    #[arg(long, value_name = "K", default_value_t = 1)]
-    pub order: usize,
-    /// The larger of the two counts must reach C.
-    #[arg(long, value_name = "C", default_value_t = 5)]
-    pub min_count: u64,
-    /// G² must reach X (3.84: p < 0.05 with one degree of freedom; 6.63:
-    /// p < 0.01; 15.13: p < 0.0001).
-    #[arg(long, value_name = "X", default_value_t = 3.84)]
-    pub min_g2: f64,
-    /// At most N positive and N negative key n-grams.
-    #[arg(long, value_name = "N", default_value_t = 25)]
-    pub limit: usize,
-    /// Sort by: g2, log_ratio (its size), descending.
-    #[arg(long, value_name = "BY", default_value = "g2")]
-    pub sort: String,
-    /// Also compare n-grams that hold <s> or </s>. Default: leave them out.
-    #[arg(long)]
-    pub markers: bool,
-    /// Draw the key n-grams by log ratio into FILE (.svg or .png).
-    #[arg(long, value_name = "FILE")]
-    pub figure: Option<PathBuf>,
-    #[command(flatten)]
-    pub format: ListFormatArgs,
-}
-
-#[derive(Args, Debug)]
-pub struct LinesArgs {
-    #[command(flatten)]
-    pub store: QueryStoreArgs,
-    /// Words and `*` (any one word), e.g. "the * of".
-    #[arg(long, value_name = "PATTERN")]
-    pub pattern: String,
-    /// Words of context on each side.
-    #[arg(long, value_name = "K", default_value_t = 5)]
-    pub context: usize,
-    /// Print the first N occurrences only.
-    #[arg(long, value_name = "N", conflicts_with = "sample")]
-    pub limit: Option<usize>,
-    /// Print a random sample of N occurrences (uniform; the same for the
-    /// same --seed and input).
-    #[arg(long, value_name = "N")]
-    pub sample: Option<usize>,
-    /// Seed of --sample.
-    #[arg(long, value_name = "S", default_value_t = 1)]
-    pub seed: u64,
-    /// Sort by the words to the right of the match, or to the left (nearest
-    /// first). Default: in file order.
-    #[arg(long, value_name = "SIDE", value_parser = ["left", "right"])]
-    pub sort: Option<String>,
-    /// Width of each context column of the aligned output, in characters.
-    #[arg(long, value_name = "W", default_value_t = 40)]
-    pub width: usize,
-    /// TSV (file, line, left, match, right) with a header line. Default:
-    /// aligned columns.
-    #[arg(long, conflicts_with = "json")]
-    pub tsv: bool,
-    /// One JSON object a line: file, line, left, match, right.
-    #[arg(long)]
-    pub json: bool,
-    /// Corpus files or folders (plain, .gz, .zst; `-`: standard input):
-    /// those the store was counted from.
-    #[arg(required = true)]
-    pub inputs: Vec<PathBuf>,
+/// A preparation setting from its name on the command line (the name it
+/// has in the store's records).
+pub(super) fn setting<T: serde::de::DeserializeOwned>(s: &str) -> Result<T, String> {
+    serde_json::from_value(serde_json::Value::String(s.to_string()))
+        .map_err(|_| format!("{s:?} is not one of the values listed in --help"))
 }

@@ -2,6 +2,7 @@
 
 mod args;
 mod cmd;
+mod corpus_args;
 mod progress;
 mod stage_args;
 mod values;

@@ -4,9 +4,7 @@ use std::path::PathBuf;
 
 use clap::{Args, Subcommand};
 
-use quern::tokenize::{Digits, Normalize, Preparation, Sentences, Tokens};
-
-use super::args::setting;
+use super::args::{InputArgs, PreparationArgs};
 use super::values::{self, size_syntax, ByteSize};
 
 /// The stages of a staged ingest. Each prints one JSON line describing
@@ -43,44 +41,16 @@ pub struct StagePlanArgs {
     /// Highest n-gram order N (1 to 8).
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub order: usize,
-    /// Lowercase every token (Unicode lowercasing). Default: off.
-    #[arg(long)]
-    pub lowercase: bool,
-    /// Unicode normalization of the text, first of the preparation steps:
-    /// none, nfc or nfkc (UAX #15).
-    #[arg(long, value_name = "FORM", default_value = "none", value_parser = setting::<Normalize>)]
-    pub normalize: Normalize,
-    /// Where sentences end: lines (a line is a sentence), split (UAX #29
-    /// sentence boundaries) or document (a document, or an input line, is
-    /// one sentence).
-    #[arg(long, value_name = "HOW", default_value = "lines", value_parser = setting::<Sentences>)]
-    pub sentences: Sentences,
-    /// What a token is: whitespace (runs of characters that are not
-    /// White_Space) or words (UAX #29 word-boundary segments that are not
-    /// all White_Space: punctuation apart, "can't" and "3.14" whole).
-    #[arg(long, value_name = "HOW", default_value = "whitespace", value_parser = setting::<Tokens>)]
-    pub tokens: Tokens,
-    /// Decimal digits (Unicode Nd): keep, or zero (each becomes 0).
-    #[arg(long, value_name = "HOW", default_value = "keep", value_parser = setting::<Digits>)]
-    pub digits: Digits,
+    #[command(flatten)]
+    pub prep: PreparationArgs,
     /// A fixed vocabulary, as for `quern ingest --word-list`: FILE holds
     /// one word a line, and every other token is counted as `<unk>`. The
     /// plan keeps a copy in DIR for the tasks, and the store keeps it.
     /// Default: every token counts.
     #[arg(long, value_name = "FILE")]
     pub word_list: Option<PathBuf>,
-    /// Skip (and report) lines longer than this many bytes.
-    #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
-    pub max_line_bytes: usize,
-    /// The inputs are JSON lines, one document a line: the text field of
-    /// each (a string) is counted, its lines as sentences. A line that holds
-    /// no document is named, counted and skipped. Default: plain text, a
-    /// line a sentence.
-    #[arg(long)]
-    pub jsonl: bool,
-    /// --jsonl: the field holding the text.
-    #[arg(long, default_value = "text", value_name = "NAME", requires = "jsonl")]
-    pub text_field: String,
+    #[command(flatten)]
+    pub input: InputArgs,
     /// Number of partitions: one merge and one join task each. Required
     /// (the Spark driver passes its own default).
     #[arg(long, value_name = "N")]
@@ -145,17 +115,4 @@ pub struct TaskMemoryArgs {
         help = concat!("Memory budget of this task. ", size_syntax!())
     )]
     pub bytes: ByteSize,
-}
-
-impl StagePlanArgs {
-    /// The preparation the flags ask for.
-    pub fn preparation(&self) -> Preparation {
-        Preparation {
-            normalize: self.normalize,
-            sentences: self.sentences,
-            tokens: self.tokens,
-            lowercase: self.lowercase,
-            digits: self.digits,
-        }
-    }
 }

@@ -3,7 +3,6 @@
 use std::io::Write;
 
 use anyhow::Context;
-use quern::corpus::Format;
 use quern::ingest::{ingest, IngestOptions};
 
 use super::{bytes, thousands};
@@ -14,7 +13,7 @@ use crate::cli::progress::Bar;
 const RUN_ORDER: [&str; 4] = ["counting", "merging", "joining", "building"];
 
 pub fn run(a: IngestArgs) -> anyhow::Result<()> {
-    let preparation = a.preparation();
+    let preparation = a.prep.preparation();
     let mut o = IngestOptions::new(&a.store, a.inputs.clone());
     o.order = a.order;
     o.memory = a.memory.bytes();
@@ -23,13 +22,11 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     }
     o.preparation = preparation;
     o.word_list = a.word_list.clone();
-    o.max_line_bytes = a.max_line_bytes;
+    o.max_line_bytes = a.input.max_line_bytes;
     o.partitions = a.partitions;
     o.restart = a.restart;
     o.append = a.append;
-    if a.jsonl {
-        o.format = Format::json_lines(&a.text_field);
-    }
+    o.format = a.input.format();
     let bar = Bar::new(a.quiet);
     let result = ingest(&o, &bar);
     bar.finish();

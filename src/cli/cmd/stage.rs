@@ -3,7 +3,6 @@
 use std::io::Write;
 
 use anyhow::Context;
-use quern::corpus::Format;
 use quern::stage::{self, PlanOptions};
 use quern::store::Settings;
 
@@ -12,7 +11,7 @@ use crate::cli::args::StageCommand;
 pub fn run(c: StageCommand) -> anyhow::Result<()> {
     let report = match c {
         StageCommand::Plan(a) => {
-            let preparation = a.preparation();
+            let preparation = a.prep.preparation();
             let o = PlanOptions {
                 dir: a.dir.clone(),
                 inputs: a.inputs,
@@ -20,14 +19,10 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     order: a.order,
                     preparation,
                     word_list: None,
-                    max_line_bytes: a.max_line_bytes,
+                    max_line_bytes: a.input.max_line_bytes,
                 },
                 word_list: a.word_list,
-                format: if a.jsonl {
-                    Format::json_lines(&a.text_field)
-                } else {
-                    Format::Lines
-                },
+                format: a.input.format(),
                 partitions: a.partitions,
                 map_tasks: a.map_tasks,
             };
