@@ -3,6 +3,7 @@
 mod args;
 mod cmd;
 mod corpus_args;
+mod input_args;
 mod progress;
 mod stage_args;
 mod values;
