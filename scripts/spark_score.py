@@ -25,7 +25,7 @@ The driver merges the tasks' summaries into `OUT/summary.json` (and prints
 it as one JSON line): counts, totals, and the distribution of the
 documents' scores with its percentiles, computed from the merged
 histograms (nearest rank, each within the documented bound of the exact
-value: 0.0115 % relative for a perplexity, see src/docs/dist.rs).
+value: 0.0115 % relative for a perplexity, see src/scoring/dist.rs).
 
 The option --fault-kill NAME:POINT is for tests: it SIGKILLs the first
 attempt of the task of input NAME at POINT, `scoring` (the quern process,

@@ -30,7 +30,7 @@
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
-//! * [`docs`] scores documents (JSON lines or plain lines) on many
+//! * [`scoring`] scores documents (JSON lines or plain lines) on many
 //!   threads, one result each in input order, with the distribution of
 //!   their perplexities and a split into kept and dropped ones (filtering
 //!   a crawl).
@@ -73,8 +73,6 @@ pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;
 pub mod discount;
-#[cfg(feature = "store")]
-pub mod docs;
 pub mod error;
 pub mod fault;
 #[cfg(feature = "store")]
@@ -100,6 +98,8 @@ pub mod python;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;
+#[cfg(feature = "store")]
+pub mod scoring;
 pub mod search;
 #[cfg(feature = "serve")]
 pub mod serve;

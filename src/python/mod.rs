@@ -18,7 +18,7 @@
 //!
 //! Both predictors have `prob`, `log10`, `next`, `score` and `score_many`;
 //! `score_many` releases the GIL and scores on worker threads
-//! ([`crate::docs::score_texts`]). Nothing copies a store or a model: the
+//! ([`crate::scoring::score_texts`]). Nothing copies a store or a model: the
 //! Python objects hold them behind an `Arc`. Library errors become Python
 //! exceptions whose message is the command line's (after its
 //! `quern: error: `): see `convert::error`.

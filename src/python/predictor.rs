@@ -10,9 +10,9 @@ use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList, PyString};
 
 use super::convert::{error, json_to_py, words_text, QuernError};
-use crate::docs::{self, BoxedModel, DocResult, MakeModel, Models, Outcome, Shared};
 use crate::model::{Model, Residence};
 use crate::query::{query_ids, Estimator, Method, Params, Predictor, Prob};
+use crate::scoring::{self, BoxedModel, DocResult, MakeModel, Models, Outcome};
 use crate::store::Store;
 use crate::words::WordId;
 
@@ -98,7 +98,7 @@ impl PyModel {
     ) -> PyResult<Vec<DocResult>> {
         let model = self.model.clone();
         py.detach(move || {
-            let make = || -> crate::Result<BoxedModel<'_>> { Ok(Box::new(Shared(&*model))) };
+            let make = || -> crate::Result<BoxedModel<'_>> { Ok(Box::new(&*model)) };
             score_with(texts, threads, &make)
         })
         .map_err(error)
@@ -116,7 +116,7 @@ fn score_with<'a>(
         main: make,
         general: None,
     };
-    docs::score_texts(texts, threads, false, &models)
+    scoring::score_texts(texts, threads, false, &models)
 }
 
 /// The ids of a context.
@@ -220,8 +220,8 @@ fn doc_dict<'py>(
     let out = PyDict::new(py);
     out.set_item(intern!(py, "sentences"), t.sentences)?;
     out.set_item(intern!(py, "predictions"), t.predictions)?;
-    out.set_item(intern!(py, "outside_vocabulary"), t.oov)?;
-    out.set_item(intern!(py, "probability_zero"), t.zero)?;
+    out.set_item(intern!(py, scoring::OUTSIDE_VOCABULARY), t.oov)?;
+    out.set_item(intern!(py, scoring::PROBABILITY_ZERO), t.zero)?;
     out.set_item(intern!(py, "log10_sum"), finite(t.log10_prob()))?;
     out.set_item(
         intern!(py, "perplexity"),
@@ -340,7 +340,7 @@ macro_rules! predictor_methods {
             /// `quern score --lines` for that line.
             fn score<'py>(&self, py: Python<'py>, text: &str) -> PyResult<Bound<'py, PyDict>> {
                 let p = self.pred();
-                let r = docs::score_text(p, text.to_owned(), false).map_err(error)?;
+                let r = scoring::score_text(p, text.to_owned(), false).map_err(error)?;
                 doc_dict(py, &r, p.method().is_probability())
             }
 

@@ -72,6 +72,47 @@ pub trait Predictor {
     }
 }
 
+/// A borrowed predictor is one: a model lent to worker threads, or a
+/// `&dyn Predictor`, goes wherever a predictor is asked for.
+impl<P: Predictor + ?Sized> Predictor for &P {
+    fn method(&self) -> Method {
+        (**self).method()
+    }
+    fn order(&self) -> usize {
+        (**self).order()
+    }
+    fn vocabulary_size(&self) -> u64 {
+        (**self).vocabulary_size()
+    }
+    fn preparation(&self) -> Preparation {
+        (**self).preparation()
+    }
+    fn notes(&self) -> &[String] {
+        (**self).notes()
+    }
+    fn constants(&self) -> serde_json::Value {
+        (**self).constants()
+    }
+    fn word(&self, id: WordId) -> Result<Option<String>> {
+        (**self).word(id)
+    }
+    fn prob(&self, context: &[WordId], word: WordId) -> Result<Prob> {
+        (**self).prob(context, word)
+    }
+    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
+        (**self).prob_batch(queries)
+    }
+    fn next(&self, context: &[WordId], k: usize) -> Result<Next> {
+        (**self).next(context, k)
+    }
+    fn distribution(&self, context: &[WordId]) -> Result<Vec<(WordId, f64)>> {
+        (**self).distribution(context)
+    }
+    fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        (**self).complete(context, prefix, k)
+    }
+}
+
 impl Predictor for Estimator<'_> {
     fn method(&self) -> Method {
         Estimator::method(self)

@@ -5,17 +5,17 @@
 //! The shapes are the command line's: `/prob` answers what `quern prob
 //! --json` writes ([`ProbJson`]), `/next` lists its words as `quern next
 //! --json` does ([`WordJson`]), and `/score` gives each text the record of
-//! a scored document ([`crate::docs::DocResult::record`]).
+//! a scored document ([`crate::scoring::DocResult::record`]).
 
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
 
 use super::pool::{Local, Source};
-use crate::docs::{Format, Options, RawLine, Record, Worker};
 use crate::error::Error;
 use crate::query::{
     cursor, jnum, parse_cursor, prefix_page, query_ids, Method, Predictor, ProbJson, WordJson,
 };
+use crate::scoring::{Format, Options, RawLine, Record, Worker};
 use crate::words::WordId;
 
 /// Most words `/next` lists.

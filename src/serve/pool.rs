@@ -8,10 +8,10 @@
 
 use crossbeam::channel::{self, Receiver, Sender, TrySendError};
 
-use crate::docs::DocModel;
 use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::query::{Estimator, Method, Params, Predictor};
+use crate::scoring::DocModel;
 use crate::store::Store;
 
 /// What is served: a store or a frozen model.

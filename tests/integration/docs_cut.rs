@@ -6,7 +6,7 @@
 
 use std::path::Path;
 
-use quern::docs::dist::{Distribution, Scale, BIN_WIDTH};
+use quern::scoring::dist::{Distribution, Scale, BIN_WIDTH};
 use serde_json::{json, Value};
 
 use crate::common::{run, run_ok};
@@ -387,7 +387,7 @@ fn percentiles_follow_the_nearest_rank_rule_and_the_histogram_its_bound() {
         assert_eq!(d.count, n as u64);
         let mut sorted = vals.clone();
         sorted.sort_by(f64::total_cmp);
-        let ps = quern::docs::dist::PERCENTILES;
+        let ps = quern::scoring::dist::PERCENTILES;
         let exact = d.percentiles(&ps);
         let mut pinned = (false, false);
         for (&p, &got) in ps.iter().zip(&exact) {

@@ -1,7 +1,6 @@
 //! One file per subcommand.
 
 pub mod collocations;
-pub mod docs;
 pub mod dump;
 pub mod freeze;
 pub mod ingest;
@@ -13,6 +12,7 @@ pub mod next;
 pub mod ngrams;
 pub mod prob;
 pub mod score;
+pub mod scoring;
 pub mod serve;
 pub mod stage;
 pub mod stats;

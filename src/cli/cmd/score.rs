@@ -78,7 +78,7 @@ fn sum_json(zero: u64, log10: f64) -> serde_json::Value {
 
 pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
     if a.docs.jsonl || a.docs.lines {
-        return super::docs::run(a);
+        return super::scoring::run(a);
     }
     let src = open_source(&a.store)?;
     let pred = predictor(&src, a.method.method, &a.params)?;

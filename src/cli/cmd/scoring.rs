@@ -4,10 +4,10 @@
 use std::io::Write;
 
 use anyhow::{bail, Context};
-use quern::docs::{
-    self, split::ScoreFile, split::Split, BoxedModel, Format, Models, Options, Shared, Summary,
-};
 use quern::query::Estimator;
+use quern::scoring::{
+    self, split::ScoreFile, split::Split, BoxedModel, Format, Models, Options, Summary,
+};
 use serde_json::json;
 
 use super::prob::{open_source, params, predictor, Source};
@@ -20,7 +20,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         bail!("--jsonl and --lines already write one JSON result a line and the summary to standard error (as JSON with --summary FILE): leave out --per-line and --json");
     }
     let cut = match (d.keep_below, d.keep_fraction) {
-        (Some(x), _) => Some(docs::split::Cut::Below(x)),
+        (Some(x), _) => Some(scoring::split::Cut::Below(x)),
         (_, Some(f)) => {
             if !(0.0..=1.0).contains(&f) {
                 bail!("--keep-fraction must be between 0 and 1, not {f}");
@@ -28,7 +28,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
             if a.files.iter().any(|f| f.as_os_str() == "-") {
                 bail!("--keep-fraction reads the inputs twice: give files, not - (standard input)");
             }
-            Some(docs::split::Cut::Fraction(f))
+            Some(scoring::split::Cut::Fraction(f))
         }
         _ => None,
     };
@@ -70,7 +70,7 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         main: &make_main,
         general: general
             .as_ref()
-            .map(|_| &make_general as &docs::MakeModel<'_>),
+            .map(|_| &make_general as &scoring::MakeModel<'_>),
     };
     run_docs(&a, &models, probability, method.name(), cut)
 }
@@ -84,7 +84,7 @@ fn make<'a>(
 ) -> quern::Result<BoxedModel<'a>> {
     Ok(match src {
         Source::Store(store) => Box::new(Estimator::new(store, method, p.clone())?),
-        Source::Model(m) => Box::new(Shared(m)),
+        Source::Model(m) => Box::new(m),
     })
 }
 
@@ -93,7 +93,7 @@ fn run_docs(
     models: &Models<'_>,
     probability: bool,
     method: &str,
-    cut: Option<docs::split::Cut>,
+    cut: Option<scoring::split::Cut>,
 ) -> anyhow::Result<()> {
     let d = &a.docs;
     let format = if d.lines {
@@ -118,14 +118,14 @@ fn run_docs(
         _ => None,
     };
     let mut side = match cut {
-        Some(docs::split::Cut::Fraction(_)) => {
+        Some(scoring::split::Cut::Fraction(_)) => {
             let k = d.kept.as_ref().expect("checked");
             Some(ScoreFile::create(&k.with_extension("scores.tmp"))?)
         }
         _ => None,
     };
     let t = std::time::Instant::now();
-    let summary = docs::score_inputs(&a.files, &opts, models, |r, raw| {
+    let summary = scoring::score_inputs(&a.files, &opts, models, |r, raw| {
         let file = several.then(|| names[r.file].as_str());
         let v = r.record(probability, file);
         serde_json::to_writer(&mut out, &v)
@@ -133,12 +133,12 @@ fn run_docs(
             .and_then(|_| out.write_all(b"\n"))
             .map_err(|e| quern::Error::io(std::path::Path::new("standard output"), "write", e))?;
         match (cut, &mut split) {
-            (Some(docs::split::Cut::Below(x)), Some(s)) => {
+            (Some(scoring::split::Cut::Below(x)), Some(s)) => {
                 if let Some(raw) = raw {
                     s.write(r.value().is_some_and(|v| v < x), raw)?;
                 }
             }
-            (Some(docs::split::Cut::Fraction(_)), _) => {
+            (Some(scoring::split::Cut::Fraction(_)), _) => {
                 side.as_mut().expect("made").push(r.value())?;
             }
             _ => {}
@@ -151,8 +151,8 @@ fn run_docs(
     let mut counts = None;
     if let Some(mut s) = split {
         match cut {
-            Some(docs::split::Cut::Below(x)) => threshold = Some(x),
-            Some(docs::split::Cut::Fraction(f)) => {
+            Some(scoring::split::Cut::Below(x)) => threshold = Some(x),
+            Some(scoring::split::Cut::Fraction(f)) => {
                 let side = side.take().expect("made");
                 threshold = Some(side.split(
                     &a.files,
@@ -167,7 +167,7 @@ fn run_docs(
         counts = Some(s.finish()?);
     }
     if let Some(p) = &d.plot {
-        docs::plot::histogram(p, &summary.distribution, threshold)?;
+        scoring::plot::histogram(p, &summary.distribution, threshold)?;
     }
     let secs = t.elapsed().as_secs_f64();
     let mut v = summary.to_json(probability);
@@ -179,7 +179,7 @@ fn run_docs(
     v["documents_per_second"] = json!(summary.documents as f64 / scoring_secs.max(1e-9));
     if let (Some(c), Some(t)) = (counts, threshold) {
         v["cut"] = json!({
-            "below": docs::num(Some(t)),
+            "below": scoring::num(Some(t)),
             "fraction": d.keep_fraction,
             "kept": c[0],
             "dropped": c[1],
@@ -248,8 +248,8 @@ fn report(s: &Summary, v: &serde_json::Value, probability: bool) -> anyhow::Resu
             "  mean          {:>14.4}",
             dist.mean().unwrap_or(f64::NAN)
         )?;
-        let ps = dist.percentiles(&docs::dist::PERCENTILES);
-        for (p, x) in docs::dist::PERCENTILES.iter().zip(&ps) {
+        let ps = dist.percentiles(&scoring::dist::PERCENTILES);
+        for (p, x) in scoring::dist::PERCENTILES.iter().zip(&ps) {
             writeln!(e, "  {:<13} {x:>14.4}", format!("{p} %"))?;
         }
     }

@@ -7,10 +7,9 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
 
 use super::read::{RawLine, Worker, BATCH_BYTES, BATCH_LINES};
-use super::{DocModel, DocResult, Format, Models, Options};
+use super::{DocResult, Format, Models, Options};
 use crate::error::{Error, Result};
-use crate::query::Prob;
-use crate::words::WordId;
+use crate::query::Predictor;
 
 /// Scores `texts` with `models` on `threads` threads (at least 1; no more
 /// than there are batches), one [`DocResult`] per text in their order;
@@ -83,7 +82,11 @@ pub fn score_texts(
 
 /// Scores one text with `model` on the calling thread: what
 /// [`score_texts`] gives for a list of that one text.
-pub fn score_text<M: DocModel + ?Sized>(model: &M, text: String, words: bool) -> Result<DocResult> {
+pub fn score_text<P: Predictor + ?Sized>(
+    model: &P,
+    text: String,
+    words: bool,
+) -> Result<DocResult> {
     let opts = Options {
         format: Format::Lines,
         threads: 1,
@@ -97,26 +100,7 @@ pub fn score_text<M: DocModel + ?Sized>(model: &M, text: String, words: bool) ->
         too_long: false,
     };
     let mut w = Worker::new(model.preparation());
-    let mut r = w.score(&opts, &Lent(model), None, std::slice::from_ref(&line))?;
+    let mut r = w.score(&opts, &model, None, std::slice::from_ref(&line))?;
     r.pop()
         .ok_or_else(|| Error::Config("no result for the text".into()))
-}
-
-/// A borrowed model of any kind (a `dyn Predictor` too) as a
-/// `dyn DocModel`.
-struct Lent<'a, M: ?Sized>(&'a M);
-
-impl<M: DocModel + ?Sized> DocModel for Lent<'_, M> {
-    fn order(&self) -> usize {
-        self.0.order()
-    }
-    fn preparation(&self) -> crate::tokenize::Preparation {
-        self.0.preparation()
-    }
-    fn is_probability(&self) -> bool {
-        self.0.is_probability()
-    }
-    fn prob_batch(&self, queries: &[&[WordId]]) -> Result<Vec<Prob>> {
-        self.0.prob_batch(queries)
-    }
 }
