@@ -49,7 +49,10 @@ fuzz_target!(|data: &[u8]| {
     };
     let max_line = 1 + (mode as usize >> 4) * 4;
     let mut lines = LineReader::new(inner, path, 0, u64::MAX, max_line);
-    let tok = Tokenizer::new(lowercase);
+    let tok = Tokenizer::new(quern::tokenize::Preparation {
+        lowercase,
+        ..Default::default()
+    });
     let mut dict = Dictionary::default();
     let mut line = Vec::new();
     let mut ids = Vec::new();
