@@ -2,9 +2,9 @@
 //!
 //! Store metadata of version 2, and ingest manifests and cluster stage
 //! records of version 1, may name the left-type statistics by the names
-//! they had before: the per-order count-of-counts `coc_adjusted` (now
-//! `coc_left_type`) and the context sum `adjusted_sum` (now
-//! `left_type_sum`). Nothing else changed, so converting one is renaming
+//! they had before ([`RENAMED`]: the per-order count-of-counts, now
+//! `coc_left_type`, and the context sum, now `left_type_sum`). Nothing
+//! else changed, so converting one is renaming
 //! those fields wherever they occur; a record that already has the new
 //! names (written between the rename and the version bump) is left as it
 //! is. The readers pass these functions to
@@ -110,9 +110,9 @@ mod tests {
         assert_eq!(m.growth, None);
         // A record of version 2 with the new names (written between the
         // rename and the version bump) reads the same.
-        let renamed = V2
-            .replace("coc_adjusted", "coc_left_type")
-            .replace("adjusted_sum", "left_type_sum");
+        let renamed = RENAMED
+            .iter()
+            .fold(V2.to_string(), |t, (old, new)| t.replace(old, new));
         let m2: StoreMeta =
             crate::fsutil::parse_upgraded(p, renamed.as_bytes(), STORE_VERSION, upgrade_store_meta)
                 .unwrap();
