@@ -26,7 +26,11 @@
 //! * [`arpa`] reads ARPA back-off text (a model made elsewhere), checking
 //!   every line; [`model`] turns it into a model file.
 //! * [`model`] freezes a method into a memory-mapped back-off model file
-//!   (and ARPA text) and answers queries from it.
+//!   (and ARPA text) and answers queries from it. Reading a model needs
+//!   only the `model` feature: no RocksDB, no C++ compiler.
+//! * [`predict`] is what every language model answers, below the store:
+//!   the [`predict::Predictor`] trait, methods, one probability, the top
+//!   next words, held-out scoring and the JSON shapes.
 //! * [`query`] turns the store's statistics into smoothed probabilities
 //!   (nine estimators chosen at query time), top-K next words, prefix
 //!   pages, held-out scoring and parameter tuning.
@@ -90,15 +94,16 @@ pub mod linguistics;
 pub mod memory;
 #[cfg(feature = "store")]
 pub mod merge;
-#[cfg(feature = "store")]
+#[cfg(feature = "model")]
 pub mod model;
 pub mod pool;
+pub mod predict;
 #[cfg(feature = "python")]
 pub mod python;
 #[cfg(feature = "store")]
 pub mod query;
 pub mod records;
-#[cfg(feature = "store")]
+#[cfg(feature = "model")]
 pub mod scoring;
 pub mod search;
 #[cfg(feature = "serve")]

@@ -39,7 +39,7 @@ use std::convert::Infallible;
 use std::ops::Range;
 
 use crate::error::Result;
-use crate::query::Next;
+use crate::predict::Next;
 use crate::topk::{PrefixIndex, TopK};
 use crate::words::{eos_id, WordId};
 

@@ -280,6 +280,7 @@ impl Model {
     }
 
     /// Whether order `k` (k < N) has a skips section.
+    #[cfg(feature = "store")]
     pub(crate) fn has_skips_at(&self, k: usize) -> bool {
         !self.orders[k - 1].skips.is_empty()
     }

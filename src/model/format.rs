@@ -4,7 +4,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::query::{Method, Params};
+use crate::predict::{Method, Params};
 
 /// The first 8 bytes of every model file.
 pub const MAGIC: [u8; 8] = *b"qrnmodl\x1a";

@@ -18,7 +18,7 @@ use std::path::{Path, PathBuf};
 
 use crate::arpa::ArpaModel;
 use crate::error::{Error, IoContext, Result};
-use crate::query::{Method, Params};
+use crate::predict::{Method, Params};
 use crate::words::{bos_id, unk_id, word_id};
 
 use super::format::{ModelMeta, SectionKind};

@@ -108,31 +108,47 @@
 //! 6e-8 each); a probability is a product of at most N of them, computed in
 //! 64 bits, so it is within about 3e-7 relative of the estimator's.
 
+// Reading a model: all a runtime needs (the `model` feature).
 pub mod arpa;
-mod built;
 mod bytes;
 mod cache;
 pub mod complete;
 mod file;
 pub mod format;
-pub mod freeze;
-pub mod import;
-mod orders;
 pub mod packed;
-mod pass;
-pub(crate) mod prune;
-pub(crate) mod quantize;
 pub mod query;
-pub(crate) mod reduce;
 mod sections;
 mod seek;
-mod spill;
 mod verify;
+
+// Writing one (freezing a store, reading ARPA text, pruning and
+// quantizing) needs the store.
+#[cfg(feature = "store")]
+mod built;
+#[cfg(feature = "store")]
+pub mod freeze;
+#[cfg(feature = "store")]
+pub mod import;
+#[cfg(feature = "store")]
+mod orders;
+#[cfg(feature = "store")]
+mod pass;
+#[cfg(feature = "store")]
+pub(crate) mod prune;
+#[cfg(feature = "store")]
+pub(crate) mod quantize;
+#[cfg(feature = "store")]
+pub(crate) mod reduce;
+#[cfg(feature = "store")]
+mod spill;
+#[cfg(feature = "store")]
 pub mod writer;
 
 pub use bytes::Residence;
 pub use file::Model;
 pub use format::ModelMeta;
+#[cfg(feature = "store")]
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
+#[cfg(feature = "store")]
 pub use import::freeze_arpa;
 pub use query::State;

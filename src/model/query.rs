@@ -20,7 +20,7 @@
 
 use crate::error::{Error, Result};
 use crate::key::MAX_ORDER;
-use crate::query::{Next, Prob};
+use crate::predict::{Next, Prob};
 use crate::words::WordId;
 
 use super::bytes::prefetch;
@@ -105,7 +105,7 @@ impl Model {
     }
 
     /// The method the model was frozen from.
-    pub fn method(&self) -> crate::query::Method {
+    pub fn method(&self) -> crate::predict::Method {
         self.meta().method
     }
 
@@ -455,8 +455,8 @@ impl Model {
     }
 }
 
-impl crate::query::Predictor for Model {
-    fn method(&self) -> crate::query::Method {
+impl crate::predict::Predictor for Model {
+    fn method(&self) -> crate::predict::Method {
         Model::method(self)
     }
     fn order(&self) -> usize {

@@ -22,7 +22,7 @@
 use std::path::Path;
 
 use crate::error::{Error, Result};
-use crate::query::katz::EPS;
+use crate::predict::EPS;
 
 use super::file::Model;
 use super::format::{ModelMeta, SectionKind};

@@ -32,8 +32,7 @@
 
 use crate::store::{OrderStats, StoreMeta};
 
-/// Below this, a freed mass or a denominator counts as zero.
-pub const EPS: f64 = 1e-12;
+pub use crate::predict::EPS;
 
 /// The Good-Turing constants of one order.
 #[derive(Clone, Debug, PartialEq)]

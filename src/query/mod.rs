@@ -38,41 +38,24 @@ mod cache;
 pub mod complete;
 mod estimator;
 pub mod jelinek_mercer;
-pub mod json;
 pub mod katz;
 mod katz_eval;
 pub mod keystrokes;
 pub mod kneser_ney;
 mod level;
-mod method;
-pub mod next;
 pub mod ngrams;
-pub mod params;
 pub mod predictor;
 mod probability;
-pub mod score;
 pub mod simple;
 mod text_index;
 pub mod tune;
 pub mod witten_bell;
 
+pub use crate::predict::{
+    jnum, json, params, prediction, score, DiscountPolicy, Method, Next, Params, ParamsFile,
+    Predictor, Prob, ProbJson, ScoreReport, Scorer, SentenceScore, WordJson,
+};
 pub use crate::tokenize::query_ids;
 pub use estimator::Estimator;
-pub use json::{jnum, ProbJson, WordJson};
 pub(crate) use level::Level;
-pub use method::Method;
-pub use next::Next;
 pub use ngrams::{cursor, parse_cursor, prefix_page, Page};
-pub use params::{DiscountPolicy, Params, ParamsFile};
-pub use predictor::Predictor;
-pub use probability::Prob;
-pub use score::{ScoreReport, Scorer, SentenceScore};
-
-use crate::words::WordId;
-
-/// The n-gram of the words before position `i` of a padded sentence and
-/// the word at `i`, cut to the last `n` words: what predicting token `i`
-/// asks for.
-pub fn prediction(padded: &[WordId], i: usize, n: usize) -> &[WordId] {
-    &padded[(i + 1).saturating_sub(n)..=i]
-}

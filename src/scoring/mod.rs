@@ -21,7 +21,7 @@
 //!
 //! # Scores
 //!
-//! A sentence `w1 … wm` is the m + 1 predictions of [`crate::query::score`].
+//! A sentence `w1 … wm` is the m + 1 predictions of [`crate::predict::score`].
 //! A document's perplexity is 10^(−L / n) over its n predictions, L being
 //! their total log10 probability: the perplexity of the concatenation of
 //! its sentences. It is infinite if some prediction got probability 0, and
@@ -64,7 +64,7 @@ use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
 
 use crate::error::Result;
-use crate::query::{Predictor, Prob};
+use crate::predict::{Predictor, Prob};
 use crate::tokenize::Preparation;
 use crate::words::WordId;
 

@@ -7,7 +7,7 @@ use serde_json::Value;
 use super::{DocModel, DocResult, DocScore, Options, Outcome, Tally, WordScore};
 use crate::corpus::{self, read_document, Line, LineReader};
 use crate::error::{Error, Result};
-use crate::query::{prediction, Prob};
+use crate::predict::{prediction, Prob};
 use crate::tokenize::{Preparation, Tokenizer};
 use crate::words::{eos_id, unk_id, Dictionary, WordId, EOS, UNK};
 

@@ -5,7 +5,7 @@
 use serde::{Deserialize, Serialize};
 use serde_json::{json, Value};
 
-use crate::query::Prob;
+use crate::predict::Prob;
 
 /// The name of the count of predictions outside V, in every output.
 pub const OUTSIDE_VOCABULARY: &str = "outside_vocabulary";
@@ -104,7 +104,7 @@ pub struct WordScore {
     /// then the general one.
     pub log10: Vec<f64>,
     /// How many words of the n-gram matched under each model
-    /// ([`crate::query::Prob::matched`]; 0: the word is outside V).
+    /// ([`crate::predict::Prob::matched`]; 0: the word is outside V).
     pub matched: Vec<usize>,
 }
 

@@ -9,7 +9,7 @@ use std::sync::Mutex;
 use super::read::{RawLine, Worker, BATCH_BYTES, BATCH_LINES};
 use super::{DocResult, Format, Models, Options};
 use crate::error::{Error, Result};
-use crate::query::Predictor;
+use crate::predict::Predictor;
 
 /// Scores `texts` with `models` on `threads` threads (at least 1; no more
 /// than there are batches), one [`DocResult`] per text in their order;
