@@ -73,6 +73,8 @@
 #![deny(unsafe_code)]
 
 pub mod arpa;
+#[cfg(feature = "capi")]
+pub mod capi;
 pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;
