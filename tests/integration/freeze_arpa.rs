@@ -130,10 +130,31 @@ fn arpa_read_by_python() {
             let skipping: Vec<String> = derived.as_ref().map_or(Vec::new(), |d| d.listed());
             if let Some(d) = &derived {
                 // Queries that go through a skipping context: after each of
-                // 200 of them (taken evenly), a word never seen after it.
+                // 200 of them (taken evenly), a word never seen after it;
+                // and the skipping context's own children (the first three
+                // in byte order, from the counts), which ARPA text states
+                // outright, so they must agree within the tolerance.
                 let mut extra = String::new();
+                let mut children = 0;
                 for h in skipping.iter().step_by((skipping.len() / 200).max(1)) {
                     let hw: Vec<String> = h.split(' ').map(str::to_string).collect();
+                    let mut seen: Vec<&str> = d
+                        .tables
+                        .children_of(&hw)
+                        .iter()
+                        .map(|(w, _)| w.as_str())
+                        .collect();
+                    seen.sort_unstable();
+                    for w in seen.into_iter().take(3) {
+                        let ids = quern::query::query_ids(
+                            &format!("{h} {w}"),
+                            &quern::tokenize::Preparation::default(),
+                        );
+                        let p = est.prob(&ids[..ids.len() - 1], ids[ids.len() - 1]).unwrap();
+                        want.push(p.log10);
+                        extra.push_str(&format!("{h} {w}\n"));
+                        children += 1;
+                    }
                     for w in ["the", "Emma", "</s>"] {
                         if d.passes_through(&hw, w).is_some() {
                             let ids = quern::query::query_ids(
@@ -147,6 +168,10 @@ fn arpa_read_by_python() {
                         }
                     }
                 }
+                assert!(
+                    children > 100,
+                    "{m}: {children} children of skipping contexts asked"
+                );
                 let mut all = std::fs::read_to_string(&qpath).unwrap();
                 all.push_str(&extra);
                 std::fs::write(&qpath, all).unwrap();

@@ -85,6 +85,11 @@ impl Tables {
         self.children.keys().cloned().collect()
     }
 
+    /// The words seen after h with their counts, in the order counted.
+    pub(crate) fn children_of(&self, h: &[String]) -> &[(String, u64)] {
+        self.children.get(h).map_or(&[], Vec::as_slice)
+    }
+
     /// Whether h is a seen context (C(h) > 0), as Katz asks.
     pub(crate) fn is_context(&self, h: &[String]) -> bool {
         self.ctx(h).is_some_and(|s| s.c > 0)
