@@ -39,7 +39,7 @@ use crate::query_fixtures::{heldout_sentences, train3};
 
 /// Freezes `m` over the order-3 store with `opts` into `dir/name.model`
 /// and its ARPA text `dir/name.arpa`.
-fn frozen(
+pub(crate) fn frozen(
     store: &Store,
     m: Method,
     opts: &FreezeOptions,
@@ -489,11 +489,11 @@ fn quantized_weights_stay_within_their_reported_error() {
 }
 
 /// One ARPA file's n-grams, per order: words → (log10 q, log10 β if listed).
-type Arpa = Vec<HashMap<String, (f64, Option<f64>)>>;
+pub(crate) type Arpa = Vec<HashMap<String, (f64, Option<f64>)>>;
 
 /// Reads ARPA text (the format's definition: a `\k-grams:` section per
 /// order, lines `log10 q TAB words [TAB log10 β]`).
-fn read_arpa(path: &Path) -> Arpa {
+pub(crate) fn read_arpa(path: &Path) -> Arpa {
     let text = std::fs::read_to_string(path).unwrap();
     let mut out: Arpa = Vec::new();
     for line in text.lines() {

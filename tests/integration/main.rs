@@ -149,6 +149,7 @@ mod serve_stop;
 
 // Frozen models reduced: relative-entropy pruning and quantization.
 mod freeze_reduce;
+mod freeze_weights;
 
 // Corpus statistics against plain Python over the Gutenberg texts:
 // frequency lists and patterns (and the helpers of the next two).
