@@ -32,7 +32,8 @@ attempt of the task of input NAME at POINT, `scoring` (the quern process,
 after its first batch of results) or `commit` (the task itself, after its
 done.json is written and before the rename). Spark retries the task; the
 retry starts afresh in a new temporary folder, and the driver removes the
-temporary folders that killed attempts left once every task has ended.
+temporary folders that killed attempts left once every task has ended,
+naming them in the summary (`leftovers_removed`).
 
 Example:
 
@@ -331,10 +332,11 @@ def main(argv):
               file=sys.stderr)
         sc.stop()
         return 1
-    # Every task has ended: what is left of killed attempts goes.
-    for entry in os.listdir(out):
-        if entry.startswith(".tmp-"):
-            shutil.rmtree(os.path.join(out, entry), ignore_errors=True)
+    # Every task has ended: what is left of killed attempts goes (and is
+    # named, so that a task that leaves its own folder behind shows).
+    leftovers = sorted(e for e in os.listdir(out) if e.startswith(".tmp-"))
+    for entry in leftovers:
+        shutil.rmtree(os.path.join(out, entry), ignore_errors=True)
     summaries = []
     for name, _ in files:
         with open(os.path.join(out, name, "summary.json"), encoding="utf-8") as f:
@@ -344,6 +346,7 @@ def main(argv):
     merged["outputs"] = [os.path.join(out, n, "scores.jsonl") for n, _ in files]
     merged["seconds"] = round(time.time() - t0, 3)
     merged["tasks"] = sorted(results, key=lambda r: r["name"])
+    merged["leftovers_removed"] = leftovers
     line = json.dumps(merged, sort_keys=True)
     with open(os.path.join(out, "summary.json"), "w", encoding="utf-8") as f:
         f.write(line + "\n")

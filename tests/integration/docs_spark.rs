@@ -146,7 +146,10 @@ mod spark {
     /// SIGKILLed between writing its done.json and its commit: Spark
     /// retries both, every scored file equals the single-machine
     /// `quern score --model` of its input byte for byte, the killed tasks
-    /// report a second attempt, and no temporary folder is left.
+    /// report a second attempt, and the only temporary folder the driver
+    /// had to remove is the one of the task killed before its commit (the
+    /// quern process's own task removes its folder when quern fails), with
+    /// none left after.
     #[test]
     fn shipped_model_and_killed_tasks_equal_single_machine() {
         let submit = crate::spark::spark_submit();
@@ -224,6 +227,16 @@ mod spark {
             .stdout;
             assert!(got == want.as_bytes(), "{name}: Spark's output differs");
         }
+        let removed: Vec<&str> = merged["leftovers_removed"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_str().unwrap())
+            .collect();
+        assert!(
+            removed.len() == 1 && removed[0].starts_with(".tmp-part-2.jsonl-"),
+            "the driver removed {removed:?}; expected only the folder of part-2's killed attempt"
+        );
         let left: Vec<String> = std::fs::read_dir(&out)
             .unwrap()
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
