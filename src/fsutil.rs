@@ -107,19 +107,9 @@ fn read_checked_body(path: &Path) -> Result<Option<String>> {
     Ok(Some(text))
 }
 
-/// Reads a file written by [`write_checked_json`]: `Ok(None)` if it does
-/// not exist, [`crate::Error::Corrupt`] if its checksum line is missing or
-/// wrong or the JSON does not parse.
-pub fn read_checked_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Option<T>> {
-    match read_checked_body(path)? {
-        None => Ok(None),
-        Some(body) => serde_json::from_str(&body)
-            .map(Some)
-            .map_err(|e| crate::Error::corrupt(path, e.to_string())),
-    }
-}
-
-/// [`read_checked_json`] of a record with a top-level `format_version`,
+/// Reads a file written by [`write_checked_json`] (`Ok(None)` if it does
+/// not exist; [`crate::Error::Corrupt`] if its checksum line is missing or
+/// wrong or the JSON does not parse), a record with a top-level `format_version`,
 /// which must be `expected` or an older version that `upgrade` converts
 /// (see [`parse_upgraded`]).
 pub fn read_checked_json_upgraded<T: serde::de::DeserializeOwned>(

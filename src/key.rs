@@ -95,6 +95,7 @@ pub fn partition_of(first: WordId, parts: u32) -> u32 {
 }
 
 /// The smallest first-word id of partition `p` (of `parts`).
+#[cfg(test)]
 pub fn partition_start(p: u32, parts: u32) -> WordId {
     // Smallest x with floor(x * parts / 2^64) >= p, i.e. ceil(p * 2^64 / parts).
     let num = (p as u128) << 64;

@@ -1,65 +1,35 @@
 //! quern counts every n-gram up to order N of a large corpus in bounded
-//! memory, into an on-disk store that survives crashes, and serves counts,
-//! continuation counts, context statistics and count-of-counts from it.
+//! memory, into an on-disk store that survives crashes, and answers
+//! counts, smoothed probabilities, next words and document scores from it
+//! or from a frozen, memory-mapped model.
 //!
-//! # The pipeline
+//! # The API
 //!
-//! ```text
-//! inputs ──corpus──▶ lines ──tokenize──▶ ids ──count──▶ run files (shard)
-//!        ──merge::merge_partition──▶ merged counts + continuation runs
-//!        ──merge::join_partition──▶ SST files + statistics
-//!        ──store::build──▶ RocksDB store ──▶ store::Store (queries)
-//! ```
+//! Everything a program needs is named at the crate root:
 //!
-//! * [`corpus`] finds inputs, cuts plain files into line-aligned chunks and
-//!   reads lines with a hard length limit.
-//! * [`tokenize`] turns a line into the padded ids of its sentence;
-//!   [`words`] defines ids (xxh3-64 of the word) and collision detection.
-//! * [`count`] counts spans of input into bounded [`count::Table`]s and
-//!   spills them as [`shard`] run files: sorted, partitioned by the first
-//!   word's id, zstd-compressed and checksummed.
-//! * [`merge`] merges each partition's runs (k-way), shuffles continuation
-//!   contributions once, and derives every statistic in one ordered pass.
-//! * [`store`] writes and reads the RocksDB store.
-//! * [`discount`] defines the Kneser-Ney discounts from count-of-counts,
-//!   once, for the estimators and the statistics report.
-//! * [`arpa`] reads ARPA back-off text (a model made elsewhere), checking
-//!   every line; [`model`] turns it into a model file.
-//! * [`model`] freezes a method into a memory-mapped back-off model file
-//!   (and ARPA text) and answers queries from it. Reading a model needs
-//!   only the `model` feature: no RocksDB, no C++ compiler.
-//! * [`predict`] is what every language model answers, below the store:
-//!   the [`predict::Predictor`] trait, methods, one probability, the top
-//!   next words, held-out scoring and the JSON shapes.
-//! * [`query`] turns the store's statistics into smoothed probabilities
-//!   (nine estimators chosen at query time), top-K next words, prefix
-//!   pages, held-out scoring and parameter tuning.
-//! * [`scoring`] scores documents (JSON lines or plain lines) on many
-//!   threads, one result each in input order, with the distribution of
-//!   their perplexities and a split into kept and dropped ones (filtering
-//!   a crawl).
-//! * [`linguistics`] answers a corpus linguist from a store: frequency
-//!   lists, n-grams that fit a pattern, collocations by association
-//!   measure, keyness against a reference store; and streams concordance
-//!   lines from the corpus files.
-//! * [`vocab`] ranks a store's words for a vocabulary: coverage of the
-//!   training tokens and held-out rate outside, per size.
-//! * [`wordlist`] reads a fixed vocabulary (`--word-list`) and the copy a
-//!   store or a staged plan keeps of it.
-//! * [`growth`] records where each word is first seen while counting, and
-//!   turns that into the vocabulary growth curve kept in the store.
-//! * [`ingest`] drives the stages and records each durable step in a
-//!   manifest, so that an interrupted ingest resumes where it stopped.
-//! * [`serve`] answers queries over HTTP (JSON) from one shared store or
-//!   model, and serves a page to explore it.
-//! * [`stage`] runs the same stages as separate, idempotent tasks over a
-//!   shared directory, for a cluster scheduler (`scripts/spark_ingest.py`).
+//! * building a store: [`ingest()`] with [`IngestOptions`] (progress
+//!   through [`Progress`], or [`Silent`]), [`ingest_status`];
+//! * reading one: [`Store`] (counts, continuation counts, statistics,
+//!   words) and its [`StoreMeta`];
+//! * probabilities: an [`Estimator`] is one [`Method`] with its [`Params`]
+//!   over a store; a [`Model`] is a frozen one ([`freeze()`] with
+//!   [`FreezeOptions`], or [`freeze_arpa`] from ARPA text). Both are a
+//!   [`Predictor`]: [`Prob`], the top next words and completions
+//!   ([`Next`]), distributions;
+//! * held-out text: [`Scorer`] and its [`ScoreReport`]; documents on many
+//!   threads: [`score_text`] and [`score_texts`];
+//! * text: the [`Preparation`] a store records, applied to a query by
+//!   [`query_ids`]; words are [`WordId`]s ([`word_id`]);
+//! * errors: [`Error`] and [`Result`].
+//!
+//! With `default-features = false, features = ["model"]` the crate is the
+//! model runtime alone (no RocksDB): [`Model`], [`Predictor`], [`Scorer`],
+//! [`Preparation`]. The feature `capi` adds the C interface (`quern.h`).
 //!
 //! # Example
 //!
 //! ```no_run
-//! use quern::ingest::{ingest, IngestOptions, Silent};
-//! use quern::store::Store;
+//! use quern::{ingest, Estimator, IngestOptions, Method, Params, Predictor, Silent, Store};
 //!
 //! let mut opts = IngestOptions::new("/tmp/store", vec!["corpus.txt".into()]);
 //! opts.order = 3;
@@ -67,62 +37,139 @@
 //! ingest(&opts, &Silent)?;
 //! let store = Store::open("/tmp/store".as_ref())?;
 //! println!("{} sentences", store.meta().totals.sentences);
+//! let est = Estimator::new(&store, Method::Mkn, Params::default())?;
+//! let ids = quern::query_ids("<s> the ferry", &store.meta().settings.preparation);
+//! let p = est.prob(&ids[..ids.len() - 1], ids[ids.len() - 1])?;
+//! println!("P = {} ({} words matched)", p.p, p.matched());
 //! # Ok::<(), quern::Error>(())
+//! ```
+//!
+//! # Inside
+//!
+//! The modules are the crate's own (DEVELOPERS.md maps them); those the
+//! tests, benchmarks and fuzz targets reach are public but hidden from
+//! these docs, and are not part of the API.
+//!
+//! ```text
+//! inputs ──corpus──▶ lines ──tokenize──▶ ids ──count──▶ run files (shard)
+//!        ──merge──▶ merged counts + continuation runs ──▶ SST files + statistics
+//!        ──store──▶ RocksDB store ──query──▶ probabilities ──model──▶ frozen model
 //! ```
 #![deny(missing_docs)]
 #![deny(unsafe_code)]
+// The internal modules are shaped for the binary (and the Python module);
+// a build without the binary (the model runtime, the fuzz crate, a library
+// user's `store`) leaves parts of them unused.
+#![cfg_attr(not(feature = "cli"), allow(dead_code, unused_imports))]
+// The modules' own docs link each other for the next engineer
+// (`cargo doc --document-private-items`); the public docs do not show them.
+#![allow(rustdoc::private_intra_doc_links)]
 
+// The command line (`src/cli/`) is part of the library, so that the
+// library's modules need not be public for it; it names them `quern::`,
+// as a program using the crate would.
+extern crate self as quern;
+
+#[doc(hidden)]
 pub mod arpa;
 #[cfg(feature = "capi")]
+#[doc(hidden)]
 pub mod capi;
+#[cfg(feature = "cli")]
+mod cli;
+#[doc(hidden)]
 pub mod corpus;
 #[cfg(feature = "store")]
+#[doc(hidden)]
 pub mod count;
+#[doc(hidden)]
 pub mod discount;
+#[doc(hidden)]
 pub mod error;
+#[doc(hidden)]
 pub mod fault;
 #[cfg(feature = "store")]
-pub mod finish;
-pub mod fsutil;
+pub(crate) mod finish;
+pub(crate) mod fsutil;
 #[cfg(feature = "store")]
-pub mod growth;
-pub mod hint;
+pub(crate) mod growth;
+pub(crate) mod hint;
 #[cfg(feature = "store")]
+#[doc(hidden)]
 pub mod ingest;
-pub mod key;
-pub mod layout;
+pub(crate) mod key;
+pub(crate) mod layout;
 #[cfg(feature = "store")]
-pub mod linguistics;
+pub(crate) mod linguistics;
+#[doc(hidden)]
 pub mod memory;
 #[cfg(feature = "store")]
-pub mod merge;
+pub(crate) mod merge;
 #[cfg(feature = "model")]
+#[doc(hidden)]
 pub mod model;
-pub mod pool;
+pub(crate) mod pool;
+#[doc(hidden)]
 pub mod predict;
 #[cfg(feature = "python")]
-pub mod python;
+pub(crate) mod python;
 #[cfg(feature = "store")]
+#[doc(hidden)]
 pub mod query;
-pub mod records;
+pub(crate) mod records;
 #[cfg(feature = "model")]
+#[doc(hidden)]
 pub mod scoring;
-pub mod search;
+pub(crate) mod search;
 #[cfg(feature = "serve")]
+#[doc(hidden)]
 pub mod serve;
+#[doc(hidden)]
 pub mod shard;
 #[cfg(feature = "store")]
-pub mod stage;
+pub(crate) mod stage;
 #[cfg(feature = "store")]
+#[doc(hidden)]
 pub mod stats;
 #[cfg(feature = "store")]
+#[doc(hidden)]
 pub mod store;
+#[doc(hidden)]
 pub mod tokenize;
-pub mod topk;
-pub mod varint;
+pub(crate) mod topk;
+pub(crate) mod varint;
 #[cfg(feature = "store")]
-pub mod vocab;
-pub mod wordlist;
+pub(crate) mod vocab;
+pub(crate) mod wordlist;
+#[doc(hidden)]
 pub mod words;
 
 pub use error::{Error, Result};
+#[cfg(feature = "store")]
+pub use ingest::{
+    ingest, status as ingest_status, IngestOptions, IngestStatus, IngestSummary, Progress, Silent,
+};
+#[cfg(feature = "store")]
+pub use model::{freeze, freeze_arpa, FreezeOptions, FreezeReport};
+#[cfg(feature = "model")]
+pub use model::{Model, ModelMeta, Residence};
+pub use predict::{
+    DiscountPolicy, Method, Next, Params, ParamsFile, Predictor, Prob, ScoreReport, Scorer,
+    SentenceScore,
+};
+#[cfg(feature = "store")]
+pub use query::Estimator;
+#[cfg(feature = "model")]
+pub use scoring::{score_text, score_texts};
+#[cfg(feature = "store")]
+pub use store::{Store, StoreMeta};
+pub use tokenize::{query_ids, Preparation};
+pub use words::{word_id, WordId};
+
+/// The `quern` binary's `main` (feature `cli`): parses the command line,
+/// runs the command, prints an error and returns exit status 2 on failure.
+#[cfg(feature = "cli")]
+#[doc(hidden)]
+pub fn run_cli() -> std::process::ExitCode {
+    cli::main()
+}

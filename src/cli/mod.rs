@@ -8,7 +8,32 @@ mod progress;
 mod stage_args;
 mod values;
 
+use std::process::ExitCode;
+
 use clap::Parser;
+
+/// The binary's `main`: runs the command line and turns its error into
+/// a message and exit status 2.
+pub fn main() -> ExitCode {
+    match run() {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            // A closed pipe (`quern dump | head`) is not an error.
+            let broken = |k: Option<std::io::ErrorKind>| k == Some(std::io::ErrorKind::BrokenPipe);
+            if e.chain().any(|c| {
+                broken(c.downcast_ref::<std::io::Error>().map(|io| io.kind()))
+                    || broken(
+                        c.downcast_ref::<serde_json::Error>()
+                            .and_then(|j| j.io_error_kind()),
+                    )
+            }) {
+                return ExitCode::SUCCESS;
+            }
+            eprintln!("quern: error: {e:#}");
+            ExitCode::from(2)
+        }
+    }
+}
 
 /// Parses the command line and runs the subcommand.
 pub fn run() -> anyhow::Result<()> {

@@ -18,7 +18,7 @@
 
 mod vocab;
 
-pub use vocab::{merge_dicts, merge_vocabulary};
+pub use vocab::merge_vocabulary;
 
 use std::path::{Path, PathBuf};
 

@@ -54,19 +54,9 @@ impl Pattern {
         Ok(Pattern { slots })
     }
 
-    /// A pattern from its positions.
-    pub fn from_slots(slots: Vec<Option<WordId>>) -> Pattern {
-        Pattern { slots }
-    }
-
     /// Number of positions (the order it matches).
     pub fn len(&self) -> usize {
         self.slots.len()
-    }
-
-    /// No positions.
-    pub fn is_empty(&self) -> bool {
-        self.slots.is_empty()
     }
 
     /// Per position the word, or `None` for `*`.

@@ -25,4 +25,4 @@ mod partition;
 
 pub use join::join_partition;
 pub use kway::{KWayMerge, RecordSource};
-pub use partition::{merge_partition, reduce_sources, MergeConfig};
+pub use partition::{merge_partition, MergeConfig};

@@ -54,7 +54,7 @@ mod plan;
 mod tasks;
 
 pub use assemble::run_assemble;
-pub use commit::{clean, read_done, Done, FileSum, Outcome, TaskReport};
+pub use commit::clean;
 pub use plan::{plan, Job, PlanOptions};
 pub use tasks::{run_join, run_map, run_merge};
 

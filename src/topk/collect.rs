@@ -22,12 +22,8 @@ impl<W: Copy> TopK<W> {
         }
     }
 
-    /// K.
-    pub fn k(&self) -> usize {
-        self.k
-    }
-
     /// How many candidates were scored so far.
+    #[cfg(test)]
     pub fn scored(&self) -> usize {
         self.scored
     }

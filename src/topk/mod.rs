@@ -46,4 +46,4 @@ mod collect;
 mod prefix;
 
 pub use collect::TopK;
-pub use prefix::{BestFirst, PrefixIndex};
+pub use prefix::PrefixIndex;

@@ -47,11 +47,6 @@ impl PrefixIndex {
         self.tree.len() / 2
     }
 
-    /// No words held.
-    pub fn is_empty(&self) -> bool {
-        self.tree.is_empty()
-    }
-
     /// The ranks in byte order of their texts.
     pub fn by_bytes(&self) -> &[u32] {
         &self.tree[self.len()..]
