@@ -8,7 +8,7 @@ use clap::{Args, Parser, Subcommand};
 use quern::query::{DiscountPolicy, Method};
 
 pub use super::corpus_args::{CollocationsArgs, KeynessArgs, LinesArgs, ListFormatArgs, TopArgs};
-pub use super::input_args::{InputArgs, PreparationArgs};
+pub use super::input_args::{DocumentArgs, InputArgs, PreparationArgs};
 pub use super::stage_args::StageCommand;
 use super::values::{self, method_list, size_syntax, ByteSize};
 

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::args::QueryStoreArgs;
+use super::args::{DocumentArgs, QueryStoreArgs};
 
 /// How a list is written: TSV by default.
 #[derive(Args, Debug, Clone, Copy)]
@@ -106,6 +106,8 @@ pub struct LinesArgs {
     /// Words and `*` (any one word), e.g. "the * of".
     #[arg(long, value_name = "PATTERN")]
     pub pattern: String,
+    #[command(flatten)]
+    pub documents: DocumentArgs,
     /// Words of context on each side.
     #[arg(long, value_name = "K", default_value_t = 5)]
     pub context: usize,

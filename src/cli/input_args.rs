@@ -49,8 +49,22 @@ pub struct InputArgs {
     /// Skip (and report) lines longer than this many bytes.
     #[arg(long, value_name = "BYTES", default_value_t = 1 << 20)]
     pub max_line_bytes: usize,
+    #[command(flatten)]
+    pub documents: DocumentArgs,
+}
+
+impl InputArgs {
+    /// How the lines hold documents.
+    pub fn format(&self) -> quern::corpus::Format {
+        self.documents.format()
+    }
+}
+
+/// Whether the input lines are documents in JSON (ingest, stage, lines).
+#[derive(Args, Debug, Clone)]
+pub struct DocumentArgs {
     /// The inputs are JSON lines, one document a line: the text field of
-    /// each (a string) is counted, its lines as sentences. A line that holds
+    /// each (a string) is read, its lines as sentences. A line that holds
     /// no document is named, counted and skipped. Default: plain text, a
     /// line a sentence.
     #[arg(long)]
@@ -60,7 +74,7 @@ pub struct InputArgs {
     pub text_field: String,
 }
 
-impl InputArgs {
+impl DocumentArgs {
     /// How the lines hold documents.
     pub fn format(&self) -> quern::corpus::Format {
         if self.jsonl {

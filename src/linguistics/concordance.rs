@@ -5,12 +5,16 @@
 //!
 //! Files are read as an ingest reads them ([`crate::corpus`]: plain,
 //! `.gz` or `.zst`; lines end at `\n`, one `\r` before it dropped; a line
-//! longer than the store's limit is skipped, yet numbered). Each line is
-//! tokenized by the ingest's own [`Tokenizer::sentence`] with the store's
-//! settings, so an occurrence is an occurrence of an n-gram the store
-//! counted: over the same files, the number of occurrences of an n-gram is
-//! its count. Patterns match the padded sentence, so `<s>` and `</s>` may
-//! appear in them; contexts are the line's words only.
+//! longer than the store's limit is skipped, yet numbered). Each line is a
+//! document ([`read_document`]: the line itself, or the text field of a
+//! JSON line; a JSON line that holds no document is skipped, as the ingest
+//! skips it) and is tokenized by the ingest's own [`Tokenizer::document`]
+//! with the store's whole text preparation (normalization, case, tokens,
+//! digits, sentences), so an occurrence is an occurrence of an n-gram the
+//! store counted: over the same files, the number of occurrences of an
+//! n-gram is its count. Patterns match each padded sentence, so `<s>` and
+//! `</s>` may appear in them; contexts are the sentence's tokens only, as
+//! the store has them (prepared).
 //!
 //! # Speed
 //!
@@ -20,15 +24,24 @@
 //! word (by its count in the store) is first looked for as bytes, and only
 //! the lines that hold it are tokenized. That filter never loses a line:
 //!
-//! - without lowercasing a token equal to the word holds its bytes;
+//! - without normalization (which may map other characters to the
+//!   word's: `--normalize` turns the filter off) and without lowercasing,
+//!   a token equal to the word holds its bytes (splitting at word
+//!   boundaries keeps a token's bytes; with `--digits zero` a word
+//!   without `0` came from a token without digits);
 //! - with lowercasing and a word of ASCII only, the token is made of
 //!   characters whose lowercase is ASCII: ASCII letters, whose ASCII
 //!   lowercase the filter searches, and U+212A KELVIN SIGN (the only other
 //!   one, by Python's `unicodedata`: a test checks it), whose lines are
 //!   always tokenized.
 //!
+//! - in JSON lines, a text's characters appear as they are unless
+//!   escaped: a word with `"`, `\\`, `/` or a control character is not
+//!   looked for, and a line holding a `\u` escape is always read.
+//!
 //! Without such a word (only `*` and markers, or a word with non-ASCII
-//! letters in a lowercased store, or U+FFFD) every line is tokenized.
+//! letters in a lowercased store, or U+FFFD, or a normalizing store) every
+//! line is tokenized.
 //! Memory: a batch of blocks (threads × 2 × [`BLOCK`]) and the matches of
 //! one batch.
 
@@ -38,10 +51,10 @@ use memchr::memmem;
 use rayon::prelude::*;
 
 use super::pattern::Pattern;
-use crate::corpus::{open_at, InputFile};
+use crate::corpus::{open_at, read_document, Format, InputFile};
 use crate::error::{Error, Result};
 use crate::store::Store;
-use crate::tokenize::Tokenizer;
+use crate::tokenize::{Digits, Normalize, Preparation, Tokenizer};
 use crate::words::{bos_id, eos_id, unk_id, Dictionary, WordId, BOS, EOS, UNK};
 
 /// Bytes of text a block holds (more when a line is longer); the test
@@ -81,7 +94,8 @@ pub struct Searched {
 /// A pattern ready to be searched for in text prepared as `store`'s.
 pub struct Concordancer {
     pattern: Pattern,
-    lowercase: bool,
+    prep: Preparation,
+    format: Format,
     max_line: usize,
     context: usize,
     /// The bytes every matching line holds (after ASCII lowercasing when
@@ -91,8 +105,14 @@ pub struct Concordancer {
 
 impl Concordancer {
     /// The search for `pattern` (as written by the user) with `context`
-    /// words of context a side, in text prepared as `store`'s.
-    pub fn new(store: &Store, pattern: &str, context: usize) -> Result<Concordancer> {
+    /// words of context a side, in text prepared as `store`'s, read as
+    /// `format` (plain lines or JSON lines).
+    pub fn new(
+        store: &Store,
+        pattern: &str,
+        context: usize,
+        format: Format,
+    ) -> Result<Concordancer> {
         let settings = &store.meta().settings;
         if settings.word_list.is_some() {
             return Err(Error::Config(format!(
@@ -102,19 +122,8 @@ impl Concordancer {
             )));
         }
         let prep = settings.preparation;
-        let plain = crate::tokenize::Preparation {
-            lowercase: prep.lowercase,
-            ..Default::default()
-        };
-        if prep != plain {
-            return Err(Error::Config(format!(
-                "{} was counted with the text preparation {}; concordance lines follow \
-                 stores whose only preparation step is --lowercase",
-                store.dir().display(),
-                prep.describe()
-            )));
-        }
         let lowercase = prep.lowercase;
+        let json = !format.is_lines();
         let parsed = Pattern::parse(pattern, &prep)?;
         // The rarest fixed word that can be looked for as bytes.
         let mut best: Option<(u64, Vec<u8>)> = None;
@@ -125,7 +134,14 @@ impl Concordancer {
             }
             let word = if raw == r"\*" { "*" } else { raw };
             let word = crate::tokenize::normalise(word, lowercase);
-            let usable = !word.contains('\u{FFFD}') && (!lowercase || word.is_ascii());
+            let usable = !word.contains('\u{FFFD}')
+                && (!lowercase || word.is_ascii())
+                && prep.normalize == Normalize::None
+                && (prep.digits == Digits::Keep || !word.contains('0'))
+                && !(json
+                    && word
+                        .chars()
+                        .any(|c| matches!(c, '"' | '\\' | '/') || c < ' '));
             if !usable {
                 continue;
             }
@@ -136,7 +152,8 @@ impl Concordancer {
         }
         Ok(Concordancer {
             pattern: parsed,
-            lowercase,
+            prep,
+            format,
             max_line: settings.max_line_bytes,
             context,
             needle: best.map(|b| b.1),
@@ -200,12 +217,11 @@ impl Concordancer {
             lines: ends + unended as u64,
             ..Default::default()
         };
-        let tok = Tokenizer::new(crate::tokenize::Preparation {
-            lowercase: self.lowercase,
-            ..Default::default()
-        });
+        let tok = Tokenizer::new(self.prep);
+        let lowercase = self.prep.lowercase;
+        let json = !self.format.is_lines();
         let mut dict = Dictionary::new();
-        let mut ids = Vec::new();
+        let (mut ids, mut ends) = (Vec::new(), Vec::new());
         let mut line_no = 0u64;
         let mut counted_to = 0usize;
         let mut each_line = |start: usize, out: &mut BlockResult| -> Result<usize> {
@@ -219,8 +235,15 @@ impl Concordancer {
             if line.len() <= self.max_line {
                 let line = line.strip_suffix(b"\r").unwrap_or(line);
                 out.tokenized += 1;
-                tok.sentence(line, &mut dict, &mut ids)?;
-                self.matches_in(file, line_no, &ids, &dict, &mut out.found);
+                // A JSON line without a document is skipped, as counted.
+                if let Ok(doc) = read_document(&self.format, line) {
+                    tok.document(&doc.text, &mut dict, &mut ids, &mut ends)?;
+                    let mut start = 0;
+                    for &end in &ends {
+                        self.matches_in(file, line_no, &ids[start..end], &dict, &mut out.found);
+                        start = end;
+                    }
+                }
             }
             Ok(end + 1)
         };
@@ -233,29 +256,35 @@ impl Concordancer {
             }
             Some(needle) => {
                 let lowered;
-                let hay: &[u8] = if self.lowercase {
+                let hay: &[u8] = if lowercase {
                     lowered = text.to_ascii_lowercase();
                     &lowered
                 } else {
                     text
                 };
                 let finder = memmem::Finder::new(needle);
-                let kelvin = memmem::Finder::new(KELVIN);
-                // The next Kelvin sign at or after `at` (lowercasing only).
-                let mut kel: Option<usize> = None;
+                // Lines always read: with lowercasing, those holding a
+                // Kelvin sign; in JSON lines, those holding a \u escape.
+                // next[i]: where marker i is next found at or after `at`.
+                let mut markers: Vec<memmem::Finder> = Vec::new();
+                if lowercase {
+                    markers.push(memmem::Finder::new(KELVIN));
+                }
+                if json {
+                    markers.push(memmem::Finder::new(b"\\u"));
+                }
+                let mut next: Vec<Option<usize>> = markers.iter().map(|m| m.find(text)).collect();
                 let mut at = 0;
                 while at < text.len() {
                     let mut hit = finder.find(&hay[at..]).map(|h| at + h);
-                    if self.lowercase {
-                        if kel.is_none_or(|k| k < at) {
-                            kel = kelvin.find(&text[at..]).map(|h| at + h);
-                            if kel.is_none() {
-                                kel = Some(usize::MAX);
-                            }
+                    for (m, n) in markers.iter().zip(next.iter_mut()) {
+                        if n.is_some_and(|k| k < at) {
+                            *n = m.find(&text[at..]).map(|h| at + h);
                         }
-                        let k = kel.unwrap_or(usize::MAX);
-                        if k != usize::MAX && hit.is_none_or(|h| k < h) {
-                            hit = Some(k);
+                        if let Some(k) = *n {
+                            if hit.is_none_or(|h| k < h) {
+                                hit = Some(k);
+                            }
                         }
                     }
                     let Some(h) = hit else { break };

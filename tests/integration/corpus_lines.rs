@@ -248,3 +248,151 @@ fn limit_sample_and_sort() {
         );
     }
 }
+
+/// `ngrams --pattern` counts of a store, by n-gram.
+fn stored_counts(store: &std::path::Path, pattern: &str) -> BTreeMap<String, u64> {
+    quern_json(&[
+        s("ngrams"),
+        s("--store"),
+        store.display().to_string(),
+        s("--pattern"),
+        s(pattern),
+        s("--limit"),
+        s("10000000"),
+        s("--json"),
+    ])
+    .into_iter()
+    .map(|v| {
+        (
+            v["ngram"].as_str().unwrap().to_string(),
+            v["count"].as_u64().unwrap(),
+        )
+    })
+    .collect()
+}
+
+/// The occurrences `lines` finds, by matched n-gram.
+fn occurrences(args: &[String], env: &[(&str, &str)]) -> BTreeMap<String, u64> {
+    let r = run_env(args, env);
+    r.assert_success();
+    let mut seen: BTreeMap<String, u64> = BTreeMap::new();
+    for v in json_lines(&r.stdout) {
+        *seen
+            .entry(v["match"].as_str().unwrap().to_string())
+            .or_default() += 1;
+    }
+    seen
+}
+
+/// A JSON string holding `text`; with `escape_t`, every `t` written as
+/// `\u0074` and every `/` as `\/` (both valid JSON, RFC 8259 section 7), so
+/// that the word's bytes do not appear in the line.
+fn json_string(text: &str, escape_t: bool) -> String {
+    let mut out = String::from("\"");
+    for c in text.chars() {
+        match c {
+            '"' => out.push_str("\\\""),
+            '\\' => out.push_str("\\\\"),
+            't' if escape_t => out.push_str("\\u0074"),
+            '/' if escape_t => out.push_str("\\/"),
+            c if (c as u32) < 0x20 => out.push_str(&format!("\\u{:04x}", c as u32)),
+            c => out.push(c),
+        }
+    }
+    out.push('"');
+    out
+}
+
+/// Under the whole text preparation (NFKC, Unicode word tokens, lowercase,
+/// digits to 0, sentences split at UAX #29 boundaries) and from JSON lines
+/// (documents of three lines, every seventh with escapes that hide words'
+/// bytes, and lines that hold no document), the occurrences of every
+/// n-gram a pattern matches are its count in a store counted from the
+/// same input; and under word tokens alone, from plain text and from the
+/// JSON lines, where the byte filter is on. Source: the store's counts, which the reference counter
+/// checks elsewhere; these runs check that `lines` reads the text as the
+/// ingest did.
+#[test]
+fn prepared_and_json_lines_occurrences_equal_counts() {
+    let tmp = tempfile::tempdir().unwrap();
+    let files = gutenberg_files(2);
+    let mut text = String::new();
+    for f in &files {
+        text.push_str(&std::fs::read_to_string(f).unwrap());
+    }
+    let lines: Vec<&str> = text.lines().collect();
+    let mut jsonl = String::new();
+    for (i, doc) in lines.chunks(3).enumerate() {
+        if i % 101 == 50 {
+            jsonl.push_str("not a document\n{\"id\": 1}\n");
+            // Digits (fullwidth too, which NFKC makes ASCII) for "0000 *".
+            jsonl.push_str(
+                "{\"text\": \"In \\uff11\\uff18\\uff11\\uff11 and 1812 the year 1813.\"}\n",
+            );
+        }
+        let body = json_string(&doc.join("\n"), i % 7 == 0);
+        jsonl.push_str(&format!("{{\"id\": {i}, \"text\": {body}}}\n"));
+    }
+    let json_file = tmp.path().join("docs.jsonl");
+    std::fs::write(&json_file, jsonl).unwrap();
+    let json_files = vec![json_file];
+    let prepared = tmp.path().join("prepared");
+    let prep = [
+        "--order",
+        "3",
+        "--normalize",
+        "nfkc",
+        "--tokens",
+        "words",
+        "--lowercase",
+        "--digits",
+        "zero",
+        "--sentences",
+        "split",
+    ];
+    ingest_ok(&prepared, &[&prep[..], &["--jsonl"]].concat(), &json_files);
+    let words = tmp.path().join("words");
+    ingest_ok(&words, &["--order", "3", "--tokens", "words"], &files);
+    // JSON lines without normalization: the byte filter is on, and the
+    // escaped documents must still be read.
+    let json_words = tmp.path().join("json-words");
+    ingest_ok(
+        &json_words,
+        &[
+            "--order",
+            "3",
+            "--tokens",
+            "words",
+            "--lowercase",
+            "--jsonl",
+        ],
+        &json_files,
+    );
+    for (store, inputs, jsonl) in [
+        (&prepared, &json_files, true),
+        (&words, &files, false),
+        (&json_words, &json_files, true),
+    ] {
+        for pattern in [
+            "Harriet", "the * of", "* of the", "she *", ", and *", "0000 *",
+        ] {
+            let stored = stored_counts(store, pattern);
+            if pattern != "0000 *" || store == &prepared {
+                assert!(!stored.is_empty(), "{pattern:?}: nothing stored");
+            }
+            // The byte filter's route: on for plain words, off for "0000 *"
+            // under --digits zero (and for all under NFKC).
+            let mut args = lines_args(store, pattern, 1, inputs);
+            if jsonl {
+                args.push(s("--jsonl"));
+            }
+            for env in [&[][..], &[("QUERN_CHUNK_BYTES", "4000")][..]] {
+                assert_eq!(
+                    occurrences(&args, env),
+                    stored,
+                    "{pattern:?} (JSON lines {jsonl}, {env:?}): occurrences against counts"
+                );
+            }
+        }
+    }
+}

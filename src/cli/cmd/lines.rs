@@ -54,7 +54,7 @@ enum Mode {
 pub fn run(a: LinesArgs) -> anyhow::Result<()> {
     let store = open_store(&a.store)?;
     let files = discover(&a.inputs)?;
-    let conc = Concordancer::new(&store, &a.pattern, a.context)?;
+    let conc = Concordancer::new(&store, &a.pattern, a.context, a.documents.format())?;
     if a.limit == Some(0) || a.sample == Some(0) {
         bail!("--limit and --sample must be at least 1");
     }
