@@ -129,6 +129,10 @@ mod freeze;
 mod freeze_arpa;
 mod freeze_files;
 
+// The model file's specification in DEVELOPERS.md is complete: an
+// independent Python reader written from it answers as the CLI.
+mod model_spec;
+
 // `freeze --from-arpa`: store → ARPA → model answers like the model frozen
 // directly (orders 3 and 5); malformed ARPA files refused at their line.
 mod arpa_read;
