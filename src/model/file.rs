@@ -86,6 +86,15 @@ impl Model {
         want_len(&ids, meta.ngrams[0] * 8, "word ids", &bad)?;
         want_len(&offsets, (nw as u64 + 1) * 8, "word offsets", &bad)?;
         want_len(&ranking, meta.vocabulary * 4, "unigram ranking", &bad)?;
+        // The ranking's checksum was read whole; its word indices are
+        // used to index the unigrams, so they are checked here too.
+        let rk = &b[ranking.clone()];
+        if let Some(i) = (0..meta.vocabulary as usize).find(|&i| u32_at(rk, i) as usize >= nw) {
+            return Err(bad(format!(
+                "the unigram ranking holds word index {} at {i}, past the {nw} words",
+                u32_at(rk, i)
+            )));
+        }
         let width = width_for(nw.saturating_sub(1) as u64);
         let orders = read_orders(b, &dir, &meta, width, &bad)?;
         let id_bytes = &b[ids.clone()];
@@ -233,9 +242,15 @@ impl Model {
         &t[a..z]
     }
 
-    /// The id of word index `x`.
+    /// The id of word index `x` (0 for an index out of range, which only
+    /// an unverified damaged array gives).
     pub(crate) fn id_at(&self, x: u32) -> WordId {
-        u64_at(&self.map[self.ids.clone()], x as usize)
+        let ids = &self.map[self.ids.clone()];
+        if (x as usize) < self.nw {
+            u64_at(ids, x as usize)
+        } else {
+            0
+        }
     }
 
     /// The text of word index `x` (lossy for damaged bytes).

@@ -133,6 +133,10 @@ mod freeze_files;
 // independent Python reader written from it answers as the CLI.
 mod model_spec;
 
+// A truncated or damaged model file is refused on open or answers with
+// errors, never a panic (checksums resealed so damage reaches the queries).
+mod model_damage;
+
 // `freeze --from-arpa`: store → ARPA → model answers like the model frozen
 // directly (orders 3 and 5); malformed ARPA files refused at their line.
 mod arpa_read;

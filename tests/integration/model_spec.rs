@@ -139,7 +139,10 @@ fn independent_reader_answers_as_the_cli() {
     let (s, m) = check(train3(), "mkn3.model", &[], 3000);
     assert_eq!(s["value_bits"], 32);
     // Words outside V, and matches of every length 1..=3.
-    assert!(m[0] > 100 && m[1] > 100 && m[2] > 100 && m[3] > 100, "{m:?}");
+    assert!(
+        m[0] > 100 && m[1] > 100 && m[2] > 100 && m[3] > 100,
+        "{m:?}"
+    );
 
     let (s, m) = check(train5(), "mkn5.model", &[], 3000);
     assert!(m[4] > 20 && m[5] > 20, "{m:?} {s}");
