@@ -51,6 +51,9 @@ pub struct Model {
     id_dir: IdDirectory,
     /// Search structures built on first use (`super::complete`).
     completion: Box<Completion>,
+    /// The word indices of the metadata's never-suggest words that are in
+    /// V, increasing.
+    never: Vec<u32>,
 }
 
 impl Model {
@@ -114,6 +117,7 @@ impl Model {
             bos: 0,
             unk: 0,
             completion: Default::default(),
+            never: Vec::new(),
         };
         let need = |m: &Model, id: WordId, what: &str| {
             m.index_of(id)
@@ -121,6 +125,13 @@ impl Model {
         };
         m.bos = need(&m, bos_id(), "<s>")?;
         m.unk = need(&m, unk_id(), "<unk>")?;
+        let mut never: Vec<u32> = (m.meta.never_suggest.iter())
+            .filter_map(|w| m.index_of(crate::words::word_id(w.as_bytes())))
+            .filter(|&x| x != m.bos)
+            .collect();
+        never.sort_unstable();
+        never.dedup();
+        m.never = never;
         Ok(m)
     }
 
@@ -192,6 +203,12 @@ impl Model {
     #[inline]
     pub(crate) fn unk_index(&self) -> u32 {
         self.unk
+    }
+
+    /// The word indices never suggested (stored in the metadata),
+    /// increasing.
+    pub(crate) fn never_suggested(&self) -> &[u32] {
+        &self.never
     }
 
     /// The lazily built search structures.

@@ -3,8 +3,11 @@
 //! model (`crate::model::Model`, which implements it there: the model
 //! depends on the query layer, never the reverse) alike.
 
+use std::collections::HashSet;
+
 use crate::error::Result;
 use crate::tokenize::Preparation;
+use crate::topk::PrefixMatch;
 use crate::words::WordId;
 
 use super::{Estimator, Method, Next, Prob};
@@ -44,7 +47,26 @@ pub trait Predictor {
     /// scores all of V ([`Predictor::distribution`]): exact but slow;
     /// implementations override it with a faster exact search.
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        self.complete_matching(context, prefix, PrefixMatch::Exact, k)
+    }
+
+    /// [`Predictor::complete`], the prefix matching as `matching` says:
+    /// with [`PrefixMatch::Folded`], the words whose folded text begins
+    /// with the folded prefix (case and accents aside:
+    /// [`crate::topk::fold`]), each shown as the model has it.
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
         let prefix = self.preparation().prefix(prefix);
+        let folded = crate::topk::fold(&prefix);
+        let matches = |text: &str| match matching {
+            PrefixMatch::Exact => text.starts_with(prefix.as_str()),
+            PrefixMatch::Folded => crate::topk::fold(text).starts_with(folded.as_str()),
+        };
         let (bos, unk, eos) = (
             crate::words::bos_id(),
             crate::words::unk_id(),
@@ -59,7 +81,7 @@ pub trait Predictor {
                 continue;
             }
             let Some(text) = self.word(w)? else { continue };
-            if text.starts_with(prefix.as_str()) {
+            if matches(&text) {
                 top.take_all([Ok::<_, std::convert::Infallible>((p, texts.len()))])
                     .unwrap_or_else(|e| match e {});
                 texts.push((w, text));
@@ -69,6 +91,29 @@ pub trait Predictor {
         let best = best.into_iter().map(|(p, i)| (p, texts[i].0)).collect();
         let ctx = self.next(context, 0)?.context;
         Ok(Next::from_best(ctx, best, scored))
+    }
+
+    /// [`Predictor::complete_matching`] with the words of `never` left
+    /// out (offensive or private words): the best `k` of the others,
+    /// exact (the best `k + |never|` hold them), their probabilities
+    /// unchanged; `rest` is 1 − the sum shown.
+    fn suggest(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        never: &HashSet<WordId>,
+        k: usize,
+    ) -> Result<Next> {
+        if never.is_empty() {
+            return self.complete_matching(context, prefix, matching, k);
+        }
+        let mut next =
+            self.complete_matching(context, prefix, matching, k.saturating_add(never.len()))?;
+        next.items.retain(|(w, _)| !never.contains(w));
+        next.items.truncate(k);
+        next.rest = 1.0 - next.items.iter().map(|x| x.1).sum::<f64>();
+        Ok(next)
     }
 }
 
@@ -111,6 +156,15 @@ impl<P: Predictor + ?Sized> Predictor for &P {
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         (**self).complete(context, prefix, k)
     }
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        (**self).complete_matching(context, prefix, matching, k)
+    }
 }
 
 impl Predictor for Estimator<'_> {
@@ -149,5 +203,14 @@ impl Predictor for Estimator<'_> {
     }
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         Estimator::complete(self, context, prefix, k)
+    }
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        Estimator::complete_matching(self, context, prefix, matching, k)
     }
 }

@@ -137,6 +137,10 @@ mod model_spec;
 // errors, never a panic (checksums resealed so damage reaches the queries).
 mod model_damage;
 
+// What typing needs: folded completion against Python's folding, the
+// never-suggest list, `freeze --max-bytes`.
+mod typing;
+
 // `freeze --from-arpa`: store → ARPA → model answers like the model frozen
 // directly (orders 3 and 5); malformed ARPA files refused at their line.
 mod arpa_read;
