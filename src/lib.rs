@@ -15,7 +15,7 @@
 //!   over a store; a [`Model`] is a frozen one ([`freeze()`] with
 //!   [`FreezeOptions`], or [`freeze_arpa`] from ARPA text). Both are a
 //!   [`Predictor`]: [`Prob`], the top next words and completions
-//!   ([`Next`]), distributions;
+//!   ([`Next`], prefixes matched as [`PrefixMatch`] says), distributions;
 //! * held-out text: [`Scorer`] and its [`ScoreReport`]; documents on many
 //!   threads: [`score_text`] and [`score_texts`];
 //! * text: the [`Preparation`] a store records, applied to a query by
@@ -164,6 +164,7 @@ pub use scoring::{score_text, score_texts};
 #[cfg(feature = "store")]
 pub use store::{Store, StoreMeta};
 pub use tokenize::{query_ids, Preparation};
+pub use topk::PrefixMatch;
 pub use words::{word_id, WordId};
 
 /// The `quern` binary's `main` (feature `cli`): parses the command line,

@@ -278,6 +278,17 @@ pub struct NextArgs {
     /// (any word).
     #[arg(long, value_name = "CHARS", default_value = "")]
     pub prefix: String,
+    /// How the prefix matches: `exact` (the word begins with its
+    /// characters) or `folded` (regardless of case and accents: Unicode
+    /// case folding, then NFD with the combining marks removed, on both
+    /// sides; each word shown as the model has it).
+    #[arg(long = "match", value_name = "HOW", default_value = "exact", value_parser = values::prefix_match)]
+    pub matching: quern::PrefixMatch,
+    /// Never show the words of FILE (one a line, as the model has them):
+    /// the best words of the others, with their probabilities unchanged.
+    /// A model's own list (`freeze --never-suggest`) applies as well.
+    #[arg(long, value_name = "FILE")]
+    pub never_suggest: Option<PathBuf>,
     /// One JSON object instead of a table (in batch mode, one a line).
     /// Default: a table (in batch mode, TSV with a header line).
     #[arg(long)]
@@ -631,6 +642,17 @@ pub struct FreezeArgs {
     /// that keeps at most N n-grams in all (unigrams included).
     #[arg(long, value_name = "N")]
     pub max_ngrams: Option<u64>,
+    /// The largest model whose file takes at most SIZE: the pruning
+    /// threshold (relative entropy) is searched; with --bits, for the
+    /// quantized model. With --heldout, its perplexity is reported.
+    /// SIZE: as for --memory.
+    #[arg(long, value_name = "SIZE", value_parser = values::byte_size, conflicts_with_all = ["relative_entropy", "max_ngrams"])]
+    pub max_bytes: Option<ByteSize>,
+    /// Words the model never suggests in `next` and completion (offensive
+    /// or private words; one a line, as the model has them): stored in
+    /// the model, still used as context, and no probability changes.
+    #[arg(long, value_name = "FILE")]
+    pub never_suggest: Option<PathBuf>,
     /// Quantize the probabilities of orders 2..N to B bits (2..16), fitted
     /// per order; the back-off weights are recomputed after.
     #[arg(long, value_name = "B")]

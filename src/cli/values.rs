@@ -43,6 +43,11 @@ pub fn method(s: &str) -> Result<Method, quern::Error> {
     s.parse()
 }
 
+/// clap's parser of how a typed prefix matches (`exact` or `folded`).
+pub fn prefix_match(s: &str) -> Result<quern::PrefixMatch, String> {
+    s.parse()
+}
+
 /// clap's parser of a discount policy.
 pub fn discount_policy(s: &str) -> Result<DiscountPolicy, quern::Error> {
     s.parse()

@@ -19,6 +19,7 @@ const SHARDS: usize = 16;
 #[derive(Default)]
 pub struct Completion {
     text: OnceLock<TextIndex>,
+    folded: OnceLock<TextIndex>,
     ranked: [Shard; SHARDS],
     ranked_entries: AtomicUsize,
 }
@@ -44,12 +45,20 @@ pub(super) struct TextIndex {
     pub index: PrefixIndex,
     /// Per word index: its place in byte order (`u32::MAX`: a marker).
     pub place: Vec<u32>,
+    /// The folded texts in `order` (empty in the index of the words'
+    /// own texts), which `index` is over.
+    pub folded: Vec<Box<str>>,
 }
 
 impl Completion {
     /// The text index, built by `build` on first use.
     pub(super) fn text(&self, build: impl FnOnce() -> TextIndex) -> &TextIndex {
         self.text.get_or_init(build)
+    }
+
+    /// The index of the folded texts, built by `build` on first use.
+    pub(super) fn folded(&self, build: impl FnOnce() -> TextIndex) -> &TextIndex {
+        self.folded.get_or_init(build)
     }
 
     /// The ranked children list under `key`, made by `rank` on first use.

@@ -28,7 +28,9 @@
 //!
 //! Markers: a completion never suggests `<s>` or `<unk>`, and `</s>` only
 //! for an empty prefix. [`Model::next`] (the library's plain top K) is the
-//! same search with every word of V allowed.
+//! same search with every word of V allowed. Neither shows the metadata's
+//! never-suggest words: the best K + |list| are found and the listed words
+//! dropped.
 //!
 //! The text index (V by q, its prefix index, each word's place: 20 bytes
 //! a word) is built on the first completion with a non-empty prefix; the
@@ -40,7 +42,7 @@ use std::ops::Range;
 
 use crate::error::Result;
 use crate::predict::Next;
-use crate::topk::{PrefixIndex, TopK};
+use crate::topk::{fold, PrefixIndex, PrefixMatch, TopK};
 use crate::words::{eos_id, WordId};
 
 use super::cache::TextIndex;
@@ -88,14 +90,36 @@ impl Model {
     /// see the module doc. Never `<s>` or `<unk>`; `</s>` only for an
     /// empty prefix.
     pub fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        self.complete_matching(context, prefix, PrefixMatch::Exact, k)
+    }
+
+    /// [`Model::complete`], the prefix matching as `matching` says: with
+    /// [`PrefixMatch::Folded`], the words whose folded text begins with the
+    /// folded prefix ([`crate::topk::fold`]), each shown as the model has
+    /// it. The index of the folded texts is built on first use.
+    pub fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
         if prefix.is_empty() {
             return Ok(self.top_words(context, Filter::NoUnk, k));
         }
         let prefix = self.preparation().prefix(prefix);
-        let ix = self.text_index();
-        let places = ix
-            .index
-            .range(prefix.as_bytes(), |r| self.word_bytes(ix.order[r as usize]));
+        let (ix, places) = match matching {
+            PrefixMatch::Exact => {
+                let ix = self.text_index();
+                let text = |r: u32| self.word_bytes(ix.order[r as usize]);
+                (ix, ix.index.range(prefix.as_bytes(), text))
+            }
+            PrefixMatch::Folded => {
+                let ix = self.folded_index();
+                let text = |r: u32| ix.folded[r as usize].as_bytes();
+                (ix, ix.index.range(fold(&prefix).as_bytes(), text))
+            }
+        };
         Ok(self.top_words(context, Filter::Range(ix, places), k))
     }
 
@@ -106,29 +130,49 @@ impl Model {
     }
 
     fn text_index(&self) -> &TextIndex {
-        self.completion().text(|| {
-            let eos = self.index_of(eos_id());
-            let mut order: Vec<u32> = (0..self.words_with_bos() as u32)
-                .filter(|&x| x != self.bos_index())
-                .collect();
-            order.sort_unstable_by(|&a, &b| self.q(1, b).total_cmp(&self.q(1, a)).then(a.cmp(&b)));
-            let marker = |x: u32| x == self.unk_index() || Some(x) == eos;
-            let index = PrefixIndex::new(order.len(), |r| {
-                let x = order[r as usize];
-                (!marker(x)).then(|| self.word_bytes(x))
-            });
-            let mut place = vec![u32::MAX; self.words_with_bos()];
-            for (r, &x) in order.iter().enumerate() {
-                if let Some(p) = index.place(r as u32) {
-                    place[x as usize] = p;
-                }
+        self.completion().text(|| self.build_text_index(false))
+    }
+
+    fn folded_index(&self) -> &TextIndex {
+        self.completion().folded(|| self.build_text_index(true))
+    }
+
+    /// V by q with a prefix index over the words' texts, or over their
+    /// folded texts.
+    fn build_text_index(&self, folded: bool) -> TextIndex {
+        let eos = self.index_of(eos_id());
+        let mut order: Vec<u32> = (0..self.words_with_bos() as u32)
+            .filter(|&x| x != self.bos_index())
+            .collect();
+        order.sort_unstable_by(|&a, &b| self.q(1, b).total_cmp(&self.q(1, a)).then(a.cmp(&b)));
+        let marker = |x: u32| x == self.unk_index() || Some(x) == eos;
+        let texts: Vec<Box<str>> = if folded {
+            order
+                .iter()
+                .map(|&x| fold(&self.text_at(x)).into())
+                .collect()
+        } else {
+            Vec::new()
+        };
+        let index = PrefixIndex::new(order.len(), |r| {
+            let x = order[r as usize];
+            (!marker(x)).then(|| match texts.get(r as usize) {
+                Some(t) => t.as_bytes(),
+                None => self.word_bytes(x),
+            })
+        });
+        let mut place = vec![u32::MAX; self.words_with_bos()];
+        for (r, &x) in order.iter().enumerate() {
+            if let Some(p) = index.place(r as u32) {
+                place[x as usize] = p;
             }
-            TextIndex {
-                order,
-                index,
-                place,
-            }
-        })
+        }
+        TextIndex {
+            order,
+            index,
+            place,
+            folded: texts,
+        }
     }
 
     /// The entries of the children of entry `e` of order `j`, by q (most
@@ -156,7 +200,24 @@ impl Model {
             .any(|&(j, _)| j >= 1 && self.child(j, st.nodes[j - 1], x).is_some())
     }
 
+    /// The best `k` allowed by `filter` but the words never suggested:
+    /// the best `k + |never|` hold them, so the answer stays exact.
     fn top_words(&self, context: &[WordId], filter: Filter<'_>, k: usize) -> Next {
+        let never = self.never_suggested();
+        if never.is_empty() {
+            return self.top_words_of_all(context, filter, k);
+        }
+        let mut next = self.top_words_of_all(context, filter, k.saturating_add(never.len()));
+        next.items.retain(|&(w, _)| {
+            self.index_of(w)
+                .is_none_or(|x| never.binary_search(&x).is_err())
+        });
+        next.items.truncate(k);
+        next.rest = 1.0 - next.items.iter().map(|x| x.1).sum::<f64>();
+        next
+    }
+
+    fn top_words_of_all(&self, context: &[WordId], filter: Filter<'_>, k: usize) -> Next {
         let st = self.state(context);
         let walk: Vec<(usize, f64)> = self.walk(&st).collect();
         let unk = self.unk_index();

@@ -51,6 +51,9 @@ pub struct Model {
     id_dir: IdDirectory,
     /// Search structures built on first use (`super::complete`).
     completion: Box<Completion>,
+    /// The word indices of the metadata's never-suggest words that are in
+    /// V, increasing.
+    never: Vec<u32>,
 }
 
 impl Model {
@@ -86,6 +89,15 @@ impl Model {
         want_len(&ids, meta.ngrams[0] * 8, "word ids", &bad)?;
         want_len(&offsets, (nw as u64 + 1) * 8, "word offsets", &bad)?;
         want_len(&ranking, meta.vocabulary * 4, "unigram ranking", &bad)?;
+        // The ranking's checksum was read whole; its word indices are
+        // used to index the unigrams, so they are checked here too.
+        let rk = &b[ranking.clone()];
+        if let Some(i) = (0..meta.vocabulary as usize).find(|&i| u32_at(rk, i) as usize >= nw) {
+            return Err(bad(format!(
+                "the unigram ranking holds word index {} at {i}, past the {nw} words",
+                u32_at(rk, i)
+            )));
+        }
         let width = width_for(nw.saturating_sub(1) as u64);
         let orders = read_orders(b, &dir, &meta, width, &bad)?;
         let id_bytes = &b[ids.clone()];
@@ -105,6 +117,7 @@ impl Model {
             bos: 0,
             unk: 0,
             completion: Default::default(),
+            never: Vec::new(),
         };
         let need = |m: &Model, id: WordId, what: &str| {
             m.index_of(id)
@@ -112,6 +125,13 @@ impl Model {
         };
         m.bos = need(&m, bos_id(), "<s>")?;
         m.unk = need(&m, unk_id(), "<unk>")?;
+        let mut never: Vec<u32> = (m.meta.never_suggest.iter())
+            .filter_map(|w| m.index_of(crate::words::word_id(w.as_bytes())))
+            .filter(|&x| x != m.bos)
+            .collect();
+        never.sort_unstable();
+        never.dedup();
+        m.never = never;
         Ok(m)
     }
 
@@ -185,6 +205,12 @@ impl Model {
         self.unk
     }
 
+    /// The word indices never suggested (stored in the metadata),
+    /// increasing.
+    pub(crate) fn never_suggested(&self) -> &[u32] {
+        &self.never
+    }
+
     /// The lazily built search structures.
     pub(super) fn completion(&self) -> &Completion {
         &self.completion
@@ -233,9 +259,15 @@ impl Model {
         &t[a..z]
     }
 
-    /// The id of word index `x`.
+    /// The id of word index `x` (0 for an index out of range, which only
+    /// an unverified damaged array gives).
     pub(crate) fn id_at(&self, x: u32) -> WordId {
-        u64_at(&self.map[self.ids.clone()], x as usize)
+        let ids = &self.map[self.ids.clone()];
+        if (x as usize) < self.nw {
+            u64_at(ids, x as usize)
+        } else {
+            0
+        }
     }
 
     /// The text of word index `x` (lossy for damaged bytes).

@@ -196,6 +196,11 @@ pub struct ModelMeta {
     /// it was.
     #[serde(default)]
     pub relative_entropy: Option<f64>,
+    /// Words that `next` and completion never show (offensive or private
+    /// words): still used as context, their probabilities and everyone
+    /// else's unchanged. Not written when empty.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub never_suggest: Vec<String>,
 }
 
 fn bits32() -> u32 {

@@ -57,6 +57,13 @@ pub struct FreezeOptions {
     /// Threads that freeze parts of each order side by side (0: one per
     /// core). The model is the same, byte for byte, whatever the number.
     pub threads: usize,
+    /// The largest model whose file takes at most this many bytes: the
+    /// relative-entropy pruning budget is searched (with `bits`, the
+    /// quantized model's size).
+    pub max_bytes: Option<u64>,
+    /// Words the model's `next` and completion never show (stored in the
+    /// metadata; they stay in V and in every probability).
+    pub never_suggest: Vec<String>,
 }
 
 impl FreezeOptions {
@@ -75,9 +82,10 @@ impl FreezeOptions {
 
     /// Whether the model is reduced after freezing (pruned by relative
     /// entropy or quantized).
-    fn reduces(&self) -> bool {
+    pub(crate) fn reduces(&self) -> bool {
         self.relative_entropy.is_some()
             || self.max_ngrams.is_some()
+            || self.max_bytes.is_some()
             || self.bits.is_some()
             || self.weight_bits.is_some()
     }
@@ -159,6 +167,9 @@ pub fn freeze(est: &Estimator<'_>, out: &Path, opts: &FreezeOptions) -> Result<F
                 std::fs::remove_file(&p).at(&p, "remove")?;
             }
         }
+        if let Some(max) = opts.max_bytes {
+            return fit_bytes(&full, out, opts, report, max);
+        }
         return reduce_model(&full, out, opts, report);
     }
     Ok(report)
@@ -183,9 +194,14 @@ fn check_options(est: &Estimator<'_>, opts: &FreezeOptions) -> Result<()> {
             }
         }
     }
-    if opts.relative_entropy.is_some() && opts.max_ngrams.is_some() {
+    let targets = [
+        opts.relative_entropy.is_some(),
+        opts.max_ngrams.is_some(),
+        opts.max_bytes.is_some(),
+    ];
+    if targets.iter().filter(|&&t| t).count() > 1 {
         return Err(Error::Config(
-            "give either a relative-entropy threshold or a size target (--max-ngrams), not both"
+            "give one of a relative-entropy threshold, --max-ngrams and --max-bytes, not several"
                 .into(),
         ));
     }
@@ -196,7 +212,7 @@ fn check_options(est: &Estimator<'_>, opts: &FreezeOptions) -> Result<()> {
             )));
         }
     }
-    if (opts.relative_entropy.is_some() || opts.max_ngrams.is_some())
+    if (opts.relative_entropy.is_some() || opts.max_ngrams.is_some() || opts.max_bytes.is_some())
         && !est.method().is_probability()
     {
         return Err(Error::Config(format!(
@@ -370,6 +386,7 @@ fn model_meta(
         weight_bits: 32,
         min_counts: (1..=n).map(|k| opts.min_count(k)).collect(),
         relative_entropy: None,
+        never_suggest: opts.never_suggest.clone(),
     }
 }
 
@@ -527,4 +544,100 @@ fn prune_selection(
         Some((t, keep)) => (Some(t), keep),
         None => (None, Vec::new()),
     })
+}
+
+/// A reduction tried: its report and file.
+struct Trial {
+    report: FreezeReport,
+    path: PathBuf,
+}
+
+/// Reduces the whole model at `full` (whose freeze reported `whole`) into
+/// the largest model of at most `max` bytes at `out` (`--max-bytes`).
+///
+/// If the whole model (quantized, when bits are asked) fits, it is the
+/// answer. Otherwise the n-gram budget of relative-entropy pruning
+/// (`--max-ngrams`, which picks the smallest threshold keeping at most
+/// that many) is bisected: a budget whose file fits raises the lower end,
+/// one that does not lowers the upper end, until they are within 0.1% of
+/// the n-grams (or one n-gram) apart. The file grows with the n-grams
+/// kept, so the fitting file of the largest budget tried is the largest
+/// that fits, to that precision.
+pub(crate) fn fit_bytes(
+    full: &Path,
+    out: &Path,
+    opts: &FreezeOptions,
+    whole: FreezeReport,
+    max: u64,
+) -> Result<FreezeReport> {
+    let dir = full.parent().unwrap_or(Path::new("."));
+    let base = FreezeOptions {
+        max_bytes: None,
+        ..opts.clone()
+    };
+    let mut tried = 0usize;
+    let mut attempt = |budget: Option<u64>| -> Result<Option<Trial>> {
+        tried += 1;
+        let o = FreezeOptions {
+            max_ngrams: budget,
+            ..base.clone()
+        };
+        let path = dir.join(format!("fit-{tried}.model"));
+        if !o.reduces() {
+            std::fs::copy(full, &path).at(&path, "copy into")?;
+            return Ok(Some(Trial {
+                report: whole.clone(),
+                path,
+            }));
+        }
+        match reduce_model(full, &path, &o, whole.clone()) {
+            Ok(report) => Ok(Some(Trial { report, path })),
+            // A budget below what no pruning can drop.
+            Err(Error::Config(_)) if budget.is_some() => Ok(None),
+            Err(e) => Err(e),
+        }
+    };
+    let fits = |t: &Trial| t.report.file_bytes <= max;
+    let mut best = attempt(None)?.expect("an unpruned model");
+    if !fits(&best) {
+        let first = best.report.file_bytes;
+        let all: u64 = whole.ngrams.iter().sum();
+        let (mut lo, mut hi) = (whole.ngrams[0], all);
+        let mut found: Option<Trial> = None;
+        while hi - lo > (hi / 1000).max(1) {
+            let mid = lo + (hi - lo) / 2;
+            match attempt(Some(mid))? {
+                Some(t) if fits(&t) => {
+                    lo = mid;
+                    if let Some(old) = found.replace(t) {
+                        remove_file(&old.path)?;
+                    }
+                }
+                Some(t) => {
+                    hi = mid;
+                    remove_file(&t.path)?;
+                }
+                None => lo = mid,
+            }
+        }
+        remove_file(&best.path)?;
+        best = found.ok_or_else(|| {
+            Error::Config(format!(
+                "--max-bytes {max}: no pruned model fits (the whole model takes {first} bytes; the smallest pruning can give is larger than {max})"
+            ))
+        })?;
+    }
+    std::fs::rename(&best.path, out).at(out, "rename into place")?;
+    let mut report = best.report;
+    report.notes.push(format!(
+        "--max-bytes {max}: {} bytes, {} n-grams kept ({} models tried)",
+        report.file_bytes,
+        report.ngrams.iter().sum::<u64>(),
+        tried
+    ));
+    Ok(report)
+}
+
+fn remove_file(p: &Path) -> Result<()> {
+    std::fs::remove_file(p).at(p, "remove")
 }

@@ -160,11 +160,9 @@ pub fn freeze_arpa(
         weight_bits: 32,
         min_counts: vec![1; n],
         relative_entropy: None,
+        never_suggest: opts.never_suggest.clone(),
     };
-    let reduces = opts.relative_entropy.is_some()
-        || opts.max_ngrams.is_some()
-        || opts.bits.is_some()
-        || opts.weight_bits.is_some();
+    let reduces = opts.reduces();
     let parent_dir = match out.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
@@ -249,6 +247,9 @@ pub fn freeze_arpa(
         weight_bits: 32,
         weight_error: 0.0,
     };
+    if let Some(max) = opts.max_bytes {
+        return super::freeze::fit_bytes(&full, out, opts, report, max);
+    }
     if reduces {
         return reduce_model(&full, out, opts, report);
     }

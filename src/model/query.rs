@@ -492,6 +492,15 @@ impl crate::predict::Predictor for Model {
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         Model::complete(self, context, prefix, k)
     }
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: crate::topk::PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        Model::complete_matching(self, context, prefix, matching, k)
+    }
 }
 
 /// The levels a prediction backs off through ([`Model::walk`]).

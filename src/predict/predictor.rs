@@ -4,8 +4,11 @@
 //! alike. Each implements it in its own module: both depend on this
 //! layer, never the reverse.
 
+use std::collections::HashSet;
+
 use crate::error::Result;
 use crate::tokenize::Preparation;
+use crate::topk::PrefixMatch;
 use crate::words::WordId;
 
 use super::{Method, Next, Prob};
@@ -45,7 +48,26 @@ pub trait Predictor {
     /// scores all of V ([`Predictor::distribution`]): exact but slow;
     /// implementations override it with a faster exact search.
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
+        self.complete_matching(context, prefix, PrefixMatch::Exact, k)
+    }
+
+    /// [`Predictor::complete`], the prefix matching as `matching` says:
+    /// with [`PrefixMatch::Folded`], the words whose folded text begins
+    /// with the folded prefix (case and accents aside:
+    /// [`crate::topk::fold`]), each shown as the model has it.
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
         let prefix = self.preparation().prefix(prefix);
+        let folded = crate::topk::fold(&prefix);
+        let matches = |text: &str| match matching {
+            PrefixMatch::Exact => text.starts_with(prefix.as_str()),
+            PrefixMatch::Folded => crate::topk::fold(text).starts_with(folded.as_str()),
+        };
         let (bos, unk, eos) = (
             crate::words::bos_id(),
             crate::words::unk_id(),
@@ -60,7 +82,7 @@ pub trait Predictor {
                 continue;
             }
             let Some(text) = self.word(w)? else { continue };
-            if text.starts_with(prefix.as_str()) {
+            if matches(&text) {
                 top.take_all([Ok::<_, std::convert::Infallible>((p, texts.len()))])
                     .unwrap_or_else(|e| match e {});
                 texts.push((w, text));
@@ -70,6 +92,29 @@ pub trait Predictor {
         let best = best.into_iter().map(|(p, i)| (p, texts[i].0)).collect();
         let ctx = self.next(context, 0)?.context;
         Ok(Next::from_best(ctx, best, scored))
+    }
+
+    /// [`Predictor::complete_matching`] with the words of `never` left
+    /// out (offensive or private words): the best `k` of the others,
+    /// exact (the best `k + |never|` hold them), their probabilities
+    /// unchanged; `rest` is 1 − the sum shown.
+    fn suggest(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        never: &HashSet<WordId>,
+        k: usize,
+    ) -> Result<Next> {
+        if never.is_empty() {
+            return self.complete_matching(context, prefix, matching, k);
+        }
+        let mut next =
+            self.complete_matching(context, prefix, matching, k.saturating_add(never.len()))?;
+        next.items.retain(|(w, _)| !never.contains(w));
+        next.items.truncate(k);
+        next.rest = 1.0 - next.items.iter().map(|x| x.1).sum::<f64>();
+        Ok(next)
     }
 }
 
@@ -111,5 +156,14 @@ impl<P: Predictor + ?Sized> Predictor for &P {
     }
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         (**self).complete(context, prefix, k)
+    }
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        (**self).complete_matching(context, prefix, matching, k)
     }
 }

@@ -161,11 +161,23 @@ fn next_of<'py>(
     context: &Bound<'_, PyAny>,
     top: usize,
     prefix: &str,
+    matching: &str,
+    never: Option<Vec<String>>,
 ) -> PyResult<Bound<'py, PyList>> {
     let ctx = context_ids(p, context)?;
+    let matching: crate::topk::PrefixMatch = matching
+        .parse()
+        .map_err(|e: String| PyValueError::new_err(format!("match: {e}")))?;
+    let never: std::collections::HashSet<crate::words::WordId> = never
+        .unwrap_or_default()
+        .iter()
+        .map(|w| crate::words::word_id(w.as_bytes()))
+        .collect();
     // As `quern next`: always through completion (an empty prefix is all
     // of V), which never suggests `<s>` or `<unk>`.
-    let next = p.complete(&ctx, prefix, top).map_err(error)?;
+    let next = p
+        .suggest(&ctx, prefix, matching, &never, top)
+        .map_err(error)?;
     let key = if p.method().is_probability() {
         intern!(py, "probability")
     } else {
@@ -320,16 +332,20 @@ macro_rules! predictor_methods {
             /// `probability` (`score` for `stupid`) and `log10` (`None`
             /// for -infinity). With a `prefix`, only words that begin with
             /// it (lowercased first when the store is), never `<s>`,
-            /// `<unk>` or `</s>`.
-            #[pyo3(signature = (context, top = 10, prefix = ""))]
+            /// `<unk>` or `</s>`; `match="folded"` matches it regardless
+            /// of case and accents. `never_suggest`: words never shown
+            /// (the others' probabilities unchanged).
+            #[pyo3(signature = (context, top = 10, prefix = "", r#match = "exact", never_suggest = None))]
             fn next<'py>(
                 &self,
                 py: Python<'py>,
                 context: &Bound<'_, PyAny>,
                 top: usize,
                 prefix: &str,
+                r#match: &str,
+                never_suggest: Option<Vec<String>>,
             ) -> PyResult<Bound<'py, PyList>> {
-                next_of(py, self.pred(), context, top, prefix)
+                next_of(py, self.pred(), context, top, prefix, r#match, never_suggest)
             }
 
             /// The score of one text (a document; each of its lines is a

@@ -19,7 +19,7 @@
 use std::ops::Range;
 
 use crate::error::Result;
-use crate::topk::{PrefixIndex, TopK};
+use crate::topk::{fold, PrefixIndex, PrefixMatch, TopK};
 use crate::words::{eos_id, IdMap, WordId};
 
 use super::cache::ChildEntry;
@@ -35,6 +35,20 @@ pub(crate) enum Filter {
     NoMarkers,
     /// The words at these places of the text index, markers excepted.
     Range(Range<usize>),
+    /// The words at these places of the folded text index, markers
+    /// excepted.
+    Folded(Range<usize>),
+}
+
+impl Filter {
+    /// The prefix index and the places a prefix filter allows.
+    fn places<'a>(&self, ix: &'a TextIndex) -> Option<(&'a PrefixIndex, Range<usize>)> {
+        match self {
+            Filter::Range(p) => Some((&ix.index, p.clone())),
+            Filter::Folded(p) => Some((&ix.folded().1, p.clone())),
+            _ => None,
+        }
+    }
 }
 
 impl Estimator<'_> {
@@ -62,21 +76,42 @@ impl Estimator<'_> {
         self.top_words(context, Filter::All, k)
     }
 
+    /// [`Estimator::complete`], the prefix matching as `matching` says:
+    /// with [`PrefixMatch::Folded`], the words whose folded text begins
+    /// with the folded prefix ([`crate::topk::fold`]).
+    pub fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        if prefix.is_empty() {
+            return self.top_words(context, Filter::NoMarkers, k);
+        }
+        let prefix = self.store.meta().settings.preparation.prefix(prefix);
+        let ix = self.text_index()?;
+        let filter = match matching {
+            PrefixMatch::Exact => Filter::Range(
+                ix.index
+                    .range(prefix.as_bytes(), |r| ix.texts[r as usize].as_bytes()),
+            ),
+            PrefixMatch::Folded => {
+                let (texts, index) = ix.folded();
+                let prefix = fold(&prefix);
+                Filter::Folded(index.range(prefix.as_bytes(), |r| texts[r as usize].as_bytes()))
+            }
+        };
+        self.top_words(context, filter, k)
+    }
+
     /// The `k` most probable words after `context` (raw ids; cut to N − 1,
     /// OOV words as `<unk>`) that begin with `prefix` (lowercased first if
     /// the store was built with `--lowercase`), exact; ties by the words'
     /// bytes. Never `<s>` or `<unk>`; `</s>` only for an empty prefix. See
     /// the module doc.
     pub fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
-        if prefix.is_empty() {
-            return self.top_words(context, Filter::NoMarkers, k);
-        }
-        let prefix = self.store.meta().settings.preparation.prefix(prefix);
-        let ix = self.text_index()?;
-        let range = ix
-            .index
-            .range(prefix.as_bytes(), |r| ix.texts[r as usize].as_bytes());
-        self.top_words(context, Filter::Range(range), k)
+        self.complete_matching(context, prefix, PrefixMatch::Exact, k)
     }
 
     fn text_index(&self) -> Result<&TextIndex> {
@@ -92,7 +127,12 @@ impl Estimator<'_> {
             texts.push(voc.remove(&w).unwrap_or_default().into_boxed_str());
         }
         let index = PrefixIndex::new(texts.len(), |r| Some(texts[r as usize].as_bytes()));
-        let _ = self.text_index.set(TextIndex { texts, rank, index });
+        let _ = self.text_index.set(TextIndex {
+            texts,
+            rank,
+            index,
+            folded: Default::default(),
+        });
         Ok(self.text_index.get().expect("just set"))
     }
 
@@ -109,6 +149,12 @@ impl Estimator<'_> {
             Filter::NoMarkers => w != bos && w != unk,
             Filter::Range(places) => {
                 w != bos && w != unk && w != eos && ix.place(w).is_some_and(|p| places.contains(&p))
+            }
+            Filter::Folded(places) => {
+                w != bos
+                    && w != unk
+                    && w != eos
+                    && ix.folded_place(w).is_some_and(|p| places.contains(&p))
             }
         };
         let l = cl.ctx.len();
@@ -133,13 +179,8 @@ impl Estimator<'_> {
                 Some(m) => top.take_all(m.list.iter().filter(|e| ok(e.0)).map(score))?,
                 None => {}
             }
-            let places = match &filter {
-                Filter::Range(places) => places.clone(),
-                _ => 0..ix.index.len(),
-            };
-            let words = ix.index.by_bytes()[places]
-                .iter()
-                .map(|&r| self.ranking_at(r));
+            let (index, places) = filter.places(ix).unwrap_or((&ix.index, 0..ix.index.len()));
+            let words = index.by_bytes()[places].iter().map(|&r| self.ranking_at(r));
             let rest = words.filter(|&w| ok(w) && !kid(w));
             top.take_tied(rest.map(|w| Ok((self.eval_mapped(&cl, w, &mut buf)?.0, w))))?;
             let (best, scored) = top.finish(|a, b| ix.bytes_order(a, b));
@@ -163,9 +204,9 @@ impl Estimator<'_> {
                 let score = |&(w, at, uni): &ChildEntry| {
                     Ok((self.eval_child(&cl, w, 1, Some(at), uni, &mut buf)?.0, w))
                 };
-                match &filter {
-                    Filter::Range(places) if places.len() * 8 < m.list.len() => {
-                        let found = ix.index.by_bytes()[places.clone()].iter().filter_map(|&r| {
+                match filter.places(ix) {
+                    Some((index, places)) if places.len() * 8 < m.list.len() => {
+                        let found = index.by_bytes()[places].iter().filter_map(|&r| {
                             let i = m.list.binary_search_by_key(&self.ranking_at(r), |e| e.0);
                             i.ok().map(|i| &m.list[i])
                         });
@@ -181,12 +222,9 @@ impl Estimator<'_> {
         let ranking = self.unigram_ranking()?;
         let group = |w: &WordId| ok(*w) && !cl.child_from(1, *w);
         let score = |w: WordId| Ok((self.eval_mapped(&cl, w, &mut buf)?.0, w));
-        match &filter {
-            Filter::Range(places) => {
-                let words = ix
-                    .index
-                    .best_first(places.clone())
-                    .map(|r| ranking[r as usize]);
+        match filter.places(ix) {
+            Some((index, places)) => {
+                let words = index.best_first(places).map(|r| ranking[r as usize]);
                 top.take_ranked(words.filter(group).map(score))?;
             }
             _ => top.take_ranked(ranking.iter().copied().filter(group).map(score))?,

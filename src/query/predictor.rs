@@ -3,6 +3,7 @@
 use crate::error::Result;
 use crate::predict::{Method, Next, Predictor, Prob};
 use crate::tokenize::Preparation;
+use crate::topk::PrefixMatch;
 use crate::words::WordId;
 
 use super::Estimator;
@@ -43,5 +44,14 @@ impl Predictor for Estimator<'_> {
     }
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
         Estimator::complete(self, context, prefix, k)
+    }
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        Estimator::complete_matching(self, context, prefix, matching, k)
     }
 }

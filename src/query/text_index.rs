@@ -3,7 +3,9 @@
 
 use std::cmp::Ordering;
 
-use crate::topk::PrefixIndex;
+use std::sync::OnceLock;
+
+use crate::topk::{fold, PrefixIndex};
 use crate::words::{IdMap, WordId};
 
 /// V's texts in the order of the unigram ranking, with a prefix index
@@ -14,6 +16,9 @@ pub(crate) struct TextIndex {
     /// The rank of each word of V.
     pub(super) rank: IdMap<u32>,
     pub(super) index: PrefixIndex,
+    /// The folded texts by rank and a prefix index over them, built on the
+    /// first folded completion.
+    pub(super) folded: OnceLock<(Vec<Box<str>>, PrefixIndex)>,
 }
 
 impl TextIndex {
@@ -34,5 +39,20 @@ impl TextIndex {
     pub(super) fn place(&self, w: WordId) -> Option<usize> {
         let &r = self.rank.get(&w)?;
         self.index.place(r).map(|p| p as usize)
+    }
+
+    /// The folded texts by rank, and their prefix index.
+    pub(super) fn folded(&self) -> &(Vec<Box<str>>, PrefixIndex) {
+        self.folded.get_or_init(|| {
+            let texts: Vec<Box<str>> = self.texts.iter().map(|t| fold(t).into()).collect();
+            let index = PrefixIndex::new(texts.len(), |r| Some(texts[r as usize].as_bytes()));
+            (texts, index)
+        })
+    }
+
+    /// Where `w` is in the byte order of the folded texts.
+    pub(super) fn folded_place(&self, w: WordId) -> Option<usize> {
+        let &r = self.rank.get(&w)?;
+        self.folded().1.place(r).map(|p| p as usize)
     }
 }

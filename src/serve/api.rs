@@ -135,6 +135,10 @@ pub struct NextRequest {
     /// The method (a store only; default `mkn`).
     #[serde(default)]
     pub method: Option<String>,
+    /// How the prefix matches: `exact` (default) or `folded` (regardless
+    /// of case and accents).
+    #[serde(default, rename = "match")]
+    pub matching: Option<String>,
 }
 
 fn ten() -> usize {
@@ -229,12 +233,16 @@ pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
             q.prefix
         )));
     }
+    let matching: crate::topk::PrefixMatch = match &q.matching {
+        Some(h) => h.parse().map_err(|e| Fail::bad(format!("match: {e}")))?,
+        None => Default::default(),
+    };
     let lent = l.get(m)?;
     let p = lent.pred();
     let ids = query_ids(&q.context, &p.preparation());
     // As `quern next`: always through completion (an empty prefix is all
     // of V), which never suggests `<s>` or `<unk>`.
-    let next = p.complete(&ids, &q.prefix, q.top)?;
+    let next = p.complete_matching(&ids, &q.prefix, matching, q.top)?;
     let names = next
         .items
         .iter()

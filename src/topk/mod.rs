@@ -43,7 +43,9 @@
 //! ranking order, reading O(log |V|) nodes a word.
 
 mod collect;
+mod fold;
 mod prefix;
 
 pub use collect::TopK;
+pub use fold::{fold, PrefixMatch};
 pub use prefix::PrefixIndex;

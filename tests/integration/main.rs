@@ -129,6 +129,18 @@ mod freeze;
 mod freeze_arpa;
 mod freeze_files;
 
+// The model file's specification in DEVELOPERS.md is complete: an
+// independent Python reader written from it answers as the CLI.
+mod model_spec;
+
+// A truncated or damaged model file is refused on open or answers with
+// errors, never a panic (checksums resealed so damage reaches the queries).
+mod model_damage;
+
+// What typing needs: folded completion against Python's folding, the
+// never-suggest list, `freeze --max-bytes`.
+mod typing;
+
 // `freeze --from-arpa`: store → ARPA → model answers like the model frozen
 // directly (orders 3 and 5); malformed ARPA files refused at their line.
 mod arpa_read;

@@ -6,6 +6,7 @@ threads against one thread."""
 import json
 import threading
 import time
+import unicodedata
 
 import pytest
 import quern
@@ -87,6 +88,37 @@ def test_next_with_prefix_is_the_full_ranking_filtered(preds, cli):
             assert [w for w, _ in got] == [w for w, _ in want], (name, ctx, prefix)
             for (_, a), (_, b) in zip(got, want):
                 assert a == pytest.approx(b, rel=1e-12, abs=0), (name, ctx, prefix)
+
+
+def folded(s):
+    """Case folding, NFD, combining marks (category Mn) dropped: Python's
+    standard library, the definition of `match="folded"`."""
+    return "".join(c for c in unicodedata.normalize("NFD", s.casefold())
+                   if unicodedata.category(c) != "Mn")
+
+
+def test_next_folded_and_never_suggest(preds, cli, tmp_path):
+    # match="folded": the full ranking filtered by the folded prefix; with
+    # never_suggest, the same less the listed words, as `quern next`
+    # --match folded --never-suggest FILE gives them.
+    never = ["Elizabeth", "Emma", "every"]
+    listing = tmp_path / "never.txt"
+    listing.write_text("\n".join(never) + "\n", encoding="utf-8")
+    for name, p, flags in preds[:1] + preds[-2:-1]:
+        for ctx, prefix in [("<s>", "E"), ("it was", "TH"), ("of", "é")]:
+            full = cli.json("next", *flags, "--json", "--top", 10 ** 6, *ctx.split())["words"]
+            want = [x["word"] for x in full
+                    if folded(x["word"]).startswith(folded(prefix))
+                    and x["word"] not in ("<s>", "<unk>", "</s>")]
+            got = [x["word"] for x in p.next(ctx.split(), top=7, prefix=prefix, match="folded")]
+            assert got == want[:7], (name, ctx, prefix)
+            got = p.next(ctx.split(), top=7, prefix=prefix, match="folded", never_suggest=never)
+            assert [x["word"] for x in got] == [w for w in want if w not in never][:7]
+            line = cli.json("next", *flags, "--json", "--top", 7, "--prefix", prefix,
+                            "--match", "folded", "--never-suggest", listing, *ctx.split())
+            assert got == line["words"], (name, ctx, prefix)
+    with pytest.raises(ValueError):
+        preds[0][1].next("<s>", prefix="e", match="loose")
 
 
 def cli_documents(cli, flags, texts, tmp_path):

@@ -87,6 +87,8 @@ fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
         bits: a.bits,
         weight_bits: a.weight_bits,
         threads: 1,
+        max_bytes: a.max_bytes.map(|b| b.bytes()),
+        never_suggest: never_suggest(a)?,
     };
     let (out, temporary) = match (&a.out, &a.arpa) {
         (Some(o), _) => (o.clone(), false),
@@ -199,6 +201,14 @@ fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// The words of `--never-suggest`, if given.
+fn never_suggest(a: &FreezeArgs) -> anyhow::Result<Vec<String>> {
+    match &a.never_suggest {
+        Some(p) => super::next::word_list(p),
+        None => Ok(Vec::new()),
+    }
+}
+
 pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
     if let Some(p) = a.from_arpa.clone() {
         return from_arpa(&a, &p);
@@ -215,6 +225,8 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
         bits: a.bits,
         weight_bits: a.weight_bits,
         threads: a.threads.unwrap_or(0),
+        max_bytes: a.max_bytes.map(|b| b.bytes()),
+        never_suggest: never_suggest(&a)?,
     };
     if opts.min_counts.len() > store.order() {
         anyhow::bail!(

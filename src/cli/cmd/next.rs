@@ -2,10 +2,13 @@
 //! only those that begin with a prefix; with no context words, one query a
 //! line from standard input.
 
+use std::collections::HashSet;
 use std::io::{BufRead, BufWriter, Write};
+use std::path::Path;
 
 use anyhow::Context;
 use quern::query::{query_ids, Next, Predictor, WordJson};
+use quern::words::{word_id, WordId};
 
 use super::prob::{jnum, log, num, open_source, predictor, words};
 use crate::cli::args::NextArgs;
@@ -66,16 +69,41 @@ fn write_json(
     Ok(())
 }
 
+/// The words of a list file: one a line (line ends and surrounding
+/// whitespace removed; blank lines skipped).
+pub fn word_list(path: &Path) -> anyhow::Result<Vec<String>> {
+    let text = std::fs::read_to_string(path)
+        .with_context(|| format!("reading the word list {}", path.display()))?;
+    Ok(text
+        .lines()
+        .map(str::trim)
+        .filter(|w| !w.is_empty())
+        .map(str::to_string)
+        .collect())
+}
+
+/// The ids of `--never-suggest`'s words (none without it).
+fn never_ids(a: &NextArgs) -> anyhow::Result<HashSet<WordId>> {
+    let Some(p) = &a.never_suggest else {
+        return Ok(HashSet::new());
+    };
+    Ok(word_list(p)?
+        .iter()
+        .map(|w| word_id(w.as_bytes()))
+        .collect())
+}
+
 pub fn run(a: NextArgs) -> anyhow::Result<()> {
     let src = open_source(&a.store)?;
     let pred = predictor(&src, a.method.method, &a.params)?;
     let est = pred.get();
+    let never = never_ids(&a)?;
     if a.words.is_empty() {
-        return batch(est, &a);
+        return batch(est, &a, &never);
     }
     let ids = query_ids(&a.words.join(" "), &est.preparation());
     let t = std::time::Instant::now();
-    let next = est.complete(&ids, &a.prefix, a.top)?;
+    let next = est.suggest(&ids, &a.prefix, a.matching, &never, a.top)?;
     let secs = t.elapsed().as_secs_f64();
     let prob = est.method().is_probability();
     let mut out = std::io::stdout().lock();
@@ -135,7 +163,7 @@ pub fn run(a: NextArgs) -> anyhow::Result<()> {
 /// TSV out: a header line, then one row per word shown (`line` is the
 /// query's line number, from 1; a query with no word to show has no row);
 /// with `--json`, one object a line, one per query, in order.
-fn batch(est: &dyn Predictor, a: &NextArgs) -> anyhow::Result<()> {
+fn batch(est: &dyn Predictor, a: &NextArgs, never: &HashSet<WordId>) -> anyhow::Result<()> {
     let prep = est.preparation();
     let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let what = if est.method().is_probability() {
@@ -170,7 +198,7 @@ fn batch(est: &dyn Predictor, a: &NextArgs) -> anyhow::Result<()> {
         let ids = query_ids(ctx_text, &prep);
         let t = std::time::Instant::now();
         let next = est
-            .complete(&ids, prefix, a.top)
+            .suggest(&ids, prefix, a.matching, never, a.top)
             .with_context(|| format!("standard input, line {number}"))?;
         let secs = t.elapsed().as_secs_f64();
         let context = words(est, &next.context)?;

@@ -93,11 +93,20 @@ class _Predictor:
         """P(word | context) (for `stupid`, the score): `quern prob`."""
     def log10(self, context: Words, word: str) -> float:
         """log10 P(word | context); -inf for probability 0."""
-    def next(self, context: Words, top: int = 10, prefix: str = "") -> list[dict[str, Any]]:
+    def next(
+        self,
+        context: Words,
+        top: int = 10,
+        prefix: str = "",
+        match: str = "exact",
+        never_suggest: list[str] | None = None,
+    ) -> list[dict[str, Any]]:
         """The `top` most probable next words, most probable first: the
         items of `words` of `quern next --json`, each `{"word",
         "probability" (or "score" for `stupid`), "log10"}` (log10 None for
-        -infinity); with `prefix`, only words beginning with it."""
+        -infinity); with `prefix`, only words beginning with it
+        (`match="folded"`: regardless of case and accents); never the
+        words of `never_suggest`."""
     def score(self, text: str) -> dict[str, Any]:
         """One document (each line a sentence): `sentences`,
         `predictions`, `outside_vocabulary`, `probability_zero`,
