@@ -31,6 +31,7 @@ use std::path::Path;
 use crate::model::Model;
 use crate::predict::{Predictor, Scorer};
 use crate::tokenize::query_ids;
+use crate::topk::PrefixMatch;
 
 /// An open model (opaque to C).
 pub struct QuernModel {
@@ -218,8 +219,10 @@ pub unsafe extern "C" fn quern_model_log10(
 /// The `k` most probable next words after `context` (prepared as for
 /// [`quern_model_log10`]) that begin with `prefix` (NULL or "" for any
 /// word), best first, ties by the words' bytes: exactly the words of
-/// `quern next --json`. Free the answer with [`quern_words_free`]. NULL on
-/// failure.
+/// `quern next --json`. With `folded` non-zero the prefix matches without
+/// regard to case and accents (`--match folded`: `gu` offers
+/// `Guillemot`), each word shown as the model has it. Free the answer with
+/// [`quern_words_free`]. NULL on failure.
 ///
 /// # Safety
 /// `m` is NULL or an open handle; `context` and `prefix` are NULL or
@@ -229,6 +232,7 @@ pub unsafe extern "C" fn quern_model_next(
     m: *const QuernModel,
     context: *const c_char,
     prefix: *const c_char,
+    folded: c_int,
     k: usize,
 ) -> *mut QuernWords {
     guarded(std::ptr::null_mut(), || {
@@ -247,7 +251,13 @@ pub unsafe extern "C" fn quern_model_next(
             unsafe { text(prefix, "the prefix") }?
         };
         let ids = query_ids(context, &model.preparation());
-        let next = Predictor::complete(model, &ids, prefix, k).map_err(|e| e.to_string())?;
+        let matching = if folded != 0 {
+            PrefixMatch::Folded
+        } else {
+            PrefixMatch::Exact
+        };
+        let next = Predictor::complete_matching(model, &ids, prefix, matching, k)
+            .map_err(|e| e.to_string())?;
         let mut out = QuernWords {
             words: Vec::with_capacity(next.items.len()),
             log10: Vec::with_capacity(next.items.len()),

@@ -77,10 +77,13 @@ double quern_model_log10(const quern_model *model, const char *context, const ch
 
 /* The k most probable next words after context that begin with prefix
  * (NULL or "" for any word), best first, ties broken by the words' bytes:
- * the words of `quern next --json`. NULL context: the empty context. Free
- * the answer with quern_words_free. NULL on failure. */
+ * the words of `quern next --json`. With folded non-zero the prefix
+ * matches without regard to case and accents (`--match folded`: "gu"
+ * offers "Guillemot"), each word shown as the model has it. NULL context:
+ * the empty context. Free the answer with quern_words_free. NULL on
+ * failure. */
 quern_words *quern_model_next(const quern_model *model, const char *context, const char *prefix,
-                              size_t k);
+                              int folded, size_t k);
 
 /* How many words an answer holds; 0 for NULL. */
 size_t quern_words_count(const quern_words *words);

@@ -4,7 +4,7 @@
  *   check MODEL        reads queries from standard input, one a line,
  *                      fields separated by tabs, and prints one answer a line:
  *     prob CONTEXT WORD         -> "prob\t<log10 with %.17g>"
- *     next CONTEXT PREFIX K     -> "next\t<n>" then "\t<word>\t<log10>" per word
+ *     next CONTEXT PREFIX K [folded] -> "next\t<n>" then "\t<word>\t<log10>" per word
  *     score FILE                -> "score\t<sentences>\t<predictions>\t<oov>\t<zero>\t<log10>\t<perplexity>"
  *     info                      -> "info\t<order>\t<vocabulary size>"
  *   check --open FILE  opens FILE only: prints "opened" (exit 0) or
@@ -117,8 +117,10 @@ int main(int argc, char **argv) {
             double x = quern_model_log10(m, fields[1], fields[2]);
             if (isnan(x)) printf("error\t%s\n", quern_last_error());
             else printf("prob\t%.17g\n", x);
-        } else if (strcmp(fields[0], "next") == 0 && n == 4) {
-            quern_words *w = quern_model_next(m, fields[1], fields[2], (size_t)atol(fields[3]));
+        } else if (strcmp(fields[0], "next") == 0 && (n == 4 || n == 5)) {
+            int folded = n == 5 && strcmp(fields[4], "folded") == 0;
+            quern_words *w =
+                quern_model_next(m, fields[1], fields[2], folded, (size_t)atol(fields[3]));
             if (!w) {
                 printf("error\t%s\n", quern_last_error());
                 continue;
