@@ -25,6 +25,8 @@
 //!   once, for the estimators and the statistics report.
 //! * [`arpa`] reads ARPA back-off text (a model made elsewhere), checking
 //!   every line; [`model`] turns it into a model file.
+//! * [`blend`] mixes several stores and models linearly, with weights
+//!   fitted on held-out text (EM), named by a blend file.
 //! * [`model`] freezes a method into a memory-mapped back-off model file
 //!   (and ARPA text) and answers queries from it.
 //! * [`query`] turns the store's statistics into smoothed probabilities
@@ -69,6 +71,8 @@
 #![deny(unsafe_code)]
 
 pub mod arpa;
+#[cfg(feature = "store")]
+pub mod blend;
 pub mod corpus;
 #[cfg(feature = "store")]
 pub mod count;

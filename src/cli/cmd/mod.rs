@@ -1,5 +1,6 @@
 //! One file per subcommand.
 
+pub mod blend;
 pub mod collocations;
 pub mod dump;
 pub mod freeze;
