@@ -212,14 +212,11 @@ impl Opened {
                 )));
             }
             let params = r.params.clone().unwrap_or_default();
-            let part = Part::open(
-                &r.path,
-                Some(r.method),
-                params,
-                cache_bytes / stores,
-                residence,
-            )
-            .map_err(|e| refuse(e.to_string()))?;
+            // A model is opened as it is now: its checksum tells whether
+            // it changed (its method included).
+            let method = (r.kind == PartKind::Store).then_some(r.method);
+            let part = Part::open(&r.path, method, params, cache_bytes / stores, residence)
+                .map_err(|e| refuse(e.to_string()))?;
             let now = part.checksum();
             if now != r.settings_checksum {
                 return Err(refuse(format!(
