@@ -10,14 +10,18 @@
 //!   Mercer 1980) over the probabilities each part gives held-out text.
 //! * [`file`]: the blend file (`quern blend --out`), its parts by path,
 //!   kind, method and settings checksum, and their weights.
+//! * [`freeze`]: the blend in back-off form (`quern freeze --blend`):
+//!   the union of the parts' n-grams with the exact mixture, back-off
+//!   weights recomputed so that every context sums to 1.
 //! * [`open`]: the one file that opens stores and models: a part by path,
 //!   and a blend file with every part checked against its record.
 //!
-//! [`mixture`], [`fit`] and [`file`] know only the
+//! [`mixture`], [`fit`], [`file`] and [`freeze`] know only the
 //! [`crate::query::Predictor`] trait and plain records, never a store.
 
 pub mod file;
 pub mod fit;
+pub mod freeze;
 pub mod mixture;
 pub mod open;
 

@@ -14,6 +14,7 @@ use crate::error::{Error, Result};
 use crate::model::{Model, Residence};
 use crate::query::{Estimator, Method, Params, Predictor};
 use crate::store::Store;
+use crate::words::{bos_id, unk_id, WordId};
 
 use super::file::{settings_checksum, BlendFile, PartKind, PartRecord, BLEND_FORMAT_VERSION};
 use super::mixture::Blend;
@@ -132,6 +133,32 @@ impl Part {
         })
     }
 
+    /// The highest order.
+    pub fn order(&self) -> usize {
+        match &self.source {
+            Source::Store(s) => s.order(),
+            Source::Model(m) => m.order(),
+        }
+    }
+
+    /// The part's n-grams of order `k` (a store's every n-gram, a model's
+    /// kept ones), `k` ids each one after the other.
+    pub fn ngram_ids(&self, k: usize) -> Result<Vec<WordId>> {
+        if k > self.order() {
+            return Ok(Vec::new());
+        }
+        match &self.source {
+            Source::Store(s) => {
+                let mut out = Vec::new();
+                for r in s.ngrams(k)? {
+                    out.extend_from_slice(r?.0.ids());
+                }
+                Ok(out)
+            }
+            Source::Model(m) => Ok(crate::model::arpa::ngram_ids(m, k)),
+        }
+    }
+
     /// The part's text preparation.
     pub fn preparation(&self) -> crate::tokenize::Preparation {
         match &self.source {
@@ -240,6 +267,29 @@ impl Opened {
             record,
             parts,
         })
+    }
+
+    /// The union of the parts' n-grams: `out[k − 1]` holds those of order
+    /// k (k = 1..N, N the largest order of the parts), sorted, without
+    /// repeats; `<s>` and `<unk>` are among the unigrams. Closed under
+    /// prefixes and suffixes, as every part's n-grams are.
+    pub fn ngram_union(&self) -> Result<Vec<Vec<Box<[WordId]>>>> {
+        let n = self.parts.iter().map(|p| p.order()).max().unwrap_or(1);
+        let mut out = Vec::with_capacity(n);
+        for k in 1..=n {
+            let mut grams: Vec<Box<[WordId]>> = Vec::new();
+            for p in &self.parts {
+                grams.extend(p.ngram_ids(k)?.chunks(k).map(Box::from));
+            }
+            if k == 1 {
+                grams.push(Box::new([bos_id()]));
+                grams.push(Box::new([unk_id()]));
+            }
+            grams.sort_unstable();
+            grams.dedup();
+            out.push(grams);
+        }
+        Ok(out)
     }
 
     /// The blend for the calling thread.

@@ -602,8 +602,13 @@ pub struct DocArgs {
 #[derive(Args, Debug)]
 pub struct FreezeArgs {
     /// Store directory.
-    #[arg(long, required_unless_present = "from_arpa")]
+    #[arg(long, required_unless_present_any = ["from_arpa", "blend"])]
     pub store: Option<PathBuf>,
+    /// Freeze a blend file written by `quern blend` instead of a store:
+    /// the union of its parts' n-grams with the exact mixture, back-off
+    /// weights recomputed.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "from_arpa", "method", "min_counts"])]
+    pub blend: Option<PathBuf>,
     /// Read a back-off model from ARPA text (FILE or FILE.gz, checked line
     /// by line) instead of a store, and write it as a model file.
     #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "method", "min_counts"])]

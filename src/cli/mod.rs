@@ -62,6 +62,7 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Tune(a) => cmd::tune::run(a),
         args::Command::Blend(a) => cmd::blend::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),
+        args::Command::Freeze(a) if a.blend.is_some() => cmd::freeze_blend::run(a),
         args::Command::Freeze(a) => cmd::freeze::run(a),
         args::Command::CheckModel(a) => cmd::freeze::check_model(&a.model, a.json),
         args::Command::Vocab(a) => cmd::vocab::run(a),

@@ -134,5 +134,5 @@ pub use bytes::Residence;
 pub use file::Model;
 pub use format::ModelMeta;
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
-pub use import::freeze_arpa;
+pub use import::{freeze_arpa, write_backoff, Origin};
 pub use query::State;

@@ -4,6 +4,7 @@ pub mod blend;
 pub mod collocations;
 pub mod dump;
 pub mod freeze;
+pub mod freeze_blend;
 pub mod ingest;
 pub mod keyness;
 pub mod keystrokes;
