@@ -119,6 +119,19 @@ pub enum Error {
     /// A setting is out of range.
     #[error("invalid setting: {0}")]
     Config(String),
+    /// A part of a blend file cannot be used: it moved, changed since the
+    /// file was written, or does not fit with the other parts.
+    #[error("{blend}: part {part} ({path}): {detail}")]
+    BlendPart {
+        /// The blend file.
+        blend: PathBuf,
+        /// The part's number (1-based, in the file's order).
+        part: usize,
+        /// The part's path as the file names it.
+        path: PathBuf,
+        /// What is wrong and what to do about it.
+        detail: String,
+    },
     /// A thread panicked while it held a lock, so what the lock guards may
     /// be half updated: the work stops instead of going on with it.
     #[error(

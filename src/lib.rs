@@ -16,6 +16,8 @@
 //!   [`FreezeOptions`], or [`freeze_arpa`] from ARPA text). Both are a
 //!   [`Predictor`]: [`Prob`], the top next words and completions
 //!   ([`Next`], prefixes matched as [`PrefixMatch`] says), distributions;
+//! * several sources: a [`Blend`] of stores and models, named by a
+//!   [`BlendFile`] with weights fitted on held-out text;
 //! * held-out text: [`Scorer`] and its [`ScoreReport`]; documents on many
 //!   threads: [`score_text`] and [`score_texts`];
 //! * text: the [`Preparation`] a store records, applied to a query by
@@ -72,6 +74,9 @@ extern crate self as quern;
 
 #[doc(hidden)]
 pub mod arpa;
+#[cfg(feature = "store")]
+#[doc(hidden)]
+pub mod blend;
 #[cfg(feature = "capi")]
 #[doc(hidden)]
 pub mod capi;
@@ -144,6 +149,8 @@ pub(crate) mod wordlist;
 #[doc(hidden)]
 pub mod words;
 
+#[cfg(feature = "store")]
+pub use blend::{Blend, BlendFile};
 pub use error::{Error, Result};
 #[cfg(feature = "store")]
 pub use ingest::{

@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use clap::{Args, Parser, Subcommand};
 use quern::query::{DiscountPolicy, Method};
 
+pub use super::blend_args::BlendArgs;
 pub use super::corpus_args::{CollocationsArgs, KeynessArgs, LinesArgs, ListFormatArgs, TopArgs};
 pub use super::input_args::{DocumentArgs, InputArgs, PreparationArgs};
 pub use super::stage_args::StageCommand;
@@ -52,6 +53,9 @@ pub enum Command {
     Score(ScoreArgs),
     /// Fit the free parameters of add-k or interp on held-out text.
     Tune(TuneArgs),
+    /// Mix several stores and models into one blend file, with weights
+    /// given or fitted on held-out text.
+    Blend(BlendArgs),
     /// Keystroke savings of word completion on held-out text: typing it
     /// word by word with the top K completions shown.
     Keystrokes(KeystrokesArgs),
@@ -175,14 +179,19 @@ pub struct QuerySourceArgs {
     #[arg(
         long,
         value_name = "DIR",
-        required_unless_present = "model",
-        conflicts_with = "model"
+        required_unless_present_any = ["model", "blend"],
+        conflicts_with_all = ["model", "blend"]
     )]
     pub store: Option<PathBuf>,
     /// A model file written by `quern freeze`, in place of --store (its
     /// method and parameters are the ones it was frozen with).
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", conflicts_with = "blend")]
     pub model: Option<PathBuf>,
+    /// A blend file written by `quern blend`, in place of --store: the
+    /// mixture of its parts with its weights (a word outside a part's
+    /// vocabulary gets that part's <unk> probability).
+    #[arg(long, value_name = "FILE")]
+    pub blend: Option<PathBuf>,
     /// With --model: read the model whole into memory (on huge pages where
     /// the system allows) instead of mapping it. Opening then takes about
     /// 2 to 4 seconds a gigabyte and the file's size in memory; lookups in a
@@ -604,8 +613,13 @@ pub struct DocArgs {
 #[derive(Args, Debug)]
 pub struct FreezeArgs {
     /// Store directory.
-    #[arg(long, required_unless_present = "from_arpa")]
+    #[arg(long, required_unless_present_any = ["from_arpa", "blend"])]
     pub store: Option<PathBuf>,
+    /// Freeze a blend file written by `quern blend` instead of a store:
+    /// the union of its parts' n-grams with the exact mixture, back-off
+    /// weights recomputed.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "from_arpa", "method", "min_counts"])]
+    pub blend: Option<PathBuf>,
     /// Read a back-off model from ARPA text (FILE or FILE.gz, checked line
     /// by line) instead of a store, and write it as a model file.
     #[arg(long, value_name = "FILE", conflicts_with_all = ["store", "method", "min_counts"])]

@@ -1,6 +1,7 @@
 //! Command-line parsing and the subcommands. Only this layer prints.
 
 mod args;
+mod blend_args;
 mod cmd;
 mod corpus_args;
 mod input_args;
@@ -84,7 +85,9 @@ fn dispatch(command: args::Command) -> anyhow::Result<()> {
         args::Command::Lines(a) => cmd::lines::run(a),
         args::Command::Score(a) => cmd::score::run(a),
         args::Command::Tune(a) => cmd::tune::run(a),
+        args::Command::Blend(a) => cmd::blend::run(a),
         args::Command::Keystrokes(a) => cmd::keystrokes::run(a),
+        args::Command::Freeze(a) if a.blend.is_some() => cmd::freeze_blend::run(a),
         args::Command::Freeze(a) => cmd::freeze::run(a),
         args::Command::CheckModel(a) => cmd::freeze::check_model(&a.model, a.json),
         args::Command::Vocab(a) => cmd::vocab::run(a),

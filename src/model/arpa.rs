@@ -168,3 +168,24 @@ pub fn skipping_contexts(model: &Model) -> Vec<String> {
     }
     out
 }
+
+/// The word ids of every kept n-gram of order `k`, in entry order, `k`
+/// ids an n-gram one after the other.
+pub fn ngram_ids(model: &Model, k: usize) -> Vec<crate::words::WordId> {
+    let mut out = Vec::with_capacity(model.kept(k) * k);
+    let mut anc = vec![0usize; k];
+    for e in 0..model.kept(k) {
+        let mut child = e;
+        for t in (1..k).rev() {
+            while anc[t] < model.kept(t) && model.children(t, anc[t] as u32).end <= child {
+                anc[t] += 1;
+            }
+            child = anc[t];
+        }
+        for (t, &a) in anc.iter().enumerate().skip(1) {
+            out.push(model.id_at(model.word_of(t, a)));
+        }
+        out.push(model.id_at(model.word_of(k, e)));
+    }
+    out
+}

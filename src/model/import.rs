@@ -37,20 +37,51 @@ pub fn freeze_arpa(
     opts: &FreezeOptions,
     lowercase: bool,
 ) -> Result<FreezeReport> {
+    let origin = Origin {
+        method: Method::Arpa,
+        preparation: crate::tokenize::Preparation::lowercasing(lowercase),
+        notes: vec![format!(
+            "read from ARPA text {} ({} n-grams of orders 1..{})",
+            source.display(),
+            arpa.orders.iter().map(|o| o.len() as u64).sum::<u64>(),
+            arpa.order()
+        )],
+    };
+    write_backoff(arpa, out, opts, origin)
+}
+
+/// What made a back-off model given as [`ArpaModel`]: recorded in the
+/// model file's metadata.
+#[derive(Clone, Debug)]
+pub struct Origin {
+    /// The method the model file names (`arpa`, `blend`).
+    pub method: Method,
+    /// How query text is prepared.
+    pub preparation: crate::tokenize::Preparation,
+    /// Notes (the first says where the model came from).
+    pub notes: Vec<String>,
+}
+
+/// Writes the back-off model `arpa` (q and β as probabilities, n-grams
+/// closed under prefixes and suffixes) as the model file `out`, reduced by
+/// `opts` as [`freeze_arpa`] does.
+pub fn write_backoff(
+    arpa: &ArpaModel,
+    out: &Path,
+    opts: &FreezeOptions,
+    origin: Origin,
+) -> Result<FreezeReport> {
     if opts.min_counts.iter().any(|&c| c > 1) {
-        return Err(Error::Config(
-            "an ARPA model has no counts: count thresholds do not apply".into(),
-        ));
+        return Err(Error::Config(format!(
+            "a model made by {} has no counts: count thresholds do not apply",
+            origin.method
+        )));
     }
     let n = arpa.order();
     if n == 0 {
-        return Err(Error::Config("the ARPA model has no n-grams".into()));
+        return Err(Error::Config("the model has no n-grams".into()));
     }
-    let mut notes = vec![format!(
-        "read from ARPA text {} ({} n-grams of orders 1..{n})",
-        source.display(),
-        arpa.orders.iter().map(|o| o.len() as u64).sum::<u64>()
-    )];
+    let mut notes = origin.notes;
     // ---- the vocabulary: the file's words, <s> and <unk> added ----------
     let mut words: Vec<&str> = arpa.words.iter().map(|w| w.as_str()).collect();
     let mut unk_seen = true;
@@ -141,17 +172,14 @@ pub fn freeze_arpa(
     let mut ngrams = vec![nw as u64];
     ngrams.extend(arpa.orders[1..].iter().map(|o| o.len() as u64));
     let meta = ModelMeta {
-        method: Method::Arpa,
+        method: origin.method,
         params: Params::default(),
         constants: serde_json::Value::Null,
         notes: notes.clone(),
         probabilities: true,
         default_backoff: 1.0,
         order: n,
-        preparation: crate::tokenize::Preparation {
-            lowercase,
-            ..Default::default()
-        },
+        preparation: origin.preparation,
         vocabulary: nw as u64 - 1,
         unk_seen,
         ngrams: ngrams.clone(),

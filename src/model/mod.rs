@@ -150,5 +150,5 @@ pub use format::ModelMeta;
 #[cfg(feature = "store")]
 pub use freeze::{freeze, FreezeOptions, FreezeReport};
 #[cfg(feature = "store")]
-pub use import::freeze_arpa;
+pub use import::{freeze_arpa, write_backoff, Origin};
 pub use query::State;

@@ -37,6 +37,10 @@ pub enum Method {
     /// whatever method made it elsewhere, it exists only as a frozen
     /// model, never over a store.
     Arpa,
+    /// A linear mixture of several stores and models (`quern blend`):
+    /// it exists only as a blend file or a model frozen from one, never
+    /// over a store.
+    Blend,
 }
 
 impl Method {
@@ -66,6 +70,7 @@ impl Method {
             Method::Mle => "mle",
             Method::Stupid => "stupid",
             Method::Arpa => "arpa",
+            Method::Blend => "blend",
         }
     }
 

@@ -16,7 +16,11 @@
 //! * `Model(path)` (`predictor::PyModel`): a frozen model, memory-mapped,
 //!   shared by any number of threads.
 //!
-//! Both predictors have `prob`, `log10`, `next`, `score` and `score_many`;
+//! * `Blend(path, memory="256MiB")` (`predictor::PyBlend`): the mixture
+//!   of a blend file's parts (`quern blend`), bound to its thread like an
+//!   estimator.
+//!
+//! Every predictor has `prob`, `log10`, `next`, `score` and `score_many`;
 //! `score_many` releases the GIL and scores on worker threads
 //! ([`crate::scoring::score_texts`]). Nothing copies a store or a model: the
 //! Python objects hold them behind an `Arc`. Library errors become Python
@@ -38,5 +42,6 @@ fn quern_module(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<store::PyStore>()?;
     m.add_class::<predictor::PyEstimator>()?;
     m.add_class::<predictor::PyModel>()?;
+    m.add_class::<predictor::PyBlend>()?;
     Ok(())
 }

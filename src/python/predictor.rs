@@ -1,5 +1,6 @@
-//! `quern.Estimator` (a method over a store) and `quern.Model` (a frozen
-//! model): the same methods on both, over [`Predictor`].
+//! `quern.Estimator` (a method over a store), `quern.Model` (a frozen
+//! model) and `quern.Blend` (a blend file's mixture): the same methods on
+//! all three, over [`Predictor`].
 
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -10,6 +11,7 @@ use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyList, PyString};
 
 use super::convert::{error, json_to_py, words_text, QuernError};
+use crate::blend::{Blend, Opened};
 use crate::model::{Model, Residence};
 use crate::query::{query_ids, Estimator, Method, Params, Predictor, Prob};
 use crate::scoring::{self, BoxedModel, DocResult, MakeModel, Models, Outcome};
@@ -428,6 +430,107 @@ predictor_methods!(PyModel {
             "quern.Model({:?}, method={:?}, order={})",
             self.model.path().display().to_string(),
             self.pred().method().name(),
+            self.pred().order()
+        )
+    }
+});
+
+/// A blend file's parts, open, with the calling thread's mixture over them.
+struct OwnedBlend {
+    /// Declared before `opened`, so dropped before it.
+    blend: Blend<'static>,
+    opened: Arc<Opened>,
+}
+
+/// A blend written by `quern blend`: `Blend(path, memory="256MiB")`.
+///
+/// P(w | h) = Σ λᵢ Pᵢ(w | h) over its parts (stores with their methods,
+/// frozen models) with the file's weights; a word outside a part's
+/// vocabulary gets that part's `<unk>` probability. Its store parts'
+/// estimators keep caches that are not thread-safe, so it belongs to the
+/// thread that made it; `score_many` makes one mixture per worker thread.
+#[pyclass(name = "Blend", module = "quern", unsendable)]
+pub struct PyBlend {
+    inner: OwnedBlend,
+}
+
+impl PyBlend {
+    fn pred(&self) -> &dyn Predictor {
+        &self.inner.blend
+    }
+
+    fn score_parallel(
+        &self,
+        py: Python<'_>,
+        texts: Vec<String>,
+        threads: usize,
+    ) -> PyResult<Vec<DocResult>> {
+        let opened = self.inner.opened.clone();
+        py.detach(move || {
+            let make = || -> crate::Result<BoxedModel<'_>> { Ok(Box::new(opened.blend()?)) };
+            score_with(texts, threads, &make)
+        })
+        .map_err(error)
+    }
+}
+
+predictor_methods!(PyBlend {
+    /// Opens the blend file at `path` and its parts, each checked against
+    /// what the file recorded (a part that moved or changed is refused by
+    /// name). `memory` sizes the stores' caches as `--memory` does; with
+    /// `load=True` the model parts are read whole into memory.
+    #[new]
+    #[pyo3(signature = (path, memory = "256MiB", load = false))]
+    fn new(py: Python<'_>, path: PathBuf, memory: &str, load: bool) -> PyResult<Self> {
+        let mem = crate::memory::parse_size(memory).map_err(error)?;
+        let residence = if load {
+            Residence::Loaded
+        } else {
+            Residence::Mapped
+        };
+        let opened = py
+            .detach(|| Opened::open(&path, (mem / 4 * 3) as usize, residence))
+            .map_err(error)?;
+        let opened = Arc::new(opened);
+        #[allow(unsafe_code)]
+        // SAFETY: the mixture borrows the parts inside the `Arc`, whose
+        // heap address does not change while any clone of the `Arc` lives.
+        // `OwnedBlend` keeps a clone in the field after `blend`, and fields
+        // drop in declaration order, so the parts outlive the mixture. The
+        // `'static` borrow never leaves `OwnedBlend`: the mixture is lent
+        // out only as `&dyn Predictor` tied to `&self`.
+        let o: &'static Opened = unsafe { &*Arc::as_ptr(&opened) };
+        let blend = o.blend().map_err(error)?;
+        Ok(PyBlend {
+            inner: OwnedBlend { blend, opened },
+        })
+    }
+
+    /// The blend file.
+    #[getter]
+    fn path(&self) -> PathBuf {
+        self.inner.opened.file.clone()
+    }
+
+    /// The weights λᵢ, in the parts' order.
+    #[getter]
+    fn weights(&self) -> Vec<f64> {
+        self.inner.opened.record.weights()
+    }
+
+    /// The parts as the file records them: a list of dicts of `path`,
+    /// `kind` (`store` or `model`), `method`, `params` (stores),
+    /// `settings_checksum` and `weight`.
+    #[getter]
+    fn parts(&self, py: Python<'_>) -> PyResult<Py<PyAny>> {
+        super::convert::to_py(py, &self.inner.opened.record.parts)
+    }
+
+    fn __repr__(&self) -> String {
+        format!(
+            "quern.Blend({:?}, parts={}, order={})",
+            self.inner.opened.file.display().to_string(),
+            self.inner.opened.parts.len(),
             self.pred().order()
         )
     }

@@ -63,52 +63,57 @@ impl<'s> Estimator<'s> {
             return Err(Error::state(store.dir(), "the store holds no tokens"));
         }
         let mut notes = Vec::new();
-        let model = match method {
-            Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts(
-                meta,
-                &params.discounts,
-                &mut notes,
-            )?),
-            Method::Kn => Model::Kn(kneser_ney::single_discounts(
-                meta,
-                false,
-                &params.discounts,
-                &mut notes,
-            )?),
-            Method::Absolute => Model::Absolute(kneser_ney::single_discounts(
-                meta,
-                true,
-                &params.discounts,
-                &mut notes,
-            )?),
-            Method::WittenBell => Model::WittenBell,
-            Method::Katz => Model::Katz(katz::katz_orders(meta, params.katz_k, &mut notes)),
-            Method::Interp => Model::Interp(jelinek_mercer::Lambdas::from_params(&params, n)?),
-            Method::AddK => {
-                if !(params.k > 0.0 && params.k.is_finite()) {
-                    return Err(Error::Config(format!(
-                        "add-k: k must be a positive number, not {}",
-                        params.k
-                    )));
+        let model =
+            match method {
+                Method::Mkn => Model::Mkn(kneser_ney::mkn_discounts(
+                    meta,
+                    &params.discounts,
+                    &mut notes,
+                )?),
+                Method::Kn => Model::Kn(kneser_ney::single_discounts(
+                    meta,
+                    false,
+                    &params.discounts,
+                    &mut notes,
+                )?),
+                Method::Absolute => Model::Absolute(kneser_ney::single_discounts(
+                    meta,
+                    true,
+                    &params.discounts,
+                    &mut notes,
+                )?),
+                Method::WittenBell => Model::WittenBell,
+                Method::Katz => Model::Katz(katz::katz_orders(meta, params.katz_k, &mut notes)),
+                Method::Interp => Model::Interp(jelinek_mercer::Lambdas::from_params(&params, n)?),
+                Method::AddK => {
+                    if !(params.k > 0.0 && params.k.is_finite()) {
+                        return Err(Error::Config(format!(
+                            "add-k: k must be a positive number, not {}",
+                            params.k
+                        )));
+                    }
+                    Model::AddK(params.k)
                 }
-                Model::AddK(params.k)
-            }
-            Method::Mle => Model::Mle,
-            Method::Arpa => {
-                return Err(Error::Config(
-                    "arpa names a model read from ARPA text; a store has no such method".into(),
-                ))
-            }
-            Method::Stupid => {
-                if !(params.alpha > 0.0 && params.alpha.is_finite()) {
-                    return Err(Error::Config(format!(
-                        "stupid: alpha must be a positive number, not {}",
-                        params.alpha
-                    )));
+                Method::Mle => Model::Mle,
+                Method::Arpa => {
+                    return Err(Error::Config(
+                        "arpa names a model read from ARPA text; a store has no such method".into(),
+                    ))
                 }
-                Model::Stupid(params.alpha)
-            }
-        };
+                Method::Blend => return Err(Error::Config(
+                    "blend names a mixture of sources (quern blend); a store has no such method"
+                        .into(),
+                )),
+                Method::Stupid => {
+                    if !(params.alpha > 0.0 && params.alpha.is_finite()) {
+                        return Err(Error::Config(format!(
+                            "stupid: alpha must be a positive number, not {}",
+                            params.alpha
+                        )));
+                    }
+                    Model::Stupid(params.alpha)
+                }
+            };
         Ok(Estimator {
             store,
             method,

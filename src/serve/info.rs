@@ -14,6 +14,35 @@ pub enum Info {
     Store(StoreInfo),
     /// A frozen model.
     Model(ModelInfo),
+    /// A blend of stores and models.
+    Blend(BlendInfo),
+}
+
+/// `/info` over a blend.
+#[derive(Clone, Debug, Serialize)]
+pub struct BlendInfo {
+    /// `"blend"`.
+    pub source: &'static str,
+    /// The blend file, as the service was given it.
+    pub path: String,
+    /// The highest order of the parts.
+    pub order: usize,
+    /// `"blend"`.
+    pub method: &'static str,
+    /// The one method a request may name: `blend`.
+    pub methods: Vec<&'static str>,
+    /// Words in the union of the parts' vocabularies.
+    pub vocabulary_size: u64,
+    /// The parts: `path`, `kind`, `method`, `weight`.
+    pub parts: Vec<serde_json::Value>,
+    /// Tokens were lowercased when counted (queries are too).
+    pub lowercase: bool,
+    /// The text preparation the parts share, which queries get too.
+    pub preparation: serde_json::Value,
+    /// `true`: the mixture of probabilities.
+    pub probabilities: bool,
+    /// `false`: a blend serves no counts.
+    pub counts: bool,
 }
 
 /// `/info` over a store.
@@ -109,6 +138,38 @@ impl Info {
                     lowercase: meta.preparation.lowercase,
                     preparation: meta.preparation.to_json(),
                     probabilities: meta.probabilities,
+                    counts: false,
+                })
+            }
+            Source::Blend(o) => {
+                use crate::query::Predictor;
+                let r = &o.record;
+                let (order, vocabulary_size) = match o.blend() {
+                    Ok(b) => (b.order(), b.vocabulary_size()),
+                    Err(_) => (0, 0),
+                };
+                Info::Blend(BlendInfo {
+                    source: "blend",
+                    path: path.to_string(),
+                    order,
+                    method: Method::Blend.name(),
+                    methods: vec![Method::Blend.name()],
+                    vocabulary_size,
+                    parts: r
+                        .parts
+                        .iter()
+                        .map(|p| {
+                            serde_json::json!({
+                                "path": p.path,
+                                "kind": p.kind,
+                                "method": p.method.name(),
+                                "weight": p.weight,
+                            })
+                        })
+                        .collect(),
+                    lowercase: r.preparation.lowercase,
+                    preparation: r.preparation.to_json(),
+                    probabilities: true,
                     counts: false,
                 })
             }

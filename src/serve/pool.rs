@@ -8,6 +8,7 @@
 
 use crossbeam::channel::{self, Receiver, Sender, TrySendError};
 
+use crate::blend::{Blend, Opened};
 use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::query::{Estimator, Method, Params, Predictor};
@@ -21,6 +22,9 @@ pub enum Source<'s> {
     Store(&'s Store),
     /// A frozen model: its one method.
     Model(&'s Model),
+    /// A blend file's parts: the method `blend`, each thread with its own
+    /// mixture over them.
+    Blend(&'s Opened),
 }
 
 impl Source<'_> {
@@ -29,6 +33,7 @@ impl Source<'_> {
         match self {
             Source::Store(_) => Method::Mkn,
             Source::Model(m) => m.meta().method,
+            Source::Blend(_) => Method::Blend,
         }
     }
 }
@@ -40,6 +45,8 @@ pub enum Lent<'a> {
     Est(&'a Estimator<'a>),
     /// The frozen model.
     Model(&'a Model),
+    /// The thread's blend.
+    Blend(&'a Blend<'a>),
 }
 
 impl<'a> Lent<'a> {
@@ -48,6 +55,7 @@ impl<'a> Lent<'a> {
         match *self {
             Lent::Est(e) => e,
             Lent::Model(m) => m,
+            Lent::Blend(b) => b,
         }
     }
 
@@ -56,6 +64,7 @@ impl<'a> Lent<'a> {
         match *self {
             Lent::Est(e) => e,
             Lent::Model(m) => m,
+            Lent::Blend(b) => b,
         }
     }
 }
@@ -72,6 +81,7 @@ pub trait Local {
 struct Thread<'s> {
     src: Source<'s>,
     ests: Vec<Estimator<'s>>,
+    blend: Option<Blend<'s>>,
 }
 
 impl Local for Thread<'_> {
@@ -100,6 +110,17 @@ impl Local for Thread<'_> {
                     }
                 };
                 Ok(Lent::Est(&self.ests[i]))
+            }
+            Source::Blend(o) => {
+                if method != Method::Blend {
+                    return Err(Error::Config(format!(
+                        "a blend answers with the method blend, not {method}"
+                    )));
+                }
+                if self.blend.is_none() {
+                    self.blend = Some(o.blend()?);
+                }
+                Ok(Lent::Blend(self.blend.as_ref().expect("just made")))
             }
         }
     }
@@ -151,6 +172,7 @@ pub fn with_pool<R>(
                     let mut t = Thread {
                         src,
                         ests: Vec::new(),
+                        blend: None,
                     };
                     for job in rx.iter() {
                         // A panic fails its request (its answer channel is

@@ -275,6 +275,7 @@ impl<'t> Independent<'t> {
             Method::Mle => Model::Mle,
             Method::Stupid => Model::Stupid(params.alpha),
             Method::Arpa => unreachable!("a model read from ARPA text has no store method"),
+            Method::Blend => unreachable!("a blend has no store method"),
         };
         Independent {
             t,

@@ -145,6 +145,15 @@ mod typing;
 // directly (orders 3 and 5); malformed ARPA files refused at their line.
 mod arpa_read;
 
+// `quern blend` and `--blend`: the mixture equals Σ λᵢ Pᵢ from each part
+// alone through prob, next (against a brute-force top K over the union),
+// score, keystrokes (the Python simulation) and serve; EM weights against
+// a plain Python EM; moved, changed and differently prepared parts refused;
+// freeze --blend: sums to 1 (the ARPA reader), the union, the exact mixture.
+mod blend;
+mod blend_fit;
+mod blend_freeze;
+
 // `vocab`: coverage and held-out words outside each size against a Python
 // count of the same text; the --top list read by `ingest --word-list`.
 mod vocab;

@@ -19,7 +19,7 @@ use crate::cli::args::FreezeArgs;
 
 /// Perplexity of padded sentences from a batch scorer: `None` if a
 /// prediction got 0.
-fn perplexity(
+pub fn perplexity(
     sentences: &[Vec<WordId>],
     n: usize,
     mut batch: impl FnMut(&[&[WordId]]) -> quern::Result<Vec<quern::query::Prob>>,
@@ -77,10 +77,10 @@ pub fn check_model(path: &Path, json_out: bool) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// `--from-arpa`: ARPA text read, checked and written as a model file
-/// (and ARPA again, reduced, with `--arpa`).
-fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
-    let opts = FreezeOptions {
+/// The reductions of a model made without counts (from ARPA text or a
+/// blend): pruning and quantization, no count thresholds, one thread.
+pub fn reduce_options(a: &FreezeArgs) -> anyhow::Result<FreezeOptions> {
+    Ok(FreezeOptions {
         min_counts: Vec::new(),
         relative_entropy: a.relative_entropy,
         max_ngrams: a.max_ngrams,
@@ -89,8 +89,13 @@ fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
         threads: 1,
         max_bytes: a.max_bytes.map(|b| b.bytes()),
         never_suggest: never_suggest(a)?,
-    };
-    let (out, temporary) = match (&a.out, &a.arpa) {
+    })
+}
+
+/// The model file to write, and whether it is temporary (only `--arpa`
+/// given: the model is written beside it and removed afterwards).
+pub fn model_path(a: &FreezeArgs) -> (PathBuf, bool) {
+    match (&a.out, &a.arpa) {
         (Some(o), _) => (o.clone(), false),
         (None, Some(arpa)) => {
             let mut p = arpa.as_os_str().to_owned();
@@ -98,7 +103,14 @@ fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
             (PathBuf::from(p), true)
         }
         (None, None) => unreachable!("clap requires --out or --arpa"),
-    };
+    }
+}
+
+/// `--from-arpa`: ARPA text read, checked and written as a model file
+/// (and ARPA again, reduced, with `--arpa`).
+fn from_arpa(a: &FreezeArgs, src: &Path) -> anyhow::Result<()> {
+    let opts = reduce_options(a)?;
+    let (out, temporary) = model_path(a);
     let t = std::time::Instant::now();
     let text = quern::arpa::read_arpa_file(src)?;
     let read_secs = t.elapsed().as_secs_f64();
@@ -235,16 +247,7 @@ pub fn run(a: FreezeArgs) -> anyhow::Result<()> {
             store.order()
         );
     }
-    // Only --arpa: the model is written beside it and removed afterwards.
-    let (out, temporary) = match (&a.out, &a.arpa) {
-        (Some(o), _) => (o.clone(), false),
-        (None, Some(arpa)) => {
-            let mut p = arpa.as_os_str().to_owned();
-            p.push(".model.tmp");
-            (PathBuf::from(p), true)
-        }
-        (None, None) => unreachable!("clap requires --out or --arpa"),
-    };
+    let (out, temporary) = model_path(&a);
     let t = std::time::Instant::now();
     let report =
         freeze(&est, &out, &opts).with_context(|| format!("freezing into {}", out.display()))?;

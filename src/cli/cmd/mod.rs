@@ -1,8 +1,10 @@
 //! One file per subcommand.
 
+pub mod blend;
 pub mod collocations;
 pub mod dump;
 pub mod freeze;
+pub mod freeze_blend;
 pub mod ingest;
 pub mod keyness;
 pub mod keystrokes;

@@ -5,6 +5,7 @@
 use std::io::{BufRead, BufWriter, Write};
 
 use anyhow::{bail, Context};
+use quern::blend::{Blend, Opened};
 use quern::model::{Model, Residence};
 use quern::query::{query_ids, Estimator, Method, Params, ParamsFile, Predictor, Prob};
 use quern::store::Store;
@@ -23,21 +24,30 @@ pub enum Source {
     Store(Store),
     /// `--model`.
     Model(Model),
+    /// `--blend`: the blend file with its parts open.
+    Blend(Opened),
 }
 
-/// Opens `--store` (with a block cache of three quarters of `--memory`)
-/// or `--model`.
+/// Opens `--store` (with a block cache of three quarters of `--memory`),
+/// `--model` or `--blend` (its stores sharing that cache).
 pub fn open_source(a: &QuerySourceArgs) -> anyhow::Result<Source> {
-    if a.load_model && a.model.is_none() {
-        bail!("--load-model reads a model file into memory: it goes with --model, not --store");
+    if a.load_model && a.model.is_none() && a.blend.is_none() {
+        bail!("--load-model reads a model file into memory: it goes with --model or --blend, not --store");
     }
+    let residence = if a.load_model {
+        Residence::Loaded
+    } else {
+        Residence::Mapped
+    };
     if let Some(m) = &a.model {
-        let residence = if a.load_model {
-            Residence::Loaded
-        } else {
-            Residence::Mapped
-        };
         return Ok(Source::Model(Model::open_as(m, residence)?));
+    }
+    if let Some(b) = &a.blend {
+        return Ok(Source::Blend(Opened::open(
+            b,
+            a.memory.block_cache(),
+            residence,
+        )?));
     }
     let dir = a.store.as_ref().expect("clap requires --store or --model");
     Ok(Source::Store(Store::open_with_cache(
@@ -53,6 +63,8 @@ pub enum Pred<'s> {
     Est(Box<Estimator<'s>>),
     /// A frozen model.
     Model(&'s Model),
+    /// A blend of stores and models.
+    Blend(Box<Blend<'s>>),
 }
 
 impl Pred<'_> {
@@ -61,6 +73,7 @@ impl Pred<'_> {
         match self {
             Pred::Est(e) => e.as_ref(),
             Pred::Model(m) => *m,
+            Pred::Blend(b) => b.as_ref(),
         }
     }
 }
@@ -97,6 +110,19 @@ pub fn predictor<'s>(
                 );
             }
             Ok(Pred::Model(m))
+        }
+        Source::Blend(o) => {
+            if let Some(want) = method.filter(|&m| m != Method::Blend) {
+                bail!(
+                    "{}: a blend mixes its parts with their own methods; leave out --method {want}",
+                    o.file.display()
+                );
+            }
+            let b = o.blend()?;
+            for n in b.notes() {
+                eprintln!("quern: note: {n}");
+            }
+            Ok(Pred::Blend(Box::new(b)))
         }
     }
 }

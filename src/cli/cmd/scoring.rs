@@ -49,23 +49,33 @@ pub fn run(a: ScoreArgs) -> anyhow::Result<()> {
         (Some(dir), _) => Some(open_source(&QuerySourceArgs {
             store: Some(dir.clone()),
             model: None,
+            blend: None,
             load_model: false,
             memory: a.store.memory,
         })?),
         (_, Some(m)) => Some(open_source(&QuerySourceArgs {
             store: None,
             model: Some(m.clone()),
+            blend: None,
             load_model: a.store.load_model,
             memory: a.store.memory,
         })?),
         _ => None,
     };
+    // A blend's parts keep their own methods; a general store beside a
+    // blend is read with mkn.
+    let general_method = match method {
+        quern::query::Method::Blend => None,
+        m => Some(m),
+    };
     if let Some(g) = &general {
-        predictor(g, Some(method), &a.params)
+        predictor(g, general_method, &a.params)
             .context("the general model (--minus-store or --minus-model)")?;
     }
+    let gm = general_method.unwrap_or(quern::query::Method::Mkn);
+    let gp = params(gm, &a.params)?;
     let make_main = || make(&src, method, &p);
-    let make_general = || make(general.as_ref().expect("a general model"), method, &p);
+    let make_general = || make(general.as_ref().expect("a general model"), gm, &gp);
     let models = Models {
         main: &make_main,
         general: general
@@ -85,6 +95,7 @@ fn make<'a>(
     Ok(match src {
         Source::Store(store) => Box::new(Estimator::new(store, method, p.clone())?),
         Source::Model(m) => Box::new(m),
+        Source::Blend(b) => Box::new(b.blend()?),
     })
 }
 

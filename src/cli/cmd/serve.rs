@@ -13,6 +13,7 @@ pub fn run(a: ServeArgs) -> anyhow::Result<()> {
     let (src, path) = match &opened {
         Opened::Store(s) => (Source::Store(s), s.dir().display().to_string()),
         Opened::Model(m) => (Source::Model(m), m.path().display().to_string()),
+        Opened::Blend(b) => (Source::Blend(b), b.file.display().to_string()),
     };
     let mut opts = Options::new(a.listen);
     if let Some(t) = a.threads {
@@ -25,6 +26,7 @@ pub fn run(a: ServeArgs) -> anyhow::Result<()> {
     let what = match src {
         Source::Store(_) => "store",
         Source::Model(_) => "model",
+        Source::Blend(_) => "blend",
     };
     let ready = |addr| {
         // Scripts and tests wait for this line (and read the port from it).

@@ -132,3 +132,22 @@ class Model(_Predictor):
         ...
     @property
     def path(self) -> pathlib.Path: ...
+
+class Blend(_Predictor):
+    """The mixture of a blend file's parts (`quern blend`): P(w | h) =
+    sum of weight_i * P_i(w | h); a word outside a part's vocabulary gets
+    that part's <unk> probability. Bound to the thread that made it (its
+    store parts' estimators are): make one per thread."""
+
+    def __init__(
+        self, path: Union[str, os.PathLike[str]], memory: str = "256MiB", load: bool = False
+    ) -> None:
+        """Opens a blend file and its parts; a part that moved or changed
+        since the file was written is refused by name."""
+        ...
+    @property
+    def path(self) -> pathlib.Path: ...
+    @property
+    def weights(self) -> list[float]: ...
+    @property
+    def parts(self) -> list[dict[str, Any]]: ...
