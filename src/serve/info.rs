@@ -3,8 +3,28 @@
 
 use serde::Serialize;
 
-use super::pool::Source;
+use crate::model::Model;
 use crate::query::Method;
+use crate::store::Store;
+
+/// What is served: a store or a frozen model.
+#[derive(Clone, Copy)]
+pub enum Source<'s> {
+    /// A store: every method, each with its default parameters.
+    Store(&'s Store),
+    /// A frozen model: its one method.
+    Model(&'s Model),
+}
+
+impl Source<'_> {
+    /// The method of a request that names none: the model's, or `mkn`.
+    pub fn default_method(&self) -> Method {
+        match self {
+            Source::Store(_) => Method::Mkn,
+            Source::Model(m) => m.meta().method,
+        }
+    }
+}
 
 /// The answer to `/info`.
 #[derive(Clone, Debug, Serialize)]
