@@ -1,5 +1,5 @@
 //! The answers of the service, as JSON, computed on a query thread from a
-//! parsed request. No HTTP here: [`super`] parses the body, hands the
+//! parsed and checked request ([`super::request`]). No HTTP here: [`super`] parses the body, hands the
 //! request to a query thread and writes what comes back.
 //!
 //! The shapes are the command line's: `/prob` answers what `quern prob
@@ -7,41 +7,19 @@
 //! --json` does ([`WordJson`]), and `/score` gives each text the record of
 //! a scored document ([`crate::scoring::DocResult::record`]).
 
-use serde::{Deserialize, Serialize};
+use serde::Serialize;
 use serde_json::Value;
 
 use super::pool::{Local, Source};
+pub use super::request::{
+    Fail, NextRequest, NgramsRequest, ProbRequest, ScoreRequest, MAX_NGRAMS, MAX_TOP,
+};
 use crate::error::Error;
 use crate::query::{
     cursor, jnum, parse_cursor, prefix_page, query_ids, Method, Predictor, ProbJson, WordJson,
 };
 use crate::scoring::{Format, Options, RawLine, Record, Worker};
 use crate::words::WordId;
-
-/// Most words `/next` lists.
-pub const MAX_TOP: usize = 1000;
-/// Most n-grams `/ngrams` lists.
-pub const MAX_NGRAMS: usize = 1000;
-
-/// A request refused, or a query that failed: the HTTP status and the
-/// message of `{"error": ...}`.
-#[derive(Debug)]
-pub struct Fail {
-    /// HTTP status (4xx for the client's mistakes, 5xx for ours).
-    pub status: u16,
-    /// What went wrong.
-    pub message: String,
-}
-
-impl Fail {
-    /// A bad request (400).
-    pub fn bad(message: impl Into<String>) -> Fail {
-        Fail {
-            status: 400,
-            message: message.into(),
-        }
-    }
-}
 
 impl From<Error> for Fail {
     /// A configuration error (an unknown method, a parameter the data do
@@ -105,80 +83,6 @@ struct NgramsAnswer {
     next: Option<String>,
 }
 
-/// `POST /prob`.
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ProbRequest {
-    /// The words before (may be empty).
-    #[serde(default)]
-    pub context: String,
-    /// The word.
-    pub word: String,
-    /// The method (a store only; default `mkn`).
-    #[serde(default)]
-    pub method: Option<String>,
-}
-
-/// `POST /next`.
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct NextRequest {
-    /// The words before (may be empty).
-    #[serde(default)]
-    pub context: String,
-    /// The start of the word being typed (may be empty).
-    #[serde(default)]
-    pub prefix: String,
-    /// How many words (default 10, at most [`MAX_TOP`]).
-    #[serde(default = "ten")]
-    pub top: usize,
-    /// The method (a store only; default `mkn`).
-    #[serde(default)]
-    pub method: Option<String>,
-    /// How the prefix matches: `exact` (default) or `folded` (regardless
-    /// of case and accents).
-    #[serde(default, rename = "match")]
-    pub matching: Option<String>,
-}
-
-fn ten() -> usize {
-    10
-}
-
-/// `POST /score`.
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct ScoreRequest {
-    /// The texts: each a document, its lines the sentences.
-    pub texts: Vec<String>,
-    /// The method (a store only; default `mkn`).
-    #[serde(default)]
-    pub method: Option<String>,
-}
-
-/// `POST /ngrams` (a store only).
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct NgramsRequest {
-    /// The words the n-grams begin with (may be empty).
-    #[serde(default)]
-    pub words: String,
-    /// The order (default: one more than the words given).
-    #[serde(default)]
-    pub order: Option<usize>,
-    /// How many (default 20, at most [`MAX_NGRAMS`]).
-    #[serde(default = "twenty")]
-    pub limit: usize,
-    /// The cursor of the page before (its answer's `next`, as `quern
-    /// ngrams --after` takes it): this page starts after that n-gram.
-    #[serde(default)]
-    pub after: Option<String>,
-}
-
-fn twenty() -> usize {
-    20
-}
-
 fn method(src: Source<'_>, name: &Option<String>) -> Result<Method, Fail> {
     match name {
         None => Ok(src.default_method()),
@@ -204,12 +108,6 @@ pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
     let m = method(l.source(), &q.method)?;
     let lent = l.get(m)?;
     let p = lent.pred();
-    if q.word.split_whitespace().count() != 1 {
-        return Err(Fail::bad(format!(
-            "word: {:?} is not one word (the words before it go in context)",
-            q.word
-        )));
-    }
     let line = format!("{} {}", q.context, q.word);
     let ids = query_ids(&line, &p.preparation());
     let (&w, ctx) = ids.split_last().expect("the word is one token");
@@ -221,18 +119,6 @@ pub fn prob(l: &mut dyn Local, q: ProbRequest) -> Answer {
 /// `/next`: the top words after the context that begin with the prefix.
 pub fn next(l: &mut dyn Local, q: NextRequest) -> Answer {
     let m = method(l.source(), &q.method)?;
-    if q.top == 0 || q.top > MAX_TOP {
-        return Err(Fail::bad(format!(
-            "top: {} is not from 1 to {MAX_TOP}",
-            q.top
-        )));
-    }
-    if q.prefix.chars().any(char::is_whitespace) {
-        return Err(Fail::bad(format!(
-            "prefix: {:?} is not the start of one word (no spaces)",
-            q.prefix
-        )));
-    }
     let matching: crate::topk::PrefixMatch = match &q.matching {
         Some(h) => h.parse().map_err(|e| Fail::bad(format!("match: {e}")))?,
         None => Default::default(),
@@ -305,12 +191,6 @@ pub fn ngrams(l: &mut dyn Local, q: NgramsRequest) -> Answer {
              serve a store (--store) to list n-grams with their counts",
         ));
     };
-    if q.limit == 0 || q.limit > MAX_NGRAMS {
-        return Err(Fail::bad(format!(
-            "limit: {} is not from 1 to {MAX_NGRAMS}",
-            q.limit
-        )));
-    }
     let after = match q.after.as_deref().map(parse_cursor) {
         None => None,
         Some(Some(ids)) => Some(ids),

@@ -3,8 +3,33 @@
 
 use serde::Serialize;
 
-use super::pool::Source;
+use crate::blend::Opened;
+use crate::model::Model;
 use crate::query::Method;
+use crate::store::Store;
+
+/// What is served: a store, a frozen model or a blend.
+#[derive(Clone, Copy)]
+pub enum Source<'s> {
+    /// A store: every method, each with its default parameters.
+    Store(&'s Store),
+    /// A frozen model: its one method.
+    Model(&'s Model),
+    /// A blend file's parts: the method `blend`, each thread with its own
+    /// mixture over them.
+    Blend(&'s Opened),
+}
+
+impl Source<'_> {
+    /// The method of a request that names none: the model's, or `mkn`.
+    pub fn default_method(&self) -> Method {
+        match self {
+            Source::Store(_) => Method::Mkn,
+            Source::Model(m) => m.meta().method,
+            Source::Blend(_) => Method::Blend,
+        }
+    }
+}
 
 /// The answer to `/info`.
 #[derive(Clone, Debug, Serialize)]

@@ -14,38 +14,78 @@
 //! | `GET /stats.svg` | a store's statistics figure (as `quern stats --plot`) |
 //! | `GET /` | the page |
 //!
+//! | `GET /metrics` | counters and gauges in the Prometheus text format ([`metrics`]) |
+//! | `POST /admin/reload` | opens the source again from its path, checks it and swaps it in: `{"reloaded": true, "generation", "path", "load_seconds"}`, or 500 and the error (the source before is kept) |
+//!
 //! A bad request (a body that is not JSON, a missing field, a wrong type,
-//! an unknown field or method, a body over the size limit, an unknown
-//! path) gets a 4xx status and `{"error": "..."}`.
+//! an unknown field or method, a body over the size limit, more work than
+//! a request may ask for, an unknown path) gets a 4xx status and
+//! `{"error": "..."}`. With a token ([`Options::token`]), every request but
+//! `GET /health` and `GET /` (the page, which asks for the token) needs
+//! `Authorization: Bearer <token>`; without it or with another, 401. Every
+//! answer carries an `x-request-id` header (the request's own, if it sent a
+//! short one of letters, digits, `-`, `_` and `.`; else a new one), which
+//! the access log names.
+//!
+//! # Limits
+//!
+//! A connection must send each request's head within the read timeout of
+//! starting to wait for it (which also bounds how long a keep-alive
+//! connection may sit idle), and its body within the read timeout of the
+//! head; else it is closed (a late body gets 408). At most
+//! [`Options::max_connections`] connections are open: another one is
+//! answered 503 and closed at once. A `/score` request holds at most
+//! [`request::Limits::max_texts`] texts (more: 413), a `/next` at most
+//! [`request::MAX_TOP`] words, and any body at most
+//! [`Options::max_request_bytes`] (more: 413).
 //!
 //! # How it runs
 //!
-//! The network side is axum on a small tokio runtime; the queries run on a
+//! The network side is axum's router on a small tokio runtime, each
+//! connection served by hyper's HTTP/1 connection (for its head timeout)
+//! from an accept loop that holds the connection cap; the queries run on a
 //! pool of query threads ([`pool`]), each with its own estimators over the
 //! one store (or the one shared model), fed through a bounded queue (full:
 //! 503). [`run`] owns no part of the process: when the shutdown future its
 //! caller gives resolves (the binary's resolves on SIGTERM or SIGINT), it
 //! stops taking connections, lets the requests under way finish, joins the
 //! query threads and returns. The statistics figure is drawn in memory.
+//!
+//! # Reloading
+//!
+//! [`Reloader::reload`] (the binary calls it on SIGHUP) and `POST
+//! /admin/reload` call the opener [`run`] was given, which opens the
+//! source again from its path and checks it (the binary's reads a model
+//! whole and checks every checksum). If it opens, it is swapped in
+//! ([`pool::Current`]): requests under way finish on the old source, new
+//! ones get the new. If not, the old source goes on serving, the refusal is
+//! written to standard error, `/info`'s `reload` says why and
+//! `quern_reload_failing` is 1. One reload runs at a time.
 
 pub mod api;
 mod info;
+pub mod metrics;
 pub mod pool;
+pub mod request;
 
 use std::future::Future;
+use std::io::Write as _;
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicU64, Ordering};
-use std::sync::{Arc, OnceLock};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant, SystemTime};
 
-use axum::body::Bytes;
+use axum::body::{Body, Bytes, HttpBody};
 use axum::extract::rejection::BytesRejection;
 use axum::extract::{DefaultBodyLimit, Request, State};
-use axum::http::{header, Method as HttpMethod, StatusCode, Uri};
+use axum::http::{header, HeaderValue, Method as HttpMethod, StatusCode, Uri};
 use axum::middleware::{self, Next};
 use axum::response::{IntoResponse, Response};
 use axum::routing::{get, post};
 use axum::Router;
-use serde::de::DeserializeOwned;
+use hyper_util::rt::{TokioIo, TokioTimer};
+use hyper_util::service::TowerToHyperService;
+use serde::Serialize;
 use serde_json::json;
 
 use crate::error::{Error, Result};
@@ -53,10 +93,23 @@ use crate::stats::plot::write_svg;
 use crate::stats::{report, ReportOptions};
 pub use api::Fail;
 pub use info::Info;
-pub use pool::{Jobs, Local, Source};
+use metrics::Metrics;
+pub use pool::{Current, Jobs, Loaded, Local, Owned, Source};
+use request::{Checked, Limits};
 
 /// The page, embedded in the binary.
 const PAGE: &str = include_str!("page.html");
+
+/// The access log: one line per request on standard error.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LogFormat {
+    /// A JSON object a line.
+    Json,
+    /// `TIME ID METHOD PATH STATUS LATENCY BYTES`, space-separated.
+    Text,
+    /// No access log.
+    Off,
+}
 
 /// How the service runs.
 #[derive(Clone, Debug)]
@@ -69,16 +122,36 @@ pub struct Options {
     pub max_request_bytes: usize,
     /// Requests waiting for a query thread at most (more: 503).
     pub queue: usize,
+    /// Time to send a request's head (from when the connection waits for
+    /// it: this bounds idle keep-alive connections too) and, apart, its
+    /// body.
+    pub read_timeout: Duration,
+    /// Connections open at most (more: 503 and closed).
+    pub max_connections: usize,
+    /// The work one request may ask for.
+    pub limits: Limits,
+    /// Requests but `/health` and the page need `Authorization: Bearer`
+    /// with this token; `None`: no token asked (and no `/admin/reload`).
+    pub token: Option<String>,
+    /// The access log.
+    pub log: LogFormat,
 }
 
 impl Options {
-    /// Defaults: one query thread per core, 1 MiB requests, a queue of 1024.
+    /// Defaults: one query thread per core, 1 MiB requests, a queue of
+    /// 1024, a read timeout of 5 s, 512 connections, 1,000 texts a
+    /// `/score`, no token, no access log.
     pub fn new(listen: SocketAddr) -> Options {
         Options {
             listen,
             threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
             max_request_bytes: 1 << 20,
             queue: 1024,
+            read_timeout: Duration::from_secs(5),
+            max_connections: 512,
+            limits: Limits::default(),
+            token: None,
+            log: LogFormat::Off,
         }
     }
 }
@@ -90,26 +163,116 @@ pub struct Served {
     pub requests: u64,
 }
 
+/// Opens the source again from its path and checks it (a reload).
+pub type Opener = Box<dyn Fn() -> Result<Owned> + Send + Sync>;
+
+/// The last reload refused: when, and why.
+#[derive(Clone, Debug, Serialize)]
+struct Refusal {
+    at: String,
+    error: String,
+}
+
+/// What reloads need, shared by the HTTP side and [`Reloader`].
+struct Reloads {
+    open: Opener,
+    current: Arc<Current>,
+    metrics: Arc<Metrics>,
+    /// Held while a reload runs: one at a time.
+    running: Mutex<Option<Refusal>>,
+}
+
+impl Reloads {
+    /// Opens, checks and swaps in the source; blocks. `by` names who asked
+    /// (for the log line).
+    fn reload(&self, by: &str) -> std::result::Result<Arc<Loaded>, String> {
+        let mut last = self.running.lock().unwrap_or_else(|p| p.into_inner());
+        let before = self.current.get();
+        let t0 = Instant::now();
+        match (self.open)() {
+            Ok(owned) => {
+                let next = Loaded::new(
+                    owned,
+                    &before.path,
+                    before.generation + 1,
+                    t0.elapsed().as_secs_f64(),
+                );
+                self.current.swap(next);
+                *last = None;
+                self.metrics.reloads.fetch_add(1, Ordering::Relaxed);
+                let now = self.current.get();
+                eprintln!(
+                    "quern: reloaded {} ({by}): generation {}, opened and checked in {:.3} s",
+                    now.path, now.generation, now.load_seconds
+                );
+                Ok(now)
+            }
+            Err(e) => {
+                let msg = format!(
+                    "reloading {} failed, still serving generation {}: {e}",
+                    before.path, before.generation
+                );
+                eprintln!("quern: {msg} ({by})");
+                *last = Some(Refusal {
+                    at: metrics::rfc3339(SystemTime::now()),
+                    error: e.to_string(),
+                });
+                self.metrics.reloads_refused.fetch_add(1, Ordering::Relaxed);
+                Err(msg)
+            }
+        }
+    }
+
+    fn refused(&self) -> Option<Refusal> {
+        self.running
+            .try_lock()
+            .map(|g| g.clone())
+            .unwrap_or_default()
+    }
+}
+
+/// Asks the running service to reload its source (see the module's
+/// "Reloading"); the binary calls it on SIGHUP.
+#[derive(Clone)]
+pub struct Reloader {
+    reloads: Arc<Reloads>,
+    rt: tokio::runtime::Handle,
+}
+
+impl Reloader {
+    /// Starts a reload in the background and returns at once; the outcome
+    /// is written to standard error and shown by `/info` and `/metrics`.
+    pub fn reload(&self, by: &'static str) {
+        let r = self.reloads.clone();
+        self.rt.spawn_blocking(move || {
+            let _ = r.reload(by);
+        });
+    }
+}
+
 struct Shared {
     jobs: Jobs,
-    /// The answer to `/info`, as JSON.
-    info: String,
-    figure: OnceLock<std::result::Result<Arc<Vec<u8>>, String>>,
-    requests: AtomicU64,
+    current: Arc<Current>,
+    reloads: Arc<Reloads>,
+    metrics: Arc<Metrics>,
+    opts: Options,
+    /// The requests' ids: a prefix for this run, then a count.
+    id_prefix: u32,
+    next_id: AtomicU64,
 }
 
 type St = Arc<Shared>;
 
-/// Serves `src` until `shutdown` resolves, then lets the requests under
-/// way finish and returns. `path` is what `/info` names as the source;
-/// `ready` is called with the bound address once requests are accepted.
-/// `shutdown` is first polled inside the service's runtime, so it may
-/// install tokio signal handlers there.
+/// Serves `first` (generation 1) until `shutdown` resolves, then lets the requests under way finish and
+/// returns. `open` opens the source again for a reload. `ready` is called
+/// inside the service's runtime with the bound address and a [`Reloader`]
+/// once requests are accepted. `shutdown` is first polled inside the
+/// service's runtime, so it may install tokio signal handlers there.
 pub fn run(
-    src: Source<'_>,
-    path: &str,
+    first: Loaded,
+    open: Opener,
     opts: &Options,
-    ready: impl FnOnce(SocketAddr),
+    ready: impl FnOnce(SocketAddr, Reloader),
     shutdown: impl Future<Output = ()> + Send + 'static,
 ) -> Result<Served> {
     let io = |e: std::io::Error| Error::Io {
@@ -120,13 +283,26 @@ pub fn run(
     let listener = std::net::TcpListener::bind(opts.listen).map_err(io)?;
     listener.set_nonblocking(true).map_err(io)?;
     let addr = listener.local_addr().map_err(io)?;
-    let info = serde_json::to_string(&Info::of(src, path)).expect("/info serializes");
-    pool::with_pool(src, opts.threads, opts.queue, |jobs| {
+    let current = Arc::new(Current::new(first));
+    let metrics = Arc::new(Metrics::default());
+    let reloads = Arc::new(Reloads {
+        open,
+        current: current.clone(),
+        metrics: metrics.clone(),
+        running: Mutex::new(None),
+    });
+    pool::with_pool(&current, opts.threads, opts.queue, |jobs| {
+        let started = SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .unwrap_or_default();
         let state = Arc::new(Shared {
             jobs,
-            info,
-            figure: OnceLock::new(),
-            requests: AtomicU64::new(0),
+            current: current.clone(),
+            reloads: reloads.clone(),
+            metrics: metrics.clone(),
+            opts: opts.clone(),
+            id_prefix: (started.as_secs() as u32) ^ started.subsec_nanos().rotate_left(16),
+            next_id: AtomicU64::new(0),
         });
         let rt = tokio::runtime::Builder::new_multi_thread()
             .worker_threads(2)
@@ -135,17 +311,84 @@ pub fn run(
             .build()
             .map_err(io)?;
         let app = router(state.clone(), opts.max_request_bytes);
+        let reloader = Reloader {
+            reloads: reloads.clone(),
+            rt: rt.handle().clone(),
+        };
         rt.block_on(async {
             let l = tokio::net::TcpListener::from_std(listener)?;
-            ready(addr);
-            axum::serve(l, app).with_graceful_shutdown(shutdown).await
+            ready(addr, reloader);
+            accept_loop(l, app, state.clone(), shutdown).await;
+            Ok::<(), std::io::Error>(())
         })
         .map_err(io)?;
-        rt.shutdown_timeout(std::time::Duration::from_secs(5));
+        rt.shutdown_timeout(Duration::from_secs(5));
         Ok(Served {
-            requests: state.requests.load(Ordering::Relaxed),
+            requests: metrics.requests(),
         })
     })
+}
+
+/// The answer to a connection over the cap, written as it is accepted.
+const BUSY: &[u8] = b"HTTP/1.1 503 Service Unavailable\r\ncontent-type: application/json\r\n\
+connection: close\r\ncontent-length: 73\r\n\r\n\
+{\"error\":\"too many connections are open (--max-connections): try again\"}";
+
+/// Takes connections until `shutdown` resolves, at most
+/// `max_connections` open at once, each served by hyper's HTTP/1
+/// connection with the head timeout; then waits (30 s at most) for the
+/// connections to finish the requests under way.
+async fn accept_loop(
+    l: tokio::net::TcpListener,
+    app: Router,
+    st: St,
+    shutdown: impl Future<Output = ()> + Send + 'static,
+) {
+    let permits = Arc::new(tokio::sync::Semaphore::new(st.opts.max_connections.max(1)));
+    let graceful = hyper_util::server::graceful::GracefulShutdown::new();
+    let mut http = hyper::server::conn::http1::Builder::new();
+    http.timer(TokioTimer::new())
+        .header_read_timeout(st.opts.read_timeout)
+        .keep_alive(true);
+    tokio::pin!(shutdown);
+    loop {
+        let (stream, _) = tokio::select! {
+            _ = &mut shutdown => break,
+            r = l.accept() => match r {
+                Ok(c) => c,
+                Err(_) => {
+                    // Out of file descriptors or a connection reset before
+                    // it was taken: wait a little, never give up.
+                    tokio::time::sleep(Duration::from_millis(20)).await;
+                    continue;
+                }
+            },
+        };
+        let Ok(permit) = permits.clone().try_acquire_owned() else {
+            st.metrics.refused.fetch_add(1, Ordering::Relaxed);
+            // The socket's send buffer is empty: this write does not wait.
+            let _ = stream.try_write(BUSY);
+            continue;
+        };
+        let _ = stream.set_nodelay(true);
+        st.metrics.accepted.fetch_add(1, Ordering::Relaxed);
+        st.metrics.open.fetch_add(1, Ordering::Relaxed);
+        let conn =
+            http.serve_connection(TokioIo::new(stream), TowerToHyperService::new(app.clone()));
+        let conn = graceful.watch(conn);
+        let m = st.metrics.clone();
+        tokio::spawn(async move {
+            if let Err(e) = conn.await {
+                if e.is_timeout() {
+                    m.timed_out.fetch_add(1, Ordering::Relaxed);
+                }
+            }
+            m.open.fetch_sub(1, Ordering::Relaxed);
+            drop(permit);
+        });
+    }
+    drop(l);
+    let _ = tokio::time::timeout(Duration::from_secs(30), graceful.shutdown()).await;
 }
 
 fn router(state: St, max_body: usize) -> Router {
@@ -153,23 +396,172 @@ fn router(state: St, max_body: usize) -> Router {
         .route("/", get(page))
         .route("/health", get(health))
         .route("/info", get(info))
+        .route("/metrics", get(metrics_text))
         .route("/stats.svg", get(figure))
         .route("/prob", post(prob))
         .route("/next", post(next))
         .route("/score", post(score))
         .route("/ngrams", post(ngrams))
+        .route("/admin/reload", post(admin_reload))
         .fallback(not_found)
         .method_not_allowed_fallback(not_allowed)
         .layer(DefaultBodyLimit::max(max_body))
-        // Last, so that it wraps every route and both fallbacks.
-        .layer(middleware::from_fn_with_state(state.clone(), counted))
+        .layer(middleware::from_fn_with_state(state.clone(), read_body))
+        .layer(middleware::from_fn_with_state(state.clone(), guard))
+        // Last, so that it wraps every route, both fallbacks and the
+        // refusals of the layers above.
+        .layer(middleware::from_fn_with_state(state.clone(), observe))
         .with_state(state)
 }
 
-/// Counts every request, whatever answers it.
-async fn counted(State(st): State<St>, request: Request, next: Next) -> Response {
-    st.requests.fetch_add(1, Ordering::Relaxed);
-    next.run(request).await
+/// A request id sent by the client that is short and plain enough to echo.
+fn plain_id(v: &HeaderValue) -> Option<&str> {
+    let s = v.to_str().ok()?;
+    (!s.is_empty()
+        && s.len() <= 64
+        && s.bytes()
+            .all(|b| b.is_ascii_alphanumeric() || matches!(b, b'-' | b'_' | b'.')))
+    .then_some(s)
+}
+
+/// Counts, times and logs every request, whatever answers it, and echoes
+/// its id in `x-request-id`.
+async fn observe(State(st): State<St>, request: Request, next: Next) -> Response {
+    let t0 = Instant::now();
+    let at = SystemTime::now();
+    let id = match request.headers().get("x-request-id").and_then(plain_id) {
+        Some(s) => s.to_string(),
+        None => format!(
+            "{:08x}-{:06x}",
+            st.id_prefix,
+            st.next_id.fetch_add(1, Ordering::Relaxed)
+        ),
+    };
+    let method = request.method().clone();
+    let path = request.uri().path().to_string();
+    let e = metrics::endpoint(&path);
+    let mut resp = next.run(request).await;
+    let took = t0.elapsed();
+    let status = resp.status().as_u16();
+    st.metrics.observe(e, status, took);
+    if let Ok(v) = HeaderValue::from_str(&id) {
+        resp.headers_mut().insert("x-request-id", v);
+    }
+    if st.opts.log != LogFormat::Off {
+        let bytes = resp.body().size_hint().exact().unwrap_or(0);
+        let ms = took.as_secs_f64() * 1e3;
+        let time = metrics::rfc3339(at);
+        let line = if st.opts.log == LogFormat::Json {
+            json!({
+                "time": time,
+                "id": id,
+                "method": method.as_str(),
+                "endpoint": metrics::ENDPOINTS[e],
+                "path": path,
+                "status": status,
+                "latency_ms": (ms * 1000.0).round() / 1000.0,
+                "bytes": bytes,
+            })
+            .to_string()
+        } else {
+            format!("{time} {id} {method} {path:?} {status} {ms:.3}ms {bytes}B")
+        };
+        let mut err = std::io::stderr().lock();
+        let _ = writeln!(err, "{line}");
+    }
+    resp
+}
+
+/// `a == b` in a time that depends on their lengths only, not on where
+/// they first differ.
+fn same_secret(a: &[u8], b: &[u8]) -> bool {
+    let mut diff = (a.len() ^ b.len()) as u64;
+    for i in 0..a.len().max(b.len()) {
+        let x = a.get(i).copied().unwrap_or(0);
+        let y = b.get(i).copied().unwrap_or(0);
+        diff |= u64::from(std::hint::black_box(x ^ y));
+    }
+    std::hint::black_box(diff) == 0
+}
+
+/// Asks for the token on every path but `/health` and the page.
+async fn guard(State(st): State<St>, request: Request, next: Next) -> Response {
+    let Some(token) = &st.opts.token else {
+        return next.run(request).await;
+    };
+    let path = request.uri().path();
+    if path == "/health" || (path == "/" && request.method() == HttpMethod::GET) {
+        return next.run(request).await;
+    }
+    let given = request
+        .headers()
+        .get(header::AUTHORIZATION)
+        .and_then(|v| v.as_bytes().strip_prefix(b"Bearer "));
+    let msg = match given {
+        Some(t) if same_secret(t, token.as_bytes()) => return next.run(request).await,
+        Some(_) => "the token is not the service's (Authorization: Bearer <token>)",
+        None => "this service needs a token: send Authorization: Bearer <token>",
+    };
+    let mut resp = error(401, msg);
+    resp.headers_mut()
+        .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
+    resp
+}
+
+/// Reads a request's body within the read timeout and the size limit,
+/// so that the handlers see it whole.
+async fn read_body(State(st): State<St>, request: Request, next: Next) -> Response {
+    if request.method() != HttpMethod::POST {
+        return next.run(request).await;
+    }
+    let limit = st.opts.max_request_bytes;
+    let too_large = || {
+        error(
+            413,
+            "the request body is larger than the limit (--max-request-bytes)",
+        )
+    };
+    let declared = request
+        .headers()
+        .get(header::CONTENT_LENGTH)
+        .and_then(|v| v.to_str().ok()?.parse::<u64>().ok());
+    if declared.is_some_and(|n| n > limit as u64) {
+        return closing(too_large());
+    }
+    let (parts, mut body) = request.into_parts();
+    let collect = async {
+        let mut buf = Vec::new();
+        while let Some(frame) =
+            std::future::poll_fn(|cx| std::pin::Pin::new(&mut body).poll_frame(cx)).await
+        {
+            let frame = frame.map_err(|e| error(400, &format!("reading the request body: {e}")))?;
+            if let Ok(data) = frame.into_data() {
+                if buf.len() + data.len() > limit {
+                    return Err(too_large());
+                }
+                buf.extend_from_slice(&data);
+            }
+        }
+        Ok(buf)
+    };
+    match tokio::time::timeout(st.opts.read_timeout, collect).await {
+        Ok(Ok(buf)) => next.run(Request::from_parts(parts, Body::from(buf))).await,
+        Ok(Err(resp)) => closing(resp),
+        Err(_) => closing(error(
+            408,
+            &format!(
+                "the request body did not arrive within {:.1} s (--read-timeout)",
+                st.opts.read_timeout.as_secs_f64()
+            ),
+        )),
+    }
+}
+
+/// `resp`, and the connection closes after it (its body was not read).
+fn closing(mut resp: Response) -> Response {
+    resp.headers_mut()
+        .insert(header::CONNECTION, HeaderValue::from_static("close"));
+    resp
 }
 
 /// A JSON answer with `status`.
@@ -190,8 +582,87 @@ async fn health() -> Response {
     reply(200, json!({ "ok": true }).to_string())
 }
 
+/// `/info`: what is served, and the state of reloads.
+#[derive(Serialize)]
+struct InfoAnswer<'a> {
+    #[serde(flatten)]
+    info: &'a Info,
+    reload: ReloadState,
+}
+
+/// `/info`'s `reload`.
+#[derive(Serialize)]
+struct ReloadState {
+    /// 1 for the source the service started with, one more at each reload.
+    generation: u64,
+    /// When the source served was opened.
+    loaded_at: String,
+    /// How long opening and checking it took.
+    load_seconds: f64,
+    /// The last reload, if it was refused.
+    refused: Option<Refusal>,
+}
+
 async fn info(State(st): State<St>) -> Response {
-    reply(200, st.info.clone())
+    let now = st.current.get();
+    let a = InfoAnswer {
+        info: &now.info,
+        reload: ReloadState {
+            generation: now.generation,
+            loaded_at: metrics::rfc3339(now.loaded_at),
+            load_seconds: now.load_seconds,
+            refused: st.reloads.refused(),
+        },
+    };
+    match serde_json::to_string(&a) {
+        Ok(t) => reply(200, t),
+        Err(e) => error(500, &e.to_string()),
+    }
+}
+
+async fn metrics_text(State(st): State<St>) -> Response {
+    let now = st.current.get();
+    let g = metrics::Gauges {
+        loaded: &now,
+        reload_failing: st.reloads.refused().is_some(),
+        queue_waiting: st.jobs.waiting(),
+        queue_capacity: st.opts.queue,
+        threads: st.opts.threads,
+        max_connections: st.opts.max_connections,
+    };
+    (
+        [(
+            header::CONTENT_TYPE,
+            "text/plain; version=0.0.4; charset=utf-8",
+        )],
+        metrics::render(&st.metrics, &g),
+    )
+        .into_response()
+}
+
+/// `POST /admin/reload`: reloads now and answers how it went.
+async fn admin_reload(State(st): State<St>) -> Response {
+    if st.opts.token.is_none() {
+        return error(
+            403,
+            "reloading over HTTP needs a token (--token-file); SIGHUP reloads",
+        );
+    }
+    let r = st.reloads.clone();
+    match tokio::task::spawn_blocking(move || r.reload("POST /admin/reload")).await {
+        Ok(Ok(now)) => reply(
+            200,
+            json!({
+                "reloaded": true,
+                "generation": now.generation,
+                "path": now.path,
+                "load_seconds": now.load_seconds,
+            })
+            .to_string(),
+        ),
+        Ok(Err(msg)) => error(500, &msg),
+        Err(_) => error(500, "the reload failed (the server's log says why)"),
+    }
 }
 
 async fn not_found(method: HttpMethod, uri: Uri) -> Response {
@@ -202,7 +673,7 @@ async fn not_allowed(method: HttpMethod, uri: Uri) -> Response {
     error(
         405,
         &format!(
-            "{} does not take {method} (GET /health, /info, /stats.svg; POST /prob, /next, /score, /ngrams)",
+            "{} does not take {method} (GET /health, /info, /metrics, /stats.svg; POST /prob, /next, /score, /ngrams, /admin/reload)",
             uri.path()
         ),
     )
@@ -228,8 +699,9 @@ async fn on_pool<T: Send + 'static>(
         .map_err(|_| error(500, "the query failed (the server's log says why)"))
 }
 
-/// Parses a JSON body into `Q`, answers it with `f` on a query thread.
-async fn answer<Q: DeserializeOwned + Send + 'static>(
+/// Parses and checks a JSON body into `Q`, answers it with `f` on a query
+/// thread.
+async fn answer<Q: Checked + Send + 'static>(
     st: St,
     body: std::result::Result<Bytes, BytesRejection>,
     f: fn(&mut dyn Local, Q) -> api::Answer,
@@ -245,9 +717,9 @@ async fn answer<Q: DeserializeOwned + Send + 'static>(
             return error(r.status().as_u16(), &msg);
         }
     };
-    let q: Q = match serde_json::from_slice(&bytes) {
+    let q: Q = match request::parse(&bytes, &st.opts.limits) {
         Ok(q) => q,
-        Err(e) => return error(400, &format!("bad request body: {e}")),
+        Err(fail) => return error(fail.status, &fail.message),
     };
     match on_pool(&st, move |l| f(l, q)).await {
         Ok(Ok(v)) => reply(200, v),
@@ -276,27 +748,30 @@ async fn ngrams(
 }
 
 /// `GET /stats.svg`: the statistics figure of a store, drawn on first
-/// request (on a query thread) and kept.
+/// request (on a query thread) and kept with the source.
 async fn figure(State(st): State<St>) -> Response {
-    if st.figure.get().is_none() {
-        let made = match on_pool(&st, draw_figure).await {
-            Ok(r) => r,
-            Err(resp) => return resp,
-        };
-        let _ = st.figure.set(made);
-    }
-    match st.figure.get().expect("set above") {
-        Ok(svg) => (
-            [(header::CONTENT_TYPE, "image/svg+xml")],
-            svg.as_ref().clone(),
-        )
-            .into_response(),
-        Err(msg) => error(404, msg),
+    let made = on_pool(&st, |l| {
+        l.loaded()
+            .figure
+            .get_or_init(|| draw_figure(l.source()))
+            .clone()
+    })
+    .await;
+    match made {
+        Err(resp) => resp,
+        Ok(made) => match made {
+            Ok(svg) => (
+                [(header::CONTENT_TYPE, "image/svg+xml")],
+                svg.as_ref().clone(),
+            )
+                .into_response(),
+            Err(msg) => error(404, &msg),
+        },
     }
 }
 
-fn draw_figure(l: &mut dyn Local) -> std::result::Result<Arc<Vec<u8>>, String> {
-    let Source::Store(store) = l.source() else {
+fn draw_figure(src: Source<'_>) -> std::result::Result<Arc<Vec<u8>>, String> {
+    let Source::Store(store) = src else {
         return Err(
             "a frozen model keeps no count-of-counts: the statistics figure \
                     needs a store (--store); /info gives the model's n-grams per order"

@@ -5,9 +5,21 @@
 //! warm across requests. A frozen [`Model`] is shared as it is. The HTTP
 //! side hands a thread a job through a bounded queue and awaits its answer
 //! on a one-shot channel, so that no query blocks the network threads.
+//!
+//! What is served is a [`Loaded`] source behind [`Current`], which a reload
+//! swaps. A thread takes the current source when it takes a job: a job
+//! taken before a swap finishes on the old source (the thread's `Arc`
+//! keeps it open), every job taken after it runs on the new one, and the
+//! thread's estimators are built anew over it. An idle thread lets go of
+//! an old source within a second.
 
-use crossbeam::channel::{self, Receiver, Sender, TrySendError};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Arc, OnceLock, RwLock};
+use std::time::{Duration, SystemTime};
 
+use crossbeam::channel::{self, Receiver, RecvTimeoutError, Sender, TrySendError};
+
+pub use super::info::Source;
 use crate::blend::{Blend, Opened};
 use crate::error::{Error, Result};
 use crate::model::Model;
@@ -15,26 +27,101 @@ use crate::query::{Estimator, Method, Params, Predictor};
 use crate::scoring::DocModel;
 use crate::store::Store;
 
-/// What is served: a store or a frozen model.
-#[derive(Clone, Copy)]
-pub enum Source<'s> {
-    /// A store: every method, each with its default parameters.
-    Store(&'s Store),
-    /// A frozen model: its one method.
-    Model(&'s Model),
-    /// A blend file's parts: the method `blend`, each thread with its own
-    /// mixture over them.
-    Blend(&'s Opened),
+/// An opened store, model or blend, owned.
+pub enum Owned {
+    /// A store.
+    Store(Store),
+    /// A frozen model.
+    Model(Model),
+    /// A blend file's parts.
+    Blend(Opened),
 }
 
-impl Source<'_> {
-    /// The method of a request that names none: the model's, or `mkn`.
-    pub fn default_method(&self) -> Method {
+impl Owned {
+    /// Borrowed, as the queries take it.
+    pub fn source(&self) -> Source<'_> {
         match self {
-            Source::Store(_) => Method::Mkn,
-            Source::Model(m) => m.meta().method,
-            Source::Blend(_) => Method::Blend,
+            Owned::Store(s) => Source::Store(s),
+            Owned::Model(m) => Source::Model(m),
+            Owned::Blend(b) => Source::Blend(b),
         }
+    }
+}
+
+/// The statistics figure of a source, drawn once (or why not).
+pub type Figure = OnceLock<std::result::Result<Arc<Vec<u8>>, String>>;
+
+/// A source as served: opened, with what `/info` and `/metrics` say of it.
+pub struct Loaded {
+    owned: Owned,
+    /// The path it was opened from, as `/info` names it.
+    pub path: String,
+    /// The answer of `/info` (without the reload state).
+    pub info: super::info::Info,
+    /// The statistics figure, drawn on first request.
+    pub figure: Figure,
+    /// 1 for the source the service started with, one more at each reload.
+    pub generation: u64,
+    /// When it was opened (wall clock).
+    pub loaded_at: SystemTime,
+    /// How long opening and checking it took, in seconds.
+    pub load_seconds: f64,
+}
+
+impl Loaded {
+    /// `owned`, opened from `path` in `load_seconds`.
+    pub fn new(owned: Owned, path: &str, generation: u64, load_seconds: f64) -> Loaded {
+        let info = super::info::Info::of(owned.source(), path);
+        Loaded {
+            owned,
+            path: path.to_string(),
+            info,
+            figure: OnceLock::new(),
+            generation,
+            loaded_at: SystemTime::now(),
+            load_seconds,
+        }
+    }
+
+    /// Borrowed, as the queries take it.
+    pub fn source(&self) -> Source<'_> {
+        self.owned.source()
+    }
+}
+
+/// The source served now; a reload swaps it.
+pub struct Current {
+    now: RwLock<Arc<Loaded>>,
+    generation: AtomicU64,
+}
+
+impl Current {
+    /// Serving `first`.
+    pub fn new(first: Loaded) -> Current {
+        let g = first.generation;
+        Current {
+            now: RwLock::new(Arc::new(first)),
+            generation: AtomicU64::new(g),
+        }
+    }
+
+    /// The source served now.
+    pub fn get(&self) -> Arc<Loaded> {
+        self.now.read().unwrap_or_else(|p| p.into_inner()).clone()
+    }
+
+    /// The generation served now (cheaper than [`Current::get`]).
+    pub fn generation(&self) -> u64 {
+        self.generation.load(Ordering::Acquire)
+    }
+
+    /// Serves `next` from now on: jobs taken from the queue after this
+    /// returns run on it.
+    pub fn swap(&self, next: Loaded) {
+        let mut now = self.now.write().unwrap_or_else(|p| p.into_inner());
+        let g = next.generation;
+        *now = Arc::new(next);
+        self.generation.store(g, Ordering::Release);
     }
 }
 
@@ -73,12 +160,15 @@ impl<'a> Lent<'a> {
 pub trait Local {
     /// The source served.
     fn source(&self) -> Source<'_>;
+    /// The source served, with what is known of it.
+    fn loaded(&self) -> &Loaded;
     /// The predictor of `method`: the thread's estimator over the store
     /// (built on first use), or the model if it was frozen with `method`.
     fn get(&mut self, method: Method) -> Result<Lent<'_>>;
 }
 
 struct Thread<'s> {
+    loaded: &'s Loaded,
     src: Source<'s>,
     ests: Vec<Estimator<'s>>,
     blend: Option<Blend<'s>>,
@@ -87,6 +177,10 @@ struct Thread<'s> {
 impl Local for Thread<'_> {
     fn source(&self) -> Source<'_> {
         self.src
+    }
+
+    fn loaded(&self) -> &Loaded {
+        self.loaded
     }
 
     fn get(&mut self, method: Method) -> Result<Lent<'_>> {
@@ -151,13 +245,18 @@ impl Jobs {
             TrySendError::Disconnected(_) => Refused::Stopped,
         })
     }
+
+    /// Jobs waiting for a thread.
+    pub fn waiting(&self) -> usize {
+        self.tx.len()
+    }
 }
 
-/// Runs `body` with a queue served by `threads` query threads over `src`;
-/// the threads end when every [`Jobs`] is dropped, and are joined before
-/// this returns.
+/// Runs `body` with a queue served by `threads` query threads over the
+/// source `current` serves; the threads end when every [`Jobs`] is
+/// dropped, and are joined before this returns.
 pub fn with_pool<R>(
-    src: Source<'_>,
+    current: &Arc<Current>,
     threads: usize,
     queue: usize,
     body: impl FnOnce(Jobs) -> R,
@@ -166,24 +265,50 @@ pub fn with_pool<R>(
     std::thread::scope(|scope| {
         for i in 0..threads.max(1) {
             let rx: Receiver<Job> = rx.clone();
+            let current = current.clone();
             std::thread::Builder::new()
                 .name(format!("quern-query-{i}"))
-                .spawn_scoped(scope, move || {
-                    let mut t = Thread {
-                        src,
-                        ests: Vec::new(),
-                        blend: None,
-                    };
-                    for job in rx.iter() {
-                        // A panic fails its request (its answer channel is
-                        // dropped: a 500), not the thread.
-                        let _ =
-                            std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| job(&mut t)));
-                    }
-                })
+                .spawn_scoped(scope, move || serve_jobs(&current, &rx))
                 .expect("starting a query thread");
         }
         drop(rx);
         body(Jobs { tx })
     })
+}
+
+/// A query thread: runs jobs on the current source until the queue is
+/// closed, moving to a new source when a reload has swapped one in.
+fn serve_jobs(current: &Current, rx: &Receiver<Job>) {
+    let mut pending: Option<Job> = None;
+    loop {
+        let loaded = current.get();
+        let mut t = Thread {
+            loaded: &loaded,
+            src: loaded.source(),
+            ests: Vec::new(),
+            blend: None,
+        };
+        loop {
+            let job = match pending.take() {
+                Some(j) => j,
+                None => match rx.recv_timeout(Duration::from_secs(1)) {
+                    Ok(j) => j,
+                    Err(RecvTimeoutError::Timeout) => {
+                        if current.generation() != loaded.generation {
+                            break;
+                        }
+                        continue;
+                    }
+                    Err(RecvTimeoutError::Disconnected) => return,
+                },
+            };
+            if current.generation() != loaded.generation {
+                pending = Some(job);
+                break;
+            }
+            // A panic fails its request (its answer channel is dropped: a
+            // 500), not the thread.
+            let _ = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| job(&mut t)));
+        }
+    }
 }

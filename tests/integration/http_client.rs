@@ -27,9 +27,23 @@ impl Conn {
 
     /// Sends one request and reads the answer: status and body.
     pub fn call(&mut self, method: &str, path: &str, body: Option<&[u8]>) -> (u16, String) {
+        let (st, _, text) = self.call_with(method, path, &[], body);
+        (st, text)
+    }
+
+    /// Sends one request with extra header lines (`Name: value`) and reads
+    /// the answer: status, headers (names lowercased) and body.
+    pub fn call_with(
+        &mut self,
+        method: &str,
+        path: &str,
+        headers: &[&str],
+        body: Option<&[u8]>,
+    ) -> (u16, Vec<(String, String)>, String) {
         let body = body.unwrap_or(b"");
+        let extra: String = headers.iter().map(|h| format!("{h}\r\n")).collect();
         let head = format!(
-            "{method} {path} HTTP/1.1\r\nHost: quern\r\nContent-Type: application/json\r\nContent-Length: {}\r\n\r\n",
+            "{method} {path} HTTP/1.1\r\nHost: quern\r\n{extra}Content-Type: application/json\r\nContent-Length: {}\r\n\r\n",
             body.len()
         );
         let mut req = head.into_bytes();
@@ -45,6 +59,7 @@ impl Conn {
             .unwrap();
         let mut len = None;
         let mut chunked = false;
+        let mut got = Vec::new();
         loop {
             line.clear();
             self.r.read_line(&mut line).unwrap();
@@ -53,6 +68,7 @@ impl Conn {
                 break;
             }
             let (k, v) = l.split_once(':').unwrap();
+            got.push((k.to_ascii_lowercase(), v.trim().to_string()));
             match k.to_ascii_lowercase().as_str() {
                 "content-length" => len = Some(v.trim().parse::<usize>().unwrap()),
                 "transfer-encoding" => chunked = v.trim().eq_ignore_ascii_case("chunked"),
@@ -76,6 +92,7 @@ impl Conn {
             out.resize(len.expect("a Content-Length or chunked body"), 0);
             self.r.read_exact(&mut out).unwrap();
         }
-        (status, String::from_utf8(out).expect("the answer is UTF-8"))
+        let text = String::from_utf8(out).expect("the answer is UTF-8");
+        (status, got, text)
     }
 }

@@ -161,10 +161,13 @@ mod vocab;
 // `quern serve`: every endpoint equals the CLI's answer on the Gutenberg
 // fixtures (store and frozen model), bad requests get 4xx JSON errors,
 // SIGTERM stops it; a bounded load test on loopback; the page in headless
-// Chromium shows the CLI's words.
+// Chromium shows the CLI's words; slow clients and work limits; the token,
+// /metrics, the access log and reloads under load.
 mod http_client;
 mod serve;
+mod serve_limits;
 mod serve_load;
+mod serve_ops;
 mod serve_page;
 mod serve_stop;
 

@@ -7,7 +7,7 @@
 //! stops it cleanly. The HTTP client is written here on `std::net` (HTTP/1.1
 //! as RFC 9112 defines it) so that the tests share no code with the server.
 
-use std::io::{BufRead, BufReader, Read};
+use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, ExitStatus, Stdio};
 use std::sync::{Arc, Mutex, OnceLock};
@@ -80,9 +80,12 @@ impl Server {
         let stderr = Arc::new(Mutex::new(seen));
         let sink = stderr.clone();
         std::thread::spawn(move || {
-            let mut rest = String::new();
-            let _ = err.read_to_string(&mut rest);
-            sink.lock().unwrap().push_str(&rest);
+            // A line at a time, so that `stderr` sees it while it runs.
+            let mut line = String::new();
+            while err.read_line(&mut line).is_ok_and(|n| n > 0) {
+                sink.lock().unwrap().push_str(&line);
+                line.clear();
+            }
         });
         Server {
             child: Some(child),
@@ -119,6 +122,18 @@ impl Server {
         std::thread::sleep(Duration::from_millis(100));
         let err = self.stderr.lock().unwrap().clone();
         (st, err)
+    }
+
+    /// What it has written on standard error so far.
+    pub fn stderr(&self) -> String {
+        self.stderr.lock().unwrap().clone()
+    }
+
+    /// Sends `sig` (a libc signal number).
+    pub fn signal(&self, sig: i32) {
+        let child = self.child.as_ref().unwrap();
+        // SAFETY: kill(2) on our own child's pid.
+        assert_eq!(unsafe { libc::kill(child.id() as i32, sig) }, 0);
     }
 
     /// One request on a new connection.

@@ -258,3 +258,46 @@ fn page_in_chromium_for_a_model() {
     let (st, err) = srv.terminate();
     assert!(st.success(), "{err}");
 }
+
+#[test]
+fn page_behind_a_token_asks_for_it_and_keeps_it_out_of_requests_paths() {
+    chromium();
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("serve-page-token");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let token = "page-token-7f3a";
+    let tf = dir.join("token");
+    std::fs::write(&tf, token).unwrap();
+    let mut a = source_args(true);
+    a.extend(["--token-file".into(), tf.display().to_string()]);
+    let srv = Server::start(&strs(&a));
+    let context = "I am";
+    // Without the token: the page loads (it is open) and shows the form.
+    let url = format!("http://{}/?context={}", srv.addr, encode(context));
+    let dom = dump_dom(&url, "token-none");
+    assert!(
+        dom.contains("<form id=\"token-form\" autocomplete=\"off\">"),
+        "the token form is not shown:\n{dom}"
+    );
+    assert!(!dom.contains("data-ready=\"1\""), "{dom}");
+    // With the token in the address's fragment (never sent to the server):
+    // the CLI's words, as without a token.
+    let dom = dump_dom(&format!("{url}#token={token}"), "token-given");
+    assert!(
+        dom.contains("data-ready=\"1\""),
+        "the page's scripts did not finish:\n{dom}"
+    );
+    let got = shown(&dom);
+    let want = cli_words(&cli_next(true, None, context, 10));
+    assert_eq!(got.len(), 1);
+    same(&got[0].1, &want, "the model's column behind the token");
+    let (st, err) = srv.terminate();
+    assert!(st.success(), "{err}");
+    // The access log saw 401s first, then answers; never the token.
+    assert!(err.contains(" 401 "), "{err}");
+    assert!(err.contains("\"/next\" 200"), "{err}");
+    assert!(
+        !err.contains(token),
+        "the token reached the server's log:\n{err}"
+    );
+}
