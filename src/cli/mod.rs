@@ -6,6 +6,7 @@ mod cmd;
 mod corpus_args;
 mod input_args;
 mod progress;
+mod serve_args;
 mod stage_args;
 mod values;
 

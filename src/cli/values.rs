@@ -53,6 +53,27 @@ pub fn discount_policy(s: &str) -> Result<DiscountPolicy, quern::Error> {
     s.parse()
 }
 
+/// `json`, `text` or `off`.
+pub fn log_format(s: &str) -> Result<quern::serve::LogFormat, String> {
+    use quern::serve::LogFormat;
+    match s {
+        "json" => Ok(LogFormat::Json),
+        "text" => Ok(LogFormat::Text),
+        "off" => Ok(LogFormat::Off),
+        _ => Err(format!("{s:?}: json, text or off")),
+    }
+}
+
+/// `2.5` → 2.5 seconds (above 0, at most a day).
+pub fn seconds(s: &str) -> Result<std::time::Duration, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|x| *x > 0.0 && *x <= 86_400.0)
+        .map(std::time::Duration::from_secs_f64)
+        .ok_or_else(|| format!("{s:?}: seconds above 0 and at most 86400, such as 5 or 0.5"))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -66,13 +66,14 @@ pub mod api;
 mod info;
 pub mod metrics;
 pub mod pool;
+mod reload;
 pub mod request;
 
 use std::future::Future;
 use std::io::Write as _;
 use std::net::SocketAddr;
 use std::sync::atomic::{AtomicU64, Ordering};
-use std::sync::{Arc, Mutex};
+use std::sync::Arc;
 use std::time::{Duration, Instant, SystemTime};
 
 use axum::body::{Body, Bytes, HttpBody};
@@ -95,7 +96,9 @@ pub use api::Fail;
 pub use info::Info;
 use metrics::Metrics;
 pub use pool::{Current, Jobs, Loaded, Local, Owned, Source};
-use request::{Checked, Limits};
+pub use reload::{Opener, Reloader};
+use reload::{Refusal, Reloads};
+use request::{same_secret, Checked, Limits};
 
 /// The page, embedded in the binary.
 const PAGE: &str = include_str!("page.html");
@@ -163,93 +166,6 @@ pub struct Served {
     pub requests: u64,
 }
 
-/// Opens the source again from its path and checks it (a reload).
-pub type Opener = Box<dyn Fn() -> Result<Owned> + Send + Sync>;
-
-/// The last reload refused: when, and why.
-#[derive(Clone, Debug, Serialize)]
-struct Refusal {
-    at: String,
-    error: String,
-}
-
-/// What reloads need, shared by the HTTP side and [`Reloader`].
-struct Reloads {
-    open: Opener,
-    current: Arc<Current>,
-    metrics: Arc<Metrics>,
-    /// Held while a reload runs: one at a time.
-    running: Mutex<Option<Refusal>>,
-}
-
-impl Reloads {
-    /// Opens, checks and swaps in the source; blocks. `by` names who asked
-    /// (for the log line).
-    fn reload(&self, by: &str) -> std::result::Result<Arc<Loaded>, String> {
-        let mut last = self.running.lock().unwrap_or_else(|p| p.into_inner());
-        let before = self.current.get();
-        let t0 = Instant::now();
-        match (self.open)() {
-            Ok(owned) => {
-                let next = Loaded::new(
-                    owned,
-                    &before.path,
-                    before.generation + 1,
-                    t0.elapsed().as_secs_f64(),
-                );
-                self.current.swap(next);
-                *last = None;
-                self.metrics.reloads.fetch_add(1, Ordering::Relaxed);
-                let now = self.current.get();
-                eprintln!(
-                    "quern: reloaded {} ({by}): generation {}, opened and checked in {:.3} s",
-                    now.path, now.generation, now.load_seconds
-                );
-                Ok(now)
-            }
-            Err(e) => {
-                let msg = format!(
-                    "reloading {} failed, still serving generation {}: {e}",
-                    before.path, before.generation
-                );
-                eprintln!("quern: {msg} ({by})");
-                *last = Some(Refusal {
-                    at: metrics::rfc3339(SystemTime::now()),
-                    error: e.to_string(),
-                });
-                self.metrics.reloads_refused.fetch_add(1, Ordering::Relaxed);
-                Err(msg)
-            }
-        }
-    }
-
-    fn refused(&self) -> Option<Refusal> {
-        self.running
-            .try_lock()
-            .map(|g| g.clone())
-            .unwrap_or_default()
-    }
-}
-
-/// Asks the running service to reload its source (see the module's
-/// "Reloading"); the binary calls it on SIGHUP.
-#[derive(Clone)]
-pub struct Reloader {
-    reloads: Arc<Reloads>,
-    rt: tokio::runtime::Handle,
-}
-
-impl Reloader {
-    /// Starts a reload in the background and returns at once; the outcome
-    /// is written to standard error and shown by `/info` and `/metrics`.
-    pub fn reload(&self, by: &'static str) {
-        let r = self.reloads.clone();
-        self.rt.spawn_blocking(move || {
-            let _ = r.reload(by);
-        });
-    }
-}
-
 struct Shared {
     jobs: Jobs,
     current: Arc<Current>,
@@ -285,12 +201,7 @@ pub fn run(
     let addr = listener.local_addr().map_err(io)?;
     let current = Arc::new(Current::new(first));
     let metrics = Arc::new(Metrics::default());
-    let reloads = Arc::new(Reloads {
-        open,
-        current: current.clone(),
-        metrics: metrics.clone(),
-        running: Mutex::new(None),
-    });
+    let reloads = Arc::new(Reloads::new(open, current.clone(), metrics.clone()));
     pool::with_pool(&current, opts.threads, opts.queue, |jobs| {
         let started = SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
@@ -311,10 +222,7 @@ pub fn run(
             .build()
             .map_err(io)?;
         let app = router(state.clone(), opts.max_request_bytes);
-        let reloader = Reloader {
-            reloads: reloads.clone(),
-            rt: rt.handle().clone(),
-        };
+        let reloader = Reloader::new(reloads.clone(), rt.handle().clone());
         rt.block_on(async {
             let l = tokio::net::TcpListener::from_std(listener)?;
             ready(addr, reloader);
@@ -470,18 +378,6 @@ async fn observe(State(st): State<St>, request: Request, next: Next) -> Response
         let _ = writeln!(err, "{line}");
     }
     resp
-}
-
-/// `a == b` in a time that depends on their lengths only, not on where
-/// they first differ.
-fn same_secret(a: &[u8], b: &[u8]) -> bool {
-    let mut diff = (a.len() ^ b.len()) as u64;
-    for i in 0..a.len().max(b.len()) {
-        let x = a.get(i).copied().unwrap_or(0);
-        let y = b.get(i).copied().unwrap_or(0);
-        diff |= u64::from(std::hint::black_box(x ^ y));
-    }
-    std::hint::black_box(diff) == 0
 }
 
 /// Asks for the token on every path but `/health` and the page.
