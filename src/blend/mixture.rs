@@ -30,9 +30,9 @@ use std::cell::OnceCell;
 use std::collections::HashMap;
 
 use crate::error::{Error, Result};
-use crate::query::{Method, Next, Predictor, Prob};
+use crate::predict::{Method, Next, Predictor, Prob};
 use crate::tokenize::Preparation;
-use crate::topk::TopK;
+use crate::topk::{PrefixMatch, TopK};
 use crate::words::{unk_id, WordId};
 
 /// The weights of a blend must sum to 1 within this.
@@ -410,6 +410,20 @@ impl Predictor for Blend<'_> {
         Ok(out)
     }
     fn complete(&self, context: &[WordId], prefix: &str, k: usize) -> Result<Next> {
-        self.top(context, k, |p, d| p.complete(context, prefix, d))
+        self.complete_matching(context, prefix, PrefixMatch::Exact, k)
+    }
+    /// The same search over the parts' own completions: a word's text, and
+    /// so whether it matches the prefix (exact or folded), is the same in
+    /// every part.
+    fn complete_matching(
+        &self,
+        context: &[WordId],
+        prefix: &str,
+        matching: PrefixMatch,
+        k: usize,
+    ) -> Result<Next> {
+        self.top(context, k, |p, d| {
+            p.complete_matching(context, prefix, matching, d)
+        })
     }
 }
