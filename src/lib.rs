@@ -17,7 +17,8 @@
 //!   [`Predictor`]: [`Prob`], the top next words and completions
 //!   ([`Next`], prefixes matched as [`PrefixMatch`] says), distributions;
 //! * several sources: a [`Blend`] of stores and models, named by a
-//!   [`BlendFile`] with weights fitted on held-out text;
+//!   [`BlendFile`] with weights fitted on held-out text, its parts opened
+//!   by [`OpenedBlend`];
 //! * held-out text: [`Scorer`] and its [`ScoreReport`]; documents on many
 //!   threads: [`score_text`] and [`score_texts`];
 //! * text: the [`Preparation`] a store records, applied to a query by
@@ -26,7 +27,8 @@
 //!
 //! With `default-features = false, features = ["model"]` the crate is the
 //! model runtime alone (no RocksDB): [`Model`], [`Predictor`], [`Scorer`],
-//! [`Preparation`]. The feature `capi` adds the C interface (`quern.h`).
+//! [`Preparation`], and a [`Blend`] of models (a store part is refused
+//! there). The feature `capi` adds the C interface (`quern.h`).
 //!
 //! # Example
 //!
@@ -74,7 +76,7 @@ extern crate self as quern;
 
 #[doc(hidden)]
 pub mod arpa;
-#[cfg(feature = "store")]
+#[cfg(feature = "model")]
 #[doc(hidden)]
 pub mod blend;
 #[cfg(feature = "capi")]
@@ -149,8 +151,8 @@ pub(crate) mod wordlist;
 #[doc(hidden)]
 pub mod words;
 
-#[cfg(feature = "store")]
-pub use blend::{Blend, BlendFile};
+#[cfg(feature = "model")]
+pub use blend::{Blend, BlendFile, Opened as OpenedBlend};
 pub use error::{Error, Result};
 #[cfg(feature = "store")]
 pub use ingest::{

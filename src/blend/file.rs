@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
-use crate::query::{Method, Params};
+use crate::predict::{Method, Params};
 use crate::tokenize::Preparation;
 
 use super::mixture::check_weights;

@@ -27,7 +27,7 @@
 use serde::Serialize;
 
 use crate::error::{Error, Result};
-use crate::query::Predictor;
+use crate::predict::Predictor;
 use crate::words::WordId;
 
 /// The most EM iterations.

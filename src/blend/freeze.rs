@@ -32,7 +32,7 @@ use std::collections::HashMap;
 
 use crate::arpa::{ArpaModel, ArpaOrder};
 use crate::error::{Error, Result};
-use crate::query::Predictor;
+use crate::predict::Predictor;
 use crate::words::{bos_id, WordId};
 
 use super::mixture::Blend;

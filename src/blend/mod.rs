@@ -3,7 +3,7 @@
 //! the blend file that names its parts.
 //!
 //! * [`mixture`]: [`Blend`], the mixture of boxed predictors with fixed
-//!   weights, itself a [`crate::query::Predictor`] (probabilities, an
+//!   weights, itself a [`crate::predict::Predictor`] (probabilities, an
 //!   exact top K, completion, distributions). A word outside a part's
 //!   vocabulary gets that part's `<unk>` probability.
 //! * [`fit`]: EM for the weights (Dempster, Laird & Rubin 1977; Jelinek &
@@ -17,10 +17,11 @@
 //!   and a blend file with every part checked against its record.
 //!
 //! [`mixture`], [`fit`], [`file`] and [`freeze`] know only the
-//! [`crate::query::Predictor`] trait and plain records, never a store.
+//! [`crate::predict::Predictor`] trait and plain records, never a store.
 
 pub mod file;
 pub mod fit;
+#[cfg(feature = "store")]
 pub mod freeze;
 pub mod mixture;
 pub mod open;

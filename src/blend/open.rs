@@ -12,7 +12,10 @@ use std::path::{Path, PathBuf};
 
 use crate::error::{Error, Result};
 use crate::model::{Model, Residence};
-use crate::query::{Estimator, Method, Params, Predictor};
+use crate::predict::{Method, Params, Predictor};
+#[cfg(feature = "store")]
+use crate::query::Estimator;
+#[cfg(feature = "store")]
 use crate::store::Store;
 use crate::words::{bos_id, unk_id, WordId};
 
@@ -21,7 +24,8 @@ use super::mixture::Blend;
 
 /// An open store or model.
 pub enum Source {
-    /// A store directory.
+    /// A store directory (with the `store` feature).
+    #[cfg(feature = "store")]
     Store(Store),
     /// A model file.
     Model(Model),
@@ -53,16 +57,29 @@ impl Part {
         let abs = std::path::absolute(path).map_err(|e| Error::io(path, "resolve", e))?;
         let meta = std::fs::metadata(&abs).map_err(|e| Error::io(&abs, "open", e))?;
         if meta.is_dir() {
-            let store = Store::open_with_cache(&abs, cache_bytes)?;
-            let method = method.unwrap_or(Method::Mkn);
-            // Fails early on a bad method or parameter.
-            Estimator::new(&store, method, params.clone())?;
-            return Ok(Part {
-                path: abs,
-                source: Source::Store(store),
-                method,
-                params,
-            });
+            #[cfg(feature = "store")]
+            {
+                let store = Store::open_with_cache(&abs, cache_bytes)?;
+                let method = method.unwrap_or(Method::Mkn);
+                // Fails early on a bad method or parameter.
+                Estimator::new(&store, method, params.clone())?;
+                return Ok(Part {
+                    path: abs,
+                    source: Source::Store(store),
+                    method,
+                    params,
+                });
+            }
+            #[cfg(not(feature = "store"))]
+            {
+                let _ = (cache_bytes, params);
+                return Err(Error::Input {
+                    path: abs,
+                    detail: "a store is a part only where quern is built with its store \
+                             (this build reads models)"
+                        .into(),
+                });
+            }
         }
         let model = Model::open_as(&abs, residence)?;
         let own = model.meta().method;
@@ -85,6 +102,7 @@ impl Part {
     /// A store or a model.
     pub fn kind(&self) -> PartKind {
         match self.source {
+            #[cfg(feature = "store")]
             Source::Store(_) => PartKind::Store,
             Source::Model(_) => PartKind::Model,
         }
@@ -101,6 +119,7 @@ impl Part {
     /// The settings checksum (see [`super::file`]).
     pub fn checksum(&self) -> String {
         match &self.source {
+            #[cfg(feature = "store")]
             Source::Store(s) => {
                 let meta = serde_json::to_vec(s.meta()).expect("metadata serialises");
                 let params = serde_json::to_vec(&self.params).expect("parameters serialise");
@@ -119,7 +138,7 @@ impl Part {
             path: self.path.clone(),
             kind: self.kind(),
             method: self.method,
-            params: matches!(self.source, Source::Store(_)).then(|| self.params.clone()),
+            params: (self.kind() == PartKind::Store).then(|| self.params.clone()),
             settings_checksum: self.checksum(),
             weight,
         }
@@ -128,6 +147,7 @@ impl Part {
     /// A predictor over the part for the calling thread.
     pub fn predictor(&self) -> Result<Box<dyn Predictor + '_>> {
         Ok(match &self.source {
+            #[cfg(feature = "store")]
             Source::Store(s) => Box::new(Estimator::new(s, self.method, self.params.clone())?),
             Source::Model(m) => Box::new(m),
         })
@@ -136,6 +156,7 @@ impl Part {
     /// The highest order.
     pub fn order(&self) -> usize {
         match &self.source {
+            #[cfg(feature = "store")]
             Source::Store(s) => s.order(),
             Source::Model(m) => m.order(),
         }
@@ -148,6 +169,7 @@ impl Part {
             return Ok(Vec::new());
         }
         match &self.source {
+            #[cfg(feature = "store")]
             Source::Store(s) => {
                 let mut out = Vec::new();
                 for r in s.ngrams(k)? {
@@ -162,6 +184,7 @@ impl Part {
     /// The part's text preparation.
     pub fn preparation(&self) -> crate::tokenize::Preparation {
         match &self.source {
+            #[cfg(feature = "store")]
             Source::Store(s) => s.meta().settings.preparation,
             Source::Model(m) => m.meta().preparation,
         }
