@@ -93,32 +93,10 @@ fn occurrences_equal_store_counts() {
     let files = gutenberg_files(2);
     let store = store_of(tmp.path(), &files, true);
     for pattern in ["the * of", "* of the", "she *"] {
-        let mut seen: BTreeMap<String, u64> = BTreeMap::new();
-        for v in quern_json(&lines_args(&store, pattern, 0, &files)) {
-            *seen
-                .entry(v["match"].as_str().unwrap().to_string())
-                .or_default() += 1;
-        }
+        let seen = occurrences(&lines_args(&store, pattern, 0, &files), &[]);
         // Source: the store's own counts (`ngrams --pattern`), which the
         // Python reference counter checks elsewhere (python_check).
-        let stored: BTreeMap<String, u64> = quern_json(&[
-            s("ngrams"),
-            s("--store"),
-            store.display().to_string(),
-            s("--pattern"),
-            s(pattern),
-            s("--limit"),
-            s("10000000"),
-            s("--json"),
-        ])
-        .into_iter()
-        .map(|v| {
-            (
-                v["ngram"].as_str().unwrap().to_string(),
-                v["count"].as_u64().unwrap(),
-            )
-        })
-        .collect();
+        let stored = stored_counts(&store, pattern);
         assert!(!stored.is_empty());
         assert_eq!(seen, stored, "{pattern:?}: occurrences against counts");
     }
