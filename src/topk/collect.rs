@@ -45,30 +45,64 @@ impl<W: Copy> TopK<W> {
 
     /// A group whose candidates come in an order where the probability
     /// never increases: the first K, then those tied with the K-th. The
-    /// iterator is not advanced further, so candidates past the stop are
-    /// never scored.
+    /// group also stops at the first candidate less probable than the K-th
+    /// best of the earlier groups (it and those after it cannot be among
+    /// the best K). The iterator is not advanced further, so candidates
+    /// past the stop are never scored.
     pub fn take_ranked<E>(
         &mut self,
         group: impl IntoIterator<Item = Result<(f64, W), E>>,
     ) -> Result<(), E> {
+        self.take_ranked_if(group, |_| true)
+    }
+
+    /// [`TopK::take_ranked`] for a group whose members are known only from
+    /// a test that costs more than the probability (for example "not kept
+    /// at a longer context"): the candidates come with their probability,
+    /// and `member` is asked only of those that can still be among the
+    /// best K, so the stops above also save the tests.
+    pub fn take_ranked_if<E>(
+        &mut self,
+        group: impl IntoIterator<Item = Result<(f64, W), E>>,
+        mut member: impl FnMut(W) -> bool,
+    ) -> Result<(), E> {
         if self.k == 0 {
             return Ok(());
         }
-        let mut last = f64::INFINITY;
-        for (taken, c) in group.into_iter().enumerate() {
+        let bound = self.kth_best();
+        let (mut last, mut taken) = (f64::INFINITY, 0);
+        for c in group {
             let (p, w) = c?;
-            self.scored += 1;
-            if taken >= self.k && p.total_cmp(&last) == Ordering::Less {
+            if p.total_cmp(&bound) == Ordering::Less
+                || (taken >= self.k && p.total_cmp(&last) == Ordering::Less)
+            {
+                self.scored += 1;
                 break;
             }
+            if !member(w) {
+                continue;
+            }
+            self.scored += 1;
             debug_assert!(
                 p.total_cmp(&last) != Ordering::Greater,
                 "a ranked group rose"
             );
             self.found.push((p, w));
             last = p;
+            taken += 1;
         }
         Ok(())
+    }
+
+    /// The K-th best probability collected so far (−∞ while fewer than K
+    /// were): a later candidate less probable cannot be among the best K.
+    fn kth_best(&self) -> f64 {
+        if self.found.len() < self.k {
+            return f64::NEG_INFINITY;
+        }
+        let mut p: Vec<f64> = self.found.iter().map(|c| c.0).collect();
+        p.select_nth_unstable_by(self.k - 1, |a, b| b.total_cmp(a));
+        p[self.k - 1]
     }
 
     /// A group whose candidates all have one probability, in the order of
@@ -199,6 +233,53 @@ mod tests {
             }
             assert_eq!(best(top), brute(&all, k), "k = {k}");
         }
+    }
+
+    #[test]
+    fn members_tested_only_while_they_can_reach_the_best_k() {
+        // Ranked groups whose members are a subset known from a test; the
+        // answer is the brute force over the members, and a group below
+        // the K-th best of the earlier ones asks no member test at all.
+        let mut s = 11u64;
+        let mut draw = || {
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((s >> 58) as f64) / 64.0
+        };
+        let words: Vec<&'static str> = (0..90)
+            .map(|i| &*Box::leak(format!("v{i:02}").into_boxed_str()))
+            .collect();
+        let member = |w: &str| !w.ends_with(['3', '6', '9']);
+        for k in [1usize, 2, 4, 10, 30] {
+            let (mut all, mut top, mut asked) = (Vec::new(), TopK::new(k), 0);
+            for g in words.chunks(30) {
+                let mut group: Vec<(f64, &'static str)> = g.iter().map(|&w| (draw(), w)).collect();
+                all.extend(group.iter().copied().filter(|c| member(c.1)));
+                group.sort_by(|a, b| b.0.total_cmp(&a.0));
+                let test = |w: &'static str| {
+                    asked += 1;
+                    member(w)
+                };
+                top.take_ranked_if(group.into_iter().map(Ok::<_, ()>), test)
+                    .unwrap();
+            }
+            assert!(asked < 90, "k = {k}: every candidate was tested");
+            assert_eq!(best(top), brute(&all, k), "k = {k}");
+        }
+        // A last group wholly below the K-th best so far: no test asked.
+        let mut top = TopK::new(2);
+        top.take_all(vec![Ok::<_, ()>((0.5, "a")), Ok((0.4, "b"))])
+            .unwrap();
+        let mut asked = 0;
+        let low: Vec<R> = vec![Ok((0.3, "c")), Ok((0.2, "d"))];
+        top.take_ranked_if(low, |_| {
+            asked += 1;
+            true
+        })
+        .unwrap();
+        assert_eq!(asked, 0);
+        assert_eq!(best(top), vec![(0.5, "a"), (0.4, "b")]);
     }
 
     #[test]

@@ -14,7 +14,12 @@
 //! - **ranked** ([`TopK::take_ranked`]): its candidates in an order where
 //!   the probability never increases; the collector takes the first K,
 //!   then every further candidate whose probability equals the K-th's
-//!   (a tie at the boundary), and stops; or
+//!   (a tie at the boundary), and stops; it also stops at the first
+//!   candidate less probable than the K-th best of the groups taken
+//!   before. [`TopK::take_ranked_if`] is the same for a group whose
+//!   membership is a test that costs more than the probability (the frozen
+//!   model's "not kept under a longer context"): the test is asked only of
+//!   candidates that pass the stops; or
 //! - **whole** ([`TopK::take_all`]): every candidate (short lists); or
 //! - **tied** ([`TopK::take_tied`]): a group whose every word has the same
 //!   probability (with `add-k` and `mle`, the words unseen after the
@@ -23,7 +28,8 @@
 //! The best K of the union of the groups' candidates are the best K of V:
 //! a word that a ranked group never offered comes after a candidate of
 //! strictly lower probability than the group's K-th, so K words of its own
-//! group beat it whatever the tie-break.
+//! group beat it whatever the tie-break; or after a candidate strictly
+//! below the K-th best of the earlier groups, whose K words beat it.
 //!
 //! # Ties
 //!
