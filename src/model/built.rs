@@ -8,6 +8,7 @@ use std::path::Path;
 use crate::error::{IoContext, Result};
 
 use super::bytes::{map_read_only, u32_at};
+use super::seek::Seek;
 
 /// A file's bytes, memory-mapped (or empty).
 pub(super) enum Bytes {
@@ -38,6 +39,8 @@ pub(super) fn map(path: &Path) -> Result<Bytes> {
 /// `children[k]` (index k − 1 … as the order), mapped and shared by the
 /// parts.
 pub(super) struct Built {
+    /// The number of word indices W (every word index is below it).
+    pub universe: u64,
     pub words: Vec<Bytes>,
     pub children: Vec<Bytes>,
 }
@@ -79,12 +82,23 @@ impl Built {
                 let lo = (u32_at(ch, p as usize) as usize).min(n);
                 let hi = (u32_at(ch, p as usize + 1) as usize).clamp(lo, n);
                 let (hp, hpos) = c.hint[t];
-                let from = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
-                    hpos
+                let found = if hp == p && hpos > lo && hpos <= hi && u32_at(w, hpos - 1) < xs[t] {
+                    // The next child of the last parent: near the last one.
+                    gallop(w, hpos, hi, xs[t])
                 } else {
-                    lo
+                    // A new parent: its children are spread evenly over
+                    // the word indices, so the staged interpolation search
+                    // of the model's queries finds the word in a few reads
+                    // (galloping from the start would take about log2 of
+                    // the list's length, each a cache miss on a long one).
+                    let at = |i: usize| u32_at(w, i);
+                    match Seek::start(lo, hi, xs[t], self.universe).finish(at, xs[t], self.universe)
+                    {
+                        Some(i) => Ok(i),
+                        None => Err(lo),
+                    }
                 };
-                match gallop(w, from, hi, xs[t]) {
+                match found {
                     Ok(i) => {
                         c.hint[t] = (p, i + 1);
                         i as u32

@@ -131,6 +131,7 @@ impl Arrays {
             kept_counts: vec![ngrams],
             store_counts: vec![store_ngrams],
             built: Built {
+                universe: ngrams,
                 words: vec![Bytes::Empty],
                 children: Vec::new(),
             },
