@@ -157,6 +157,9 @@ fn counts_from_python_with_duplicates_across_two_files() {
     assert_lines_eq("dump vs Python's counts (counts_check.py)", &want, &got);
 }
 
+/// Count tables to write: (file name, text).
+type Tables<'a> = Vec<(&'a str, String)>;
+
 /// Writes `tables` (file name, text) into `dir`, ingests them as count
 /// tables of order 2 into the store `name` with `env`, and returns the
 /// error message (the ingest must fail).
@@ -185,7 +188,7 @@ fn refused(dir: &Path, name: &str, tables: &[(&str, String)], env: &[(&str, &str
 fn bad_tables_are_named_by_file_and_line() {
     let tmp = tempfile::tempdir().unwrap();
     let good = "a\t3\nb\t2\nc\t1\na b\t1\nb c\t1\n";
-    let cases: Vec<(&str, Vec<(&str, String)>, &str)> = vec![
+    let cases: Vec<(&str, Tables, &str)> = vec![
         // "d a": its prefix "d" is on no line (line 7 of t.tsv, the first
         // of its two lines).
         (
