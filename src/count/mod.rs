@@ -13,7 +13,6 @@
 mod order;
 mod prefixes;
 mod table;
-pub mod tsv;
 mod worker;
 
 pub use table::{SortedRecords, SortedTable, Table, MAX_LOAD};

@@ -5,8 +5,8 @@ use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Mutex;
 
 use super::prefixes::each_with_prefixes;
-use super::tsv::{self, BadCountLine};
 use super::Table;
+use crate::corpus::count_table::{self as tsv, BadCountLine};
 use crate::corpus::Span;
 use crate::corpus::{open_at, read_document, CoverDigest, Format, InputFile, Line, LineReader};
 use crate::error::{Error, Result};
@@ -43,7 +43,7 @@ pub struct CountConfig<'a> {
     pub next_id: &'a AtomicU64,
     /// Bytes of input read so far (for progress).
     pub progress: &'a AtomicU64,
-    /// The inputs are count tables ([`super::tsv`]), not text: each line
+    /// The inputs are count tables ([`crate::corpus::count_table`]), not text: each line
     /// adds its count to its n-gram, and no growth curve is kept.
     pub counts: bool,
 }

@@ -2,7 +2,7 @@
 //! counts add up within 64 bits, and the table line named for an n-gram
 //! that the join found without its prefix or suffix.
 //!
-//! Counting reads each line as [`crate::count::tsv`] says and names a bad
+//! Counting reads each line as [`crate::corpus::count_table`] says and names a bad
 //! line itself. Closure under prefixes and suffixes can only be seen once
 //! everything is sorted: the join reports the missing (n − 1)-gram
 //! ([`Error::NotCounted`]), and [`name_line`] reads the tables again, in
@@ -10,8 +10,8 @@
 
 use super::manifest::Manifest;
 use super::options::IngestOptions;
+use crate::corpus::count_table as tsv;
 use crate::corpus::{self, Format, InputFile, Line, LineReader};
-use crate::count::tsv;
 use crate::error::{Error, Result, Side};
 use crate::tokenize::Preparation;
 use crate::words::WordId;

@@ -43,7 +43,7 @@ pub struct IngestOptions {
     /// whose text field is counted).
     pub format: Format,
     /// The inputs are count tables (`n-gram<TAB>count` lines of every
-    /// order, see [`crate::count::tsv`]), not text.
+    /// order, see [`crate::corpus::count_table`]), not text.
     pub counts: bool,
 }
 
