@@ -57,9 +57,9 @@ pub(super) fn check_sum(m: &Manifest) -> Result<()> {
 
 /// The error for the table line behind `e` when it is an
 /// [`Error::NotCounted`]: the first line, in input order, whose n-gram
-/// has the missing (n − 1)-gram as its prefix or suffix. Any other error,
-/// or one whose line is not found (standard input cannot be read again),
-/// is returned as it is.
+/// has the missing (n − 1)-gram as its prefix or suffix. When no file
+/// holds it (it came from standard input, which cannot be read again),
+/// the error says so without a line. Any other error is returned as it is.
 pub(super) fn name_line(
     e: Error,
     inputs: &[InputFile],
@@ -71,7 +71,16 @@ pub(super) fn name_line(
     };
     match find(inputs, max_order, max_line, *side, missing) {
         Ok(Some(found)) => found,
-        Ok(None) => e,
+        Ok(None) => match inputs.iter().find(|f| f.is_stdin()) {
+            Some(stdin) => Error::Input {
+                path: stdin.path.clone(),
+                detail: format!(
+                    "an n-gram of {} words was counted, but not its {side}; no file names it, so it is on standard input, which cannot be read again to find its line",
+                    missing.len() + 1
+                ),
+            },
+            None => e,
+        },
         Err(read) => read,
     }
 }

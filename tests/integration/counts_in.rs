@@ -274,6 +274,33 @@ fn bad_tables_are_named_by_file_and_line() {
         err.contains("big.tsv:2345: expected a count"),
         "chunked: the line in the whole file\n{err}"
     );
+    // Standard input is read once: a bad line is named by its number, a
+    // missing prefix without one (there is nothing to read again).
+    let store = tmp.path().join("stdin");
+    let args = ingest_args(
+        &store,
+        &["--counts", "--order", "2", "--quiet"],
+        &["-".into()],
+    );
+    let r = crate::common::run_with_stdin(&args, b"a\t1\nb\tx\n");
+    assert!(
+        r.stderr.contains("-:2: expected a count"),
+        "stdin, bad count\n{}",
+        r.stderr
+    );
+    let store = tmp.path().join("stdin2");
+    let args = ingest_args(
+        &store,
+        &["--counts", "--order", "2", "--quiet"],
+        &["-".into()],
+    );
+    let r = crate::common::run_with_stdin(&args, b"a\t1\nb a\t1\n");
+    assert!(
+        r.stderr
+            .contains("-: an n-gram of 2 words was counted, but not its prefix"),
+        "stdin, missing prefix\n{}",
+        r.stderr
+    );
 }
 
 /// Contract: the options that prepare text are refused with --counts, and
