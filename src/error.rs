@@ -83,6 +83,19 @@ pub enum Error {
         /// What the line holds.
         found: String,
     },
+    /// A merged n-gram whose prefix or suffix (its first or last n − 1
+    /// words) was not counted: in a count table, a line missing; in text
+    /// counts, damage. `ingest --counts` names the table's line instead
+    /// ([`Error::BadLine`]).
+    #[error("{path}: damaged file: an n-gram was counted but not its {side} of {} words", missing.len())]
+    NotCounted {
+        /// The merged counts the join read.
+        path: PathBuf,
+        /// Which of the n-gram's (n − 1)-grams is missing.
+        side: Side,
+        /// The ids of the missing (n − 1)-gram.
+        missing: Vec<u64>,
+    },
     /// The store's state does not allow the requested operation.
     #[error("{path}: {detail}")]
     State {
@@ -168,6 +181,25 @@ pub enum Error {
         /// The underlying error.
         source: rocksdb::Error,
     },
+}
+
+/// An n-gram's (n − 1)-gram without its last word (prefix) or its first
+/// (suffix).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Side {
+    /// The first n − 1 words.
+    Prefix,
+    /// The last n − 1 words.
+    Suffix,
+}
+
+impl std::fmt::Display for Side {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Side::Prefix => "prefix",
+            Side::Suffix => "suffix",
+        })
+    }
 }
 
 fn unfinished_phase(phase: Option<&str>) -> String {

@@ -442,6 +442,11 @@ pub struct IngestArgs {
     /// Add the inputs to a finished store.
     #[arg(long)]
     pub append: bool,
+    /// The inputs are count tables, not text: lines `n-gram<TAB>count` of
+    /// every order 1 to N, as `quern dump` writes them (its header and
+    /// third column allowed); duplicates add up. Default: text.
+    #[arg(long)]
+    pub counts: bool,
     /// No progress display (shown on standard error when it is a terminal).
     #[arg(long, short)]
     pub quiet: bool,

@@ -7,6 +7,7 @@
 //! share it; a compressed file or standard input is one chunk. Positions are
 //! byte offsets in the (decompressed) stream; a chunk covers whole lines.
 
+pub mod count_table;
 pub mod docs;
 mod lines;
 

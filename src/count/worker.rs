@@ -6,15 +6,16 @@ use std::sync::Mutex;
 
 use super::prefixes::each_with_prefixes;
 use super::Table;
+use crate::corpus::count_table::{self as tsv, BadCountLine};
 use crate::corpus::Span;
 use crate::corpus::{open_at, read_document, CoverDigest, Format, InputFile, Line, LineReader};
 use crate::error::{Error, Result};
 use crate::growth::{self, FirstSeen};
-use crate::key::partition_of;
+use crate::key::{partition_of, MAX_ORDER};
 use crate::records::{BadLineAt, ReadTotals};
 use crate::shard::{DictWriter, RunWriter};
 use crate::tokenize::{Preparation, Tokenizer};
-use crate::words::Dictionary;
+use crate::words::{bos_id, word_id, Dictionary, BOS, EOS, UNK};
 
 /// What the counting workers need to know.
 pub struct CountConfig<'a> {
@@ -42,6 +43,9 @@ pub struct CountConfig<'a> {
     pub next_id: &'a AtomicU64,
     /// Bytes of input read so far (for progress).
     pub progress: &'a AtomicU64,
+    /// The inputs are count tables ([`crate::corpus::count_table`]), not text: each line
+    /// adds its count to its n-gram, and no growth curve is kept.
+    pub counts: bool,
 }
 
 /// One finished spill, to be recorded in the manifest.
@@ -52,8 +56,9 @@ pub struct Spill {
     pub runs: Vec<String>,
     /// Dictionary file name.
     pub dict: String,
-    /// First-sighting file name ([`crate::growth`]).
-    pub firsts: String,
+    /// First-sighting file name ([`crate::growth`]); none for count
+    /// tables.
+    pub firsts: Option<String>,
     /// Input ranges covered.
     pub covers: Vec<Span>,
     /// The [`CoverDigest`] of each range.
@@ -173,6 +178,8 @@ impl<'a> Worker<'a> {
         let mut line = Vec::new();
         let mut from = span.start;
         let mut digest = CoverDigest::default();
+        // Lines read in this span before the current one.
+        let mut index = 0u64;
         loop {
             let before = lines.position();
             let step = (|| -> Result<Line> {
@@ -180,9 +187,24 @@ impl<'a> Worker<'a> {
                 let read = lines.position() - before;
                 self.totals.bytes += read;
                 self.cfg.progress.fetch_add(read, Ordering::Relaxed);
+                let at = (span, before, index);
+                index += 1;
                 match kind {
                     Line::End => {}
+                    Line::TooLong if self.cfg.counts => {
+                        return Err(self.bad_line(
+                            at,
+                            BadCountLine {
+                                expected: format!(
+                                    "a line of at most {} bytes (--max-line-bytes)",
+                                    self.cfg.max_line_bytes
+                                ),
+                                found: "a longer line".into(),
+                            },
+                        ))
+                    }
                     Line::TooLong => self.totals.skipped_lines += 1,
+                    Line::Text if self.cfg.counts => self.count_line(&line, at)?,
                     Line::Text if self.cfg.format.is_lines() => self.count_document(&tok, &line)?,
                     Line::Text => match read_document(self.cfg.format, &line) {
                         Err(why) => {
@@ -289,6 +311,63 @@ impl<'a> Worker<'a> {
         Ok(())
     }
 
+    /// Adds one count-table line's count to its n-gram (the header, on a
+    /// file's first line, is passed over). `at`: the span, the line's
+    /// offset and its index in the span.
+    fn count_line(&mut self, line: &[u8], at: (Span, u64, u64)) -> Result<()> {
+        if at.1 == 0 && tsv::is_header(line) {
+            return Ok(());
+        }
+        let l = tsv::read_line(line, self.cfg.order).map_err(|b| self.bad_line(at, b))?;
+        let mut ids = [0u64; MAX_ORDER];
+        for (id, w) in ids.iter_mut().zip(l.words()) {
+            // The markers have the ids of their spellings; the
+            // dictionaries hold words only.
+            *id = word_id(w.as_bytes());
+            if ![BOS, EOS, UNK].contains(&w) {
+                self.dict.insert(*id, w)?;
+            }
+        }
+        // Every sum of counts a table, a merge or a join makes is at most
+        // the sum of all counts, which is kept within 64 bits.
+        self.totals.counts_sum = self.totals.counts_sum.checked_add(l.count).ok_or_else(|| {
+            self.bad_line(
+                at,
+                BadCountLine {
+                    expected: "counts that add up to at most 18446744073709551615".into(),
+                    found: format!("{} after the counts before it", l.count),
+                },
+            )
+        })?;
+        if l.order == 1 && ids[0] == bos_id() {
+            // A sentence start for each sentence, as text counts them.
+            self.totals.sentences += l.count;
+        }
+        self.table.add(&ids[..l.order], &[l.count]);
+        Ok(())
+    }
+
+    /// The error for a bad count-table line at `at` (see
+    /// [`Worker::count_line`]), named by its line number: counted in the
+    /// span when it starts the input, else by reading the input up to it.
+    fn bad_line(&self, (span, offset, index): (Span, u64, u64), b: BadCountLine) -> Error {
+        let input = &self.cfg.inputs[span.file as usize];
+        let line = if span.start == 0 {
+            index + 1
+        } else {
+            match crate::corpus::line_numbers(input, &[offset]) {
+                Ok(v) => v[0],
+                Err(e) => return e,
+            }
+        };
+        Error::BadLine {
+            path: input.path.clone(),
+            line,
+            expected: b.expected,
+            found: b.found,
+        }
+    }
+
     /// Writes the table as a run file and empties it.
     fn write_run(&mut self) -> Result<(String, u64)> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
@@ -296,9 +375,18 @@ impl<'a> Worker<'a> {
         let parts = self.cfg.partitions;
         let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
         // Dropping the sorted view empties the table.
-        each_with_prefixes(self.table.sorted().records(), |key, vals| {
-            w.push(partition_of(key.ids()[0], parts), &key, vals)
-        })?;
+        let sorted = self.table.sorted();
+        if self.cfg.counts {
+            // A count table names every n-gram it counts.
+            for (key, vals) in sorted.iter() {
+                w.push(partition_of(key.ids()[0], parts), &key, &vals)?;
+            }
+        } else {
+            each_with_prefixes(sorted.records(), |key, vals| {
+                w.push(partition_of(key.ids()[0], parts), &key, vals)
+            })?;
+        }
+        drop(sorted);
         let summary = w.finish()?;
         Ok((run, summary.bytes))
     }
@@ -311,9 +399,14 @@ impl<'a> Worker<'a> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
         let dict = format!("count-{id:06}.dict");
         let dict_bytes = DictWriter::write(&self.cfg.dir.join(&dict), &self.dict.drain_sorted())?;
-        let firsts = format!("count-{id:06}.first");
-        let (covers, entries) = self.first.drain();
-        let first_bytes = growth::file::write(&self.cfg.dir.join(&firsts), &covers, &entries)?;
+        let (firsts, first_bytes) = if self.cfg.counts {
+            (None, 0)
+        } else {
+            let firsts = format!("count-{id:06}.first");
+            let (covers, entries) = self.first.drain();
+            let bytes = growth::file::write(&self.cfg.dir.join(&firsts), &covers, &entries)?;
+            (Some(firsts), bytes)
+        };
         crate::fault::point(crate::fault::Point::Spill);
         let pending = std::mem::take(&mut self.pending);
         let spill = Spill {

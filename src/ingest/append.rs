@@ -39,6 +39,17 @@ pub(super) fn export_base(
             ),
         ));
     }
+    if have.from_counts != settings.from_counts {
+        let say = |c: bool| if c { "count tables (--counts)" } else { "text" };
+        return Err(Error::state(
+            store_dir,
+            format!(
+                "the store was built from {}, this command reads {}: --append adds inputs of the same kind only",
+                say(have.from_counts),
+                say(settings.from_counts)
+            ),
+        ));
+    }
     if have.order != settings.order || have.preparation != settings.preparation {
         return Err(Error::state(
             store_dir,
@@ -68,7 +79,9 @@ pub(super) fn export_base(
     let mut merge = KWayMerge::new(sources)?;
     let run = "base.run".to_string();
     let mut w = RunWriter::create(&runs.join(&run), parts, 1)?;
+    let mut counts_sum = 0u64;
     while let Some((k, v)) = merge.next_record()? {
+        counts_sum = counts_sum.saturating_add(v[0]);
         w.push(crate::key::partition_of(k.ids()[0], parts), &k, &v)?;
     }
     w.finish()?;
@@ -126,6 +139,7 @@ pub(super) fn export_base(
             mapped_tokens: t.mapped_tokens,
             bytes: t.input_bytes,
             bad_lines: t.bad_lines,
+            counts_sum,
         },
     })
 }

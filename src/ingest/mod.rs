@@ -13,6 +13,7 @@
 //! finishing ([`crate::finish`]).
 
 mod append;
+mod counts;
 pub mod manifest;
 mod options;
 mod phases;
@@ -80,6 +81,9 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     if opts.inputs.is_empty() {
         return Err(Error::Config("no inputs given".into()));
     }
+    if opts.counts {
+        counts::check_options(opts)?;
+    }
     let threads = opts.threads.max(1);
     let plan = Plan::new(opts.memory, threads)?;
     fsutil::create_dir(&opts.store)?;
@@ -94,6 +98,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         preparation: opts.preparation,
         max_line_bytes: opts.max_line_bytes,
         word_list: list.as_ref().map(|l| l.info),
+        from_counts: opts.counts,
     };
     fsutil::remove_dir(&layout::work_new(&opts.store))?;
     fsutil::remove_dir(&layout::work_done(&opts.store))?;
@@ -171,6 +176,9 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     let mut recounts = 0;
     loop {
         run.counting(&mut m, &inputs)?;
+        if m.settings.from_counts {
+            counts::check_sum(&m)?;
+        }
         match run.merging(&mut m) {
             Err(Error::Corrupt { path, detail }) if recounts < 3 => {
                 let name = path.file_name().map(|n| n.to_string_lossy().into_owned());
@@ -193,7 +201,13 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
             r => break r?,
         }
     }
-    run.joining(&mut m)?;
+    run.joining(&mut m).map_err(|e| {
+        if m.settings.from_counts {
+            counts::name_line(e, &m.inputs, m.settings.order, m.settings.max_line_bytes)
+        } else {
+            e
+        }
+    })?;
     // The bad lines are named before the work folder goes: by input and
     // line number, counted in the inputs (which are still as counted: the
     // checksums of a resume saw to that).

@@ -42,6 +42,9 @@ pub struct IngestOptions {
     /// How the input lines hold documents (plain lines, or JSON lines
     /// whose text field is counted).
     pub format: Format,
+    /// The inputs are count tables (`n-gram<TAB>count` lines of every
+    /// order, see [`crate::corpus::count_table`]), not text.
+    pub counts: bool,
 }
 
 impl IngestOptions {
@@ -61,6 +64,7 @@ impl IngestOptions {
             append: false,
             chunk_bytes: 16 << 20,
             format: Format::Lines,
+            counts: false,
         }
     }
 }

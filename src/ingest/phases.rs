@@ -101,6 +101,7 @@ impl Run<'_> {
                 dir: &run.dirs.runs,
                 next_id: &next_id,
                 progress: &read,
+                counts: m.settings.from_counts,
             };
             let shared = Mutex::new(Committed {
                 manifest: &mut *m,
@@ -116,7 +117,7 @@ impl Run<'_> {
                     id: s.id,
                     runs: s.runs,
                     dict: s.dict,
-                    firsts: Some(s.firsts),
+                    firsts: s.firsts,
                     covers: s.covers,
                     hashes: s.hashes,
                     totals: s.totals,

@@ -36,6 +36,17 @@ pub(super) fn check_resume(
             ),
         ));
     }
+    if m.settings.from_counts != settings.from_counts {
+        let say = |c: bool| if c { "count tables (--counts)" } else { "text" };
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "an unfinished ingest here was started reading {}; this command reads {}: {hint}",
+                say(m.settings.from_counts),
+                say(settings.from_counts)
+            ),
+        ));
+    }
     if m.settings != *settings {
         return Err(Error::state(
             &opts.store,

@@ -5,7 +5,7 @@ use std::path::Path;
 
 use super::kway::{KWayMerge, RecordSource};
 use super::partition::{open_all, reduce_sources, MergeConfig};
-use crate::error::{Error, Result};
+use crate::error::{Error, Result, Side};
 use crate::key::Key;
 use crate::records::{Joined, PartitionStats};
 use crate::shard::{RunFile, Values, MAX_VALUES};
@@ -157,6 +157,13 @@ pub fn join_partition(
     let mut kbuf = Vec::with_capacity(8 * n);
     let mut vbuf = Vec::with_capacity(32);
     let bad = |what: String| Error::corrupt(counts.path(), what);
+    // A continuation count is a suffix's: with no count of its own, that
+    // suffix was not counted.
+    let not_counted = |side, missing: &Key| Error::NotCounted {
+        path: counts.path().to_path_buf(),
+        side,
+        missing: missing.ids().to_vec(),
+    };
     let cf: Vec<Family> = (0..=n).map(|k| sink.family(&ngram_cf(k))).collect();
     let mut cbuf = Vec::with_capacity(64);
 
@@ -187,10 +194,7 @@ pub fn join_partition(
         let mut continuation = 0;
         if let Some((ck, cv)) = &next_cont {
             if *ck < key {
-                return Err(bad(format!(
-                    "a continuation count for an n-gram that was not counted ({} words)",
-                    ck.order()
-                )));
+                return Err(not_counted(Side::Suffix, ck));
             }
             if *ck == key {
                 continuation = cv[0];
@@ -222,7 +226,7 @@ pub fn join_partition(
         } else {
             let parent = &mut open[k - 1];
             if !parent.active || !kbuf.starts_with(&parent.key) {
-                return Err(bad("an n-gram whose prefix was not counted".into()));
+                return Err(not_counted(Side::Prefix, &Key::new(&key.ids()[..k - 1])));
             }
             parent.stats.add_child(c, a);
         }
@@ -241,10 +245,8 @@ pub fn join_partition(
         }
     }
     close(&mut sink, &mut open, 1, &mut cbuf)?;
-    if next_cont.is_some() {
-        return Err(bad(
-            "continuation counts left over after the last n-gram".into()
-        ));
+    if let Some((ck, _)) = &next_cont {
+        return Err(not_counted(Side::Suffix, ck));
     }
     coc_raw.into_maps(&mut stats.coc_raw);
     coc_left.into_maps(&mut stats.coc_left_type);

@@ -24,6 +24,14 @@ pub struct Settings {
     /// (`ingest --word-list`); absent in stores built without one.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub word_list: Option<WordListInfo>,
+    /// The counts were read from count tables (`ingest --counts`), not
+    /// counted in text; absent in stores counted from text.
+    #[serde(default, skip_serializing_if = "is_false")]
+    pub from_counts: bool,
+}
+
+fn is_false(x: &bool) -> bool {
+    !*x
 }
 
 /// The fixed word list a store was counted with: its size and a checksum

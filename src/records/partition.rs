@@ -27,6 +27,11 @@ pub struct ReadTotals {
     /// object, no text field, or not a string), skipped.
     #[serde(default, skip_serializing_if = "is_zero")]
     pub bad_lines: u64,
+    /// The counts read from count tables (`ingest --counts`), summed; for
+    /// an appended store, its counts of every order summed. Kept below
+    /// 2^64 so that no sum of counts overflows.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub counts_sum: u64,
 }
 
 /// A bad line (see [`ReadTotals::bad_lines`]): where it starts and why it
@@ -57,6 +62,7 @@ impl ReadTotals {
         self.mapped_tokens += o.mapped_tokens;
         self.bytes += o.bytes;
         self.bad_lines += o.bad_lines;
+        self.counts_sum = self.counts_sum.saturating_add(o.counts_sum);
     }
 }
 

@@ -235,6 +235,7 @@ mod tests {
                 preparation: Default::default(),
                 max_line_bytes: 1 << 20,
                 word_list: None,
+                from_counts: false,
             },
             word_list: None,
             format: Format::Lines,

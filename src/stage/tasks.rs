@@ -128,6 +128,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             dir: &tmp,
             next_id: &next_id,
             progress: &read,
+            counts: false,
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {
@@ -148,7 +149,10 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             r.dicts.push(s.dict);
             r.totals.add(&s.totals);
             let starts = s.covers.iter().map(|c| (c.file, c.start)).collect();
-            r.firsts.push((s.firsts, starts));
+            // Text (a staged plan reads no count tables) always has them.
+            if let Some(f) = s.firsts {
+                r.firsts.push((f, starts));
+            }
         }
         let work = r.totals.bytes;
         let firsts = r.firsts.iter().map(|f| &f.0);

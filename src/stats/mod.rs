@@ -49,6 +49,14 @@ pub struct ReportSettings {
     /// The fixed word list the store was counted with (`--word-list`);
     /// `None` (JSON `null`) when every token counted.
     pub word_list: Option<ReportWordList>,
+    /// The store was built from count tables (`ingest --counts`); absent
+    /// for a store counted from text. Such a store has no growth curve.
+    #[serde(skip_serializing_if = "is_false")]
+    pub from_counts: bool,
+}
+
+fn is_false(x: &bool) -> bool {
+    !*x
 }
 
 /// A store's fixed word list, as the report shows it.
@@ -121,7 +129,8 @@ pub struct Report {
     pub totals: ReportTotals,
     /// Per order.
     pub orders: Vec<OrderReport>,
-    /// `None` for a store built before growth curves were kept.
+    /// `None` for a store built before growth curves were kept, or from
+    /// count tables.
     pub growth: Option<Growth>,
     /// Rank-frequency of the unigrams (without `<s>`).
     pub rank_frequency: RankFrequency,
@@ -182,6 +191,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
                 .settings
                 .word_list
                 .map(|w| ReportWordList { words: w.words }),
+            from_counts: meta.settings.from_counts,
         },
         totals: ReportTotals {
             sentences: t.sentences,

@@ -41,6 +41,11 @@ mod chunks;
 // is refused.
 mod append;
 
+// `ingest --counts`: a dump read back is the same store (orders 3 and 5);
+// Python's counts in duplicate lines across two files; bad tables named by
+// file and line; resume after kills and --append equal one ingest.
+mod counts_in;
+
 // Cross-check against scripts/reference_ngrams.py (Python collections.Counter).
 mod python_check;
 

@@ -27,6 +27,7 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     o.restart = a.restart;
     o.append = a.append;
     o.format = a.input.format();
+    o.counts = a.counts;
     let bar = Bar::new(a.quiet);
     let result = ingest(&o, &bar);
     bar.finish();

@@ -307,6 +307,12 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
     if let Some(p) = &r.settings.preparation {
         writeln!(out, "preparation {}", super::preparation_text(p))?;
     }
+    if r.settings.from_counts {
+        writeln!(
+            out,
+            "source     count tables (ingest --counts): counts as read, statistics derived from them"
+        )?;
+    }
     writeln!(out, "sentences  {:>14}", thousands(t.sentences))?;
     writeln!(
         out,
@@ -335,6 +341,10 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
         )?;
     }
     match r.growth.as_ref() {
+        None if r.settings.from_counts => writeln!(
+            out,
+            "growth     none (count tables do not say in what order the tokens came)"
+        )?,
         None => writeln!(out, "growth     none kept (the store was built before growth curves)")?,
         Some(g) => match &g.heaps {
             Some(h) => writeln!(
