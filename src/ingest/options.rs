@@ -8,7 +8,7 @@ use serde::Serialize;
 
 use super::manifest::Phase;
 use crate::corpus::Format;
-use crate::records::{BadLineAt, Totals};
+use crate::records::{BadLineAt, Totals, Unique};
 use crate::tokenize::Preparation;
 
 /// What to ingest and how.
@@ -42,6 +42,9 @@ pub struct IngestOptions {
     /// How the input lines hold documents (plain lines, or JSON lines
     /// whose text field is counted).
     pub format: Format,
+    /// Count each distinct sentence or document only the first time it
+    /// occurs (see [`crate::unique`]).
+    pub unique: Option<Unique>,
 }
 
 impl IngestOptions {
@@ -61,6 +64,7 @@ impl IngestOptions {
             append: false,
             chunk_bytes: 16 << 20,
             format: Format::Lines,
+            unique: None,
         }
     }
 }

@@ -88,6 +88,7 @@ impl Run<'_> {
             run.progress.advance(done0);
             let next_id = AtomicU64::new(m.next_id);
             let read = AtomicU64::new(0);
+            let skips = super::unique::skips(m, run.dirs)?;
             let cfg = CountConfig {
                 inputs,
                 order: m.settings.order,
@@ -101,6 +102,7 @@ impl Run<'_> {
                 dir: &run.dirs.runs,
                 next_id: &next_id,
                 progress: &read,
+                unique: skips.as_ref(),
             };
             let shared = Mutex::new(Committed {
                 manifest: &mut *m,
@@ -334,6 +336,7 @@ impl Run<'_> {
                 )?;
                 crate::fault::point(crate::fault::Point::Build);
                 finish::replace_db(&dirs.store, &db_new)?;
+                super::unique::install_set(m, dirs)?;
                 m.phase = Phase::Done;
                 m.save(&run.dirs.work)?;
                 run.progress.advance(1);

@@ -134,6 +134,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     };
     let settings = Settings {
         word_list: list.as_ref().map(|l| l.info),
+        unique: None,
         ..o.settings
     };
     let inputs = corpus::discover(&o.inputs)?;
@@ -235,6 +236,7 @@ mod tests {
                 preparation: Default::default(),
                 max_line_bytes: 1 << 20,
                 word_list: None,
+                unique: None,
             },
             word_list: None,
             format: Format::Lines,

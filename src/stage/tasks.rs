@@ -128,6 +128,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             dir: &tmp,
             next_id: &next_id,
             progress: &read,
+            unique: None,
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {

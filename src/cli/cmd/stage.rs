@@ -20,6 +20,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     preparation,
                     word_list: None,
                     max_line_bytes: a.input.max_line_bytes,
+                    unique: None,
                 },
                 word_list: a.word_list,
                 format: a.input.format(),
