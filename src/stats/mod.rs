@@ -49,6 +49,21 @@ pub struct ReportSettings {
     /// The fixed word list the store was counted with (`--word-list`);
     /// `None` (JSON `null`) when every token counted.
     pub word_list: Option<ReportWordList>,
+    /// `lines` or `documents` for a store that counted each distinct
+    /// sentence or document once (`ingest --unique`); absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unique: Option<crate::records::Unique>,
+}
+
+/// What `ingest --unique` left out.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportDuplicates {
+    /// Sentences (or documents) not counted: they occurred before.
+    pub units: u64,
+    /// Their tokens (as T counts them: without `<s>`, with `</s>`).
+    pub tokens: u64,
+    /// tokens / (T + tokens).
+    pub token_share: f64,
 }
 
 /// A store's fixed word list, as the report shows it.
@@ -84,6 +99,9 @@ pub struct ReportTotals {
     /// absent when there were none.
     #[serde(skip_serializing_if = "is_zero")]
     pub bad_lines: u64,
+    /// What `--unique` left out; absent for a store without it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub duplicates: Option<ReportDuplicates>,
 }
 
 fn is_zero(x: &u64) -> bool {
@@ -182,6 +200,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
                 .settings
                 .word_list
                 .map(|w| ReportWordList { words: w.words }),
+            unique: meta.settings.unique,
         },
         totals: ReportTotals {
             sentences: t.sentences,
@@ -194,6 +213,11 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
             skipped_lines: t.skipped_lines,
             invalid_utf8_lines: t.invalid_utf8_lines,
             bad_lines: t.bad_lines,
+            duplicates: meta.settings.unique.map(|_| ReportDuplicates {
+                units: t.duplicate_units,
+                tokens: t.duplicate_tokens,
+                token_share: t.duplicate_token_share(),
+            }),
         },
         orders,
         growth: meta.growth.as_ref().map(|g| Growth {

@@ -307,3 +307,166 @@ pub fn mark(
     f.sync_all().at(&path, "fsync")?;
     Ok(found)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::corpus::Span;
+    use crate::unique::Skips;
+    use std::collections::{BTreeSet, HashMap};
+
+    /// A small deterministic generator (SplitMix64, as published by
+    /// Steele, Lea and Flood, 2014).
+    fn splitmix(state: &mut u64) -> u64 {
+        *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = *state;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+
+    /// Sightings spilled as several sorted runs, merged in rounds and
+    /// marked against an old set, equal what a plain in-memory pass over
+    /// them in input order finds: the first sighting of each hash kept
+    /// unless the old set holds it, the new set the union.
+    #[test]
+    fn spilled_runs_mark_the_same_duplicates_as_one_pass() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut st = 7u64;
+        // Few distinct hashes, so that most of them repeat.
+        let all: Vec<Sighting> = (0..5000u64)
+            .map(|i| Sighting {
+                hash: (splitmix(&mut st) % 700) as u128 * 0x1_0000_0000_0001,
+                at: Position {
+                    file: (i / 2000) as u32,
+                    offset: (i % 2000) * 10,
+                    sub: (splitmix(&mut st) % 3) as u32,
+                },
+            })
+            .collect();
+        let old: BTreeSet<u128> = (0..40u128).map(|h| h * 17 * 0x1_0000_0000_0001).collect();
+        // Expected, from one pass in input order.
+        let mut in_order = all.clone();
+        in_order.sort_by_key(|s| s.at);
+        in_order.dedup_by_key(|s| s.at);
+        let mut seen: BTreeSet<u128> = old.clone();
+        let mut want_dups: Vec<Position> = Vec::new();
+        for s in &in_order {
+            if !seen.insert(s.hash) {
+                want_dups.push(s.at);
+            }
+        }
+        // Spilled in pieces of 333, merged two at a time, then marked.
+        let mut paths = Vec::new();
+        for (i, piece) in in_order.chunks(333).enumerate() {
+            let p = dir.path().join(format!("r{i}.run"));
+            write_run(&p, &mut piece.to_vec()).unwrap();
+            paths.push(p);
+        }
+        let mut round = 0;
+        while paths.len() > 2 {
+            paths = paths
+                .chunks(2)
+                .enumerate()
+                .map(|(i, g)| {
+                    let out = dir.path().join(format!("m{round}-{i}.run"));
+                    merge_runs(g, &out).unwrap();
+                    out
+                })
+                .collect();
+            round += 1;
+        }
+        let old_path = dir.path().join("old.set");
+        let mut s = Sink::create(&old_path, SET_MAGIC, old.len() as u64).unwrap();
+        for h in &old {
+            s.put(&h.to_le_bytes()).unwrap();
+        }
+        s.finish().unwrap();
+        let chunks = vec![
+            Span {
+                file: 0,
+                start: 0,
+                end: 9000,
+            },
+            Span {
+                file: 0,
+                start: 9000,
+                end: u64::MAX,
+            },
+            Span {
+                file: 1,
+                start: 0,
+                end: u64::MAX,
+            },
+            Span {
+                file: 2,
+                start: 0,
+                end: u64::MAX,
+            },
+        ];
+        let dups_dir = dir.path().join("dups");
+        std::fs::create_dir(&dups_dir).unwrap();
+        let new_set = dir.path().join("new.set");
+        // A tiny buffer: the duplicates are appended in many flushes.
+        let mut w = DupWriter::new(&chunks, &dups_dir, 0);
+        let found = mark(&paths, Some(&old_path), &new_set, &mut w).unwrap();
+        let names = w.finish().unwrap();
+        assert_eq!(found.units, in_order.len() as u64);
+        assert_eq!(found.duplicates, want_dups.len() as u64);
+        // Each chunk's file holds exactly its duplicates.
+        let mut by_chunk: HashMap<usize, Vec<(u64, u32)>> = HashMap::new();
+        for d in &want_dups {
+            by_chunk
+                .entry(DupWriter::chunk_of(&chunks, *d))
+                .or_default()
+                .push((d.offset, d.sub));
+        }
+        for (c, name) in names.iter().enumerate() {
+            let want = by_chunk.remove(&c).unwrap_or_default();
+            let mut got = match name {
+                Some(n) => Skips::load(&dups_dir.join(n)).unwrap(),
+                None => Skips::none(),
+            };
+            assert_eq!(got.at, want, "chunk {c}");
+            for &(o, k) in &want {
+                assert!(got.is_dup(o, k));
+            }
+        }
+        // The new set is the union, in order.
+        let mut r = SetReader::open(&new_set).unwrap();
+        let mut got = Vec::new();
+        while let Some(h) = r.next_hash().unwrap() {
+            got.push(h);
+        }
+        let want: Vec<u128> = seen.into_iter().collect();
+        assert_eq!(got, want);
+        assert_eq!(found.set, want.len() as u64);
+    }
+
+    /// A torn run and a run out of order are errors naming the file.
+    #[test]
+    fn damaged_runs_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("a.run");
+        let s = |hash: u128, offset: u64| Sighting {
+            hash,
+            at: Position {
+                file: 0,
+                offset,
+                sub: 0,
+            },
+        };
+        write_run(&p, &mut [s(5, 0), s(3, 8)]).unwrap();
+        let bytes = std::fs::read(&p).unwrap();
+        std::fs::write(&p, &bytes[..bytes.len() - 1]).unwrap();
+        assert!(matches!(RunReader::open(&p), Err(Error::Corrupt { path, .. }) if path == p));
+        // The two records swapped.
+        let mut swapped = bytes[..16].to_vec();
+        swapped.extend_from_slice(&bytes[16 + RECORD_BYTES..]);
+        swapped.extend_from_slice(&bytes[16..16 + RECORD_BYTES]);
+        std::fs::write(&p, &swapped).unwrap();
+        let mut r = RunReader::open(&p).unwrap();
+        assert!(r.next_record().unwrap().is_some());
+        assert!(matches!(r.next_record(), Err(Error::Corrupt { .. })));
+    }
+}

@@ -122,7 +122,7 @@ pub(crate) fn duplicates_line(u: quern::records::Unique, t: &quern::records::Tot
         quern::records::Unique::Documents => "documents",
     };
     format!(
-        "duplicates not counted: {} {what} ({} tokens, {:.1} % of the tokens read)",
+        "duplicates not counted: {} {what} ({} tokens, {:.2} % of the tokens read)",
         thousands(t.duplicate_units),
         thousands(t.duplicate_tokens),
         100.0 * t.duplicate_token_share()
