@@ -16,8 +16,8 @@ use serde_json::Value;
 use quern::fault::{Point, KILL_VAR};
 
 use crate::common::{
-    assert_views_eq, gutenberg_dir, ingest_args, manifest_dir, python3, run, run_env, store_view,
-    StoreView,
+    assert_views_eq, gutenberg_dir, ingest_args, manifest, manifest_dir, python3, run, run_env,
+    store_view, StoreView,
 };
 
 /// Many small chunks (so that duplicates cross chunks and threads).
@@ -204,23 +204,53 @@ fn unique_documents_and_their_lines_equal_the_first_occurrences() {
     }
 }
 
-/// Killed while hashing, right after marking, and while counting, then
-/// resumed: the same store as the reference's.
+/// Killed while hashing, right after marking, and while counting (order 5
+/// in 16 MiB: spills in the middle of chunks, so that the resumed counting
+/// starts inside one), then resumed: the same store as the reference's.
 #[test]
 fn unique_survives_a_kill_and_resume() {
     let tmp = tempfile::tempdir().unwrap();
     let inputs = vec![repeated_lines(tmp.path()), novel("persuasion.txt")];
-    let flags = with(FLAGS, &["--unique", "lines"]);
+    let flags = [
+        "--order",
+        "5",
+        "--memory",
+        "16MiB",
+        "--threads",
+        "2",
+        "-q",
+        "--unique",
+        "lines",
+    ];
     for (point, n) in [
-        (Point::Hashed, 3),
+        (Point::Hashed, 1),
         (Point::Marked, 1),
-        (Point::Committed, 2),
+        (Point::Committed, 3),
     ] {
         let store = tmp.path().join(format!("store-{}", point.name()));
         let args = ingest_args(&store, &flags, &inputs);
-        let killed = run_env(&args, &[CHUNKS, (KILL_VAR, &point.at(n))]);
+        let killed = run_env(&args, &[(KILL_VAR, &point.at(n))]);
         assert_eq!(killed.signal(), Some(9), "{}", killed.describe());
-        ingest(&store, &flags, &inputs, &[CHUNKS]);
+        if point == Point::Committed {
+            // The resumed counting starts inside a chunk: a spill's cover
+            // ends where no chunk does.
+            let m = manifest(&store);
+            let ends: Vec<&Value> = m["chunks"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|c| &c["end"])
+                .collect();
+            let inside = m["runsets"].as_array().unwrap().iter().any(|r| {
+                r["covers"]
+                    .as_array()
+                    .unwrap()
+                    .iter()
+                    .any(|c| !ends.contains(&&c["end"]))
+            });
+            assert!(inside, "no spill ended inside a chunk: {m}");
+        }
+        ingest(&store, &flags, &inputs, &[]);
         check(
             &store,
             "lines",
