@@ -135,7 +135,9 @@ fn repeated_lines(dir: &Path) -> PathBuf {
 /// A JSON-lines file of documents made from a novel's paragraphs (their
 /// lines as sentences): every paragraph, then every third again, then
 /// every fifth with its lines in reverse order (a new document of old
-/// sentences), and a line that holds no document.
+/// sentences), every fourth's first line before another paragraph, and
+/// every fourth's words in two sentences cut elsewhere; and a line that
+/// holds no document.
 fn repeated_documents(dir: &Path) -> PathBuf {
     let text = std::fs::read_to_string(novel("northangerabbey.txt")).unwrap();
     let paras: Vec<&str> = text
@@ -155,6 +157,16 @@ fn repeated_documents(dir: &Path) -> PathBuf {
     for p in paras.iter().step_by(5) {
         let rev: Vec<&str> = p.lines().rev().collect();
         out.push_str(&doc(&rev.join("\n")));
+    }
+    // New documents that begin like old ones: the same first line then
+    // another paragraph's; the same words with the sentence breaks moved.
+    for (i, p) in paras.iter().enumerate().step_by(4) {
+        let first = p.lines().next().unwrap_or("");
+        let other = paras[(i + 1) % paras.len()];
+        out.push_str(&doc(&format!("{first}\n{other}")));
+        let words: Vec<&str> = p.split_whitespace().collect();
+        let (a, b) = words.split_at(words.len() / 2);
+        out.push_str(&doc(&format!("{}\n{}", a.join(" "), b.join(" "))));
     }
     let p = dir.join("documents.jsonl");
     std::fs::write(&p, out).unwrap();
