@@ -72,6 +72,12 @@ impl Hashing<'_> {
     /// duplicates.
     pub(super) fn run(&self, m: &mut Manifest, inputs: &[InputFile]) -> Result<Option<Hashed>> {
         if m.phase != Phase::Hashing {
+            // Hash runs left by a kill right after marking go.
+            if let Some(u) = &m.unique {
+                if m.phase == Phase::Counting {
+                    cleanup(u, self.dirs)?;
+                }
+            }
             return Ok(None);
         }
         let unit = m.settings.unique.ok_or_else(|| missing(self.dirs))?;

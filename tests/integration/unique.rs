@@ -353,3 +353,29 @@ fn unique_resume_with_another_setting_is_refused() {
         r.describe()
     );
 }
+
+/// An input that changed after the hashing read it (it grew at its end,
+/// which a plain resume would accept and count on): the resume is
+/// refused, naming the input, since its new lines were never hashed.
+#[test]
+fn unique_resume_after_an_input_changed_is_refused() {
+    let tmp = tempfile::tempdir().unwrap();
+    let input = tmp.path().join("one.txt");
+    std::fs::copy(novel("persuasion.txt"), &input).unwrap();
+    let inputs = vec![input.clone()];
+    let store = tmp.path().join("store");
+    let flags = with(FLAGS, &["--unique", "lines"]);
+    let args = ingest_args(&store, &flags, &inputs);
+    let r = run_env(&args, &[(KILL_VAR, &Point::Marked.at(1))]);
+    assert_eq!(r.signal(), Some(9), "{}", r.describe());
+    let mut text = std::fs::read_to_string(&input).unwrap();
+    text.push_str("A line added after the hashing.\n");
+    std::fs::write(&input, text).unwrap();
+    let r = run(&args);
+    r.assert_failure();
+    assert!(
+        r.stderr.contains("one.txt") && r.stderr.contains("--unique"),
+        "{}",
+        r.describe()
+    );
+}
