@@ -52,6 +52,14 @@ impl Unique {
         }
     }
 
+    /// What the unit is called in reports: `sentences` or `documents`.
+    pub fn units(self) -> &'static str {
+        match self {
+            Unique::Lines => "sentences",
+            Unique::Documents => "documents",
+        }
+    }
+
     /// `--unique lines`, `--unique documents` or `no --unique`.
     pub fn describe(u: Option<Unique>) -> String {
         match u {

@@ -117,10 +117,7 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
 /// What `--unique` left out: `duplicates not counted: 3 sentences (12
 /// tokens, 4.1 % of the tokens read)`.
 pub(crate) fn duplicates_line(u: quern::records::Unique, t: &quern::records::Totals) -> String {
-    let what = match u {
-        quern::records::Unique::Lines => "sentences",
-        quern::records::Unique::Documents => "documents",
-    };
+    let what = u.units();
     format!(
         "duplicates not counted: {} {what} ({} tokens, {:.2} % of the tokens read)",
         thousands(t.duplicate_units),

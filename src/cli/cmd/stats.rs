@@ -366,10 +366,7 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
             out,
             "duplicates {:>14}   ({} not counted, --unique {}; {} tokens, {:.2} % of the tokens read)",
             thousands(d.units),
-            match u {
-                quern::records::Unique::Lines => "sentences",
-                quern::records::Unique::Documents => "documents",
-            },
+            u.units(),
             u.name(),
             thousands(d.tokens),
             100.0 * d.token_share
