@@ -66,6 +66,8 @@ def parse_args(argv):
                         "counted, its lines as sentences (default: plain text, a line a sentence)")
     p.add_argument("--text-field", default="text", metavar="NAME",
                    help="with --jsonl: the field holding the text (default: text)")
+    p.add_argument("--unique", default=None, metavar="UNIT",
+                   help="refused: a staged ingest does not remove duplicates (quern ingest --unique does)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one merge and one join task each (default 64)")
@@ -89,6 +91,9 @@ def parse_args(argv):
                    help="tests: run two copies of this task at once in one attempt")
     p.add_argument("inputs", nargs="+", help="files or directories (on the shared storage)")
     a = p.parse_args(argv)
+    if a.unique is not None:
+        p.error(f"--unique {a.unique}: a staged ingest does not remove duplicates; "
+                f"count with quern ingest --unique {a.unique}")
     for spec in a.fault_kill:
         if len(spec.split(":")) != 3 or spec.split(":")[0] not in STAGES:
             p.error(f"--fault-kill {spec!r}: expected STAGE:TASK:POINT")

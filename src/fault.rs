@@ -62,6 +62,11 @@ macro_rules! named {
 named! {
     /// Where a process can be killed (`QUERN_KILL_AT`).
     Point {
+        /// The ingest (`--unique`): a chunk's hash runs were recorded.
+        Hashed = "hashed",
+        /// The ingest (`--unique`): the duplicates were marked and
+        /// recorded.
+        Marked = "marked",
         /// The ingest: a spill's files are written, not yet recorded.
         Spill = "spill",
         /// The ingest: a spill was just recorded in the manifest.

@@ -10,8 +10,10 @@
 //!       work/sst/       store files written by the joins
 //!       work/tmp/       scratch of the current phase
 //!       work/staging/   scratch of the database build
+//!       work/unique/    hash runs, duplicate positions, the next hash set (--unique)
 //! STORE/work.new/       a work folder being created, renamed to work/
 //! STORE/ingest.lock     held by the one ingest that may run here
+//! STORE/unique.hashes   the hashes of every unit counted (--unique)
 //! ```
 //!
 //! A store with a `work/` folder is unfinished. Nothing here touches the
@@ -63,6 +65,12 @@ pub fn word_list(store: &Path) -> PathBuf {
     store.join("word-list.txt")
 }
 
+/// The sorted hashes of every sentence or document a `--unique` store
+/// counted (see [`crate::unique`]).
+pub fn unique_hashes(store: &Path) -> PathBuf {
+    store.join("unique.hashes")
+}
+
 /// Whether the finished database is there.
 pub fn has_db(store: &Path) -> bool {
     db(store).join("CURRENT").exists()
@@ -85,6 +93,8 @@ pub struct WorkDirs {
     pub tmp: PathBuf,
     /// Scratch of the database build.
     pub staging: PathBuf,
+    /// Hash runs, duplicate positions and the next hash set (`--unique`).
+    pub unique: PathBuf,
 }
 
 impl WorkDirs {
@@ -97,6 +107,7 @@ impl WorkDirs {
             sst: work.join("sst"),
             tmp: work.join("tmp"),
             staging: work.join("staging"),
+            unique: work.join("unique"),
             work,
         }
     }

@@ -432,6 +432,11 @@ pub struct IngestArgs {
     pub word_list: Option<PathBuf>,
     #[command(flatten)]
     pub input: InputArgs,
+    /// Count each distinct sentence (lines) or document (documents: a JSON
+    /// line's text, or an input line), judged on its prepared tokens, only
+    /// where it first occurs. Default: every occurrence counts.
+    #[arg(long, value_name = "UNIT", value_parser = values::unique)]
+    pub unique: Option<quern::records::Unique>,
     /// Number of partitions the merge is cut into. Default: 16 per thread,
     /// at least 16 and at most 256.
     #[arg(long, value_name = "N")]

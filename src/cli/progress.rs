@@ -38,7 +38,7 @@ impl Progress for Bar {
         if let Some(b) = slot.take() {
             b.finish_and_clear();
         }
-        let template = if phase == Phase::Counting {
+        let template = if matches!(phase, Phase::Counting | Phase::Hashing) {
             "{prefix:>9} [{bar:30}] {binary_bytes}/{binary_total_bytes} {binary_bytes_per_sec} eta {eta}"
         } else {
             "{prefix:>9} [{bar:30}] {pos}/{len} partitions, eta {eta}"

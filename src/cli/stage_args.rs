@@ -51,6 +51,10 @@ pub struct StagePlanArgs {
     pub word_list: Option<PathBuf>,
     #[command(flatten)]
     pub input: InputArgs,
+    /// Refused: a staged ingest cannot remove duplicates (`quern ingest
+    /// --unique` can).
+    #[arg(long, value_name = "UNIT", hide = true)]
+    pub unique: Option<String>,
     /// Number of partitions: one merge and one join task each. Required
     /// (the Spark driver passes its own default).
     #[arg(long, value_name = "N")]

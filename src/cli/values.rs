@@ -33,6 +33,12 @@ impl ByteSize {
     }
 }
 
+/// clap's parser of `--unique`.
+pub fn unique(s: &str) -> Result<quern::records::Unique, String> {
+    serde_json::from_value(serde_json::Value::String(s.to_string()))
+        .map_err(|_| format!("{s:?} is not lines or documents"))
+}
+
 /// clap's parser of a SIZE.
 pub fn byte_size(s: &str) -> Result<ByteSize, quern::Error> {
     quern::memory::parse_size(s).map(ByteSize)

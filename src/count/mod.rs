@@ -16,4 +16,4 @@ mod table;
 mod worker;
 
 pub use table::{SortedRecords, SortedTable, Table, MAX_LOAD};
-pub use worker::{count_spans, CountConfig, Spill, BAD_LINES_KEPT};
+pub use worker::{count_spans, CountConfig, Spill, UniqueSkips, BAD_LINES_KEPT};

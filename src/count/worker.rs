@@ -12,9 +12,10 @@ use crate::corpus::{open_at, read_document, CoverDigest, Format, InputFile, Line
 use crate::error::{Error, Result};
 use crate::growth::{self, FirstSeen};
 use crate::key::{partition_of, MAX_ORDER};
-use crate::records::{BadLineAt, ReadTotals};
+use crate::records::{BadLineAt, ReadTotals, Unique};
 use crate::shard::{DictWriter, RunWriter};
 use crate::tokenize::{Preparation, Tokenizer};
+use crate::unique::{DupWriter, Position, Skips};
 use crate::words::{bos_id, word_id, Dictionary, BOS, EOS, UNK};
 
 /// What the counting workers need to know.
@@ -46,6 +47,39 @@ pub struct CountConfig<'a> {
     /// The inputs are count tables ([`crate::corpus::count_table`]), not text: each line
     /// adds its count to its n-gram, and no growth curve is kept.
     pub counts: bool,
+    /// `--unique`: which units to skip.
+    pub unique: Option<&'a UniqueSkips>,
+}
+
+/// The units `--unique` skips: the chunks of the ingest and, for each,
+/// its file of duplicate positions (see [`crate::unique`]).
+pub struct UniqueSkips {
+    /// The unit.
+    pub unit: Unique,
+    /// The ingest's chunks (every span lies in one).
+    pub chunks: Vec<Span>,
+    /// Per chunk, its duplicates' file (`None`: it has none).
+    pub files: Vec<Option<std::path::PathBuf>>,
+}
+
+impl UniqueSkips {
+    /// The duplicates of the chunk holding `span`, from its start on.
+    fn of(&self, span: &Span) -> Result<Skips> {
+        let c = DupWriter::chunk_of(
+            &self.chunks,
+            Position {
+                file: span.file,
+                offset: span.start,
+                sub: 0,
+            },
+        );
+        let mut s = match self.files.get(c).and_then(|f| f.as_ref()) {
+            Some(f) => Skips::load(f)?,
+            None => Skips::none(),
+        };
+        s.seek(span.start);
+        Ok(s)
+    }
 }
 
 /// One finished spill, to be recorded in the manifest.
@@ -119,6 +153,8 @@ struct Worker<'a> {
     /// A document's ids and where each of its sentences ends.
     doc: Vec<crate::words::WordId>,
     ends: Vec<usize>,
+    /// `--unique`: the duplicates of the span being counted.
+    skips: Skips,
 }
 
 impl<'a> Worker<'a> {
@@ -137,6 +173,7 @@ impl<'a> Worker<'a> {
             pending: Vec::new(),
             doc: Vec::new(),
             ends: Vec::new(),
+            skips: Skips::none(),
         }
     }
 
@@ -175,6 +212,9 @@ impl<'a> Worker<'a> {
             self.cfg.max_line_bytes,
         );
         let tok = Tokenizer::new(self.cfg.preparation).with_word_list(self.cfg.word_list);
+        if let Some(u) = self.cfg.unique {
+            self.skips = u.of(&span)?;
+        }
         let mut line = Vec::new();
         let mut from = span.start;
         let mut digest = CoverDigest::default();
@@ -205,7 +245,9 @@ impl<'a> Worker<'a> {
                     }
                     Line::TooLong => self.totals.skipped_lines += 1,
                     Line::Text if self.cfg.counts => self.count_line(&line, at)?,
-                    Line::Text if self.cfg.format.is_lines() => self.count_document(&tok, &line)?,
+                    Line::Text if self.cfg.format.is_lines() => {
+                        self.count_document(&tok, &line, before)?
+                    }
                     Line::Text => match read_document(self.cfg.format, &line) {
                         Err(why) => {
                             self.totals.bad_lines += 1;
@@ -217,7 +259,7 @@ impl<'a> Worker<'a> {
                                 });
                             }
                         }
-                        Ok(doc) => self.count_document(&tok, &doc.text)?,
+                        Ok(doc) => self.count_document(&tok, &doc.text, before)?,
                     },
                 }
                 Ok(kind)
@@ -265,8 +307,9 @@ impl<'a> Worker<'a> {
 
     /// Counts the sentences of one document's text (a plain input line,
     /// or a JSON line's text). Every sentence is tokenized before any is
-    /// counted, so a document that fails adds nothing.
-    fn count_document(&mut self, tok: &Tokenizer, text: &[u8]) -> Result<()> {
+    /// counted, so a document that fails adds nothing. `offset` is where
+    /// its line starts (the position `--unique` knows it by).
+    fn count_document(&mut self, tok: &Tokenizer, text: &[u8], offset: u64) -> Result<()> {
         let words = self.dict.len();
         let r = tok.document(text, &mut self.dict, &mut self.doc, &mut self.ends)?;
         // Only a document that added a word to the dictionary (or holds a
@@ -278,13 +321,27 @@ impl<'a> Worker<'a> {
         self.totals.invalid_utf8_lines += r.invalid_utf8 as u64;
         self.totals.marker_tokens += r.marker_tokens;
         self.totals.mapped_tokens += r.mapped_tokens;
+        // Reader totals (above) count what was read, duplicates too.
+        let unit = self.cfg.unique.map(|u| u.unit);
+        if unit == Some(Unique::Documents) && !self.ends.is_empty() && self.skips.is_dup(offset, 0)
+        {
+            self.totals.duplicate_units += 1;
+            // Each sentence's `<s>` is not a token of T.
+            self.totals.duplicate_tokens += (self.doc.len() - self.ends.len()) as u64;
+            return Ok(());
+        }
         let n = self.cfg.order;
         let doc = std::mem::take(&mut self.doc);
         let ends = std::mem::take(&mut self.ends);
         let mut start = 0;
-        for &end in &ends {
+        for (k, &end) in ends.iter().enumerate() {
             let ids = &doc[start..end];
             start = end;
+            if unit == Some(Unique::Lines) && self.skips.is_dup(offset, k as u32) {
+                self.totals.duplicate_units += 1;
+                self.totals.duplicate_tokens += ids.len() as u64 - 1;
+                continue;
+            }
             self.first.sentence(ids, scan);
             self.totals.sentences += 1;
             // Only the longest k-gram of each position: the shorter ones

@@ -50,6 +50,16 @@ pub(super) fn export_base(
             ),
         ));
     }
+    if have.unique != settings.unique {
+        return Err(Error::state(
+            store_dir,
+            format!(
+                "the store was built with {}, this command gives {}: --append must use the same setting",
+                crate::records::Unique::describe(have.unique),
+                crate::records::Unique::describe(settings.unique)
+            ),
+        ));
+    }
     if have.order != settings.order || have.preparation != settings.preparation {
         return Err(Error::state(
             store_dir,
@@ -140,6 +150,8 @@ pub(super) fn export_base(
             bytes: t.input_bytes,
             bad_lines: t.bad_lines,
             counts_sum,
+            duplicate_units: t.duplicate_units,
+            duplicate_tokens: t.duplicate_tokens,
         },
     })
 }

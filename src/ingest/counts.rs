@@ -28,6 +28,8 @@ pub(super) fn check_options(opts: &IngestOptions) -> Result<()> {
         Some("--word-list".to_string())
     } else if opts.format != Format::Lines {
         Some(format!("inputs read as {}", opts.format.describe()))
+    } else if opts.unique.is_some() {
+        Some(crate::records::Unique::describe(opts.unique))
     } else {
         None
     };

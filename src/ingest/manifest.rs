@@ -24,6 +24,8 @@ pub const MANIFEST_VERSION: u32 = 2;
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Phase {
+    /// `--unique`: hashing every unit, then marking the duplicates.
+    Hashing,
     /// Reading inputs into run files.
     Counting,
     /// Merging each partition's runs; emitting continuation contributions.
@@ -40,6 +42,7 @@ impl Phase {
     /// The phase's name as shown to users.
     pub fn name(self) -> &'static str {
         match self {
+            Phase::Hashing => "hashing",
             Phase::Counting => "counting",
             Phase::Merging => "merging",
             Phase::Joining => "joining",
@@ -101,6 +104,32 @@ pub struct BaseGrowth {
     pub curve: GrowthCurve,
 }
 
+/// The durable work of `--unique` (see [`crate::unique`]); its files are
+/// in `work/unique`.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct UniqueWork {
+    /// Per chunk: the hash runs of its units, once written.
+    pub hashed: Vec<Option<Vec<String>>>,
+    /// The duplicates, once marked.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub marked: Option<MarkedUnits>,
+}
+
+/// The result of marking: the duplicates of each chunk and the store's
+/// next hash set.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct MarkedUnits {
+    /// Per chunk: its file of duplicate positions (`None`: none there).
+    pub dups: Vec<Option<String>>,
+    /// The next hash set (the store's and this ingest's units), moved into
+    /// the store when its database is in place.
+    pub set: String,
+    /// Units read by the hashing.
+    pub units: u64,
+    /// Of those, duplicates.
+    pub duplicates: u64,
+}
+
 /// Whether this ingest builds a new store or extends a finished one.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -143,6 +172,9 @@ pub struct Manifest {
     pub joined: Vec<Option<Joined>>,
     /// Unix time (seconds) the ingest started.
     pub started: u64,
+    /// `--unique`: its hashing and marking.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unique: Option<UniqueWork>,
 }
 
 impl Manifest {
@@ -307,6 +339,7 @@ mod tests {
                 max_line_bytes: 10,
                 word_list: None,
                 from_counts: false,
+                unique: None,
             },
             format: Format::Lines,
             mode: Mode::Fresh,
@@ -336,6 +369,7 @@ mod tests {
             merged: vec![],
             joined: vec![],
             started: 0,
+            unique: None,
         };
         let span = |file, start, end| Span { file, start, end };
         m.runsets.push(RunSet {
@@ -376,6 +410,7 @@ mod tests {
                 max_line_bytes: 10,
                 word_list: None,
                 from_counts: false,
+                unique: None,
             },
             format: Format::Lines,
             mode: Mode::Fresh,
@@ -389,6 +424,7 @@ mod tests {
             merged: vec![None],
             joined: vec![None],
             started: 0,
+            unique: None,
         }
     }
 

@@ -21,9 +21,10 @@ mod resume;
 mod space;
 mod start;
 mod status;
+mod unique;
 mod verify;
 
-pub use manifest::{Manifest, Phase};
+pub use manifest::{Manifest, MarkedUnits, Phase, UniqueWork};
 pub use options::{BadLineReport, IngestOptions, IngestSummary, Progress, Silent};
 pub use status::{status, IngestStatus};
 
@@ -99,6 +100,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         max_line_bytes: opts.max_line_bytes,
         word_list: list.as_ref().map(|l| l.info),
         from_counts: opts.counts,
+        unique: opts.unique,
     };
     fsutil::remove_dir(&layout::work_new(&opts.store))?;
     fsutil::remove_dir(&layout::work_done(&opts.store))?;
@@ -174,6 +176,18 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
     // A count run found damaged while merging is forgotten and its input
     // ranges counted again (a few times at most; then the error stands).
     let mut recounts = 0;
+    let hashing = unique::Hashing {
+        dirs: &dirs,
+        plan: &run.plan,
+        threads,
+        word_list: run.word_list,
+        progress,
+    };
+    if let Some(h) = hashing.run(&mut m, &inputs)? {
+        run.phase_seconds
+            .insert(Phase::Hashing.name().to_string(), h.seconds);
+        run.temp_bytes += h.temp_bytes;
+    }
     loop {
         run.counting(&mut m, &inputs)?;
         if m.settings.from_counts {

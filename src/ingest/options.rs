@@ -8,7 +8,7 @@ use serde::Serialize;
 
 use super::manifest::Phase;
 use crate::corpus::Format;
-use crate::records::{BadLineAt, Totals};
+use crate::records::{BadLineAt, Totals, Unique};
 use crate::tokenize::Preparation;
 
 /// What to ingest and how.
@@ -45,6 +45,9 @@ pub struct IngestOptions {
     /// The inputs are count tables (`n-gram<TAB>count` lines of every
     /// order, see [`crate::corpus::count_table`]), not text.
     pub counts: bool,
+    /// Count each distinct sentence or document only the first time it
+    /// occurs (see [`crate::unique`]).
+    pub unique: Option<Unique>,
 }
 
 impl IngestOptions {
@@ -65,6 +68,7 @@ impl IngestOptions {
             chunk_bytes: 16 << 20,
             format: Format::Lines,
             counts: false,
+            unique: None,
         }
     }
 }

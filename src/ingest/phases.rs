@@ -88,6 +88,7 @@ impl Run<'_> {
             run.progress.advance(done0);
             let next_id = AtomicU64::new(m.next_id);
             let read = AtomicU64::new(0);
+            let skips = super::unique::skips(m, run.dirs)?;
             let cfg = CountConfig {
                 inputs,
                 order: m.settings.order,
@@ -102,6 +103,7 @@ impl Run<'_> {
                 next_id: &next_id,
                 progress: &read,
                 counts: m.settings.from_counts,
+                unique: skips.as_ref(),
             };
             let shared = Mutex::new(Committed {
                 manifest: &mut *m,
@@ -335,6 +337,7 @@ impl Run<'_> {
                 )?;
                 crate::fault::point(crate::fault::Point::Build);
                 finish::replace_db(&dirs.store, &db_new)?;
+                super::unique::install_set(m, dirs)?;
                 m.phase = Phase::Done;
                 m.save(&run.dirs.work)?;
                 run.progress.advance(1);

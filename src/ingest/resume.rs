@@ -47,6 +47,16 @@ pub(super) fn check_resume(
             ),
         ));
     }
+    if m.settings.unique != settings.unique {
+        return Err(Error::state(
+            &opts.store,
+            format!(
+                "an unfinished ingest here was started with {}; this command gives {}: {hint}",
+                crate::records::Unique::describe(m.settings.unique),
+                crate::records::Unique::describe(settings.unique)
+            ),
+        ));
+    }
     if m.settings != *settings {
         return Err(Error::state(
             &opts.store,

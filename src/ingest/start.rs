@@ -19,6 +19,7 @@ pub(super) fn plan_new(
     threads: usize,
 ) -> Result<Manifest> {
     let chunks = corpus::plan_chunks(&inputs, chunk_bytes(opts.chunk_bytes, &inputs, threads))?;
+    let n_chunks = chunks.len();
     let mut m = Manifest {
         format_version: manifest::MANIFEST_VERSION,
         settings,
@@ -31,14 +32,25 @@ pub(super) fn plan_new(
         inputs,
         chunks,
         partitions: parts,
-        phase: Phase::Counting,
+        phase: if settings.unique.is_some() {
+            Phase::Hashing
+        } else {
+            Phase::Counting
+        },
         next_id: 0,
         base: None,
         runsets: vec![],
         merged: vec![None; parts as usize],
         joined: vec![None; parts as usize],
         started: now_secs(),
+        unique: None,
     };
+    if settings.unique.is_some() {
+        m.unique = Some(super::manifest::UniqueWork {
+            hashed: vec![None; n_chunks],
+            marked: None,
+        });
+    }
     // Build the work folder under another name and rename it into place,
     // so a work folder always has a manifest.
     let staging = WorkDirs::new(&dirs.store, layout::work_new(&dirs.store));

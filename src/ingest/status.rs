@@ -55,6 +55,9 @@ pub struct FinishedStore {
     pub order: usize,
     /// Lowercased.
     pub lowercase: bool,
+    /// `--unique`: the unit counted once; absent without it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unique: Option<crate::records::Unique>,
     /// The other steps of the text's preparation, where not the default
     /// (absent for the default preparation).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -67,6 +70,9 @@ pub struct FinishedStore {
     pub vocabulary: u64,
     /// Stored n-grams per order.
     pub ngrams: Vec<u64>,
+    /// What `--unique` left out; absent for a store without it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub duplicates: Option<crate::stats::ReportDuplicates>,
     /// Size of the database on disk.
     pub disk_bytes: u64,
 }
@@ -114,6 +120,7 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
         Some(FinishedStore {
             order: m.settings.order,
             lowercase: m.settings.preparation.lowercase,
+            unique: m.settings.unique,
             preparation: (m.settings.preparation
                 != crate::tokenize::Preparation::lowercasing(m.settings.preparation.lowercase))
             .then(|| m.settings.preparation.to_json()),
@@ -121,6 +128,11 @@ pub fn status(dir: &Path) -> Result<IngestStatus> {
             tokens: m.totals.tokens,
             vocabulary: m.totals.vocabulary,
             ngrams: m.orders.iter().map(|o| o.ngrams).collect(),
+            duplicates: m.settings.unique.map(|_| crate::stats::ReportDuplicates {
+                units: m.totals.duplicate_units,
+                tokens: m.totals.duplicate_tokens,
+                token_share: m.totals.duplicate_token_share(),
+            }),
             disk_bytes: s.disk_bytes(),
         })
     } else {

@@ -37,11 +37,18 @@ pub fn verify_inputs(m: &mut Manifest, found: &[InputFile], threads: usize) -> R
         ),
     }
     };
-    if m.phase != Phase::Counting {
+    // Under --unique the hashing read every input whole before counting.
+    if m.phase != Phase::Counting || m.settings.unique.is_some() {
         if let Some(&i) = changed.first() {
-            return Err(refuse(i, "counting is finished"));
+            let why = match m.phase {
+                Phase::Hashing | Phase::Counting => "its units were hashed for --unique",
+                _ => "counting is finished",
+            };
+            return Err(refuse(i, why));
         }
-        return Ok(vec![]);
+        if m.phase != Phase::Counting {
+            return Ok(vec![]);
+        }
     }
     for &i in &changed {
         if m.chunks.iter().filter(|c| c.file as usize == i).count() > 1 {

@@ -28,10 +28,53 @@ pub struct Settings {
     /// counted in text; absent in stores counted from text.
     #[serde(default, skip_serializing_if = "is_false")]
     pub from_counts: bool,
+    /// Each distinct sentence or document was counted only the first time
+    /// it occurred (`ingest --unique`); absent in stores that counted
+    /// every occurrence.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unique: Option<Unique>,
 }
 
 fn is_false(x: &bool) -> bool {
     !*x
+}
+
+/// The unit that `ingest --unique` counts once: a sentence, or a whole
+/// document (a JSON line's text, or an input line), judged on its prepared
+/// token sequence.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Unique {
+    /// Each distinct sentence.
+    Lines,
+    /// Each distinct document.
+    Documents,
+}
+
+impl Unique {
+    /// The setting as written on the command line and in the records.
+    pub fn name(self) -> &'static str {
+        match self {
+            Unique::Lines => "lines",
+            Unique::Documents => "documents",
+        }
+    }
+
+    /// What the unit is called in reports: `sentences` or `documents`.
+    pub fn units(self) -> &'static str {
+        match self {
+            Unique::Lines => "sentences",
+            Unique::Documents => "documents",
+        }
+    }
+
+    /// `--unique lines`, `--unique documents` or `no --unique`.
+    pub fn describe(u: Option<Unique>) -> String {
+        match u {
+            Some(u) => format!("--unique {}", u.name()),
+            None => "no --unique".to_string(),
+        }
+    }
 }
 
 /// The fixed word list a store was counted with: its size and a checksum
@@ -79,6 +122,28 @@ pub struct Totals {
     /// and absent from the JSON, when there were none).
     #[serde(default, skip_serializing_if = "is_zero")]
     pub bad_lines: u64,
+    /// Sentences or documents not counted because they occurred before
+    /// (`ingest --unique`; 0, and absent from the JSON, when there were
+    /// none).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub duplicate_units: u64,
+    /// Tokens of those (counted as T is: without `<s>`, with `</s>`).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub duplicate_tokens: u64,
+}
+
+impl Totals {
+    /// The share of the tokens read that `--unique` left out as
+    /// duplicates: duplicate tokens / (T + duplicate tokens); 0 when
+    /// nothing was read.
+    pub fn duplicate_token_share(&self) -> f64 {
+        let all = self.tokens + self.duplicate_tokens;
+        if all == 0 {
+            0.0
+        } else {
+            self.duplicate_tokens as f64 / all as f64
+        }
+    }
 }
 
 /// Statistics of one order.

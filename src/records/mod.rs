@@ -22,6 +22,8 @@ mod partition;
 mod upgrade;
 
 pub use context::ContextStats;
-pub use meta::{GrowthCurve, OrderStats, Settings, StoreMeta, Totals, WordListInfo, STORE_VERSION};
+pub use meta::{
+    GrowthCurve, OrderStats, Settings, StoreMeta, Totals, Unique, WordListInfo, STORE_VERSION,
+};
 pub use partition::{store_meta, BadLineAt, Joined, Merged, PartitionStats, ReadTotals};
 pub use upgrade::{upgrade_partition_records, upgrade_store_meta};

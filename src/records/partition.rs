@@ -32,6 +32,12 @@ pub struct ReadTotals {
     /// 2^64 so that no sum of counts overflows.
     #[serde(default, skip_serializing_if = "is_zero")]
     pub counts_sum: u64,
+    /// Sentences or documents skipped as duplicates (`ingest --unique`).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub duplicate_units: u64,
+    /// Their tokens, without `<s>`, with `</s>`.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub duplicate_tokens: u64,
 }
 
 /// A bad line (see [`ReadTotals::bad_lines`]): where it starts and why it
@@ -63,6 +69,8 @@ impl ReadTotals {
         self.bytes += o.bytes;
         self.bad_lines += o.bad_lines;
         self.counts_sum = self.counts_sum.saturating_add(o.counts_sum);
+        self.duplicate_units += o.duplicate_units;
+        self.duplicate_tokens += o.duplicate_tokens;
     }
 }
 
@@ -138,6 +146,8 @@ pub fn store_meta<'a>(
         mapped_tokens: read.mapped_tokens,
         input_bytes: read.bytes,
         bad_lines: read.bad_lines,
+        duplicate_units: read.duplicate_units,
+        duplicate_tokens: read.duplicate_tokens,
     };
     let orders = (0..n)
         .map(|k| OrderStats {

@@ -134,6 +134,7 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     };
     let settings = Settings {
         word_list: list.as_ref().map(|l| l.info),
+        unique: None,
         ..o.settings
     };
     let inputs = corpus::discover(&o.inputs)?;
@@ -236,6 +237,7 @@ mod tests {
                 max_line_bytes: 1 << 20,
                 word_list: None,
                 from_counts: false,
+                unique: None,
             },
             word_list: None,
             format: Format::Lines,

@@ -129,6 +129,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             next_id: &next_id,
             progress: &read,
             counts: false,
+            unique: None,
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {

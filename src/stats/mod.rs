@@ -53,10 +53,25 @@ pub struct ReportSettings {
     /// for a store counted from text. Such a store has no growth curve.
     #[serde(skip_serializing_if = "is_false")]
     pub from_counts: bool,
+    /// `lines` or `documents` for a store that counted each distinct
+    /// sentence or document once (`ingest --unique`); absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unique: Option<crate::records::Unique>,
 }
 
 fn is_false(x: &bool) -> bool {
     !*x
+}
+
+/// What `ingest --unique` left out.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportDuplicates {
+    /// Sentences (or documents) not counted: they occurred before.
+    pub units: u64,
+    /// Their tokens (as T counts them: without `<s>`, with `</s>`).
+    pub tokens: u64,
+    /// tokens / (T + tokens).
+    pub token_share: f64,
 }
 
 /// A store's fixed word list, as the report shows it.
@@ -92,6 +107,9 @@ pub struct ReportTotals {
     /// absent when there were none.
     #[serde(skip_serializing_if = "is_zero")]
     pub bad_lines: u64,
+    /// What `--unique` left out; absent for a store without it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub duplicates: Option<ReportDuplicates>,
 }
 
 fn is_zero(x: &u64) -> bool {
@@ -192,6 +210,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
                 .word_list
                 .map(|w| ReportWordList { words: w.words }),
             from_counts: meta.settings.from_counts,
+            unique: meta.settings.unique,
         },
         totals: ReportTotals {
             sentences: t.sentences,
@@ -204,6 +223,11 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
             skipped_lines: t.skipped_lines,
             invalid_utf8_lines: t.invalid_utf8_lines,
             bad_lines: t.bad_lines,
+            duplicates: meta.settings.unique.map(|_| ReportDuplicates {
+                units: t.duplicate_units,
+                tokens: t.duplicate_tokens,
+                token_share: t.duplicate_token_share(),
+            }),
         },
         orders,
         growth: meta.growth.as_ref().map(|g| Growth {

@@ -312,7 +312,12 @@ fn text_options_and_mixing_are_refused() {
     std::fs::write(&table, "a\t1\n").unwrap();
     let text = tmp.path().join("t.txt");
     std::fs::write(&text, "a b\n").unwrap();
-    for flag in [&["--lowercase"][..], &["--tokens", "words"], &["--jsonl"]] {
+    for flag in [
+        &["--lowercase"][..],
+        &["--tokens", "words"],
+        &["--jsonl"],
+        &["--unique", "lines"],
+    ] {
         let store = tmp.path().join("refused");
         let mut f = vec!["--counts", "--quiet"];
         f.extend_from_slice(flag);

@@ -190,3 +190,8 @@ mod corpus_measures;
 
 // Concordance lines against Python; occurrences equal the store's counts.
 mod corpus_lines;
+
+// `ingest --unique lines|documents` against a Python set of prepared token
+// sequences: Gutenberg texts and files of repeated lines and documents,
+// many chunks, kills and resumes, --append.
+mod unique;

@@ -11,6 +11,11 @@ use crate::cli::args::StageCommand;
 pub fn run(c: StageCommand) -> anyhow::Result<()> {
     let report = match c {
         StageCommand::Plan(a) => {
+            if let Some(u) = &a.unique {
+                anyhow::bail!(
+                    "--unique {u}: a staged ingest (quern stage, scripts/spark_ingest.py) does not remove duplicates; count with quern ingest --unique {u}"
+                );
+            }
             let preparation = a.prep.preparation();
             let o = PlanOptions {
                 dir: a.dir.clone(),
@@ -21,6 +26,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     word_list: None,
                     max_line_bytes: a.input.max_line_bytes,
                     from_counts: false,
+                    unique: None,
                 },
                 word_list: a.word_list,
                 format: a.input.format(),

@@ -165,6 +165,33 @@ fn rows(out: &mut impl Write, delim: u8, r: &Report) -> anyhow::Result<()> {
             "",
         )?;
     }
+    if let (Some(u), Some(d)) = (r.settings.unique, &t.duplicates) {
+        let note = format!("--unique {}", u.name());
+        put(
+            "totals",
+            None,
+            None,
+            "duplicate_units",
+            d.units.to_string(),
+            &note,
+        )?;
+        put(
+            "totals",
+            None,
+            None,
+            "duplicate_tokens",
+            d.tokens.to_string(),
+            &note,
+        )?;
+        put(
+            "totals",
+            None,
+            None,
+            "duplicate_token_share",
+            num(Some(d.token_share)),
+            &note,
+        )?;
+    }
     // Empty, with a note, for a store counted without a word list.
     let list_words = r.settings.word_list.as_ref().map(|l| l.words);
     for (name, v) in [
@@ -338,6 +365,17 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
             out,
             "bad lines  {:>14}   (input lines without a document, skipped)",
             thousands(t.bad_lines)
+        )?;
+    }
+    if let (Some(u), Some(d)) = (r.settings.unique, &r.totals.duplicates) {
+        writeln!(
+            out,
+            "duplicates {:>14}   ({} not counted, --unique {}; {} tokens, {:.2} % of the tokens read)",
+            thousands(d.units),
+            u.units(),
+            u.name(),
+            thousands(d.tokens),
+            100.0 * d.token_share
         )?;
     }
     match r.growth.as_ref() {

@@ -55,6 +55,16 @@ pub fn run(a: StatusArgs) -> anyhow::Result<()> {
         if let Some(p) = &f.preparation {
             writeln!(out, "  preparation {}", super::preparation_text(p))?;
         }
+        if let (Some(u), Some(d)) = (f.unique, &f.duplicates) {
+            writeln!(
+                out,
+                "  --unique {}: {} duplicates not counted ({} tokens, {:.2} % of the tokens read)",
+                u.name(),
+                thousands(d.units),
+                thousands(d.tokens),
+                100.0 * d.token_share
+            )?;
+        }
         for (k, n) in f.ngrams.iter().enumerate() {
             writeln!(out, "  {}-grams {:>14}", k + 1, thousands(*n))?;
         }
