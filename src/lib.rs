@@ -144,8 +144,8 @@ pub mod store;
 #[doc(hidden)]
 pub mod tokenize;
 pub(crate) mod topk;
-#[cfg(feature = "store")]
-pub(crate) mod unique;
+#[doc(hidden)]
+pub mod unique;
 pub(crate) mod varint;
 #[cfg(feature = "store")]
 pub(crate) mod vocab;
