@@ -200,6 +200,57 @@ pub fn merge_runs(paths: &[PathBuf], out: &Path) -> Result<()> {
     s.finish()
 }
 
+/// Merges `paths` in rounds of `fanin` runs (files `merge-R-I.run` in
+/// `dir`) until at most `fanin` are left, and gives those.
+pub fn merge_to_fanin(mut paths: Vec<PathBuf>, fanin: usize, dir: &Path) -> Result<Vec<PathBuf>> {
+    let fanin = fanin.max(2);
+    let mut round = 0;
+    while paths.len() > fanin {
+        let mut next = Vec::new();
+        for (i, group) in paths.chunks(fanin).enumerate() {
+            let out = dir.join(format!("merge-{round}-{i:06}.run"));
+            merge_runs(group, &out)?;
+            next.push(out);
+        }
+        round += 1;
+        paths = next;
+    }
+    Ok(paths)
+}
+
+/// The hash range (of `parts` equal ranges, ascending) that `hash` falls
+/// in: a staged ingest marks each range in its own task.
+pub fn range_of(hash: u128, parts: u32) -> u32 {
+    (((hash >> 64) * parts as u128) >> 64) as u32
+}
+
+/// Writes the hash sets `paths`, each of a higher range than the one
+/// before, as one set at `out`, fsynced; gives its count. A set out of
+/// order, or overlapping the one before, is an error naming it.
+pub fn concat_sets(paths: &[PathBuf], out: &Path) -> Result<u64> {
+    let count: u64 = paths
+        .iter()
+        .map(|p| open_checked(p, SET_MAGIC, 16).map(|x| x.1))
+        .sum::<Result<u64>>()?;
+    let mut s = Sink::create(out, SET_MAGIC, count)?;
+    let mut last: Option<u128> = None;
+    for p in paths {
+        let mut r = SetReader::open(p)?;
+        while let Some(h) = r.next_hash()? {
+            if last.is_some_and(|l| l >= h) {
+                return Err(Error::corrupt(
+                    p,
+                    "its hashes overlap those of the set before it",
+                ));
+            }
+            last = Some(h);
+            s.put(&h.to_le_bytes())?;
+        }
+    }
+    s.finish()?;
+    Ok(count)
+}
+
 /// Reads a hash set file in order, checking that order.
 pub struct SetReader {
     r: BufReader<File>,
