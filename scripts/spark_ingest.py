@@ -9,7 +9,13 @@ on a cluster). The job:
   1. plan      one task: `quern stage plan` lists the inputs, fixes the number
                of partitions and packs the inputs into map tasks of about
                equal bytes (DIR/job.json);
-  2. map       one task per map task of the plan, largest first;
+     hash      with --unique: one task per map task, largest first (hashes
+               its sentences or documents, cut into hash ranges);
+     mark      with --unique: one task per partition (a hash range: keeps
+               the first occurrence in input order of each unit, records
+               every other one for the map task that reads it);
+  2. map       one task per map task of the plan, largest first (with
+               --unique, skipping the units the mark tasks recorded);
   3. merge     one task per partition (merges its section of every map output);
   4. join      one task per partition (the second shuffle: continuation
                counts, context statistics, store files);
@@ -44,7 +50,7 @@ import sys
 import tempfile
 import time
 
-STAGES = ("plan", "map", "merge", "join", "assemble")
+STAGES = ("plan", "hash", "mark", "map", "merge", "join", "assemble")
 FAILED = "quern task failed: "
 
 
@@ -66,8 +72,10 @@ def parse_args(argv):
                         "counted, its lines as sentences (default: plain text, a line a sentence)")
     p.add_argument("--text-field", default="text", metavar="NAME",
                    help="with --jsonl: the field holding the text (default: text)")
-    p.add_argument("--unique", default=None, metavar="UNIT",
-                   help="refused: a staged ingest does not remove duplicates (quern ingest --unique does)")
+    p.add_argument("--unique", default=None, choices=("lines", "documents"),
+                   help="count each distinct sentence (lines) or document (documents), judged on its "
+                        "prepared tokens, only where it first occurs in input order, as quern ingest "
+                        "--unique does; adds the hash and mark stages (default: every occurrence counts)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one merge and one join task each (default 64)")
@@ -91,9 +99,6 @@ def parse_args(argv):
                    help="tests: run two copies of this task at once in one attempt")
     p.add_argument("inputs", nargs="+", help="files or directories (on the shared storage)")
     a = p.parse_args(argv)
-    if a.unique is not None:
-        p.error(f"--unique {a.unique}: a staged ingest does not remove duplicates; "
-                f"count with quern ingest --unique {a.unique}")
     for spec in a.fault_kill:
         if len(spec.split(":")) != 3 or spec.split(":")[0] not in STAGES:
             p.error(f"--fault-kill {spec!r}: expected STAGE:TASK:POINT")
@@ -245,6 +250,8 @@ def main(argv):
         plan_args += ["--jsonl", "--text-field", a.text_field]
     if a.word_list:
         plan_args += ["--word-list", os.path.abspath(a.word_list)]
+    if a.unique:
+        plan_args += ["--unique", a.unique]
     plan_args += [os.path.abspath(i) for i in a.inputs]
     plan = run_stage("plan", [0], lambda t: plan_args)[0]["reports"][0]
     log.info(f"plan {plan['job']}: {plan['inputs']} input file(s), {plan['input_bytes']} bytes, "
@@ -252,9 +259,12 @@ def main(argv):
     sizes = plan["map_task_bytes"]
     by_size = sorted(range(len(sizes)), key=lambda t: (-sizes[t], t))
     mem = a.task_memory
+    parts = range(plan["partitions"])
+    if a.unique:
+        run_stage("hash", by_size, lambda t: ["--dir", shared, "--task", t, "--memory", mem])
+        run_stage("mark", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
     run_stage("map", by_size, lambda t: ["--dir", shared, "--task", t, "--memory", mem,
                                          "--threads", a.map_threads])
-    parts = range(plan["partitions"])
     run_stage("merge", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
     run_stage("join", parts, lambda p: ["--dir", shared, "--partition", p, "--memory", mem])
     run_stage("assemble", [0], lambda t: ["--dir", shared, "--store", store, "--memory", mem])

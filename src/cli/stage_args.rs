@@ -14,7 +14,14 @@ pub enum StageCommand {
     /// Plan: list the inputs, fix the partitions, pack the inputs into map
     /// tasks of about equal bytes; writes DIR/job.json.
     Plan(StagePlanArgs),
-    /// Count one map task's inputs into partitioned runs and dictionaries.
+    /// --unique: hash the units of one map task's inputs, cut into the
+    /// plan's hash ranges.
+    Hash(StageHashArgs),
+    /// --unique: mark the duplicates of one hash range across every hash
+    /// output (every hash task first).
+    Mark(StagePartArgs),
+    /// Count one map task's inputs into partitioned runs and dictionaries
+    /// (with --unique: after every mark task, skipping the duplicates).
     Map(StageMapArgs),
     /// Merge one partition across every map output.
     Merge(StagePartArgs),
@@ -51,12 +58,15 @@ pub struct StagePlanArgs {
     pub word_list: Option<PathBuf>,
     #[command(flatten)]
     pub input: InputArgs,
-    /// Refused: a staged ingest cannot remove duplicates (`quern ingest
-    /// --unique` can).
-    #[arg(long, value_name = "UNIT", hide = true)]
-    pub unique: Option<String>,
-    /// Number of partitions: one merge and one join task each. Required
-    /// (the Spark driver passes its own default).
+    /// Count each distinct sentence (lines) or document (documents),
+    /// judged on its prepared tokens, only where it first occurs, as
+    /// `quern ingest --unique` does; adds the hash and mark stages before
+    /// the map stage. Default: every occurrence counts.
+    #[arg(long, value_name = "UNIT", value_parser = values::unique)]
+    pub unique: Option<quern::records::Unique>,
+    /// Number of partitions: one merge and one join task each (and with
+    /// --unique one mark task each). Required (the Spark driver passes its
+    /// own default).
     #[arg(long, value_name = "N")]
     pub partitions: u32,
     /// Number of map tasks (fewer if the inputs have fewer chunks).
@@ -81,6 +91,18 @@ pub struct StageMapArgs {
     /// Counting threads (more than one: same counts, not byte-identical runs).
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub threads: usize,
+}
+
+#[derive(Args, Debug)]
+pub struct StageHashArgs {
+    /// The shared directory of the job.
+    #[arg(long, value_name = "DIR")]
+    pub dir: PathBuf,
+    /// The map task whose inputs are hashed (from 0).
+    #[arg(long, value_name = "I")]
+    pub task: u32,
+    #[command(flatten)]
+    pub memory: TaskMemoryArgs,
 }
 
 #[derive(Args, Debug)]

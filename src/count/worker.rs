@@ -58,8 +58,9 @@ pub struct UniqueSkips {
     pub unit: Unique,
     /// The ingest's chunks (every span lies in one).
     pub chunks: Vec<Span>,
-    /// Per chunk, its duplicates' file (`None`: it has none).
-    pub files: Vec<Option<std::path::PathBuf>>,
+    /// Per chunk, its files of duplicates (none, one, or one per hash
+    /// range of a staged ingest).
+    pub files: Vec<Vec<std::path::PathBuf>>,
 }
 
 impl UniqueSkips {
@@ -73,8 +74,8 @@ impl UniqueSkips {
                 sub: 0,
             },
         );
-        let mut s = match self.files.get(c).and_then(|f| f.as_ref()) {
-            Some(f) => Skips::load(f)?,
+        let mut s = match self.files.get(c) {
+            Some(f) => Skips::load_all(f)?,
             None => Skips::none(),
         };
         s.seek(span.start);

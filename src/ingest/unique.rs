@@ -158,7 +158,7 @@ impl Hashing<'_> {
     fn mark(&self, m: &mut Manifest) -> Result<u64> {
         let d = self.dirs;
         let u = m.unique.as_ref().ok_or_else(|| missing(d))?;
-        let mut paths: Vec<PathBuf> = u
+        let paths: Vec<PathBuf> = u
             .hashed
             .iter()
             .flatten()
@@ -166,18 +166,7 @@ impl Hashing<'_> {
             .map(|n| d.unique.join(n))
             .collect();
         // Fewer runs than the fan-in at once: merge groups first.
-        let fanin = self.plan.fanin.max(2);
-        let mut round = 0;
-        while paths.len() > fanin {
-            let mut next = Vec::new();
-            for (i, group) in paths.chunks(fanin).enumerate() {
-                let out = d.unique.join(format!("merge-{round}-{i:06}.run"));
-                runs::merge_runs(group, &out)?;
-                next.push(out);
-            }
-            round += 1;
-            paths = next;
-        }
+        let paths = runs::merge_to_fanin(paths, self.plan.fanin, &d.unique)?;
         let old = layout::unique_hashes(&d.store);
         let old = match m.mode {
             Mode::Append if old.exists() => Some(old),
@@ -229,7 +218,7 @@ pub(super) fn skips(m: &Manifest, d: &WorkDirs) -> Result<Option<UniqueSkips>> {
         files: mk
             .dups
             .iter()
-            .map(|f| f.as_ref().map(|f| d.unique.join(f)))
+            .map(|f| f.iter().map(|f| d.unique.join(f)).collect())
             .collect(),
     }))
 }

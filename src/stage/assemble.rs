@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use super::commit::{need_done, unique, Outcome, TaskReport};
+use super::dedup::Marks;
 use super::tasks::MapResult;
 use super::{join_dir, map_dir, Job};
 use crate::error::{Error, Result};
@@ -46,6 +47,19 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
         let d = need_done::<Joined>(&j, "join", q, &id)?;
         joined.push((j, d.result));
     }
+    // `--unique`: the maps skipped exactly what the marks found.
+    let marks = Marks::load(dir, &job, &id)?;
+    if let Some(m) = &marks {
+        if m.duplicates != read.duplicate_units {
+            return Err(Error::state(
+                dir,
+                format!(
+                    "the mark tasks found {} duplicates but the map tasks skipped {}: run the map tasks again after the mark tasks",
+                    m.duplicates, read.duplicate_units
+                ),
+            ));
+        }
+    }
     let plan = Plan::new(memory, 1)?;
     fsutil::create_dir(store_dir)?;
     // The vocabulary growth curve, as the single-machine ingest computes it.
@@ -74,6 +88,12 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
                 ),
             ));
         }
+        // Its set, unless an assemble put it there before the database.
+        if let Some(m) = &marks {
+            if !layout::unique_hashes(store_dir).exists() {
+                m.install_set(store_dir)?;
+            }
+        }
         let bytes = s.disk_bytes();
         return Ok(report(Outcome::Skipped, store_dir, ngrams, bytes, t0));
     }
@@ -90,6 +110,11 @@ pub fn run_assemble(dir: &Path, store_dir: &Path, memory: u64) -> Result<TaskRep
             .flat_map(|(j, d)| d.ssts.iter().map(|(cf, f)| (cf.clone(), j.join(f))))
             .collect();
         finish::build_db(&meta, dicts, &ssts, &db_new, &work, plan.fanin)?;
+        // The set before the database: a store's set holds every unit its
+        // database counted.
+        if let Some(m) = &marks {
+            m.install_set(store_dir)?;
+        }
         crate::fault::point(crate::fault::Point::StageWritten);
         let outcome = match std::fs::rename(&db_new, &db) {
             Ok(()) => Outcome::Written,

@@ -30,15 +30,17 @@ pub enum Outcome {
 /// One task's report (printed by `quern stage` as one JSON line).
 #[derive(Clone, Debug, Serialize)]
 pub struct TaskReport {
-    /// `plan`, `map`, `merge`, `join` or `assemble`.
+    /// `plan`, `hash`, `mark`, `map`, `merge`, `join` or `assemble`.
     pub stage: &'static str,
-    /// Task (map) or partition (merge, join) number; 0 for plan and assemble.
+    /// Task (hash, map) or partition (mark, merge, join) number; 0 for
+    /// plan and assemble.
     pub task: u32,
     /// What it did.
     pub outcome: Outcome,
     /// The output folder.
     pub output: PathBuf,
-    /// Input bytes read (map), records merged (merge), n-grams stored (join).
+    /// Input bytes read (hash, map), units marked (mark), records merged
+    /// (merge), n-grams stored (join).
     pub work: u64,
     /// Bytes of the output's files.
     pub output_bytes: u64,
@@ -255,11 +257,11 @@ pub(crate) fn commit<T: Serialize + DeserializeOwned>(
     Ok((outcome, total))
 }
 
-/// Removes the intermediate outputs of a staged ingest (map, merge and
-/// join folders, and temporary folders of attempts that died); the plan
+/// Removes the intermediate outputs of a staged ingest (hash, mark, map,
+/// merge and join folders, and temporary folders of attempts that died); the plan
 /// stays. Call only when no task of this directory is running.
 pub fn clean(dir: &Path) -> Result<()> {
-    for sub in ["map", "merge", "join"] {
+    for sub in ["hash", "mark", "map", "merge", "join"] {
         fsutil::remove_dir(&dir.join(sub))?;
     }
     for e in std::fs::read_dir(dir).at(dir, "read directory")? {

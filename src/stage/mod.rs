@@ -10,15 +10,21 @@
 //! ```text
 //! DIR/job.json            the plan: settings, partitions, inputs, map tasks
 //! DIR/word-list.txt       the fixed vocabulary, if the plan was given one
+//! DIR/hash/h000007/       --unique: map task 7's units hashed, runs by hash range
+//! DIR/mark/p0003/         --unique: hash range 3 marked: duplicate positions + hashes
 //! DIR/map/m000007/        map task 7: count runs + dictionaries + done.json
-//! DIR/merge/p0003/       partition 3 merged: counts + continuation runs + done.json
+//! DIR/merge/p0003/        partition 3 merged: counts + continuation runs + done.json
 //! DIR/join/p0003/         partition 3 joined: SST files + statistics in done.json
 //! STORE/db/               the store, built by assemble
+//! STORE/unique.hashes     --unique: the hashes of every unit counted
 //! ```
 //!
 //! * [`plan`] lists the inputs (as `quern ingest` does), cuts plain files
 //!   into line-aligned chunks and packs them into map tasks of about equal
 //!   bytes; the partition count is fixed here and recorded.
+//! * With `--unique`, [`run_hash`] hashes one map task's units and
+//!   [`run_mark`] marks the duplicates of one hash range (see
+//!   `dedup.rs`), before any map task runs.
 //! * [`run_map`] counts one map task's spans into runs partitioned by the
 //!   first word, plus the dictionaries of their words.
 //! * [`run_merge`] merges one partition across every map output and emits
@@ -50,11 +56,14 @@
 
 mod assemble;
 mod commit;
+mod dedup;
 mod plan;
+mod shared;
 mod tasks;
 
 pub use assemble::run_assemble;
 pub use commit::clean;
+pub use dedup::{run_hash, run_mark};
 pub use plan::{plan, Job, PlanOptions};
 pub use tasks::{run_join, run_map, run_merge};
 
@@ -62,7 +71,9 @@ use std::path::{Path, PathBuf};
 
 /// Format version of `job.json` and of the `done.json` of every output.
 /// Version 1 is read too, converted by
-/// [`crate::records::upgrade_partition_records`].
+/// [`crate::records::upgrade_partition_records`]. A plan made with
+/// `--unique` records it in its settings (`settings.unique`), which a plan
+/// without it does not write, so older plans read and identify as before.
 pub const STAGE_VERSION: u32 = 2;
 
 /// File name of the plan inside the shared directory.
@@ -73,6 +84,17 @@ pub const DONE_FILE: &str = "done.json";
 /// The output folder of map task `t`.
 pub fn map_dir(dir: &Path, t: u32) -> PathBuf {
     dir.join("map").join(format!("m{t:06}"))
+}
+
+/// The output folder of hash task `t` (`--unique`: map task `t`'s units
+/// hashed).
+pub fn hash_dir(dir: &Path, t: u32) -> PathBuf {
+    dir.join("hash").join(format!("h{t:06}"))
+}
+
+/// The output folder of hash range `p`'s marking (`--unique`).
+pub fn mark_dir(dir: &Path, p: u32) -> PathBuf {
+    dir.join("mark").join(format!("p{p:04}"))
 }
 
 /// The output folder of partition `p`'s merge.

@@ -74,6 +74,14 @@ impl Job {
             .transpose()
     }
 
+    /// Every span of every map task, in input order: the chunks that
+    /// `--unique` files its duplicate positions by.
+    pub fn chunks(&self) -> Vec<Span> {
+        let mut all: Vec<Span> = self.map_tasks.iter().flatten().copied().collect();
+        all.sort_by_key(|s| (s.file, s.start));
+        all
+    }
+
     /// Input bytes of map task `t` (a span to the end counts the whole file).
     pub fn task_bytes(&self, t: usize) -> u64 {
         self.map_tasks[t]
@@ -134,7 +142,6 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     };
     let settings = Settings {
         word_list: list.as_ref().map(|l| l.info),
-        unique: None,
         ..o.settings
     };
     let inputs = corpus::discover(&o.inputs)?;
@@ -183,6 +190,17 @@ pub fn plan(o: &PlanOptions) -> Result<(Job, Outcome)> {
     let path = o.dir.join(JOB_FILE);
     if path.exists() {
         let old = Job::load(&o.dir)?;
+        if old.settings.unique != job.settings.unique {
+            return Err(Error::state(
+                &o.dir,
+                format!(
+                    "{} holds a plan with {}, not {}: give another --dir, or delete this one",
+                    path.display(),
+                    crate::records::Unique::describe(old.settings.unique),
+                    crate::records::Unique::describe(job.settings.unique)
+                ),
+            ));
+        }
         if old != job {
             return Err(Error::state(
                 &o.dir,

@@ -1,13 +1,16 @@
 //! The map, merge and join tasks.
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::sync::atomic::AtomicU64;
 use std::sync::Mutex;
 use std::time::Instant;
 
 use serde::{Deserialize, Serialize};
 
-use super::commit::{commit, finished, need_done, temp_dir_for, Done, Outcome, TaskReport};
+use super::commit::{commit, finished, need_done, temp_dir_for, Outcome, TaskReport};
+use super::shared::{
+    check_inputs, check_partition, finish_temp, report, skipped_bytes, task_spans,
+};
 use super::{join_dir, map_dir, merge_dir, Job};
 use crate::count::{count_spans, CountConfig, Spill};
 use crate::error::{Error, Result};
@@ -33,43 +36,13 @@ pub struct MapResult {
     pub firsts: Vec<(String, Vec<(u32, u64)>)>,
 }
 
-fn report(
-    stage: &'static str,
-    task: u32,
-    outcome: Outcome,
-    output: PathBuf,
-    work: u64,
-    output_bytes: u64,
-    t0: Instant,
-) -> TaskReport {
-    TaskReport {
-        stage,
-        task,
-        outcome,
-        output,
-        work,
-        output_bytes,
-        seconds: t0.elapsed().as_secs_f64(),
-    }
-}
-
-fn skipped_bytes<T>(d: &Done<T>) -> u64 {
-    d.files.iter().map(|f| f.bytes).sum()
-}
-
 /// Map task `task` of the plan in `dir`: counts its spans into
 /// `DIR/map/m<task>/` with `threads` workers sharing `memory` bytes.
 pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<TaskReport> {
     let t0 = Instant::now();
     let job = Job::load(dir)?;
     let id = job.id();
-    let spans = job.map_tasks.get(task as usize).cloned().ok_or_else(|| {
-        Error::Config(format!(
-            "map task {task} is not in the plan {} (it has tasks 0 to {})",
-            dir.join(super::JOB_FILE).display(),
-            job.map_tasks.len().saturating_sub(1)
-        ))
-    })?;
+    let spans = task_spans(&job, "map", task, dir)?;
     let out = map_dir(dir, task);
     if let Some(d) = finished::<MapResult>(&out, "map", task, &id) {
         let w = d.result.totals.bytes;
@@ -83,32 +56,9 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             t0,
         ));
     }
-    // Every input of this task must be there and unchanged since planned.
-    let mut used: Vec<u32> = spans.iter().map(|s| s.file).collect();
-    used.dedup();
-    for i in used {
-        let f = &job.inputs[i as usize];
-        let meta = std::fs::metadata(&f.path).map_err(|e| Error::Input {
-            path: f.path.clone(),
-            detail: format!("an input of map task {task} cannot be read: {e}"),
-        })?;
-        let mtime_ns = meta
-            .modified()
-            .ok()
-            .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
-            .map_or(0, |d| d.as_nanos() as u64);
-        if meta.len() != f.size || mtime_ns != f.mtime_ns {
-            return Err(Error::Input {
-                path: f.path.clone(),
-                detail: format!(
-                    "an input of map task {task} changed since it was planned (size {} → {}); plan again in a new --dir",
-                    f.size,
-                    meta.len()
-                ),
-            });
-        }
-    }
+    check_inputs(&job, "map", task, &spans)?;
     let list = job.word_list(dir)?;
+    let skips = super::dedup::map_skips(dir, &job, &id)?;
     let threads = threads.max(1);
     let plan = Plan::new(memory, threads)?;
     let tmp = temp_dir_for(&out)?;
@@ -129,7 +79,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             next_id: &next_id,
             progress: &read,
             counts: false,
-            unique: None,
+            unique: skips.as_ref(),
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {
@@ -305,26 +255,6 @@ fn with_merge_config<T>(
     let out = f(&cfg)?;
     fsutil::remove_dir(&rounds)?;
     Ok(out)
-}
-
-fn check_partition(job: &Job, p: u32, dir: &Path) -> Result<()> {
-    if p >= job.partitions {
-        return Err(Error::Config(format!(
-            "partition {p} is not in the plan {} (it has partitions 0 to {})",
-            dir.join(super::JOB_FILE).display(),
-            job.partitions - 1
-        )));
-    }
-    Ok(())
-}
-
-/// Removes a task's temporary folder when the task failed (after a
-/// successful commit it is gone already).
-fn finish_temp<T>(tmp: &Path, r: Result<T>) -> Result<T> {
-    if r.is_err() {
-        let _ = fsutil::remove_dir(tmp);
-    }
-    r
 }
 
 /// The error for the spill list that a panicking counting thread left

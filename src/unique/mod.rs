@@ -193,6 +193,16 @@ impl Skips {
         Ok(Skips { at, next: 0 })
     }
 
+    /// The positions in several duplicate files of one chunk, sorted.
+    pub fn load_all(paths: &[PathBuf]) -> Result<Skips> {
+        let mut at = Vec::new();
+        for p in paths {
+            at.append(&mut Skips::load(p)?.at);
+        }
+        at.sort_unstable();
+        Ok(Skips { at, next: 0 })
+    }
+
     /// Moves to the first position at or after line offset `offset`.
     pub fn seek(&mut self, offset: u64) {
         self.next = self.at.partition_point(|p| p.0 < offset);

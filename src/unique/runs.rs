@@ -200,6 +200,57 @@ pub fn merge_runs(paths: &[PathBuf], out: &Path) -> Result<()> {
     s.finish()
 }
 
+/// Merges `paths` in rounds of `fanin` runs (files `merge-R-I.run` in
+/// `dir`) until at most `fanin` are left, and gives those.
+pub fn merge_to_fanin(mut paths: Vec<PathBuf>, fanin: usize, dir: &Path) -> Result<Vec<PathBuf>> {
+    let fanin = fanin.max(2);
+    let mut round = 0;
+    while paths.len() > fanin {
+        let mut next = Vec::new();
+        for (i, group) in paths.chunks(fanin).enumerate() {
+            let out = dir.join(format!("merge-{round}-{i:06}.run"));
+            merge_runs(group, &out)?;
+            next.push(out);
+        }
+        round += 1;
+        paths = next;
+    }
+    Ok(paths)
+}
+
+/// The hash range (of `parts` equal ranges, ascending) that `hash` falls
+/// in: a staged ingest marks each range in its own task.
+pub fn range_of(hash: u128, parts: u32) -> u32 {
+    (((hash >> 64) * parts as u128) >> 64) as u32
+}
+
+/// Writes the hash sets `paths`, each of a higher range than the one
+/// before, as one set at `out`, fsynced; gives its count. A set out of
+/// order, or overlapping the one before, is an error naming it.
+pub fn concat_sets(paths: &[PathBuf], out: &Path) -> Result<u64> {
+    let count: u64 = paths
+        .iter()
+        .map(|p| open_checked(p, SET_MAGIC, 16).map(|x| x.1))
+        .sum::<Result<u64>>()?;
+    let mut s = Sink::create(out, SET_MAGIC, count)?;
+    let mut last: Option<u128> = None;
+    for p in paths {
+        let mut r = SetReader::open(p)?;
+        while let Some(h) = r.next_hash()? {
+            if last.is_some_and(|l| l >= h) {
+                return Err(Error::corrupt(
+                    p,
+                    "its hashes overlap those of the set before it",
+                ));
+            }
+            last = Some(h);
+            s.put(&h.to_le_bytes())?;
+        }
+    }
+    s.finish()?;
+    Ok(count)
+}
+
 /// Reads a hash set file in order, checking that order.
 pub struct SetReader {
     r: BufReader<File>,
@@ -441,6 +492,59 @@ mod tests {
         let want: Vec<u128> = seen.into_iter().collect();
         assert_eq!(got, want);
         assert_eq!(found.set, want.len() as u64);
+    }
+
+    /// The hash ranges cut the hashes in ascending order, from range 0 to
+    /// the last; the sets of ascending ranges concatenate into one set, and
+    /// sets that overlap are refused, naming the second.
+    #[test]
+    fn ranges_ascend_and_their_sets_concatenate() {
+        let dir = tempfile::tempdir().unwrap();
+        assert_eq!(range_of(0, 7), 0);
+        assert_eq!(range_of(u128::MAX, 7), 6);
+        assert_eq!(range_of(u128::MAX, 1), 0);
+        let mut st = 11u64;
+        let mut hashes: Vec<u128> = (0..3000)
+            .map(|_| ((splitmix(&mut st) as u128) << 64) | splitmix(&mut st) as u128)
+            .collect();
+        hashes.sort_unstable();
+        hashes.dedup();
+        let parts = 5;
+        let ranges: Vec<u32> = hashes.iter().map(|&h| range_of(h, parts)).collect();
+        assert!(ranges.windows(2).all(|w| w[0] <= w[1]));
+        assert_eq!((ranges[0], *ranges.last().unwrap()), (0, parts - 1));
+        let write = |name: &str, hs: &[u128]| {
+            let p = dir.path().join(name);
+            let mut s = Sink::create(&p, SET_MAGIC, hs.len() as u64).unwrap();
+            for h in hs {
+                s.put(&h.to_le_bytes()).unwrap();
+            }
+            s.finish().unwrap();
+            p
+        };
+        let sets: Vec<PathBuf> = (0..parts)
+            .map(|p| {
+                let mine: Vec<u128> = hashes
+                    .iter()
+                    .zip(&ranges)
+                    .filter(|(_, &r)| r == p)
+                    .map(|(&h, _)| h)
+                    .collect();
+                write(&format!("p{p}.set"), &mine)
+            })
+            .collect();
+        let all = dir.path().join("all.set");
+        assert_eq!(concat_sets(&sets, &all).unwrap(), hashes.len() as u64);
+        let mut r = SetReader::open(&all).unwrap();
+        let mut got = Vec::new();
+        while let Some(h) = r.next_hash().unwrap() {
+            got.push(h);
+        }
+        assert_eq!(got, hashes);
+        // The same sets in another order overlap.
+        let swapped = [sets[1].clone(), sets[0].clone()];
+        let e = concat_sets(&swapped, &dir.path().join("bad.set"));
+        assert!(matches!(e, Err(Error::Corrupt { path, .. }) if path == sets[0]));
     }
 
     /// A torn run and a run out of order are errors naming the file.

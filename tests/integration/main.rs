@@ -121,6 +121,11 @@ mod query_bench;
 // once, killed before/after commit, damaged output, missing inputs.
 mod stage;
 
+// `quern stage plan --unique`: the hash and mark tasks; equal to ingest
+// --unique (lines, JSON-lines documents and their lines), a later --append
+// knows the units, killed/damaged tasks redone, refusals, and Spark.
+mod stage_unique;
+
 // scripts/spark_ingest.py under Spark local mode: equal to ingest byte for
 // byte; killed and doubled tasks; a missing input fails the job.
 mod spark;

@@ -55,16 +55,16 @@ fn baseline() -> &'static RawView {
     })
 }
 
-struct SparkRun {
-    ok: bool,
-    output: String,
-    report: Option<Value>,
+pub(crate) struct SparkRun {
+    pub(crate) ok: bool,
+    pub(crate) output: String,
+    pub(crate) report: Option<Value>,
     seconds: f64,
 }
 
 /// Runs the driver with a local[2] master (up to 4 attempts per task) and
 /// `args` after the script.
-fn spark(submit: &Path, work: &Path, args: &[String]) -> SparkRun {
+pub(crate) fn spark(submit: &Path, work: &Path, args: &[String]) -> SparkRun {
     let report = work.join(format!(
         "report-{}.json",
         std::time::SystemTime::now()
@@ -104,7 +104,7 @@ fn spark(submit: &Path, work: &Path, args: &[String]) -> SparkRun {
     }
 }
 
-fn job_args(dir: &Path, store: &Path, partitions: u32, map_tasks: u32) -> Vec<String> {
+pub(crate) fn job_args(dir: &Path, store: &Path, partitions: u32, map_tasks: u32) -> Vec<String> {
     vec![
         "--dir".into(),
         dir.display().to_string(),
@@ -119,7 +119,7 @@ fn job_args(dir: &Path, store: &Path, partitions: u32, map_tasks: u32) -> Vec<St
     ]
 }
 
-fn tail(s: &str) -> String {
+pub(crate) fn tail(s: &str) -> String {
     let lines: Vec<&str> = s
         .lines()
         .filter(|l| !l.trim_start().starts_with("at "))
@@ -128,11 +128,11 @@ fn tail(s: &str) -> String {
 }
 
 /// The task results of one stage in the driver's report.
-fn stage_results<'a>(report: &'a Value, stage: &str) -> &'a Vec<Value> {
+pub(crate) fn stage_results<'a>(report: &'a Value, stage: &str) -> &'a Vec<Value> {
     report["results"][stage].as_array().unwrap()
 }
 
-fn outcomes(task: &Value) -> Vec<String> {
+pub(crate) fn outcomes(task: &Value) -> Vec<String> {
     task["reports"]
         .as_array()
         .unwrap()

@@ -65,12 +65,12 @@ pub fn assert_raw_eq(what: &str, expected: &RawView, actual: &RawView) {
     );
 }
 
-fn s(p: &Path) -> String {
+pub(crate) fn s(p: &Path) -> String {
     p.display().to_string()
 }
 
 /// Runs `quern stage ARGS` and returns its JSON report.
-fn stage_ok(args: &[String]) -> Value {
+pub(crate) fn stage_ok(args: &[String]) -> Value {
     let mut a = vec!["stage".to_string()];
     a.extend(args.iter().cloned());
     let r = run_ok(&a);
@@ -105,8 +105,8 @@ fn plan_with(
     stage_ok(&a)
 }
 
-fn task_args(stage: &str, dir: &Path, n: u64) -> Vec<String> {
-    let flag = if stage == "map" {
+pub(crate) fn task_args(stage: &str, dir: &Path, n: u64) -> Vec<String> {
+    let flag = if stage == "map" || stage == "hash" {
         "--task"
     } else {
         "--partition"
@@ -143,7 +143,7 @@ fn run_all(dir: &Path, store: &Path, plan: &Value) -> Vec<Value> {
     reports
 }
 
-fn outcome(v: &Value) -> &str {
+pub(crate) fn outcome(v: &Value) -> &str {
     v["outcome"].as_str().unwrap()
 }
 

@@ -99,14 +99,14 @@ fn check(store: &Path, unit: &str, jsonl: bool, flags: &[&str], inputs: &[PathBu
     );
 }
 
-fn novel(name: &str) -> PathBuf {
+pub(crate) fn novel(name: &str) -> PathBuf {
     gutenberg_dir().join(name)
 }
 
 /// A file of repeated lines made from a novel: its first 3000 lines, then
 /// each of them again in another case, with other spaces, and in another
 /// order, blank lines among them; then lines 3000..6000.
-fn repeated_lines(dir: &Path) -> PathBuf {
+pub(crate) fn repeated_lines(dir: &Path) -> PathBuf {
     let text = std::fs::read_to_string(novel("persuasion.txt")).unwrap();
     let lines: Vec<&str> = text.lines().collect();
     let mut out = String::new();
@@ -138,7 +138,7 @@ fn repeated_lines(dir: &Path) -> PathBuf {
 /// sentences), every fourth's first line before another paragraph, and
 /// every fourth's words in two sentences cut elsewhere; and a line that
 /// holds no document.
-fn repeated_documents(dir: &Path) -> PathBuf {
+pub(crate) fn repeated_documents(dir: &Path) -> PathBuf {
     let text = std::fs::read_to_string(novel("northangerabbey.txt")).unwrap();
     let paras: Vec<&str> = text
         .split("\n\n")

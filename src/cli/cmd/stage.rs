@@ -11,11 +11,6 @@ use crate::cli::args::StageCommand;
 pub fn run(c: StageCommand) -> anyhow::Result<()> {
     let report = match c {
         StageCommand::Plan(a) => {
-            if let Some(u) = &a.unique {
-                anyhow::bail!(
-                    "--unique {u}: a staged ingest (quern stage, scripts/spark_ingest.py) does not remove duplicates; count with quern ingest --unique {u}"
-                );
-            }
             let preparation = a.prep.preparation();
             let o = PlanOptions {
                 dir: a.dir.clone(),
@@ -26,7 +21,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     word_list: None,
                     max_line_bytes: a.input.max_line_bytes,
                     from_counts: false,
-                    unique: None,
+                    unique: a.unique,
                 },
                 word_list: a.word_list,
                 format: a.input.format(),
@@ -46,9 +41,27 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                 "inputs": job.inputs.len(),
                 "input_bytes": job.inputs.iter().map(|f| f.size).sum::<u64>(),
                 "partitions": job.partitions,
+                "unique": job.settings.unique,
                 "map_tasks": job.map_tasks.len(),
                 "map_task_bytes": bytes,
             })
+        }
+        StageCommand::Hash(a) => {
+            let r = stage::run_hash(&a.dir, a.task, a.memory.bytes.bytes())
+                .with_context(|| format!("hash task {} in {} failed", a.task, a.dir.display()))?;
+            serde_json::to_value(r)?
+        }
+        StageCommand::Mark(a) => {
+            let r = stage::run_mark(&a.dir, a.partition, a.memory.bytes.bytes()).with_context(
+                || {
+                    format!(
+                        "mark of hash range {} in {} failed",
+                        a.partition,
+                        a.dir.display()
+                    )
+                },
+            )?;
+            serde_json::to_value(r)?
         }
         StageCommand::Map(a) => {
             let r = stage::run_map(&a.dir, a.task, a.memory.bytes.bytes(), a.threads)
