@@ -55,6 +55,10 @@ pub struct StagePlanArgs {
     /// --unique` can).
     #[arg(long, value_name = "UNIT", hide = true)]
     pub unique: Option<String>,
+    /// Also store each n-gram's number of documents, as `quern ingest
+    /// --document-counts` does.
+    #[arg(long)]
+    pub document_counts: bool,
     /// Number of partitions: one merge and one join task each. Required
     /// (the Spark driver passes its own default).
     #[arg(long, value_name = "N")]

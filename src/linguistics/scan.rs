@@ -15,30 +15,33 @@ use rayon::prelude::*;
 
 use crate::error::Result;
 use crate::key::Key;
-use crate::store::Store;
+use crate::store::{NgramRecord, Store};
 use crate::words::WordId;
 
-/// Calls `each(state, ids, count)` for every stored n-gram of order `k`
+/// Calls `each(state, ids, record)` for every stored n-gram of order `k`
 /// that begins with `prefix` (ids in key order within a part), with one
 /// `state` from `init` per part; returns the states. Empty when `k` is not
-/// an order of the store.
+/// an order of the store. With `documents`, each record holds its document
+/// count when the store has them (a second scan beside the first, of a
+/// column family with the same keys).
 pub fn scan_order<S, I, F>(
     store: &Store,
     k: usize,
     prefix: &[WordId],
+    documents: bool,
     init: I,
     each: F,
 ) -> Result<Vec<S>>
 where
     S: Send,
     I: Fn() -> S + Sync,
-    F: Fn(&mut S, &[WordId], u64) + Sync,
+    F: Fn(&mut S, &[WordId], &NgramRecord) + Sync,
 {
     if !prefix.is_empty() {
         let mut st = init();
-        for item in store.scan_prefix(k, prefix, None)? {
-            let (key, count, _) = item?;
-            each(&mut st, key.ids(), count);
+        for item in store.scan_records(k, prefix, None, documents)? {
+            let (key, rec) = item?;
+            each(&mut st, key.ids(), &rec);
         }
         return Ok(vec![st]);
     }
@@ -62,12 +65,12 @@ where
         .map(|p| {
             let mut st = init();
             let mut ids = [0 as WordId; crate::key::MAX_ORDER];
-            for item in store.scan_first_ranks(k, bounds[p], bounds[p + 1])? {
+            for item in store.scan_first_ranks(k, bounds[p], bounds[p + 1], documents)? {
                 let (key, rec): (Key, _) = item?;
                 for (slot, &r) in ids.iter_mut().zip(key.ids()) {
                     *slot = ranks[r as usize];
                 }
-                each(&mut st, &ids[..key.order()], rec.count);
+                each(&mut st, &ids[..key.order()], &rec);
             }
             Ok(st)
         })

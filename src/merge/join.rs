@@ -10,7 +10,7 @@ use crate::key::Key;
 use crate::records::{Joined, PartitionStats};
 use crate::shard::{RunFile, Values, MAX_VALUES};
 use crate::store::build::{sst_options, Family, SstSet};
-use crate::store::keys::{encode_ngram, ngram_cf};
+use crate::store::keys::{docs_cf, encode_ngram, ngram_cf};
 use crate::store::ranks::KeyWriter;
 use crate::store::{ContextStats, Ranks};
 use crate::words::{bos_id, unk_id};
@@ -165,6 +165,10 @@ pub fn join_partition(
         missing: missing.ids().to_vec(),
     };
     let cf: Vec<Family> = (0..=n).map(|k| sink.family(&ngram_cf(k))).collect();
+    // `--document-counts`: each n-gram's documents, in a family of its own.
+    let docs: Option<Vec<Family>> =
+        (counts.value_width() >= 2).then(|| (0..=n).map(|k| sink.family(&docs_cf(k))).collect());
+    let mut dbuf = Vec::with_capacity(10);
     let mut cbuf = Vec::with_capacity(64);
 
     let close = |sink: &mut SstSet,
@@ -218,6 +222,19 @@ pub fn join_partition(
         keys.write(ranks, &key, &mut kbuf).ok_or_else(|| {
             bad("an n-gram with a word that is in no dictionary of the ingest".into())
         })?;
+        if let Some(d) = &docs {
+            // A document count is at least 1 and at most the count; any
+            // other sum is a damaged run, or a documents sum gone wrong.
+            let dc = vals[1];
+            if dc == 0 || dc > c {
+                return Err(bad(format!(
+                    "an n-gram in {dc} documents with a count of {c}"
+                )));
+            }
+            dbuf.clear();
+            crate::varint::put(&mut dbuf, dc);
+            sink.put_in(d[k], &kbuf, &dbuf)?;
+        }
         close(&mut sink, &mut open, k, &mut cbuf)?;
         if k == 1 {
             if !starts_bos {

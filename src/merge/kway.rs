@@ -132,7 +132,9 @@ impl<S: RecordSource> RecordSource for KWayMerge<S> {
                 break;
             }
             for (a, b) in vals.iter_mut().zip(self.vals[j]) {
-                *a += b;
+                // Wrapping: a run's documents sum may be below 0 (see
+                // `count::Worker::add_document`).
+                *a = a.wrapping_add(b);
             }
             self.advance(j)?;
         }

@@ -6,6 +6,7 @@
 //! | `ids`         | chunk number, 4 B big-endian | up to [`IDS_PER_CHUNK`] word ids, 8 B little-endian each, increasing |
 //! | `vocab`       | word rank                   | the word's UTF-8 bytes             |
 //! | `ng<k>`       | k word ranks                | see [`encode_ngram`]               |
+//! | `docs<k>`     | k word ranks                | varint: the documents it occurs in (only with `--document-counts`) |
 //!
 //! A word's rank is its position among the store's sorted word ids (the
 //! `ids` family holds that list; [`Ranks`](super::Ranks) reads and writes
@@ -36,6 +37,13 @@ pub fn ngram_cf(k: usize) -> String {
     format!("ng{k}")
 }
 
+/// The column family of the document counts of order `k`'s n-grams
+/// (`ingest --document-counts`): the same keys as [`ngram_cf`], each
+/// value a varint, the number of documents the n-gram occurs in.
+pub fn docs_cf(k: usize) -> String {
+    format!("docs{k}")
+}
+
 /// Every column family of a store of order `order`.
 pub fn all_cfs(order: usize) -> Vec<String> {
     let mut v = vec![
@@ -58,6 +66,9 @@ pub struct NgramRecord {
     pub continuation: Option<u64>,
     /// The statistics of g as a context, if g has a continuation.
     pub context: Option<ContextStats>,
+    /// The documents g occurs in, when the store has them and the scan
+    /// asked for them (`ingest --document-counts`).
+    pub documents: Option<u64>,
 }
 
 fn zigzag(d: i128) -> u64 {

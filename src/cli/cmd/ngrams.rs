@@ -39,6 +39,7 @@ fn run_pattern(store: &quern::store::Store, p: &str, a: &NgramsArgs) -> anyhow::
     let opts = FreqOptions {
         order: pat.len(),
         min_count: 1,
+        min_documents: a.min_documents,
         limit: a.limit,
         markers: Markers::With,
     };

@@ -13,6 +13,7 @@ pub fn run(a: TopArgs) -> anyhow::Result<()> {
     let opts = FreqOptions {
         order: a.order,
         min_count: a.min_count,
+        min_documents: a.min_documents,
         limit: a.limit,
         markers: if a.markers {
             Markers::With
