@@ -68,6 +68,8 @@ def parse_args(argv):
                    help="with --jsonl: the field holding the text (default: text)")
     p.add_argument("--unique", default=None, metavar="UNIT",
                    help="refused: a staged ingest does not remove duplicates (quern ingest --unique does)")
+    p.add_argument("--document-counts", action="store_true",
+                   help="also store each n-gram's number of documents (default: counts only)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one merge and one join task each (default 64)")
@@ -241,6 +243,8 @@ def main(argv):
                  "--partitions", a.partitions, "--map-tasks", map_tasks]
     if a.lowercase:
         plan_args.append("--lowercase")
+    if a.document_counts:
+        plan_args.append("--document-counts")
     if a.jsonl:
         plan_args += ["--jsonl", "--text-field", a.text_field]
     if a.word_list:
