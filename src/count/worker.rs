@@ -400,12 +400,13 @@ impl<'a> Worker<'a> {
     /// occurs in it once. So the document's distinct longest k-grams
     /// g₁ < … < gₘ (key order) each add 1 document, and each gⱼ whose
     /// longest common prefix with gⱼ₋₁ has l ≥ 1 words adds −1 (as
-    /// 2⁶⁴ − 1, every sum wrapping) at that prefix. A prefix p of the
-    /// document is a prefix of one contiguous run gₐ … g_b; those add
+    /// 2⁶⁴ − 1, the table's sums wrapping) at that prefix. A prefix p of
+    /// the document is a prefix of one contiguous run gₐ … g_b; those add
     /// b − a + 1, and the −1s at prefixes p is a prefix of are those of
-    /// gₐ₊₁ … g_b: p's sum is 1. Only a table written out in the middle of
-    /// a document holds a sum below 0 (wrapped); the merge adds it to the
-    /// rest of the document's.
+    /// gₐ₊₁ … g_b: p's sum is 1. A table written out in the middle of a
+    /// document (a huge one) splits the run, but each −1 goes into the
+    /// table of its own +1, so every sum a run holds is 1 or 0 for the
+    /// document, never below 0: the runs add up as counts do.
     fn add_document(&mut self, doc: &[crate::words::WordId]) -> Result<()> {
         let mut grams = std::mem::take(&mut self.grams);
         let at = |g: (u32, u32)| &doc[g.0 as usize..(g.0 + g.1) as usize];

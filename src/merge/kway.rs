@@ -132,9 +132,7 @@ impl<S: RecordSource> RecordSource for KWayMerge<S> {
                 break;
             }
             for (a, b) in vals.iter_mut().zip(self.vals[j]) {
-                // Wrapping: a run's documents sum may be below 0 (see
-                // `count::Worker::add_document`).
-                *a = a.wrapping_add(b);
+                *a += b;
             }
             self.advance(j)?;
         }
