@@ -278,7 +278,7 @@ fn document_counts_survive_kill_resume_and_append() {
 #[test]
 fn document_counts_through_stage_equal_ingest() {
     let tmp = tempfile::tempdir().unwrap();
-    let inputs = vec![
+    let inputs = [
         paragraphs_jsonl(tmp.path(), "persuasion.txt", None),
         novel("northangerabbey.txt"),
     ];

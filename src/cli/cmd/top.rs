@@ -22,6 +22,6 @@ pub fn run(a: TopArgs) -> anyhow::Result<()> {
         },
     };
     let items = top(&store, &vocab, &opts)?;
-    let (header, rows) = freq_rows(items);
+    let (header, rows) = freq_rows(items, store.has_documents());
     write_list(&mut std::io::stdout().lock(), a.format, &header, rows)
 }
