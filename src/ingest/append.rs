@@ -104,7 +104,7 @@ pub(super) fn export_base(
         }
     }
     let sources = (1..=settings.order)
-        .map(|k| Ok(OrderIter(Box::new(s.scan_records(k, &[], None, docs)?))))
+        .map(|k| Ok(OrderIter(Box::new(s.scan_records(k, &[], None)?))))
         .collect::<Result<Vec<_>>>()?;
     let mut merge = KWayMerge::new(sources)?;
     let run = "base.run".to_string();

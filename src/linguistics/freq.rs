@@ -84,7 +84,6 @@ pub fn best_counts(
         store,
         opts.order,
         prefix,
-        docs,
         || Best::<(Reverse<u64>, String, Option<u64>)>::new(opts.limit),
         |best, ids, rec| {
             let count = rec.count;

@@ -21,14 +21,11 @@ use crate::words::WordId;
 /// Calls `each(state, ids, record)` for every stored n-gram of order `k`
 /// that begins with `prefix` (ids in key order within a part), with one
 /// `state` from `init` per part; returns the states. Empty when `k` is not
-/// an order of the store. With `documents`, each record holds its document
-/// count when the store has them (a second scan beside the first, of a
-/// column family with the same keys).
+/// an order of the store.
 pub fn scan_order<S, I, F>(
     store: &Store,
     k: usize,
     prefix: &[WordId],
-    documents: bool,
     init: I,
     each: F,
 ) -> Result<Vec<S>>
@@ -39,7 +36,7 @@ where
 {
     if !prefix.is_empty() {
         let mut st = init();
-        for item in store.scan_records(k, prefix, None, documents)? {
+        for item in store.scan_records(k, prefix, None)? {
             let (key, rec) = item?;
             each(&mut st, key.ids(), &rec);
         }
@@ -65,7 +62,7 @@ where
         .map(|p| {
             let mut st = init();
             let mut ids = [0 as WordId; crate::key::MAX_ORDER];
-            for item in store.scan_first_ranks(k, bounds[p], bounds[p + 1], documents)? {
+            for item in store.scan_first_ranks(k, bounds[p], bounds[p + 1])? {
                 let (key, rec): (Key, _) = item?;
                 for (slot, &r) in ids.iter_mut().zip(key.ids()) {
                     *slot = ranks[r as usize];

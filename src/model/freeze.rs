@@ -281,7 +281,7 @@ impl Unigrams {
         let mut counts = vec![0u64; nw];
         let mut q_file = ArrayFile::create(dir.join("q1"))?;
         let mut q64_file = ArrayFile::create(dir.join("q64-1"))?;
-        let mut recs = store.scan_records(1, &[], None, false)?.peekable();
+        let mut recs = store.scan_records(1, &[], None)?.peekable();
         for (x, &id) in ids.iter().enumerate() {
             let rec: Option<NgramRecord> = match recs.peek() {
                 Some(Ok((k, _))) if k.ids()[0] == id => {

@@ -219,11 +219,7 @@ pub(super) fn left_type(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
 pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result<PartOut> {
     let (first, end) = (part.first, part.end);
     let mut run = open_part(est, o, part)?;
-    for (pos, item) in est
-        .store()
-        .scan_first_ranks(o.k, first, end, false)?
-        .enumerate()
-    {
+    for (pos, item) in est.store().scan_first_ranks(o.k, first, end)?.enumerate() {
         let (g, rec) = item?;
         run.ngram(pos, g.ids(), rec)?;
     }
@@ -280,9 +276,7 @@ fn open_part<'a, 'e>(
         k,
     };
     let parents = ParentStream {
-        it: est
-            .store()
-            .scan_first_ranks(k - 1, part.first, part.end, false)?,
+        it: est.store().scan_first_ranks(k - 1, part.first, part.end)?,
         pos: 0,
         rank: part.entries.0,
     };

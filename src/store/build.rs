@@ -128,11 +128,7 @@ pub fn create_db(
     opts.create_missing_column_families(true);
     opts.set_max_open_files(256);
     let cache = rocksdb::Cache::new_lru_cache(super::DEFAULT_CACHE_BYTES);
-    let mut cfs = all_cfs(order);
-    if meta.settings.document_counts {
-        cfs.extend((1..=order).map(keys::docs_cf));
-    }
-    let descs: Vec<_> = cfs
+    let descs: Vec<_> = all_cfs(order)
         .into_iter()
         .map(|n| rocksdb::ColumnFamilyDescriptor::new(n, cf_options(&cache)))
         .collect();

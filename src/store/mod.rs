@@ -200,12 +200,10 @@ impl Store {
         k: usize,
     ) -> Result<impl Iterator<Item = Result<(Key, ContextStats)>> + '_> {
         let k = if k < self.order() { k } else { 0 };
-        Ok(self
-            .scan_records(k, &[], None, false)?
-            .filter_map(|r| match r {
-                Ok((key, rec)) => rec.context.map(|st| Ok((key, st))),
-                Err(e) => Some(Err(e)),
-            }))
+        Ok(self.scan_records(k, &[], None)?.filter_map(|r| match r {
+            Ok((key, rec)) => rec.context.map(|st| Ok((key, st))),
+            Err(e) => Some(Err(e)),
+        }))
     }
 
     /// The key of `ids` in the store's encoding, or `None` if a word of it
@@ -229,7 +227,7 @@ impl Store {
             .get_pinned_cf(self.cf(&keys::ngram_cf(ids.len()))?, &kb)
             .map_err(|e| self.rocks(e))?;
         v.map(|v| {
-            keys::decode_ngram(&v)
+            keys::decode_ngram(&v, self.has_documents())
                 .ok_or_else(|| Error::corrupt(layout::db(&self.dir), "bad n-gram value"))
         })
         .transpose()
@@ -301,9 +299,10 @@ impl Store {
             let got = self.db.batched_multi_get_cf(cf, keys, sorted);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    out[i] = Some(keys::decode_ngram(&v).ok_or_else(|| {
-                        Error::corrupt(layout::db(&self.dir), "bad n-gram value")
-                    })?);
+                    out[i] =
+                        Some(keys::decode_ngram(&v, self.has_documents()).ok_or_else(|| {
+                            Error::corrupt(layout::db(&self.dir), "bad n-gram value")
+                        })?);
                 }
             }
         }
@@ -330,7 +329,7 @@ impl Store {
         after: Option<&[WordId]>,
     ) -> Result<impl Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a> {
         Ok(self
-            .scan_records(k, prefix, after, false)?
+            .scan_records(k, prefix, after)?
             .map(|r| r.map(|(key, rec)| (key, rec.count, rec.continuation))))
     }
 
@@ -341,14 +340,12 @@ impl Store {
     /// words of the store. The n-grams' words are given as their ranks,
     /// positions among [`Store::rank_ids`] (a [`Key`] of ranks sorts as the
     /// ids do): a reader that numbers the words itself saves a translation
-    /// per word. With `documents`, each record holds its document count
-    /// when the store has them.
+    /// per word.
     pub fn scan_first_ranks<'a>(
         &'a self,
         k: usize,
         from: Option<WordId>,
         to: Option<WordId>,
-        documents: bool,
     ) -> Result<impl Iterator<Item = Result<(Key, NgramRecord)>> + 'a> {
         let path = layout::db(&self.dir);
         let bound = |w: Option<WordId>| -> Result<Option<Vec<u8>>> {
@@ -365,26 +362,21 @@ impl Store {
         } else {
             None
         };
-        let open = |cf| {
+        let it = cf.map(|cf| {
             let mut ro = whole_scan_options();
-            if let Some(e) = &end {
-                ro.set_iterate_upper_bound(e.clone());
+            if let Some(e) = end {
+                ro.set_iterate_upper_bound(e);
             }
             self.db.iterator_cf_opt(
                 cf,
                 ro,
                 IteratorMode::From(&start, rocksdb::Direction::Forward),
             )
-        };
-        let mut docs = match cf {
-            Some(_) if documents && self.has_documents() => Some(open(self.cf(&keys::docs_cf(k))?)),
-            _ => None,
-        };
-        let it = cf.map(open);
-        Ok(it.into_iter().flatten().map(move |item| {
-            let d = docs.as_mut().map(|d| d.next());
-            self.decode_record(item, d, &path, Ranks::read_ranks)
-        }))
+        });
+        Ok(it
+            .into_iter()
+            .flatten()
+            .map(move |item| self.decode_record(item, &path, Ranks::read_ranks)))
     }
 
     /// The id of every rank: the store's word ids, increasing.
@@ -392,16 +384,13 @@ impl Store {
         self.ranks.ids()
     }
 
-    /// As [`Store::scan_prefix`], with whole records (and, with
-    /// `documents`, their document counts when the store has them). Empty
-    /// when `k` is not an order of the store or a word of `prefix` is not
-    /// in it.
+    /// As [`Store::scan_prefix`], with whole records. Empty when `k` is not
+    /// an order of the store or a word of `prefix` is not in it.
     pub fn scan_records<'a>(
         &'a self,
         k: usize,
         prefix: &[WordId],
         after: Option<&[WordId]>,
-        documents: bool,
     ) -> Result<impl Iterator<Item = Result<(Key, NgramRecord)>> + 'a> {
         let path = layout::db(&self.dir);
         let pb = self.key_of(prefix);
@@ -427,7 +416,7 @@ impl Store {
         // once: it reads ahead and keeps its blocks out of the cache, which
         // stays for the lookups.
         let whole = prefix.is_empty() && after.is_none();
-        let open = |cf| {
+        let it = cf.map(|cf| {
             let ro = if whole {
                 whole_scan_options()
             } else {
@@ -438,55 +427,33 @@ impl Store {
                 ro,
                 IteratorMode::From(&start, rocksdb::Direction::Forward),
             )
-        };
-        let mut docs = match cf {
-            Some(_) if documents && self.has_documents() => Some(open(self.cf(&keys::docs_cf(k))?)),
-            _ => None,
-        };
-        let it = cf.map(open);
+        });
         Ok(it
             .into_iter()
             .flatten()
             .take_while(move |item| item.as_ref().map_or(true, |(kb, _)| kb.starts_with(&pb)))
-            .map(move |item| {
-                let d = docs.as_mut().map(|d| d.next());
-                self.decode_record(item, d, &path, Ranks::read_key)
-            }))
+            .map(move |item| self.decode_record(item, &path, Ranks::read_key)))
     }
 
-    /// A scanned record, its key read by `read` (as ids or as ranks);
-    /// `docs`: the next item of the same scan of its document counts, if
-    /// asked for (every n-gram has one, under the same key).
+    /// A scanned record, its key read by `read` (as ids or as ranks).
     fn decode_record(
         &self,
         item: RawItem,
-        docs: Option<Option<RawItem>>,
         path: &Path,
         read: fn(&Ranks, &[u8]) -> Option<Key>,
     ) -> Result<(Key, NgramRecord)> {
-        let rocks = |source| Error::Rocks {
+        let (kb, vb) = item.map_err(|source| Error::Rocks {
             path: path.to_path_buf(),
             source,
-        };
-        let (kb, vb) = item.map_err(rocks)?;
+        })?;
         let key = read(&self.ranks, &kb).ok_or_else(|| Error::corrupt(path, "bad n-gram key"))?;
-        let mut rec =
-            keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(path, "bad n-gram value"))?;
-        if let Some(d) = docs {
-            let (dk, dv) = d
-                .ok_or_else(|| Error::corrupt(path, "an n-gram without its document count"))?
-                .map_err(rocks)?;
-            let mut dv: &[u8] = &dv;
-            rec.documents = match crate::varint::get(&mut dv) {
-                Some(x) if *dk == *kb && dv.is_empty() => Some(x),
-                _ => return Err(Error::corrupt(path, "an n-gram without its document count")),
-            };
-        }
+        let rec = keys::decode_ngram(&vb, self.has_documents())
+            .ok_or_else(|| Error::corrupt(path, "bad n-gram value"))?;
         Ok((key, rec))
     }
 
     /// The store holds each n-gram's document count (`ingest
-    /// --document-counts`).
+    /// --document-counts`): every [`NgramRecord`] read has its `documents`.
     pub fn has_documents(&self) -> bool {
         self.meta.settings.document_counts
     }

@@ -142,6 +142,24 @@ fn document_counts_equal_python_on_gutenberg() {
     assert_counted_eq("lines as documents", &py, &quern_counts(&store));
     assert_eq!(stats_json(&store)["totals"]["documents"], docs);
     assert_eq!(py["<s>"].1, docs);
+    // Nothing else changes: the same contexts, and the same model frozen.
+    let plain = tmp.path().join("plain");
+    ingest_ok(&plain, &["--order", "4", "-q"], &lines);
+    let contexts =
+        |s: &Path| run_ok(&["dump", "--store", &s.display().to_string(), "--contexts"]).stdout;
+    assert_eq!(contexts(&store), contexts(&plain));
+    let model = |s: &Path| {
+        let out = s.with_extension("qm");
+        run_ok(&[
+            "freeze",
+            "--store",
+            &s.display().to_string(),
+            "--out",
+            &out.display().to_string(),
+        ]);
+        std::fs::read(out).unwrap()
+    };
+    assert!(model(&store) == model(&plain), "the frozen models differ");
 
     let jsonl = vec![paragraphs_jsonl(
         tmp.path(),

@@ -78,7 +78,7 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
             writeln!(out, "ngram\tcount\tcontinuation{more}")?;
         }
         for k in orders.into_iter().filter(|&k| k > 0) {
-            for item in store.scan_records(k, &[], None, docs)? {
+            for item in store.scan_records(k, &[], None)? {
                 let (key, r) = item?;
                 let c = r.count;
                 if c < a.min_count {
