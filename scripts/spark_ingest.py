@@ -76,6 +76,8 @@ def parse_args(argv):
                    help="count each distinct sentence (lines) or document (documents), judged on its "
                         "prepared tokens, only where it first occurs in input order, as quern ingest "
                         "--unique does; adds the hash and mark stages (default: every occurrence counts)")
+    p.add_argument("--document-counts", action="store_true",
+                   help="also store each n-gram's number of documents (default: counts only)")
     p.add_argument("--max-line-bytes", type=int, default=1 << 20, help="skip lines longer than this many bytes (default 1048576)")
     p.add_argument("--partitions", type=int, default=64,
                    help="partitions: one merge and one join task each (default 64)")
@@ -246,6 +248,8 @@ def main(argv):
                  "--partitions", a.partitions, "--map-tasks", map_tasks]
     if a.lowercase:
         plan_args.append("--lowercase")
+    if a.document_counts:
+        plan_args.append("--document-counts")
     if a.jsonl:
         plan_args += ["--jsonl", "--text-field", a.text_field]
     if a.word_list:

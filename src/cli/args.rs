@@ -9,6 +9,7 @@ use quern::query::{DiscountPolicy, Method};
 
 pub use super::blend_args::BlendArgs;
 pub use super::corpus_args::{CollocationsArgs, KeynessArgs, LinesArgs, ListFormatArgs, TopArgs};
+pub use super::ingest_args::IngestArgs;
 pub use super::input_args::{DocumentArgs, InputArgs, PreparationArgs};
 pub use super::serve_args::ServeArgs;
 pub use super::stage_args::StageCommand;
@@ -350,6 +351,10 @@ pub struct NgramsArgs {
     /// (any one word), e.g. "the * of" (instead of WORDS).
     #[arg(long, value_name = "PATTERN", conflicts_with_all = ["words", "after", "method", "order"])]
     pub pattern: Option<String>,
+    /// With --pattern: leave out n-grams seen in fewer documents (a store
+    /// counted with ingest --document-counts). Default: no bound.
+    #[arg(long, value_name = "D", default_value_t = 0, requires = "pattern")]
+    pub min_documents: u64,
     /// The words the n-grams begin with.
     pub words: Vec<String>,
 }
@@ -401,67 +406,6 @@ pub struct TuneArgs {
     /// Held-out text files, one sentence a line.
     #[arg(required = true)]
     pub heldout: Vec<PathBuf>,
-}
-
-#[derive(Args, Debug)]
-pub struct IngestArgs {
-    /// Store directory (created if missing).
-    #[arg(long, value_name = "DIR")]
-    pub store: PathBuf,
-    /// Highest n-gram order N (1 to 8).
-    #[arg(long, value_name = "N", default_value_t = 5)]
-    pub order: usize,
-    #[arg(
-        long,
-        value_name = "SIZE",
-        default_value = "1GiB",
-        value_parser = values::byte_size,
-        help = concat!("Memory budget of the whole process, at least 16MiB. ", size_syntax!())
-    )]
-    pub memory: ByteSize,
-    /// Worker threads. Default: all cores.
-    #[arg(long, value_name = "N")]
-    pub threads: Option<usize>,
-    #[command(flatten)]
-    pub prep: PreparationArgs,
-    /// A fixed vocabulary: FILE holds one word a line, and every other
-    /// token is counted as `<unk>` (lowercased first with --lowercase). The
-    /// store keeps the list; --append and a resume must give the same one.
-    /// Default: every token counts.
-    #[arg(long, value_name = "FILE")]
-    pub word_list: Option<PathBuf>,
-    #[command(flatten)]
-    pub input: InputArgs,
-    /// Count each distinct sentence (lines) or document (documents: a JSON
-    /// line's text, or an input line), judged on its prepared tokens, only
-    /// where it first occurs. Default: every occurrence counts.
-    #[arg(long, value_name = "UNIT", value_parser = values::unique)]
-    pub unique: Option<quern::records::Unique>,
-    /// Number of partitions the merge is cut into. Default: 16 per thread,
-    /// at least 16 and at most 256.
-    #[arg(long, value_name = "N")]
-    pub partitions: Option<u32>,
-    /// Discard an unfinished ingest in this store and start again.
-    #[arg(long)]
-    pub restart: bool,
-    /// Add the inputs to a finished store.
-    #[arg(long)]
-    pub append: bool,
-    /// The inputs are count tables, not text: lines `n-gram<TAB>count` of
-    /// every order 1 to N, as `quern dump` writes them (its header and
-    /// third column allowed); duplicates add up. Default: text.
-    #[arg(long)]
-    pub counts: bool,
-    /// No progress display (shown on standard error when it is a terminal).
-    #[arg(long, short)]
-    pub quiet: bool,
-    /// Print the summary as one JSON object on standard output. Default: text.
-    #[arg(long)]
-    pub json: bool,
-    /// Files or directories (walked recursively, sorted); `.gz` and `.zst`
-    /// are decompressed; `-` reads standard input.
-    #[arg(required = true)]
-    pub inputs: Vec<PathBuf>,
 }
 
 #[derive(Args, Debug)]

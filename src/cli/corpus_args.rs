@@ -28,6 +28,10 @@ pub struct TopArgs {
     /// Leave out n-grams seen fewer times.
     #[arg(long, value_name = "C", default_value_t = 1)]
     pub min_count: u64,
+    /// Leave out n-grams seen in fewer documents (a store counted with
+    /// ingest --document-counts). Default: no bound.
+    #[arg(long, value_name = "D", default_value_t = 0)]
+    pub min_documents: u64,
     /// List at most N n-grams (memory: N entries and the vocabulary).
     #[arg(long, value_name = "N", default_value_t = 100)]
     pub limit: usize,

@@ -4,6 +4,7 @@ mod args;
 mod blend_args;
 mod cmd;
 mod corpus_args;
+mod ingest_args;
 mod input_args;
 mod progress;
 mod serve_args;

@@ -64,6 +64,10 @@ pub struct StagePlanArgs {
     /// the map stage. Default: every occurrence counts.
     #[arg(long, value_name = "UNIT", value_parser = values::unique)]
     pub unique: Option<quern::records::Unique>,
+    /// Also store each n-gram's number of documents, as `quern ingest
+    /// --document-counts` does.
+    #[arg(long)]
+    pub document_counts: bool,
     /// Number of partitions: one merge and one join task each (and with
     /// --unique one mark task each). Required (the Spark driver passes its
     /// own default).

@@ -3,7 +3,9 @@
 //!
 //! A line is `n-gram<TAB>count`, or `n-gram<TAB>count<TAB>continuation` as
 //! `quern dump` writes it (the third field, a number or `-`, is checked and
-//! not used: continuation counts are derived again). The n-gram is 1 to N
+//! not used: continuation counts are derived again), or with a fourth
+//! field, the documents `dump` writes for a store with document counts
+//! (a positive number, checked and not used: a table holds no documents). The n-gram is 1 to N
 //! words separated by single spaces (U+0020); no word is empty. `<s>`,
 //! `</s>` and `<unk>` are the markers: `<s>` only as the first word, `</s>`
 //! only as the last. The count is a positive decimal integer of at most
@@ -42,10 +44,12 @@ impl<'a> CountLine<'a> {
 }
 
 /// True for the header line `quern dump` writes (`ngram<TAB>count`,
-/// optionally followed by `<TAB>continuation`), which the first line of a
-/// count table may be.
+/// optionally followed by `<TAB>continuation` and `<TAB>documents`), which
+/// the first line of a count table may be.
 pub fn is_header(line: &[u8]) -> bool {
-    line == b"ngram\tcount\tcontinuation" || line == b"ngram\tcount"
+    line == b"ngram\tcount\tcontinuation"
+        || line == b"ngram\tcount"
+        || line == b"ngram\tcount\tcontinuation\tdocuments"
 }
 
 /// At most this many bytes of a bad line are quoted in a message.
@@ -77,14 +81,18 @@ pub fn read_line(line: &[u8], max_order: usize) -> Result<CountLine<'_>, BadCoun
     })?;
     let mut fields = text.split('\t');
     let ngram = fields.next().unwrap_or("");
-    let (count, cont) = (fields.next(), fields.next());
+    let (count, cont, docs) = (fields.next(), fields.next(), fields.next());
     let extra = fields.count();
     let count = match (count, extra) {
         (Some(c), 0) => c,
         _ => {
-            let n = 1 + usize::from(count.is_some()) + usize::from(cont.is_some()) + extra;
+            let n = 1
+                + usize::from(count.is_some())
+                + usize::from(cont.is_some())
+                + usize::from(docs.is_some())
+                + extra;
             return Err(bad(
-                "n-gram<TAB>count, or n-gram<TAB>count<TAB>continuation as `quern dump` writes",
+                "n-gram<TAB>count, or n-gram<TAB>count<TAB>continuation(<TAB>documents) as `quern dump` writes",
                 format!(
                     "{n} field{} in {}",
                     if n == 1 { "" } else { "s" },
@@ -144,6 +152,14 @@ pub fn read_line(line: &[u8], max_order: usize) -> Result<CountLine<'_>, BadCoun
             ));
         }
     }
+    if let Some(d) = docs {
+        if number(d).is_none_or(|d| d == 0) {
+            return Err(bad(
+                "a number of documents (a positive whole number) in the fourth field",
+                quote(d),
+            ));
+        }
+    }
     Ok(CountLine {
         ngram,
         order,
@@ -184,12 +200,17 @@ mod tests {
         assert_eq!(ok("x\t18446744073709551615", 1).1, u64::MAX);
         assert!(is_header(b"ngram\tcount\tcontinuation"));
         assert!(!is_header(b"ngram\tcount\t"));
+        // A store with document counts: a fourth field, not used.
+        assert_eq!(ok("ferry left\t4\t1\t3", 3).1, 4);
+        assert!(is_header(b"ngram\tcount\tcontinuation\tdocuments"));
     }
 
     #[test]
     fn refuses_what_the_format_does_not_allow() {
         assert!(err(b"a b", 2).starts_with("n-gram<TAB>count"));
-        assert!(err(b"a\t1\t1\t1", 2).starts_with("n-gram<TAB>count"));
+        assert!(err(b"a\t1\t1\t1\t1", 2).starts_with("n-gram<TAB>count"));
+        assert!(err(b"a\t1\t1\t0", 2).starts_with("a number of documents"));
+        assert!(err(b"a\t1\t1\t", 2).starts_with("a number of documents"));
         assert_eq!(err(b"a  b\t1", 2), "words separated by single spaces");
         assert_eq!(err(b" a\t1", 2), "words separated by single spaces");
         assert_eq!(err(b"\t1", 2), "words separated by single spaces");

@@ -44,7 +44,9 @@ pub fn each_with_prefixes<E>(
                     break;
                 }
                 for (s, v) in sums.iter_mut().zip(recs.values(j)) {
-                    *s += v;
+                    // Wrapping: a documents sum may hold −1s (see
+                    // `Worker::add_document`); counts never reach 2⁶⁴.
+                    *s = s.wrapping_add(v);
                 }
                 j += 1;
             }

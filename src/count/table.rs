@@ -181,7 +181,8 @@ impl Table {
             // Compared word by word: a slice `==` calls `bcmp` for a few words.
             if len == key.len() && rec[..len].iter().zip(key).all(|(a, b)| a == b) {
                 for (s, a) in rec[w..].iter_mut().zip(add) {
-                    *s += a;
+                    // Wrapping: a documents sum may add −1 (2⁶⁴ − 1).
+                    *s = s.wrapping_add(*a);
                 }
                 return;
             }

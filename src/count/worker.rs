@@ -49,6 +49,10 @@ pub struct CountConfig<'a> {
     pub counts: bool,
     /// `--unique`: which units to skip.
     pub unique: Option<&'a UniqueSkips>,
+    /// Also count, for each n-gram, the documents it occurs in: the runs
+    /// then hold two sums a key, the count and the documents (see
+    /// [`Worker::add_document`]).
+    pub documents: bool,
 }
 
 /// The units `--unique` skips: the chunks of the ingest and, for each,
@@ -156,6 +160,9 @@ struct Worker<'a> {
     ends: Vec<usize>,
     /// `--unique`: the duplicates of the span being counted.
     skips: Skips,
+    /// `--document-counts`: the document's longest k-grams, as (start in
+    /// `doc`, length).
+    grams: Vec<(u32, u32)>,
 }
 
 impl<'a> Worker<'a> {
@@ -163,7 +170,7 @@ impl<'a> Worker<'a> {
         let table_bytes = cfg.worker_bytes / 100 * 85;
         Worker {
             cfg,
-            table: Table::growable(cfg.order, 1, table_bytes),
+            table: Table::growable(cfg.order, 1 + usize::from(cfg.documents), table_bytes),
             dict: Dictionary::new(),
             first: FirstSeen::new(),
             dict_limit: cfg.worker_bytes - table_bytes,
@@ -175,6 +182,7 @@ impl<'a> Worker<'a> {
             doc: Vec::new(),
             ends: Vec::new(),
             skips: Skips::none(),
+            grams: Vec::new(),
         }
     }
 
@@ -335,6 +343,7 @@ impl<'a> Worker<'a> {
         let doc = std::mem::take(&mut self.doc);
         let ends = std::mem::take(&mut self.ends);
         let mut start = 0;
+        let mut counted = false;
         for (k, &end) in ends.iter().enumerate() {
             let ids = &doc[start..end];
             start = end;
@@ -345,6 +354,14 @@ impl<'a> Worker<'a> {
             }
             self.first.sentence(ids, scan);
             self.totals.sentences += 1;
+            counted = true;
+            if self.cfg.documents {
+                let from = end - ids.len();
+                self.grams.extend(
+                    (0..ids.len()).map(|i| ((from + i) as u32, n.min(ids.len() - i) as u32)),
+                );
+                continue;
+            }
             // Only the longest k-gram of each position: the shorter ones
             // are its prefixes, counted when the table is written
             // (`prefixes`).
@@ -364,8 +381,59 @@ impl<'a> Worker<'a> {
                 }
             }
         }
+        if self.cfg.documents && counted {
+            self.totals.documents += 1;
+            self.add_document(&doc)?;
+        }
         self.doc = doc;
         self.ends = ends;
+        Ok(())
+    }
+
+    /// Adds one document's longest k-grams (`self.grams`, positions in
+    /// `doc`) with their counts and with 1 for each distinct k-gram of the
+    /// document in the documents sum, every prefix included.
+    ///
+    /// The table keeps each position's longest k-gram only; a prefix's
+    /// sums are those of the keys it is a prefix of
+    /// ([`super::prefixes`]). A count adds up that way, but a document
+    /// count does not: a prefix shared by two k-grams of one document
+    /// occurs in it once. So the document's distinct longest k-grams
+    /// g₁ < … < gₘ (key order) each add 1 document, and each gⱼ whose
+    /// longest common prefix with gⱼ₋₁ has l ≥ 1 words adds −1 (as
+    /// 2⁶⁴ − 1, the table's sums wrapping) at that prefix. A prefix p of
+    /// the document is a prefix of one contiguous run gₐ … g_b; those add
+    /// b − a + 1, and the −1s at prefixes p is a prefix of are those of
+    /// gₐ₊₁ … g_b: p's sum is 1. A table written out in the middle of a
+    /// document (a huge one) splits the run, but each −1 goes into the
+    /// table of its own +1, so every sum a run holds is 1 or 0 for the
+    /// document, never below 0: the runs add up as counts do.
+    fn add_document(&mut self, doc: &[crate::words::WordId]) -> Result<()> {
+        let mut grams = std::mem::take(&mut self.grams);
+        let at = |g: (u32, u32)| &doc[g.0 as usize..(g.0 + g.1) as usize];
+        grams.sort_unstable_by(|&a, &b| at(a).cmp(at(b)));
+        let mut prev: &[u64] = &[];
+        let mut i = 0;
+        while i < grams.len() {
+            let g = at(grams[i]);
+            let mut j = i + 1;
+            while j < grams.len() && at(grams[j]) == g {
+                j += 1;
+            }
+            self.table.add(g, &[(j - i) as u64, 1]);
+            let shared = g.iter().zip(prev).take_while(|(a, b)| a == b).count();
+            if shared > 0 {
+                self.table.add(&g[..shared], &[0, u64::MAX]);
+            }
+            if self.table.is_critical() {
+                let run = self.write_run()?;
+                self.pending.push(run);
+            }
+            prev = g;
+            i = j;
+        }
+        grams.clear();
+        self.grams = grams;
         Ok(())
     }
 
@@ -431,7 +499,8 @@ impl<'a> Worker<'a> {
         let id = self.cfg.next_id.fetch_add(1, Ordering::SeqCst);
         let run = format!("count-{id:06}.run");
         let parts = self.cfg.partitions;
-        let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, 1)?;
+        let width = 1 + usize::from(self.cfg.documents);
+        let mut w = RunWriter::create(&self.cfg.dir.join(&run), parts, width)?;
         // Dropping the sorted view empties the table.
         let sorted = self.table.sorted();
         if self.cfg.counts {

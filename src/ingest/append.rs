@@ -11,7 +11,7 @@ use crate::key::Key;
 use crate::merge::{KWayMerge, RecordSource};
 use crate::records::{ReadTotals, Settings};
 use crate::shard::{DictWriter, RunWriter, Values};
-use crate::store::Store;
+use crate::store::{NgramRecord, Store};
 use crate::words::WordId;
 
 /// Writes a finished store's raw counts as one run file, and its words as a
@@ -60,6 +60,23 @@ pub(super) fn export_base(
             ),
         ));
     }
+    if have.document_counts != settings.document_counts {
+        let say = |d: bool| {
+            if d {
+                "--document-counts"
+            } else {
+                "no --document-counts"
+            }
+        };
+        return Err(Error::state(
+            store_dir,
+            format!(
+                "the store was built with {}, this command gives {}: --append must use the same setting",
+                say(have.document_counts),
+                say(settings.document_counts)
+            ),
+        ));
+    }
     if have.order != settings.order || have.preparation != settings.preparation {
         return Err(Error::state(
             store_dir,
@@ -72,7 +89,10 @@ pub(super) fn export_base(
             ),
         ));
     }
-    type Rows<'a> = Box<dyn Iterator<Item = Result<(Key, u64, Option<u64>)>> + 'a>;
+    // The counts, and with `--document-counts` the documents: the sums
+    // the counting workers' runs hold.
+    let docs = settings.document_counts;
+    type Rows<'a> = Box<dyn Iterator<Item = Result<(Key, NgramRecord)>> + 'a>;
     struct OrderIter<'a>(Rows<'a>);
     impl RecordSource for OrderIter<'_> {
         fn next_record(&mut self) -> Result<Option<(Key, Values)>> {
@@ -80,15 +100,15 @@ pub(super) fn export_base(
                 .0
                 .next()
                 .transpose()?
-                .map(|(k, c, _)| (k, [c, 0, 0, 0])))
+                .map(|(k, r)| (k, [r.count, r.documents.unwrap_or(0), 0, 0])))
         }
     }
     let sources = (1..=settings.order)
-        .map(|k| Ok(OrderIter(Box::new(s.ngrams(k)?))))
+        .map(|k| Ok(OrderIter(Box::new(s.scan_records(k, &[], None)?))))
         .collect::<Result<Vec<_>>>()?;
     let mut merge = KWayMerge::new(sources)?;
     let run = "base.run".to_string();
-    let mut w = RunWriter::create(&runs.join(&run), parts, 1)?;
+    let mut w = RunWriter::create(&runs.join(&run), parts, 1 + usize::from(docs))?;
     let mut counts_sum = 0u64;
     while let Some((k, v)) = merge.next_record()? {
         counts_sum = counts_sum.saturating_add(v[0]);
@@ -152,6 +172,7 @@ pub(super) fn export_base(
             counts_sum,
             duplicate_units: t.duplicate_units,
             duplicate_tokens: t.duplicate_tokens,
+            documents: t.documents,
         },
     })
 }

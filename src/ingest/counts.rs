@@ -30,6 +30,8 @@ pub(super) fn check_options(opts: &IngestOptions) -> Result<()> {
         Some(format!("inputs read as {}", opts.format.describe()))
     } else if opts.unique.is_some() {
         Some(crate::records::Unique::describe(opts.unique))
+    } else if opts.document_counts {
+        Some("--document-counts (a table holds no documents)".to_string())
     } else {
         None
     };

@@ -101,6 +101,7 @@ fn ingest_inner(opts: &IngestOptions, progress: &dyn Progress) -> Result<IngestS
         word_list: list.as_ref().map(|l| l.info),
         from_counts: opts.counts,
         unique: opts.unique,
+        document_counts: opts.document_counts,
     };
     fsutil::remove_dir(&layout::work_new(&opts.store))?;
     fsutil::remove_dir(&layout::work_done(&opts.store))?;

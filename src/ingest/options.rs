@@ -48,6 +48,9 @@ pub struct IngestOptions {
     /// Count each distinct sentence or document only the first time it
     /// occurs (see [`crate::unique`]).
     pub unique: Option<Unique>,
+    /// Also store each n-gram's number of documents (see
+    /// [`crate::count::CountConfig::documents`]).
+    pub document_counts: bool,
 }
 
 impl IngestOptions {
@@ -69,6 +72,7 @@ impl IngestOptions {
             format: Format::Lines,
             counts: false,
             unique: None,
+            document_counts: false,
         }
     }
 }

@@ -104,6 +104,7 @@ impl Run<'_> {
                 progress: &read,
                 counts: m.settings.from_counts,
                 unique: skips.as_ref(),
+                documents: m.settings.document_counts,
             };
             let shared = Mutex::new(Committed {
                 manifest: &mut *m,
@@ -216,7 +217,9 @@ impl Run<'_> {
                 }
             }
             for f in &files {
-                if f.partitions() != m.partitions || f.value_width() != 1 {
+                if f.partitions() != m.partitions
+                    || f.value_width() != 1 + usize::from(m.settings.document_counts)
+                {
                     return Err(Error::corrupt(
                         f.path(),
                         "run file of another ingest (partitions or width differ)",

@@ -152,15 +152,15 @@ pub fn cooccurrences(
     };
     let mut all = HashMap::new();
     for d in 1..=right {
-        let parts = scan_order(store, m + d, node, HashMap::new, |h, ids, c| {
-            *h.entry(ids[m + d - 1]).or_default() += c;
+        let parts = scan_order(store, m + d, node, HashMap::new, |h, ids, r| {
+            *h.entry(ids[m + d - 1]).or_default() += r.count;
         })?;
         parts.into_iter().for_each(|p| add(&mut all, p));
     }
     for d in 1..=left {
-        let parts = scan_order(store, m + d, &[], HashMap::new, |h, ids, c| {
+        let parts = scan_order(store, m + d, &[], HashMap::new, |h, ids, r| {
             if ids[d..] == *node {
-                *h.entry(ids[0]).or_default() += c;
+                *h.entry(ids[0]).or_default() += r.count;
             }
         })?;
         parts.into_iter().for_each(|p| add(&mut all, p));

@@ -25,6 +25,9 @@ pub struct FreqOptions {
     pub order: usize,
     /// Leave out n-grams seen fewer times.
     pub min_count: u64,
+    /// Leave out n-grams seen in fewer documents (0: no such bound; above
+    /// 0 the store must hold document counts).
+    pub min_documents: u64,
     /// List at most this many (at least 1).
     pub limit: usize,
     /// N-grams with sentence markers or not.
@@ -43,8 +46,8 @@ pub struct FreqItem {
     pub count: u64,
     /// Occurrences per million words of the store's text.
     pub per_million: f64,
-    /// Documents the n-gram occurs in, from a store that records them (none
-    /// does yet: always absent).
+    /// Documents the n-gram occurs in, from a store that records them
+    /// (`ingest --document-counts`); absent otherwise.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub documents: Option<u64>,
 }
@@ -68,21 +71,35 @@ pub fn best_counts(
     if opts.limit == 0 {
         return Err(Error::Config("the limit must be at least 1".into()));
     }
+    let docs = store.has_documents();
+    if opts.min_documents > 0 && !docs {
+        return Err(Error::Config(format!(
+            "a minimum of {} documents: this store holds no document counts (count it with ingest --document-counts)",
+            opts.min_documents
+        )));
+    }
+    // (count, text, documents): texts are distinct, so the documents never
+    // decide the order.
     let parts = scan_order(
         store,
         opts.order,
         prefix,
-        || Best::<(Reverse<u64>, String)>::new(opts.limit),
-        |best, ids, count| {
-            if count < opts.min_count || !opts.markers.keeps(ids) || !keep(ids) {
+        || Best::<(Reverse<u64>, String, Option<u64>)>::new(opts.limit),
+        |best, ids, rec| {
+            let count = rec.count;
+            if count < opts.min_count
+                || rec.documents.unwrap_or(0) < opts.min_documents
+                || !opts.markers.keeps(ids)
+                || !keep(ids)
+            {
                 return;
             }
-            if let Some((Reverse(worst), _)) = best.threshold() {
+            if let Some((Reverse(worst), _, _)) = best.threshold() {
                 if count < *worst {
                     return;
                 }
             }
-            best.push((Reverse(count), vocab.text(ids)));
+            best.push((Reverse(count), vocab.text(ids), rec.documents));
         },
     )?;
     let mut all = Best::new(opts.limit);
@@ -94,12 +111,12 @@ pub fn best_counts(
         .into_sorted()
         .into_iter()
         .enumerate()
-        .map(|(i, (Reverse(count), ngram))| FreqItem {
+        .map(|(i, (Reverse(count), ngram, documents))| FreqItem {
             rank: i as u64 + 1,
             ngram,
             count,
             per_million: per_million(count, total),
-            documents: None,
+            documents,
         })
         .collect())
 }

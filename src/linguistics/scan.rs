@@ -15,10 +15,10 @@ use rayon::prelude::*;
 
 use crate::error::Result;
 use crate::key::Key;
-use crate::store::Store;
+use crate::store::{NgramRecord, Store};
 use crate::words::WordId;
 
-/// Calls `each(state, ids, count)` for every stored n-gram of order `k`
+/// Calls `each(state, ids, record)` for every stored n-gram of order `k`
 /// that begins with `prefix` (ids in key order within a part), with one
 /// `state` from `init` per part; returns the states. Empty when `k` is not
 /// an order of the store.
@@ -32,13 +32,13 @@ pub fn scan_order<S, I, F>(
 where
     S: Send,
     I: Fn() -> S + Sync,
-    F: Fn(&mut S, &[WordId], u64) + Sync,
+    F: Fn(&mut S, &[WordId], &NgramRecord) + Sync,
 {
     if !prefix.is_empty() {
         let mut st = init();
-        for item in store.scan_prefix(k, prefix, None)? {
-            let (key, count, _) = item?;
-            each(&mut st, key.ids(), count);
+        for item in store.scan_records(k, prefix, None)? {
+            let (key, rec) = item?;
+            each(&mut st, key.ids(), &rec);
         }
         return Ok(vec![st]);
     }
@@ -67,7 +67,7 @@ where
                 for (slot, &r) in ids.iter_mut().zip(key.ids()) {
                     *slot = ranks[r as usize];
                 }
-                each(&mut st, &ids[..key.order()], rec.count);
+                each(&mut st, &ids[..key.order()], &rec);
             }
             Ok(st)
         })

@@ -25,6 +25,7 @@ struct OpenContext {
     count: u64,
     continuation: u64,
     stats: ContextStats,
+    documents: Option<u64>,
 }
 
 /// Counts below this are tallied in an array, not a map.
@@ -165,6 +166,9 @@ pub fn join_partition(
         missing: missing.ids().to_vec(),
     };
     let cf: Vec<Family> = (0..=n).map(|k| sink.family(&ngram_cf(k))).collect();
+    // `--document-counts`: each n-gram's documents, the last field of its
+    // value.
+    let docs = counts.value_width() >= 2;
     let mut cbuf = Vec::with_capacity(64);
 
     let close = |sink: &mut SstSet,
@@ -176,7 +180,13 @@ pub fn join_partition(
             if o.active {
                 o.active = false;
                 vb.clear();
-                encode_ngram(o.count, Some(o.continuation), Some(&o.stats), vb);
+                encode_ngram(
+                    o.count,
+                    Some(o.continuation),
+                    Some(&o.stats),
+                    o.documents,
+                    vb,
+                );
                 sink.put_in(cf[j], &o.key, vb)?;
             }
         }
@@ -218,6 +228,16 @@ pub fn join_partition(
         keys.write(ranks, &key, &mut kbuf).ok_or_else(|| {
             bad("an n-gram with a word that is in no dictionary of the ingest".into())
         })?;
+        let documents = docs.then_some(vals[1]);
+        if let Some(dc) = documents {
+            // A document count is at least 1 and at most the count; any
+            // other sum is a damaged run, or a documents sum gone wrong.
+            if dc == 0 || dc > c {
+                return Err(bad(format!(
+                    "an n-gram in {dc} documents with a count of {c}"
+                )));
+            }
+        }
         close(&mut sink, &mut open, k, &mut cbuf)?;
         if k == 1 {
             if !starts_bos {
@@ -238,9 +258,10 @@ pub fn join_partition(
             o.count = c;
             o.continuation = continuation;
             o.stats = ContextStats::default();
+            o.documents = documents;
         } else {
             vbuf.clear();
-            encode_ngram(c, None, None, &mut vbuf);
+            encode_ngram(c, None, None, documents, &mut vbuf);
             sink.put_in(cf[k], &kbuf, &vbuf)?;
         }
     }

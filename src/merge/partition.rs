@@ -6,7 +6,7 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 use super::kway::{KWayMerge, RecordSource};
 use crate::count::Table;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::key::{partition_of, Key};
 use crate::records::Merged;
 use crate::shard::{RunFile, RunWriter, SectionReader};
@@ -82,10 +82,22 @@ pub fn reduce_sources(
 /// `merged/counts-<p>.run` and continuation runs `merged/suffix-<p>-<i>.run`.
 pub fn merge_partition(cfg: &MergeConfig, p: u32, inputs: Vec<(RunFile, u32)>) -> Result<Merged> {
     let records: u64 = inputs.iter().map(|(f, s)| f.records(*s)).sum();
+    // Counts, or counts and documents (`--document-counts`): every run of
+    // an ingest holds the same sums.
+    let width = inputs.first().map_or(1, |(f, _)| f.value_width());
+    if let Some((f, _)) = inputs.iter().find(|(f, _)| f.value_width() != width) {
+        return Err(Error::corrupt(
+            f.path(),
+            format!(
+                "a run of {} sums a key among runs of {width}",
+                f.value_width()
+            ),
+        ));
+    }
     let inputs = reduce_sources(cfg, inputs)?;
     let mut merge = KWayMerge::new(open_all(cfg, &inputs)?)?;
     let counts = format!("counts-{p:04}.run");
-    let mut out = RunWriter::create(&cfg.merged_dir.join(&counts), 1, 1)?;
+    let mut out = RunWriter::create(&cfg.merged_dir.join(&counts), 1, width)?;
     let mut suffix_runs = Vec::new();
     let mut table = (cfg.order > 1)
         .then(|| Table::for_keys(cfg.order - 1, 1, cfg.worker_bytes, records as usize));

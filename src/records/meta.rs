@@ -33,6 +33,10 @@ pub struct Settings {
     /// every occurrence.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub unique: Option<Unique>,
+    /// Each n-gram's number of documents was stored too (`ingest
+    /// --document-counts`); absent in stores without them.
+    #[serde(default, skip_serializing_if = "is_false")]
+    pub document_counts: bool,
 }
 
 fn is_false(x: &bool) -> bool {
@@ -130,6 +134,10 @@ pub struct Totals {
     /// Tokens of those (counted as T is: without `<s>`, with `</s>`).
     #[serde(default, skip_serializing_if = "is_zero")]
     pub duplicate_tokens: u64,
+    /// Documents counted, those with at least one sentence counted (`ingest
+    /// --document-counts`; 0, and absent from the JSON, without).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub documents: u64,
 }
 
 impl Totals {

@@ -38,6 +38,10 @@ pub struct ReadTotals {
     /// Their tokens, without `<s>`, with `</s>`.
     #[serde(default, skip_serializing_if = "is_zero")]
     pub duplicate_tokens: u64,
+    /// Documents counted (`ingest --document-counts`; 0 otherwise): those
+    /// with at least one sentence counted.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub documents: u64,
 }
 
 /// A bad line (see [`ReadTotals::bad_lines`]): where it starts and why it
@@ -71,6 +75,7 @@ impl ReadTotals {
         self.counts_sum = self.counts_sum.saturating_add(o.counts_sum);
         self.duplicate_units += o.duplicate_units;
         self.duplicate_tokens += o.duplicate_tokens;
+        self.documents += o.documents;
     }
 }
 
@@ -148,6 +153,7 @@ pub fn store_meta<'a>(
         bad_lines: read.bad_lines,
         duplicate_units: read.duplicate_units,
         duplicate_tokens: read.duplicate_tokens,
+        documents: read.documents,
     };
     let orders = (0..n)
         .map(|k| OrderStats {

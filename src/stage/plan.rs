@@ -256,6 +256,7 @@ mod tests {
                 word_list: None,
                 from_counts: false,
                 unique: None,
+                document_counts: false,
             },
             word_list: None,
             format: Format::Lines,

@@ -80,6 +80,7 @@ pub fn run_map(dir: &Path, task: u32, memory: u64, threads: usize) -> Result<Tas
             progress: &read,
             counts: false,
             unique: skips.as_ref(),
+            documents: job.settings.document_counts,
         };
         let spills: Mutex<Vec<Spill>> = Mutex::new(Vec::new());
         let keep = |s: Spill| -> Result<()> {
@@ -145,7 +146,9 @@ pub fn run_merge(dir: &Path, p: u32, memory: u64) -> Result<TaskReport> {
         let d = need_done::<MapResult>(&m, "map", t, &id)?;
         for r in &d.result.runs {
             let f = RunFile::open(&m.join(r))?;
-            if f.partitions() != job.partitions || f.value_width() != 1 {
+            if f.partitions() != job.partitions
+                || f.value_width() != 1 + usize::from(job.settings.document_counts)
+            {
                 return Err(Error::corrupt(
                     f.path(),
                     "run file of another plan (partitions or width differ)",

@@ -57,6 +57,10 @@ pub struct ReportSettings {
     /// sentence or document once (`ingest --unique`); absent otherwise.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub unique: Option<crate::records::Unique>,
+    /// The store holds each n-gram's number of documents (`ingest
+    /// --document-counts`); absent otherwise.
+    #[serde(skip_serializing_if = "is_false")]
+    pub document_counts: bool,
 }
 
 fn is_false(x: &bool) -> bool {
@@ -110,6 +114,10 @@ pub struct ReportTotals {
     /// What `--unique` left out; absent for a store without it.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub duplicates: Option<ReportDuplicates>,
+    /// Documents counted (those with a sentence counted), for a store with
+    /// document counts; absent otherwise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub documents: Option<u64>,
 }
 
 fn is_zero(x: &u64) -> bool {
@@ -211,6 +219,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
                 .map(|w| ReportWordList { words: w.words }),
             from_counts: meta.settings.from_counts,
             unique: meta.settings.unique,
+            document_counts: meta.settings.document_counts,
         },
         totals: ReportTotals {
             sentences: t.sentences,
@@ -228,6 +237,7 @@ pub fn report(meta: &StoreMeta, opts: &ReportOptions) -> Report {
                 tokens: t.duplicate_tokens,
                 token_share: t.duplicate_token_share(),
             }),
+            documents: meta.settings.document_counts.then_some(t.documents),
         },
         orders,
         growth: meta.growth.as_ref().map(|g| Growth {

@@ -58,6 +58,9 @@ pub struct NgramRecord {
     pub continuation: Option<u64>,
     /// The statistics of g as a context, if g has a continuation.
     pub context: Option<ContextStats>,
+    /// The documents g occurs in, in a store that has them (`ingest
+    /// --document-counts`).
+    pub documents: Option<u64>,
 }
 
 fn zigzag(d: i128) -> u64 {
@@ -70,58 +73,72 @@ fn unzigzag(z: u64) -> i128 {
 }
 
 /// Encodes an n-gram value: varint count; below the top order the varint
-/// continuation count; and, if the n-gram is a context with children, its
+/// continuation count; if the n-gram is a context with children, its
 /// statistics as six varints: c − C and A − T (zigzag, as both are usually
 /// 0 and small: every occurrence of h before a word is an occurrence of
-/// h·w), T, N1, N2 and N3+.
+/// h·w), T, N1, N2 and N3+; and last, in a store with document counts
+/// (`ingest --document-counts`), the varint number of documents.
 pub fn encode_ngram(
     count: u64,
     continuation: Option<u64>,
     context: Option<&ContextStats>,
+    documents: Option<u64>,
     out: &mut Vec<u8>,
 ) {
     put_varint(out, count);
-    let Some(k) = continuation else { return };
-    put_varint(out, k);
-    if let Some(st) = context.filter(|s| s.types > 0) {
-        put_varint(out, zigzag(count as i128 - st.count_sum as i128));
-        put_varint(out, st.types);
-        put_varint(out, zigzag(st.left_type_sum as i128 - st.types as i128));
-        put_varint(out, st.n1);
-        put_varint(out, st.n2);
-        put_varint(out, st.n3plus);
+    if let Some(k) = continuation {
+        put_varint(out, k);
+        if let Some(st) = context.filter(|s| s.types > 0) {
+            put_varint(out, zigzag(count as i128 - st.count_sum as i128));
+            put_varint(out, st.types);
+            put_varint(out, zigzag(st.left_type_sum as i128 - st.types as i128));
+            put_varint(out, st.n1);
+            put_varint(out, st.n2);
+            put_varint(out, st.n3plus);
+        }
+    }
+    if let Some(d) = documents {
+        put_varint(out, d);
     }
 }
 
-/// Decodes an n-gram value written by [`encode_ngram`].
-pub fn decode_ngram(mut b: &[u8]) -> Option<NgramRecord> {
-    let count = get_varint(&mut b)?;
-    let mut r = NgramRecord {
-        count,
-        ..Default::default()
-    };
-    if b.is_empty() {
-        return Some(r);
+/// Decodes an n-gram value written by [`encode_ngram`]; `documents`: the
+/// store has document counts, so the last varint is one. The layout is
+/// told by the number of varints: 1 (a top-order n-gram), 2 (with its
+/// continuation) or 8 (and context statistics), one more with documents.
+pub fn decode_ngram(mut b: &[u8], documents: bool) -> Option<NgramRecord> {
+    let mut v = [0u64; 9];
+    let mut n = 0;
+    while !b.is_empty() {
+        *v.get_mut(n)? = get_varint(&mut b)?;
+        n += 1;
     }
-    r.continuation = Some(get_varint(&mut b)?);
-    if b.is_empty() {
-        return Some(r);
+    let mut r = NgramRecord::default();
+    if documents {
+        n = n.checked_sub(1)?;
+        r.documents = Some(v[n]);
     }
-    let mut v = [0u64; 6];
-    for x in &mut v {
-        *x = get_varint(&mut b)?;
+    match n {
+        1 | 2 | 8 => {}
+        _ => return None,
     }
-    let count_sum = u64::try_from(count as i128 - unzigzag(v[0])).ok()?;
-    let left_type_sum = u64::try_from(v[1] as i128 + unzigzag(v[2])).ok()?;
-    r.context = Some(ContextStats {
-        count_sum,
-        types: v[1],
-        left_type_sum,
-        n1: v[3],
-        n2: v[4],
-        n3plus: v[5],
-    });
-    b.is_empty().then_some(r)
+    r.count = v[0];
+    if n >= 2 {
+        r.continuation = Some(v[1]);
+    }
+    if n == 8 {
+        let count_sum = u64::try_from(r.count as i128 - unzigzag(v[2])).ok()?;
+        let left_type_sum = u64::try_from(v[3] as i128 + unzigzag(v[4])).ok()?;
+        r.context = Some(ContextStats {
+            count_sum,
+            types: v[3],
+            left_type_sum,
+            n1: v[5],
+            n2: v[6],
+            n3plus: v[7],
+        });
+    }
+    Some(r)
 }
 
 #[cfg(test)]
@@ -145,15 +162,24 @@ mod tests {
             (3, Some(0), Some(st)), // C above c and A below T: still exact
             (u64::MAX, Some(u64::MAX), None),
         ];
-        for (c, k, ctx) in cases {
-            let mut b = Vec::new();
-            encode_ngram(c, k, ctx.as_ref(), &mut b);
-            let r = decode_ngram(&b).unwrap();
-            assert_eq!((r.count, r.continuation, r.context), (c, k, ctx));
-            assert!(decode_ngram(&b[..b.len() - 1]).is_none_or(|x| x != r));
+        for docs in [None, Some(1), Some(u64::MAX)] {
+            for (c, k, ctx) in cases {
+                let mut b = Vec::new();
+                encode_ngram(c, k, ctx.as_ref(), docs, &mut b);
+                let r = decode_ngram(&b, docs.is_some()).unwrap();
+                assert_eq!(
+                    (r.count, r.continuation, r.context, r.documents),
+                    (c, k, ctx, docs)
+                );
+                assert!(decode_ngram(&b[..b.len() - 1], docs.is_some()).is_none_or(|x| x != r));
+            }
         }
         let mut b = Vec::new();
-        encode_ngram(9, Some(1), Some(&ContextStats::default()), &mut b);
-        assert_eq!(decode_ngram(&b).unwrap().context, None);
+        encode_ngram(9, Some(1), Some(&ContextStats::default()), None, &mut b);
+        assert_eq!(decode_ngram(&b, false).unwrap().context, None);
+        // Three varints are no layout without documents.
+        b.clear();
+        encode_ngram(9, Some(1), None, Some(4), &mut b);
+        assert!(decode_ngram(&b, false).is_none());
     }
 }

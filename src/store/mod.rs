@@ -227,7 +227,7 @@ impl Store {
             .get_pinned_cf(self.cf(&keys::ngram_cf(ids.len()))?, &kb)
             .map_err(|e| self.rocks(e))?;
         v.map(|v| {
-            keys::decode_ngram(&v)
+            keys::decode_ngram(&v, self.has_documents())
                 .ok_or_else(|| Error::corrupt(layout::db(&self.dir), "bad n-gram value"))
         })
         .transpose()
@@ -299,9 +299,10 @@ impl Store {
             let got = self.db.batched_multi_get_cf(cf, keys, sorted);
             for (&i, r) in idx.iter().zip(got) {
                 if let Some(v) = r.map_err(|e| self.rocks(e))? {
-                    out[i] = Some(keys::decode_ngram(&v).ok_or_else(|| {
-                        Error::corrupt(layout::db(&self.dir), "bad n-gram value")
-                    })?);
+                    out[i] =
+                        Some(keys::decode_ngram(&v, self.has_documents()).ok_or_else(|| {
+                            Error::corrupt(layout::db(&self.dir), "bad n-gram value")
+                        })?);
                 }
             }
         }
@@ -446,9 +447,15 @@ impl Store {
             source,
         })?;
         let key = read(&self.ranks, &kb).ok_or_else(|| Error::corrupt(path, "bad n-gram key"))?;
-        let rec =
-            keys::decode_ngram(&vb).ok_or_else(|| Error::corrupt(path, "bad n-gram value"))?;
+        let rec = keys::decode_ngram(&vb, self.has_documents())
+            .ok_or_else(|| Error::corrupt(path, "bad n-gram value"))?;
         Ok((key, rec))
+    }
+
+    /// The store holds each n-gram's document count (`ingest
+    /// --document-counts`): every [`NgramRecord`] read has its `documents`.
+    pub fn has_documents(&self) -> bool {
+        self.meta.settings.document_counts
     }
 
     /// Size of the database files on disk, in bytes.

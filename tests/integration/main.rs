@@ -200,3 +200,6 @@ mod corpus_lines;
 // sequences: Gutenberg texts and files of repeated lines and documents,
 // many chunks, kills and resumes, --append.
 mod unique;
+// Document counts (ingest --document-counts): against a Python count of
+// each n-gram's documents, through kill/resume, append and stage.
+mod documents;

@@ -82,7 +82,7 @@ fn plan(dir: &Path, partitions: u32, tasks: usize, inputs: &[PathBuf]) -> Value 
 }
 
 /// [`plan`] with more flags (`extra`) before the inputs.
-fn plan_with(
+pub fn plan_with(
     dir: &Path,
     partitions: u32,
     tasks: usize,
@@ -123,7 +123,7 @@ pub(crate) fn task_args(stage: &str, dir: &Path, n: u64) -> Vec<String> {
 }
 
 /// Runs every task of a planned job in order.
-fn run_all(dir: &Path, store: &Path, plan: &Value) -> Vec<Value> {
+pub fn run_all(dir: &Path, store: &Path, plan: &Value) -> Vec<Value> {
     let mut reports = Vec::new();
     for t in 0..plan["map_tasks"].as_u64().unwrap() {
         reports.push(stage_ok(&task_args("map", dir, t)));

@@ -1,5 +1,6 @@
 //! `quern dump`: every n-gram (or context) as TSV, under a header line
-//! (`ngram, count, continuation`; with `--contexts`:
+//! (`ngram, count, continuation`, and `documents` for a store with
+//! document counts; with `--contexts`:
 //! `context, C, T, A, N1, N2, N3+`).
 
 use std::collections::HashMap;
@@ -70,19 +71,27 @@ pub fn run(a: DumpArgs) -> anyhow::Result<()> {
             }
         }
     } else {
+        // A store with document counts has a fourth column.
+        let docs = store.has_documents();
         if !a.no_header {
-            writeln!(out, "ngram\tcount\tcontinuation")?;
+            let more = if docs { "\tdocuments" } else { "" };
+            writeln!(out, "ngram\tcount\tcontinuation{more}")?;
         }
         for k in orders.into_iter().filter(|&k| k > 0) {
-            for item in store.ngrams(k)? {
-                let (key, c, cont) = item?;
+            for item in store.scan_records(k, &[], None)? {
+                let (key, r) = item?;
+                let c = r.count;
                 if c < a.min_count {
                     continue;
                 }
                 words(&vocab, &key, &mut w)?;
-                match cont {
-                    Some(x) => writeln!(out, "{w}\t{c}\t{x}")?,
-                    None => writeln!(out, "{w}\t{c}\t-")?,
+                match r.continuation {
+                    Some(x) => write!(out, "{w}\t{c}\t{x}")?,
+                    None => write!(out, "{w}\t{c}\t-")?,
+                }
+                match r.documents {
+                    Some(d) => writeln!(out, "\t{d}")?,
+                    None => writeln!(out)?,
                 }
             }
         }

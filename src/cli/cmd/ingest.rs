@@ -29,6 +29,7 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     o.format = a.input.format();
     o.counts = a.counts;
     o.unique = a.unique;
+    o.document_counts = a.document_counts;
     let bar = Bar::new(a.quiet);
     let result = ingest(&o, &bar);
     bar.finish();
@@ -90,6 +91,13 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     }
     if let Some(u) = a.unique {
         writeln!(out, "  {}", duplicates_line(u, t))?;
+    }
+    if a.document_counts {
+        writeln!(
+            out,
+            "  documents: {} (each n-gram's documents stored)",
+            thousands(t.documents)
+        )?;
     }
     for r in &s.repaired {
         writeln!(out, "  repaired: {r}")?;

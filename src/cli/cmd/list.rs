@@ -54,14 +54,14 @@ pub fn fixed(x: f64) -> String {
 }
 
 /// The rows of a frequency list (with the documents column when the store
-/// has document counts).
+/// has document counts: `docs`).
 pub fn freq_rows(
     items: Vec<quern::linguistics::freq::FreqItem>,
+    docs: bool,
 ) -> (
     Vec<&'static str>,
     Vec<Row<quern::linguistics::freq::FreqItem>>,
 ) {
-    let docs = items.iter().any(|i| i.documents.is_some());
     let mut header = vec!["rank", "ngram", "count", "per_million"];
     if docs {
         header.push("documents");

@@ -39,11 +39,12 @@ fn run_pattern(store: &quern::store::Store, p: &str, a: &NgramsArgs) -> anyhow::
     let opts = FreqOptions {
         order: pat.len(),
         min_count: 1,
+        min_documents: a.min_documents,
         limit: a.limit,
         markers: Markers::With,
     };
     let items = pattern::best_matches(store, &Vocabulary::of(store)?, &pat, &opts)?;
-    let (header, rows) = super::list::freq_rows(items);
+    let (header, rows) = super::list::freq_rows(items, store.has_documents());
     let header: &[&str] = if a.no_header { &[] } else { &header };
     let format = crate::cli::args::ListFormatArgs {
         json: a.json,

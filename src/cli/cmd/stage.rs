@@ -22,6 +22,7 @@ pub fn run(c: StageCommand) -> anyhow::Result<()> {
                     max_line_bytes: a.input.max_line_bytes,
                     from_counts: false,
                     unique: a.unique,
+                    document_counts: a.document_counts,
                 },
                 word_list: a.word_list,
                 format: a.input.format(),

@@ -165,6 +165,16 @@ fn rows(out: &mut impl Write, delim: u8, r: &Report) -> anyhow::Result<()> {
             "",
         )?;
     }
+    if let Some(d) = t.documents {
+        put(
+            "totals",
+            None,
+            None,
+            "documents",
+            d.to_string(),
+            "--document-counts",
+        )?;
+    }
     if let (Some(u), Some(d)) = (r.settings.unique, &t.duplicates) {
         let note = format!("--unique {}", u.name());
         put(
@@ -365,6 +375,13 @@ fn table(out: &mut impl Write, dir: &str, r: &Report, rows: u64) -> anyhow::Resu
             out,
             "bad lines  {:>14}   (input lines without a document, skipped)",
             thousands(t.bad_lines)
+        )?;
+    }
+    if let Some(d) = t.documents {
+        writeln!(
+            out,
+            "documents  {:>14}   (each n-gram's documents stored: --document-counts)",
+            thousands(d)
         )?;
     }
     if let (Some(u), Some(d)) = (r.settings.unique, &r.totals.duplicates) {

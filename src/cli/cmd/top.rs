@@ -13,6 +13,7 @@ pub fn run(a: TopArgs) -> anyhow::Result<()> {
     let opts = FreqOptions {
         order: a.order,
         min_count: a.min_count,
+        min_documents: a.min_documents,
         limit: a.limit,
         markers: if a.markers {
             Markers::With
@@ -21,6 +22,6 @@ pub fn run(a: TopArgs) -> anyhow::Result<()> {
         },
     };
     let items = top(&store, &vocab, &opts)?;
-    let (header, rows) = freq_rows(items);
+    let (header, rows) = freq_rows(items, store.has_documents());
     write_list(&mut std::io::stdout().lock(), a.format, &header, rows)
 }
