@@ -50,8 +50,15 @@ pub fn write_arpa_file(model: &Model, path: &Path) -> Result<u64> {
     let buf = std::io::BufWriter::with_capacity(1 << 20, f);
     let gz = path.extension().is_some_and(|e| e == "gz");
     let f = if gz {
-        let mut enc = flate2::write::GzEncoder::new(buf, flate2::Compression::default());
-        write_arpa(model, &mut enc).map_err(|e| Error::io(&tmp, "write", e))?;
+        // The encoder takes its input in large pieces: each write to it
+        // clears its whole output buffer, so a line at a time costs far
+        // more than the compression.
+        let enc = flate2::write::GzEncoder::new(buf, flate2::Compression::default());
+        let mut lines = std::io::BufWriter::with_capacity(1 << 16, enc);
+        write_arpa(model, &mut lines).map_err(|e| Error::io(&tmp, "write", e))?;
+        let enc = lines
+            .into_inner()
+            .map_err(|e| Error::io(&tmp, "write", e.into_error()))?;
         enc.finish().at(&tmp, "write")?
     } else {
         let mut buf = buf;

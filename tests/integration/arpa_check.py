@@ -53,32 +53,35 @@ def read(path):
     prob = {}  # order -> {tuple: log10 p}
     bow = {}  # tuple -> log10 b
     order = 0
+    grams = None  # prob[order]
     in_data = False
     with opener(path, "rt", encoding="utf-8") as f:
         for line in f:
             line = line.rstrip("\n")
-            if line == "\\data\\":
-                in_data = True
-                continue
             if not in_data:
+                in_data = line == "\\data\\"
                 continue
-            if line.startswith("ngram "):
-                k, c = line[len("ngram "):].split("=")
-                counts[int(k)] = int(c)
-                continue
-            if line.startswith("\\") and line.endswith("-grams:"):
-                order = int(line[1:-len("-grams:")])
-                prob[order] = {}
-                continue
-            if line == "\\end\\":
-                break
             if not line:
                 continue
+            if line[0] == "\\" or line.startswith("ngram "):
+                if line == "\\data\\":
+                    continue
+                if line.startswith("ngram "):
+                    k, c = line[len("ngram "):].split("=")
+                    counts[int(k)] = int(c)
+                    continue
+                if line.startswith("\\") and line.endswith("-grams:"):
+                    order = int(line[1:-len("-grams:")])
+                    prob[order] = grams = {}
+                    continue
+                if line == "\\end\\":
+                    break
+            # An n-gram line: log10 p, the words, perhaps log10 b.
             parts = line.split("\t")
             words = tuple(parts[1].split(" "))
             if len(words) != order:
                 raise SystemExit(f"line {line!r}: {len(words)} words in the {order}-grams")
-            prob[order][words] = float(parts[0])
+            grams[words] = float(parts[0])
             if len(parts) > 2:
                 bow[words] = float(parts[2])
     return counts, prob, bow
@@ -129,10 +132,21 @@ def main():
     worst = abs(uni - 1.0)
     if abs(uni - 1.0) > TOL:
         fail.append(f"the unigrams sum to {uni!r}")
-    kids = {}
+    kids = {}  # h -> [(w, log10 P(w | h))] for every listed h w
     for k in range(2, n + 1):
-        for g in prob[k]:
-            kids.setdefault(g[:-1], []).append(g[-1])
+        for g, lp in prob[k].items():
+            kids.setdefault(g[:-1], []).append((g[-1], lp))
+
+    def lower_p(h1, ok, w, shorter):
+        """P(w | h1) for a word listed after h (so h1 w should be listed):
+        read from the file where logp would take it from the first step
+        (every word of h1 w in V, w not <s>, h1 w listed), else logp."""
+        if ok and w in vocab and w != "<s>":
+            lp = shorter.get(h1 + (w,))
+            if lp is not None:
+                return p10(lp)
+        return p10(logp(h1, w))
+
     contexts = 0
     unnormalised = 0
     for k in range(1, n):
@@ -140,8 +154,10 @@ def main():
             if h in SKIP:
                 continue
             ws = kids.get(h, [])
-            seen = sum(p10(prob[k + 1][h + (w,)]) for w in ws)
-            lower = sum(p10(logp(h[1:], w)) for w in ws)
+            seen = sum(p10(lp) for _, lp in ws)
+            h1 = h[1:]
+            ok = all(x in vocab for x in h1)
+            lower = sum(lower_p(h1, ok, w, prob[k]) for w, _ in ws)
             b = p10(bow.get(h, 0.0))
             total = seen + b * (1.0 - lower)
             contexts += 1

@@ -7,7 +7,7 @@
 //! estimators_independent.rs compares quern's estimators with it; the
 //! freeze tests derive Katz's skipping contexts from it.
 
-use std::cell::RefCell;
+use std::cell::{OnceCell, RefCell};
 use std::collections::HashMap;
 use std::path::PathBuf;
 
@@ -243,6 +243,8 @@ pub(crate) struct Independent<'t> {
     t: &'t Tables,
     model: Model,
     katz_memo: RefCell<HashMap<Gram, KatzCtx>>,
+    /// Katz's freed unigram mass, a sum over V computed once.
+    katz_free: OnceCell<f64>,
 }
 
 impl<'t> Independent<'t> {
@@ -281,6 +283,7 @@ impl<'t> Independent<'t> {
             t,
             model,
             katz_memo: RefCell::new(HashMap::new()),
+            katz_free: OnceCell::new(),
         }
     }
 
@@ -444,11 +447,13 @@ impl<'t> Independent<'t> {
         if h.is_empty() {
             let tokens = root.c as f64;
             let zeros = t.v - root.t as f64;
-            let free: f64 = t.children[&Vec::new()]
-                .iter()
-                .map(|(_, cv)| (1.0 - Self::katz_d(c, 1, *cv)) * *cv as f64)
-                .sum::<f64>()
-                / tokens;
+            let free = *self.katz_free.get_or_init(|| {
+                t.children[&Vec::new()]
+                    .iter()
+                    .map(|(_, cv)| (1.0 - Self::katz_d(c, 1, *cv)) * *cv as f64)
+                    .sum::<f64>()
+                    / tokens
+            });
             let cw = t.c(&[w.to_string()]);
             return if cw > 0 {
                 let pstar = Self::katz_d(c, 1, cw) * cw as f64 / tokens;
