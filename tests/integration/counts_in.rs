@@ -231,9 +231,14 @@ fn bad_tables_are_named_by_file_and_line() {
             "t.tsv:6: expected n-gram<TAB>count",
         ),
         (
-            "four fields",
-            vec![("t.tsv", format!("{good}c\t1\t1\t1\n"))],
+            "five fields",
+            vec![("t.tsv", format!("{good}c\t1\t1\t1\t1\n"))],
             "t.tsv:6: expected n-gram<TAB>count",
+        ),
+        (
+            "documents not a number",
+            vec![("t.tsv", format!("{good}c\t1\t1\tx\n"))],
+            "t.tsv:6: expected a number of documents",
         ),
         (
             "order",
