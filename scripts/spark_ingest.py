@@ -63,6 +63,14 @@ def parse_args(argv):
     p.add_argument("--store", required=True, help="store directory to build (on the shared storage)")
     p.add_argument("--order", type=int, default=5, help="highest n-gram order N (default 5)")
     p.add_argument("--lowercase", action="store_true", help="lowercase every token (default: off)")
+    p.add_argument("--normalize", default="none", choices=("none", "nfc", "nfkc"),
+                   help="Unicode normalization of the text, as quern ingest --normalize (default: none)")
+    p.add_argument("--sentences", default="lines", choices=("lines", "split", "document"),
+                   help="where sentences end, as quern ingest --sentences (default: lines)")
+    p.add_argument("--tokens", default="whitespace", choices=("whitespace", "words"),
+                   help="what a token is, as quern ingest --tokens (default: whitespace)")
+    p.add_argument("--digits", default="keep", choices=("keep", "zero"),
+                   help="decimal digits kept or each made 0, as quern ingest --digits (default: keep)")
     p.add_argument("--word-list", default=None, metavar="FILE",
                    help="a fixed vocabulary, one word a line, on the shared storage (the plan task "
                         "reads it and keeps a copy in --dir); every other token counts as <unk> "
@@ -248,6 +256,8 @@ def main(argv):
                  "--partitions", a.partitions, "--map-tasks", map_tasks]
     if a.lowercase:
         plan_args.append("--lowercase")
+    plan_args += ["--normalize", a.normalize, "--sentences", a.sentences,
+                  "--tokens", a.tokens, "--digits", a.digits]
     if a.document_counts:
         plan_args.append("--document-counts")
     if a.jsonl:

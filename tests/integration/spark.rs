@@ -258,9 +258,11 @@ fn spark_job_with_a_missing_input_fails_naming_it() {
 }
 
 /// `--jsonl`: a crawl of two novels as JSON lines (crawl.rs), through
-/// Spark: the store equals the single-machine plain ingest of their texts
-/// at order 5 (the input bytes and the bad-line count aside, which only the
-/// JSON lines have).
+/// Spark with a text preparation (`--normalize nfkc --tokens words
+/// --digits zero`, passed on to the plan): the store equals the
+/// single-machine plain ingest of their texts at order 5 with the same
+/// preparation (the input bytes and the bad-line count aside, which only
+/// the JSON lines have).
 #[test]
 fn spark_jsonl_store_equals_plain_ingest_of_the_texts() {
     let submit = spark_submit();
@@ -268,10 +270,21 @@ fn spark_jsonl_store_equals_plain_ingest_of_the_texts() {
     let (crawls, texts, _) =
         crate::crawl::crawl_of(tmp.path(), &["persuasion.txt", "northangerabbey.txt"]);
     let plain = tmp.path().join("plain");
-    ingest_ok(&plain, &["--order", "5", "--quiet"], &texts);
+    let prep = [
+        "--normalize",
+        "nfkc",
+        "--tokens",
+        "words",
+        "--digits",
+        "zero",
+    ];
+    let mut flags = vec!["--order", "5", "--quiet"];
+    flags.extend(prep);
+    ingest_ok(&plain, &flags, &texts);
     let (dir, store) = (tmp.path().join("shared"), tmp.path().join("store"));
     let mut args = job_args(&dir, &store, 3, 2);
     args.push("--jsonl".into());
+    args.extend(prep.iter().map(|s| s.to_string()));
     args.extend(crawls.iter().map(|p| p.display().to_string()));
     let r = spark(&submit, tmp.path(), &args);
     assert!(r.ok, "spark job failed:\n{}", tail(&r.output));
