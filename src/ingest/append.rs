@@ -61,19 +61,12 @@ pub(super) fn export_base(
         ));
     }
     if have.document_counts != settings.document_counts {
-        let say = |d: bool| {
-            if d {
-                "--document-counts"
-            } else {
-                "no --document-counts"
-            }
-        };
         return Err(Error::state(
             store_dir,
             format!(
                 "the store was built with {}, this command gives {}: --append must use the same setting",
-                say(have.document_counts),
-                say(settings.document_counts)
+                crate::records::Settings::describe_document_counts(have.document_counts),
+                crate::records::Settings::describe_document_counts(settings.document_counts)
             ),
         ));
     }

@@ -58,19 +58,12 @@ pub(super) fn check_resume(
         ));
     }
     if m.settings.document_counts != settings.document_counts {
-        let say = |d: bool| {
-            if d {
-                "--document-counts"
-            } else {
-                "no --document-counts"
-            }
-        };
         return Err(Error::state(
             &opts.store,
             format!(
                 "an unfinished ingest here was started with {}; this command gives {}: {hint}",
-                say(m.settings.document_counts),
-                say(settings.document_counts)
+                crate::records::Settings::describe_document_counts(m.settings.document_counts),
+                crate::records::Settings::describe_document_counts(settings.document_counts)
             ),
         ));
     }

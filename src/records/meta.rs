@@ -39,6 +39,18 @@ pub struct Settings {
     pub document_counts: bool,
 }
 
+impl Settings {
+    /// `--document-counts` or `no --document-counts`, for messages that
+    /// name two settings.
+    pub fn describe_document_counts(d: bool) -> &'static str {
+        if d {
+            "--document-counts"
+        } else {
+            "no --document-counts"
+        }
+    }
+}
+
 fn is_false(x: &bool) -> bool {
     !*x
 }
