@@ -130,6 +130,8 @@ pub mod freeze;
 #[cfg(feature = "store")]
 pub mod import;
 #[cfg(feature = "store")]
+mod lower;
+#[cfg(feature = "store")]
 mod orders;
 #[cfg(feature = "store")]
 mod pass;

@@ -89,11 +89,13 @@ impl<'a> Plan<'a> {
 /// starts from.
 pub(super) struct Arrays {
     q_paths: Vec<PathBuf>,
-    /// The exact q of the last finished order, and of every finished
-    /// order mapped (for Katz's contexts that back off past their next
-    /// shorter context).
-    q64_prev: PathBuf,
+    /// The exact q of every finished order mapped (for Katz's contexts
+    /// that back off past their next shorter context).
     pub(super) q64_maps: Vec<Bytes>,
+    /// The suffix entries of the last finished order (from order 2 on)
+    /// and their file.
+    links: Bytes,
+    links_path: Option<PathBuf>,
     word_paths: Vec<Option<PathBuf>>,
     weight_paths: Vec<PathBuf>,
     child_paths: Vec<PathBuf>,
@@ -122,8 +124,9 @@ impl Arrays {
     ) -> Result<Arrays> {
         Ok(Arrays {
             q_paths: vec![q_path.to_path_buf()],
-            q64_prev: q64_path.to_path_buf(),
             q64_maps: vec![map(q64_path)?],
+            links: Bytes::Empty,
+            links_path: None,
             word_paths: vec![None],
             weight_paths: Vec::new(),
             child_paths: Vec::new(),
@@ -164,7 +167,8 @@ impl Arrays {
                 bos_rank: plan.bos_rank,
                 built: &self.built,
                 q64: &self.q64_maps,
-                q64_prev: &self.q64_prev,
+                links: &self.links,
+                write_links: k < plan.min_counts.len(),
                 min_counts: &plan.min_counts,
                 pruning: plan.pruning,
                 default_beta: plan.default_beta,
@@ -195,6 +199,10 @@ impl Arrays {
         let w = concat(tpath(format!("w{k}")), outs.iter().map(|o| &o.w))?;
         let q = concat(tpath(format!("q{k}")), outs.iter().map(|o| &o.q))?;
         let q64 = concat(tpath(format!("q64-{k}")), outs.iter().map(|o| &o.q64))?;
+        let links = match outs.iter().map(|o| o.l.as_ref()).collect::<Option<Vec<_>>>() {
+            Some(ls) if !ls.is_empty() => Some(concat(tpath(format!("l{k}")), ls)?),
+            _ => None,
+        };
         let b = concat(tpath(format!("b{}", k - 1)), outs.iter().map(|o| &o.b))?;
         let s = concat(tpath(format!("s{}", k - 1)), outs.iter().map(|o| &o.s))?;
         let f = self.join_children(tpath(format!("f{}", k - 1)), &outs, total)?;
@@ -214,7 +222,15 @@ impl Arrays {
         self.child_paths.push(f);
         self.skip_paths.push(order_skips.then_some(s));
         self.q64_maps.push(map(&q64)?);
-        self.q64_prev = q64;
+        // The links of order k − 1 are read by order k's pass only.
+        self.links = Bytes::Empty;
+        if let Some(old) = self.links_path.take() {
+            std::fs::remove_file(&old).at(&old, "remove")?;
+        }
+        if let Some(l) = links {
+            self.links = map(&l)?;
+            self.links_path = Some(l);
+        }
         self.built
             .words
             .push(map(self.word_paths[k - 1].as_ref().expect("order ≥ 2"))?);

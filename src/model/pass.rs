@@ -28,8 +28,13 @@ use crate::store::NgramRecord;
 use crate::words::WordId;
 
 use super::built::{Built, Bytes, Cursor};
+use super::lower::{self, Lower, Want};
 use super::writer::ArrayFile;
 use crate::search::find_in;
+
+/// The n-grams a part reads ahead of its sums, whose lower entries are
+/// found together ([`lower::resolve`]).
+const BATCH: usize = 64;
 
 /// Katz's contexts that back off past h' (all orders; and whether the
 /// current order has one), and those it cannot represent.
@@ -58,10 +63,12 @@ pub(super) struct Order<'a> {
     pub bos_rank: u64,
     /// The arrays of orders 1..k − 1.
     pub built: &'a Built,
+    /// The suffix entry of every entry of order k − 1 (u32 each; empty
+    /// for k = 2), and whether this order writes its own for the next.
+    pub links: &'a [u8],
+    pub write_links: bool,
     /// The exact q of every finished order (index k − 1), f64 each.
     pub q64: &'a [Bytes],
-    /// The path of order k − 1's exact q (for errors).
-    pub q64_prev: &'a Path,
     /// Count threshold per order (index k − 1; at least 1).
     pub min_counts: &'a [u64],
     /// Whether any order is pruned by count.
@@ -112,10 +119,12 @@ pub(super) struct Part {
 
 /// What one part of an order wrote.
 pub(super) struct PartOut {
-    /// Order k: last words (u32), q (f32), exact q (f64).
+    /// Order k: last words (u32), q (f32), exact q (f64), and the suffix
+    /// entries (u32, if written).
     pub w: PathBuf,
     pub q: PathBuf,
     pub q64: PathBuf,
+    pub l: Option<PathBuf>,
     /// Order k − 1, the part's entries: β (f32), children starts counted
     /// from the part's first child (u32), Katz's skips (u8).
     pub b: PathBuf,
@@ -216,12 +225,49 @@ pub(super) fn left_type(c: u64, cont: Option<u64>, first_is_bos: bool) -> u64 {
 }
 
 /// Runs one part of order `o.k` with the estimator `est`.
+///
+/// The part reads [`BATCH`] n-grams at a time: it first takes each one's
+/// context from the stream of order k − 1 (which tells whether it is
+/// kept), then finds the lower entries of those with a kept context
+/// together, then adds the n-grams to their contexts' sums in order.
 pub(super) fn run_part(est: &Estimator<'_>, o: &Order<'_>, part: Part) -> Result<PartOut> {
     let (first, end) = (part.first, part.end);
+    let k = o.k;
     let mut run = open_part(est, o, part)?;
-    for (pos, item) in est.store().scan_first_ranks(o.k, first, end)?.enumerate() {
-        let (g, rec) = item?;
-        run.ngram(pos, g.ids(), rec)?;
+    let mut scan = est.store().scan_first_ranks(k, first, end)?.enumerate();
+    let arrays = lower::Arrays {
+        k,
+        built: o.built,
+        rank_index: o.rank_index,
+        links: o.links,
+        q64: &o.q64[k - 2],
+    };
+    let mut items: Vec<(usize, Key, NgramRecord, bool)> = Vec::with_capacity(BATCH);
+    let mut wants: Vec<Want> = Vec::with_capacity(BATCH);
+    let mut lowers: Vec<Lower> = Vec::with_capacity(BATCH);
+    loop {
+        items.clear();
+        wants.clear();
+        for (pos, item) in scan.by_ref().take(BATCH) {
+            let (g, rec) = item?;
+            let kept = run.parent_of(&g.ids()[..k - 1])?;
+            if let Some(parent) = kept {
+                wants.push(Want {
+                    parent,
+                    rank: g.ids()[k - 1],
+                });
+            }
+            items.push((pos, g, rec, kept.is_some()));
+        }
+        if items.is_empty() {
+            break;
+        }
+        lower::resolve(&arrays, &wants, &mut lowers);
+        let mut found = lowers.iter();
+        for (pos, g, rec, kept) in &items {
+            let lower = if *kept { found.next() } else { None };
+            run.ngram(*pos, g.ids(), *rec, lower)?;
+        }
     }
     run.close()
 }
@@ -237,21 +283,23 @@ struct PartRun<'a, 'e, I> {
     w_file: ArrayFile,
     q_file: ArrayFile,
     q64_file: ArrayFile,
+    l_file: Option<ArrayFile>,
     ctx_out: ContextOut,
     cursor: Cursor,
     tally: KatzTally,
     /// Which n-grams of order k were kept, by position within the part.
     kept_now: Vec<u64>,
     parents: ParentStream<I>,
+    /// The parents taken from the stream ahead of the sums (the last one
+    /// is the context of the last n-gram read), and the last one's key.
+    ahead: std::collections::VecDeque<(Key, NgramRecord, Option<u32>)>,
+    last_ahead: Option<(Key, Option<u32>)>,
     /// The current parent: key, record, model index if kept.
     cur: Option<(Key, NgramRecord, Option<u32>)>,
     acc: Acc,
     /// F(h)/Σc of a Katz context that every word follows (0 otherwise).
     spread_f: f64,
     written: u64,
-    /// The word indices of the last kept n-gram's h'·w, and their ranks.
-    xs: Vec<u32>,
-    xs_ids: Vec<u64>,
     store_n: u64,
 }
 
@@ -267,6 +315,11 @@ fn open_part<'a, 'e>(
     let w_file = ArrayFile::create(tp("w"))?;
     let q_file = ArrayFile::create(tp("q"))?;
     let q64_file = ArrayFile::create(tp("q64-"))?;
+    let l_file = if o.write_links {
+        Some(ArrayFile::create(tp("l"))?)
+    } else {
+        None
+    };
     let ctx_out = ContextOut {
         b: ArrayFile::create(tp("b"))?,
         f: ArrayFile::create(tp("f"))?,
@@ -287,17 +340,18 @@ fn open_part<'a, 'e>(
         w_file,
         q_file,
         q64_file,
+        l_file,
         ctx_out,
         cursor: Cursor::default(),
         tally: KatzTally::default(),
         kept_now: Vec::new(),
         parents,
+        ahead: std::collections::VecDeque::new(),
+        last_ahead: None,
         cur: None,
         acc: Acc::default(),
         spread_f: 0.0,
         written: 0,
-        xs: Vec::with_capacity(k),
-        xs_ids: Vec::with_capacity(k),
         store_n: 0,
     })
 }
@@ -306,10 +360,53 @@ impl<I> PartRun<'_, '_, I>
 where
     I: Iterator<Item = Result<(Key, NgramRecord)>>,
 {
+    /// The error of an n-gram whose context is not stored.
+    fn not_stored(&self) -> Error {
+        Error::corrupt(
+            self.est.store().dir(),
+            format!("order {}: an n-gram whose context is not stored", self.o.k),
+        )
+    }
+
+    /// The entry of the context `h` (ranks) of the n-gram just read if
+    /// it is kept, taking the parents up to it from the stream of order
+    /// k − 1 ahead of the sums.
+    fn parent_of(&mut self, h: &[u64]) -> Result<Option<u32>> {
+        let o = self.o;
+        loop {
+            if let Some((key, kept)) = &self.last_ahead {
+                if key.ids() == h {
+                    return Ok(*kept);
+                }
+            }
+            let (pk, prec) = match self.parents.it.next() {
+                Some(item) => item?,
+                None => return Err(self.not_stored()),
+            };
+            if pk.ids() > h {
+                return Err(self.not_stored());
+            }
+            let kept = if o.k - 1 == 1 {
+                o.index_of_rank(pk.ids()[0])
+            } else {
+                self.parents.next_kept(&self.part.kept_prev)
+            };
+            self.ahead.push_back((pk, prec, kept));
+            self.last_ahead = Some((pk, kept));
+        }
+    }
+
     /// Takes the stored n-gram h·w of ranks `gi`, the `pos`-th of the
-    /// part: moves to its parent h, and if h is kept and h·w is not pruned,
-    /// writes its last word and q and adds it to h's sums.
-    fn ngram(&mut self, pos: usize, gi: &[u64], rec: NgramRecord) -> Result<()> {
+    /// part, with its lower entry if h is kept: moves to its parent h,
+    /// and if h is kept and h·w is not pruned, writes its last word and q
+    /// and adds it to h's sums.
+    fn ngram(
+        &mut self,
+        pos: usize,
+        gi: &[u64],
+        rec: NgramRecord,
+        lower: Option<&Lower>,
+    ) -> Result<()> {
         let (est, o) = (self.est, self.o);
         let k = o.k;
         self.store_n += 1;
@@ -319,10 +416,10 @@ where
         if o.kind == BackoffKind::Katz {
             self.acc.freed += est.katz_freed(k - 1, rec.count);
         }
-        if kept.is_none() {
+        let (Some(_), Some(found)) = (kept, lower) else {
             return Ok(());
-        }
-        let Some(lower) = self.lower(gi, rec.count)? else {
+        };
+        let Some((x, lower_e, lower)) = self.lower(found, rec.count)? else {
             return Ok(());
         };
         let j = k - 1;
@@ -342,9 +439,12 @@ where
             }
             BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
         };
-        self.w_file.u32(*self.xs.last().expect("k ≥ 2"))?;
+        self.w_file.u32(x)?;
         self.q_file.f32(q as f32)?;
         self.q64_file.f64(q)?;
+        if let Some(l) = &mut self.l_file {
+            l.u32(lower_e)?;
+        }
         let word = pos / 64;
         if self.kept_now.len() <= word {
             self.kept_now.resize(word + 1, 0);
@@ -358,27 +458,15 @@ where
     }
 
     /// Moves to the parent context `h` (ranks), finishing the contexts
-    /// passed; an n-gram whose context is not stored is an error.
+    /// passed (taken from those read ahead).
     fn move_to(&mut self, h: &[u64]) -> Result<()> {
         let (est, o) = (self.est, self.o);
         let k = o.k;
-        let not_stored = || {
-            Error::corrupt(
-                est.store().dir(),
-                format!("order {k}: an n-gram whose context is not stored"),
-            )
-        };
         while self.cur.as_ref().is_none_or(|c| c.0.ids() != h) {
             self.finish_context()?;
             self.acc = Acc::default();
-            let (pk, prec) = self.parents.it.next().ok_or_else(not_stored)??;
-            if pk.ids() > h {
-                return Err(not_stored());
-            }
-            let kept = if k - 1 == 1 {
-                o.index_of_rank(pk.ids()[0])
-            } else {
-                self.parents.next_kept(&self.part.kept_prev)
+            let Some((pk, prec, kept)) = self.ahead.pop_front() else {
+                return Err(self.not_stored());
             };
             self.spread_f = 0.0;
             if o.kind == BackoffKind::Katz && kept.is_some() {
@@ -399,32 +487,16 @@ where
         Ok(())
     }
 
-    /// The word indices of h'·w (in `xs`) for the n-gram of ranks `gi`,
-    /// and q(h'·w) from order k − 1; `None` (h·w pruned) where h'·w was
-    /// not kept or h·w's count `count` is below the threshold.
-    fn lower(&mut self, gi: &[u64], count: u64) -> Result<Option<f64>> {
+    /// The word index of w, the entry of h'·w and q(h'·w) from order
+    /// k − 1, from the search's `found`; `None` (h·w pruned) where h'·w
+    /// was not kept or h·w's count `count` is below the threshold.
+    fn lower(&mut self, found: &Lower, count: u64) -> Result<Option<(u32, u32, f64)>> {
         let o = self.o;
         let (k, store) = (o.k, self.est.store());
-        // Consecutive n-grams share their leading words, so only those
-        // after the shared ones are looked up.
-        let mut same = 0;
-        while same < self.xs.len() && same + 1 < k && self.xs_ids[same] == gi[same + 1] {
-            same += 1;
-        }
-        self.xs.truncate(same);
-        self.xs_ids.truncate(same);
-        for &r in &gi[same + 1..] {
-            self.xs.push(o.index_of_rank(r).ok_or_else(|| {
-                Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
-            })?);
-            self.xs_ids.push(r);
-        }
-        let lower_e = if k == 2 {
-            Some(self.xs[0])
-        } else {
-            o.built.lookup(&mut self.cursor, &self.xs)
-        };
-        let Some(lower_e) = lower_e else {
+        let x = found.x.ok_or_else(|| {
+            Error::corrupt(store.dir(), "an n-gram holds a word that is not a unigram")
+        })?;
+        let Some((e, q)) = found.e else {
             if !o.pruning {
                 return Err(Error::corrupt(
                     store.dir(),
@@ -438,14 +510,7 @@ where
             self.acc.pruned = true;
             return Ok(None);
         }
-        let at = 8 * lower_e as usize;
-        Ok(Some(f64::from_le_bytes(
-            o.q64[k - 2]
-                .get(at..at + 8)
-                .ok_or_else(|| Error::corrupt(o.q64_prev, "short temporary array"))?
-                .try_into()
-                .expect("8 bytes"),
-        )))
+        Ok(Some((x, e, q)))
     }
 
     /// Writes the children start and β of the current context, if kept
@@ -523,6 +588,7 @@ where
             w: self.w_file.close()?,
             q: self.q_file.close()?,
             q64: self.q64_file.close()?,
+            l: self.l_file.map(ArrayFile::close).transpose()?,
             b: self.ctx_out.b.close()?,
             f: self.ctx_out.f.close()?,
             s: self.ctx_out.s.close()?,
