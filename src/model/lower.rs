@@ -170,3 +170,171 @@ fn prefetch_reads(words: &[u8], seek: &Seek) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::built::{map, Bytes, Cursor};
+    use crate::search::splitmix64 as next;
+    use std::path::Path;
+
+    /// Writes little-endian u32s to `dir/name` and maps them.
+    fn mapped_u32(dir: &Path, name: &str, xs: &[u32]) -> Bytes {
+        let p = dir.join(name);
+        let bytes: Vec<u8> = xs.iter().flat_map(|x| x.to_le_bytes()).collect();
+        std::fs::write(&p, bytes).expect("write");
+        map(&p).expect("map")
+    }
+
+    /// One order's children: for each context (its word indices), a
+    /// random share of the words that follow its suffix (every word for a
+    /// unigram), so that the n-grams are closed under suffixes like a
+    /// store's; as (children starts, words).
+    fn children_of(
+        s: &mut u64,
+        contexts: &[Vec<u32>],
+        follow: &mut dyn FnMut(&[u32]) -> Vec<u32>,
+    ) -> (Vec<u32>, Vec<u32>) {
+        let (mut starts, mut words) = (vec![0u32], Vec::new());
+        for h in contexts {
+            let share = [0, 20, 150, 600][(next(s) % 4) as usize];
+            for w in follow(h) {
+                if next(s) % 1000 < share {
+                    words.push(w);
+                }
+            }
+            starts.push(words.len() as u32);
+        }
+        (starts, words)
+    }
+
+    /// The batched searches through links find, for every order and every
+    /// kind of context, the entry and q that the one-at-a-time walk from
+    /// the root ([`Built::lookup`]) finds: present and absent words, words
+    /// whose rank is no unigram, in random order.
+    #[test]
+    fn batched_searches_through_links_equal_walks_from_the_root() {
+        let dir = tempfile::tempdir().expect("temporary folder");
+        let mut s = 11u64;
+        let universe = 200u32;
+        // Orders 1 to 4: unigram entries are the word indices; the
+        // children of an entry follow its suffix's children.
+        let mut words = vec![Bytes::Empty];
+        let mut children = Vec::new();
+        let mut paths: Vec<Vec<Vec<u32>>> = vec![(0..universe).map(|w| vec![w]).collect()];
+        let mut lists: Vec<Vec<Vec<u32>>> = Vec::new();
+        for k in 2..=4usize {
+            let prev = &paths[k - 2];
+            let index: std::collections::HashMap<&[u32], usize> = if k > 2 {
+                paths[k - 3]
+                    .iter()
+                    .enumerate()
+                    .map(|(e, g)| (&g[..], e))
+                    .collect()
+            } else {
+                Default::default()
+            };
+            let mut follow = |h: &[u32]| -> Vec<u32> {
+                if k == 2 {
+                    (0..universe).collect()
+                } else {
+                    lists[k - 3][index[&h[1..]]].clone()
+                }
+            };
+            let (starts, ws) = children_of(&mut s, prev, &mut follow);
+            let mut mine = Vec::new();
+            let mut kids = Vec::new();
+            for (p, path) in prev.iter().enumerate() {
+                let these = &ws[starts[p] as usize..starts[p + 1] as usize];
+                kids.push(these.to_vec());
+                for &w in these {
+                    let mut g = path.clone();
+                    g.push(w);
+                    mine.push(g);
+                }
+            }
+            lists.push(kids);
+            children.push(mapped_u32(dir.path(), &format!("f{k}"), &starts));
+            words.push(mapped_u32(dir.path(), &format!("w{k}"), &ws));
+            paths.push(mine);
+        }
+        // Ranks are a permutation of the word indices, with some ranks
+        // that are no unigram.
+        let ranks = universe as usize + 50;
+        let mut rank_index: Vec<u32> = (0..ranks as u32)
+            .map(|r| if r < universe { r } else { u32::MAX })
+            .collect();
+        for i in (1..ranks).rev() {
+            rank_index.swap(i, (next(&mut s) % (i as u64 + 1)) as usize);
+        }
+        let mut cursor = Cursor::default();
+        let mut walk = |xs: &[u32]| -> Option<u32> {
+            if xs.len() == 1 {
+                Some(xs[0])
+            } else {
+                built.lookup(&mut cursor, xs)
+            }
+        };
+        for k in 2..=4usize {
+            // The links of order k − 1's entries (their suffixes' entries),
+            // and q: an entry's own number.
+            let ctx = &paths[k - 2];
+            let links: Vec<u32> = if k > 2 {
+                ctx.iter()
+                    .map(|g| walk(&g[1..]).expect("closed under suffixes"))
+                    .collect()
+            } else {
+                Vec::new()
+            };
+            let links = mapped_u32(dir.path(), &format!("l{k}"), &links);
+            let q64: Vec<u8> = (0..ctx.len())
+                .flat_map(|e| (e as f64 + 0.5).to_le_bytes())
+                .collect();
+            let arrays = Arrays {
+                k,
+                built: &built,
+                rank_index: &rank_index,
+                links: &links,
+                q64: &q64,
+            };
+            let mut wants = Vec::new();
+            let mut expect = Vec::new();
+            for i in 0..3000 {
+                let parent = (next(&mut s) % ctx.len() as u64) as usize;
+                let h = &ctx[parent];
+                // Half the words follow the context's suffix.
+                let after = &lists[k - 2][parent];
+                let rank = match (i % 2, k) {
+                    (0, 3..) if !after.is_empty() => {
+                        let x = after[(next(&mut s) % after.len() as u64) as usize];
+                        rank_index.iter().position(|&y| y == x).expect("a rank") as u64
+                    }
+                    _ => next(&mut s) % ranks as u64,
+                };
+                let x = rank_index[rank as usize];
+                let e = (x != u32::MAX)
+                    .then(|| {
+                        let mut g = h[1..].to_vec();
+                        g.push(x);
+                        walk(&g)
+                    })
+                    .flatten();
+                wants.push(Want {
+                    parent: parent as u32,
+                    rank,
+                });
+                expect.push(Lower {
+                    x: (x != u32::MAX).then_some(x),
+                    e: e.map(|e| (e, e as f64 + 0.5)),
+                });
+            }
+            assert!(expect.iter().filter(|l| l.e.is_some()).count() > 100);
+            assert!(expect.iter().filter(|l| l.e.is_none()).count() > 100);
+            let mut out = Vec::new();
+            for (w, e) in wants.chunks(64).zip(expect.chunks(64)) {
+                resolve(&arrays, w, &mut out);
+                assert_eq!(out, e, "order {k}");
+            }
+        }
+    }
+}

@@ -83,12 +83,19 @@ impl<'a> Plan<'a> {
     }
 }
 
+/// An order's q: in f32, as the model holds it (unigrams and the top
+/// order), or exact, in f64 (the orders a later order reads).
+enum QPath {
+    F32(PathBuf),
+    F64(PathBuf),
+}
+
 /// The arrays of the finished orders (temporary files; index k − 1 by
 /// order, the weights, children and skips of orders 1..N − 1), the ones
 /// the next order searches mapped, and what each part of the next order
 /// starts from.
 pub(super) struct Arrays {
-    q_paths: Vec<PathBuf>,
+    q_paths: Vec<QPath>,
     /// The exact q of every finished order mapped (for Katz's contexts
     /// that back off past their next shorter context).
     pub(super) q64_maps: Vec<Bytes>,
@@ -123,7 +130,7 @@ impl Arrays {
         bounds: &[usize],
     ) -> Result<Arrays> {
         Ok(Arrays {
-            q_paths: vec![q_path.to_path_buf()],
+            q_paths: vec![QPath::F32(q_path.to_path_buf())],
             q64_maps: vec![map(q64_path)?],
             links: Bytes::Empty,
             links_path: None,
@@ -168,7 +175,7 @@ impl Arrays {
                 built: &self.built,
                 q64: &self.q64_maps,
                 links: &self.links,
-                write_links: k < plan.min_counts.len(),
+                top: k == plan.min_counts.len(),
                 min_counts: &plan.min_counts,
                 pruning: plan.pruning,
                 default_beta: plan.default_beta,
@@ -198,8 +205,11 @@ impl Arrays {
         }
         let w = concat(tpath(format!("w{k}")), outs.iter().map(|o| &o.w))?;
         let q = concat(tpath(format!("q{k}")), outs.iter().map(|o| &o.q))?;
-        let q64 = concat(tpath(format!("q64-{k}")), outs.iter().map(|o| &o.q64))?;
-        let links = match outs.iter().map(|o| o.l.as_ref()).collect::<Option<Vec<_>>>() {
+        let links = match outs
+            .iter()
+            .map(|o| o.l.as_ref())
+            .collect::<Option<Vec<_>>>()
+        {
             Some(ls) if !ls.is_empty() => Some(concat(tpath(format!("l{k}")), ls)?),
             _ => None,
         };
@@ -217,11 +227,15 @@ impl Arrays {
         self.kept_counts.push(total);
         self.store_counts.push(store_n);
         self.word_paths.push(Some(w));
-        self.q_paths.push(q);
+        if links.is_some() {
+            self.q64_maps.push(map(&q)?);
+            self.q_paths.push(QPath::F64(q));
+        } else {
+            self.q_paths.push(QPath::F32(q));
+        }
         self.weight_paths.push(b);
         self.child_paths.push(f);
         self.skip_paths.push(order_skips.then_some(s));
-        self.q64_maps.push(map(&q64)?);
         // The links of order k − 1 are read by order k's pass only.
         self.links = Bytes::Empty;
         if let Some(old) = self.links_path.take() {
@@ -276,7 +290,18 @@ impl Arrays {
                     (0..a.len() / 4).map(|i| u32_at(&a, i) as u64),
                 )?;
             }
-            copy(w, SectionKind::Probs, k, &self.q_paths[k - 1])?;
+            match &self.q_paths[k - 1] {
+                QPath::F32(p) => copy(w, SectionKind::Probs, k, p)?,
+                QPath::F64(p) => {
+                    let a = map(p)?;
+                    w.floats(
+                        SectionKind::Probs,
+                        k,
+                        a.chunks_exact(8)
+                            .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")) as f32),
+                    )?;
+                }
+            }
             if k < n {
                 copy(w, SectionKind::Weights, k, &self.weight_paths[k - 1])?;
                 let a = map(&self.child_paths[k - 1])?;

@@ -64,9 +64,11 @@ pub(super) struct Order<'a> {
     /// The arrays of orders 1..k − 1.
     pub built: &'a Built,
     /// The suffix entry of every entry of order k − 1 (u32 each; empty
-    /// for k = 2), and whether this order writes its own for the next.
+    /// for k = 2).
     pub links: &'a [u8],
-    pub write_links: bool,
+    /// Whether k is the highest order: no later order reads its exact q
+    /// or its links, so it writes q in f32 only, as the model holds it.
+    pub top: bool,
     /// The exact q of every finished order (index k − 1), f64 each.
     pub q64: &'a [Bytes],
     /// Count threshold per order (index k − 1; at least 1).
@@ -119,11 +121,10 @@ pub(super) struct Part {
 
 /// What one part of an order wrote.
 pub(super) struct PartOut {
-    /// Order k: last words (u32), q (f32), exact q (f64), and the suffix
-    /// entries (u32, if written).
+    /// Order k: last words (u32), q (exact, f64; f32 at the top order),
+    /// and below the top order the suffix entries (u32).
     pub w: PathBuf,
     pub q: PathBuf,
-    pub q64: PathBuf,
     pub l: Option<PathBuf>,
     /// Order k − 1, the part's entries: β (f32), children starts counted
     /// from the part's first child (u32), Katz's skips (u8).
@@ -279,10 +280,9 @@ struct PartRun<'a, 'e, I> {
     est: &'a Estimator<'e>,
     o: &'a Order<'a>,
     part: Part,
-    /// Order k: last words (u32), q (f32), exact q (f64).
+    /// Order k: last words (u32), q (see [`PartOut::q`]), suffix entries.
     w_file: ArrayFile,
     q_file: ArrayFile,
-    q64_file: ArrayFile,
     l_file: Option<ArrayFile>,
     ctx_out: ContextOut,
     cursor: Cursor,
@@ -314,11 +314,10 @@ fn open_part<'a, 'e>(
     let tp = |name: &str| o.dir.join(format!("{name}{k}-{}", part.t));
     let w_file = ArrayFile::create(tp("w"))?;
     let q_file = ArrayFile::create(tp("q"))?;
-    let q64_file = ArrayFile::create(tp("q64-"))?;
-    let l_file = if o.write_links {
-        Some(ArrayFile::create(tp("l"))?)
-    } else {
+    let l_file = if o.top {
         None
+    } else {
+        Some(ArrayFile::create(tp("l"))?)
     };
     let ctx_out = ContextOut {
         b: ArrayFile::create(tp("b"))?,
@@ -339,7 +338,6 @@ fn open_part<'a, 'e>(
         part,
         w_file,
         q_file,
-        q64_file,
         l_file,
         ctx_out,
         cursor: Cursor::default(),
@@ -440,10 +438,11 @@ where
             BackoffKind::Stupid(_) => rec.count as f64 / prec.count.max(1) as f64,
         };
         self.w_file.u32(x)?;
-        self.q_file.f32(q as f32)?;
-        self.q64_file.f64(q)?;
         if let Some(l) = &mut self.l_file {
+            self.q_file.f64(q)?;
             l.u32(lower_e)?;
+        } else {
+            self.q_file.f32(q as f32)?;
         }
         let word = pos / 64;
         if self.kept_now.len() <= word {
@@ -587,7 +586,6 @@ where
         Ok(PartOut {
             w: self.w_file.close()?,
             q: self.q_file.close()?,
-            q64: self.q64_file.close()?,
             l: self.l_file.map(ArrayFile::close).transpose()?,
             b: self.ctx_out.b.close()?,
             f: self.ctx_out.f.close()?,
