@@ -258,6 +258,11 @@ mod tests {
             words.push(mapped_u32(dir.path(), &format!("w{k}"), &ws));
             paths.push(mine);
         }
+        let built = Built {
+            universe: u64::from(universe),
+            words,
+            children,
+        };
         // Ranks are a permutation of the word indices, with some ranks
         // that are no unigram.
         let ranks = universe as usize + 50;
