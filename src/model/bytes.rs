@@ -31,7 +31,13 @@ pub(crate) fn map_read_only(file: &File, path: &Path) -> Result<Mmap> {
     // temporary array files by renaming a new file over them (see the
     // `# Safety` section above), so the mapped bytes do not change under
     // us in any supported use.
-    unsafe { Mmap::map(file) }.at(path, "memory-map")
+    let m = unsafe { Mmap::map(file) }.at(path, "memory-map")?;
+    // Advice only: pages read through this map come into the page cache
+    // in 2 MiB folios where the file system allows, and are then mapped
+    // as 2 MiB pages (see `ChunkWriter` for pages already cached).
+    #[cfg(target_os = "linux")]
+    let _ = m.advise(memmap2::Advice::HugePage);
+    Ok(m)
 }
 
 /// Reads `file` whole into anonymous memory that the kernel is asked to
