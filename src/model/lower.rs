@@ -16,7 +16,7 @@
 use crate::hint::prefetch;
 
 use super::built::Built;
-use super::bytes::u32_at;
+use super::bytes::{self, u32_at};
 use super::seek::Seek;
 
 /// One n-gram's search: the entry of its kept context h (order k − 1) and
@@ -56,14 +56,6 @@ enum Step {
     Done(Option<usize>),
 }
 
-/// Prefetches the u32 at index `i` of `b`, if there is one.
-#[inline(always)]
-fn prefetch_u32(b: &[u8], i: usize) {
-    if let Some(x) = b.get(4 * i) {
-        prefetch(x);
-    }
-}
-
 /// Finds the lower entries of `wants` into `out` (same positions),
 /// advancing all the searches stage by stage.
 pub(super) fn resolve(a: &Arrays<'_>, wants: &[Want], out: &mut Vec<Lower>) {
@@ -90,7 +82,7 @@ pub(super) fn resolve(a: &Arrays<'_>, wants: &[Want], out: &mut Vec<Lower>) {
             .filter(|&x| x != u32::MAX);
         let s = if k > 2 && 4 * w.parent as usize + 4 <= a.links.len() {
             let s = u32_at(a.links, w.parent as usize) as usize;
-            prefetch_u32(children, s);
+            bytes::prefetch(children, 4 * s);
             Some(s)
         } else {
             None
@@ -145,9 +137,7 @@ pub(super) fn resolve(a: &Arrays<'_>, wants: &[Want], out: &mut Vec<Lower>) {
     // The entries found, and their q.
     for step in &steps {
         if let Step::Done(Some(e)) = *step {
-            if let Some(b) = a.q64.get(8 * e) {
-                prefetch(b);
-            }
+            bytes::prefetch(a.q64, 8 * e);
         }
     }
     for (step, l) in steps.iter().zip(out.iter_mut()) {
@@ -164,9 +154,9 @@ pub(super) fn resolve(a: &Arrays<'_>, wants: &[Want], out: &mut Vec<Lower>) {
 #[inline(always)]
 fn prefetch_reads(words: &[u8], seek: &Seek) {
     if let Some((a, b)) = seek.next_read() {
-        prefetch_u32(words, a);
+        bytes::prefetch(words, 4 * a);
         if let Some(b) = b {
-            prefetch_u32(words, b);
+            bytes::prefetch(words, 4 * b);
         }
     }
 }
