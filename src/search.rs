@@ -76,7 +76,14 @@ pub fn find_in<T: Sorted>(
             }
         }
     }
-    (lo..hi).find(|&i| at(i) == w)
+    // Increasing values: the scan stops at the first one not below w.
+    for i in lo..hi {
+        let x = at(i);
+        if x >= w {
+            return (x == w).then_some(i);
+        }
+    }
+    None
 }
 
 /// Where each bucket of a sorted list of 64-bit ids starts: bucket b holds
