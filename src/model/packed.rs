@@ -396,14 +396,12 @@ mod tests {
     /// bit-by-bit count puts it.
     #[test]
     fn select_in_word_finds_every_set_bit() {
-        let mut s = 0x2545_f491_4f6c_dd1du64;
+        let mut s = 5u64;
         let mut words = vec![u64::MAX, 1, 1 << 63, 0x8000_0000_0000_0001, 0xff00];
         for _ in 0..2000 {
-            s ^= s << 13;
-            s ^= s >> 7;
-            s ^= s << 17;
-            words.push(s);
-            words.push(s & (s >> 3) & (s >> 9));
+            let x = crate::search::splitmix64(&mut s);
+            words.push(x);
+            words.push(x & (x >> 3) & (x >> 9));
         }
         for &x in &words {
             let ones: Vec<usize> = (0..64).filter(|&b| x >> b & 1 == 1).collect();
