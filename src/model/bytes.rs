@@ -89,6 +89,12 @@ pub(crate) fn f32_at(b: &[u8], i: usize) -> f32 {
     f32::from_le_bytes(b[4 * i..4 * i + 4].try_into().expect("4 bytes"))
 }
 
+/// Reads the f64 at index `i` of little-endian bytes.
+#[inline(always)]
+pub(crate) fn f64_at(b: &[u8], i: usize) -> f64 {
+    f64::from_le_bytes(b[8 * i..8 * i + 8].try_into().expect("8 bytes"))
+}
+
 /// Reads the u64 at index `i` of little-endian bytes.
 #[inline(always)]
 pub(crate) fn u64_at(b: &[u8], i: usize) -> u64 {

@@ -16,7 +16,7 @@
 use crate::hint::prefetch;
 
 use super::built::Built;
-use super::bytes::{self, u32_at};
+use super::bytes::{self, f64_at, u32_at};
 use super::seek::Seek;
 
 /// One n-gram's search: the entry of its kept context h (order k − 1) and
@@ -142,10 +142,8 @@ pub(super) fn resolve(a: &Arrays<'_>, wants: &[Want], out: &mut Vec<Lower>) {
     }
     for (step, l) in steps.iter().zip(out.iter_mut()) {
         if let Step::Done(Some(e)) = *step {
-            l.e = a
-                .q64
-                .get(8 * e..8 * e + 8)
-                .map(|b| (e as u32, f64::from_le_bytes(b.try_into().expect("8 bytes"))));
+            // A damaged temporary array only loses the entry.
+            l.e = (8 * e + 8 <= a.q64.len()).then(|| (e as u32, f64_at(a.q64, e)));
         }
     }
 }

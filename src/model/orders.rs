@@ -14,7 +14,7 @@ use crate::query::Estimator;
 use crate::words::{bos_id, unk_id, WordId};
 
 use super::built::{map, Built, Bytes};
-use super::bytes::u32_at;
+use super::bytes::{f64_at, u32_at};
 use super::format::SectionKind;
 use super::packed::{ef_encode, width_for};
 use super::pass::{run_part, too_many, KatzTally, Order, Part, PartOut};
@@ -297,8 +297,7 @@ impl Arrays {
                     w.floats(
                         SectionKind::Probs,
                         k,
-                        a.chunks_exact(8)
-                            .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")) as f32),
+                        (0..a.len() / 8).map(|i| f64_at(&a, i) as f32),
                     )?;
                 }
             }

@@ -28,6 +28,7 @@ use crate::store::NgramRecord;
 use crate::words::WordId;
 
 use super::built::{Built, Bytes, Cursor};
+use super::bytes::f64_at;
 use super::lower::{self, Lower, Want};
 use super::writer::ArrayFile;
 use crate::search::find_in;
@@ -663,9 +664,7 @@ fn katz_deep(
                     "the suffix of a kept n-gram is not kept",
                 ));
             };
-            let b = &o.q64[i];
-            let at = 8 * e as usize;
-            sum += f64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"));
+            sum += f64_at(&o.q64[i], e as usize);
         }
         let den = 1.0 - sum;
         if den > EPS {
