@@ -54,6 +54,12 @@ pub struct Model {
     /// The word indices of the metadata's never-suggest words that are in
     /// V, increasing.
     never: Vec<u32>,
+    /// The children starts of the unigrams, decoded from their
+    /// Elias–Fano index on open and clamped to the bigrams (empty at order
+    /// 1): every prediction in running text searches a unigram's
+    /// children, and one read of a plain array replaces a select (4 bytes
+    /// a word).
+    unigram_starts: Vec<u32>,
 }
 
 impl Model {
@@ -102,6 +108,14 @@ impl Model {
         let orders = read_orders(b, &dir, &meta, width, &bad)?;
         let id_bytes = &b[ids.clone()];
         let id_dir = IdDirectory::new(nw, |i| u64_at(id_bytes, i), 16, 18);
+        let unigram_starts = match orders.get(1) {
+            Some(bigrams) => {
+                let most = bigrams.len.min(u32::MAX as usize) as u64;
+                let starts = orders[0].children.values(b);
+                starts.into_iter().map(|v| v.min(most) as u32).collect()
+            }
+            None => Vec::new(),
+        };
         let mut m = Model {
             id_dir,
             path: path.to_path_buf(),
@@ -118,6 +132,7 @@ impl Model {
             unk: 0,
             completion: Default::default(),
             never: Vec::new(),
+            unigram_starts,
         };
         let need = |m: &Model, id: WordId, what: &str| {
             m.index_of(id)
@@ -326,9 +341,42 @@ impl Model {
         if e as usize >= o.len {
             return n..n;
         }
+        if k == 1 {
+            let s = &self.unigram_starts[e as usize..e as usize + 2];
+            return s[0] as usize..s[1].max(s[0]) as usize;
+        }
         let (lo, hi) = o.children.pair(&self.map, e as usize);
         let lo = (lo as usize).min(n);
         lo..(hi as usize).clamp(lo, n)
+    }
+
+    /// Prefetches what [`Model::children`] of entry `e` of order `k` reads
+    /// first (the upper bits it then scans depend on it; see
+    /// [`Model::prefetch_children_scan`]).
+    #[inline(always)]
+    pub(super) fn prefetch_children(&self, k: usize, e: usize) {
+        if k == 1 {
+            if let Some(x) = self.unigram_starts.get(e) {
+                crate::hint::prefetch(x);
+            }
+        } else {
+            let o = &self.orders[k - 1].children;
+            prefetch(&self.map, o.sample_byte(e));
+            prefetch(&self.map, o.low_byte(e));
+        }
+    }
+
+    /// Prefetches the upper bits that [`Model::children`] of entry `e` of
+    /// order `k` scans, once [`Model::prefetch_children`]'s lines are in
+    /// the cache (nothing at order 1, which reads a plain array).
+    #[inline(always)]
+    pub(super) fn prefetch_children_scan(&self, k: usize, e: usize) {
+        if k > 1 {
+            // The scan from the sample may run into the next line.
+            let at = self.orders[k - 1].children.scan_byte(&self.map, e);
+            prefetch(&self.map, at);
+            prefetch(&self.map, at + 64);
+        }
     }
 
     /// The last word of entry `e` of order `k`.

@@ -212,26 +212,22 @@ impl Model {
         let b = self.bytes();
         let u = self.words_with_bos() as u64;
         let levels = |job: &Job<'_>| job.st.m.min(self.order() - 1);
-        // 1. What each context's entry leads to: the children index's
-        // sample and low bits, and its back-off weight; and q of the word.
+        // 1. What each context's entry leads to: its children start (a
+        // unigram's from the plain array; above, the children index's
+        // sample and low bits) and its back-off weight; and q of the word.
         for job in jobs.iter_mut() {
             job.nodes[0] = job.x;
             prefetch(b, self.sections(1).probs.byte_of(job.x as usize));
             for j in 1..=levels(job) {
-                let (o, e) = (self.sections(j), job.st.nodes[j - 1] as usize);
-                prefetch(b, o.children.sample_byte(e));
-                prefetch(b, o.children.low_byte(e));
-                prefetch(b, o.weights.byte_of(e));
+                let e = job.st.nodes[j - 1] as usize;
+                self.prefetch_children(j, e);
+                prefetch(b, self.sections(j).weights.byte_of(e));
             }
         }
-        // 2. The upper bits, found from the sample.
+        // 2. The upper bits, found from the sample (order 2 and up).
         for job in jobs.iter() {
-            for j in 1..=levels(job) {
-                let (o, e) = (self.sections(j), job.st.nodes[j - 1] as usize);
-                // The scan from the sample may run into the next line.
-                let at = o.children.scan_byte(b, e);
-                prefetch(b, at);
-                prefetch(b, at + 64);
+            for j in 2..=levels(job) {
+                self.prefetch_children_scan(j, job.st.nodes[j - 1] as usize);
             }
         }
         // 3. The children ranges, and the first read of each search.
