@@ -373,26 +373,28 @@ impl EliasFano {
         (self.value(b, i, pos), self.value(b, i + 1, next))
     }
 
-    /// Every value in order, decoded in one pass over the upper bits (not
-    /// one select each). Where a damaged section has fewer set bits than
-    /// values, the rest are read as [`EliasFano::get`] reads them, at the
-    /// end of the upper bits.
-    pub fn values(&self, b: &[u8]) -> Vec<u64> {
+    /// Calls `f` with every value in order, decoded in one pass over the
+    /// upper bits (not one select each). Where a damaged section has fewer
+    /// set bits than values, the rest are read as [`EliasFano::get`] reads
+    /// them, at the end of the upper bits.
+    pub fn for_each(&self, b: &[u8], mut f: impl FnMut(u64)) {
         let up = &b[self.upper.clone()];
         let end = up.len() * 8;
-        let mut out = Vec::with_capacity(self.len);
+        let mut i = 0;
         for w in 0..up.len() / 8 {
+            if i == self.len {
+                break;
+            }
             let mut bits = word(up, w);
-            while bits != 0 && out.len() < self.len {
-                let pos = w * 64 + bits.trailing_zeros() as usize;
-                out.push(self.value(b, out.len(), pos));
+            while bits != 0 && i < self.len {
+                f(self.value(b, i, w * 64 + bits.trailing_zeros() as usize));
                 bits &= bits - 1;
+                i += 1;
             }
         }
-        while out.len() < self.len {
-            out.push(self.value(b, out.len(), end));
+        for i in i..self.len {
+            f(self.value(b, i, end));
         }
-        out
     }
 }
 
@@ -487,7 +489,9 @@ mod tests {
             b.extend(ef_encode(vals.iter().copied()));
             let ef = EliasFano::open(&b, 8..b.len()).expect("opens");
             assert_eq!(ef.len, vals.len());
-            assert_eq!(&ef.values(&b), vals, "decoded in one pass");
+            let mut all = Vec::new();
+            ef.for_each(&b, |v| all.push(v));
+            assert_eq!(&all, vals, "decoded in one pass");
             for (i, &v) in vals.iter().enumerate() {
                 assert_eq!(ef.get(&b, i), v, "value {i}");
                 if i + 1 < vals.len() {

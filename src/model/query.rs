@@ -212,8 +212,8 @@ impl Model {
         let b = self.bytes();
         let u = self.words_with_bos() as u64;
         let levels = |job: &Job<'_>| job.st.m.min(self.order() - 1);
-        // 1. What each context's entry leads to: its children start (a
-        // unigram's from the plain array; above, the children index's
+        // 1. What each context's entry leads to: its children start (from
+        // a plain array at the lowest orders, else the children index's
         // sample and low bits) and its back-off weight; and q of the word.
         for job in jobs.iter_mut() {
             job.nodes[0] = job.x;
@@ -224,9 +224,9 @@ impl Model {
                 prefetch(b, self.sections(j).weights.byte_of(e));
             }
         }
-        // 2. The upper bits, found from the sample (order 2 and up).
+        // 2. The upper bits, found from the sample (where there is one).
         for job in jobs.iter() {
-            for j in 2..=levels(job) {
+            for j in 1..=levels(job) {
                 self.prefetch_children_scan(j, job.st.nodes[j - 1] as usize);
             }
         }

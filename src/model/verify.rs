@@ -82,6 +82,13 @@ impl Model {
                             "order {k}: the children index is broken at {i}"
                         )));
                     }
+                    // Decoded on open in one pass, it must read as its
+                    // samples read it.
+                    if self.plain_start(k, i).is_some_and(|p| p as u64 != s) {
+                        return Err(bad(format!(
+                            "order {k}: the children index reads differently from its samples at {i}"
+                        )));
+                    }
                     if i > 0 {
                         for e in prev as usize..s as usize {
                             let x = next.words.get(b, e);
