@@ -10,8 +10,9 @@
 //! starts are decoded into plain arrays in memory ([`plain_starts`]: 4
 //! bytes an entry, at most a sixteenth of the file; 0.1 s and 104 MB for a
 //! 3.9 GB model). The large n-gram arrays are checked by [`Model::verify`]
-//! (in `verify.rs`): every checksum and every structural invariant. Lookups never index outside the map, so a damaged
-//! array that was not verified gives wrong numbers, never a crash.
+//! (in `verify.rs`): every checksum and every structural invariant.
+//! Lookups never index outside the map, so a damaged array that was not
+//! verified gives wrong numbers, never a crash.
 
 use std::fs::File;
 use std::ops::Range;
@@ -74,7 +75,9 @@ fn plain_budget(file_bytes: usize) -> usize {
 /// within [`plain_budget`]. Nearly every prediction in running
 /// text searches the children of a unigram and of a bigram, and one read
 /// of a plain array replaces a select in the Elias–Fano index (its sample,
-/// upper bits and low bits).
+/// upper bits and low bits). What is allocated is bounded by the file's
+/// size: the unigrams' starts by its word ids (8 bytes a word, checked on
+/// open), the others by the budget.
 fn plain_starts(b: &[u8], orders: &[OrderSections]) -> Vec<Vec<u32>> {
     let mut plain = Vec::new();
     let mut bytes = 0;
