@@ -376,6 +376,13 @@ impl Model {
         lo..(hi as usize).clamp(lo, n)
     }
 
+    /// How many of the lowest orders read their children starts from plain
+    /// arrays decoded on open (the others read the file's Elias–Fano
+    /// index).
+    pub fn plain_orders(&self) -> usize {
+        self.plain.len()
+    }
+
     /// Children start `i` of order `k` as decoded on open, if that order's
     /// starts are a plain array.
     pub(super) fn plain_start(&self, k: usize, i: usize) -> Option<u32> {
