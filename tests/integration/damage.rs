@@ -198,9 +198,11 @@ fn store_of_another_format_version_is_refused_on_open() {
 }
 
 /// A store of format version 2, whose metadata names the left-type
-/// statistics `coc_adjusted` (per order) and `adjusted_sum` (the empty
-/// context), opens and reads as the same store: the metadata of a fresh
-/// store of `a b a` is rewritten as version 2 wrote it, and `stats --json`,
+/// statistics (per order, and of the empty context) by earlier names,
+/// opens and reads as the same store: the metadata of a fresh store of
+/// `a b a` is rewritten in version 2's shape, those two under the names
+/// `coc_earlier` and `earlier_sum` (the conversion finds them by their
+/// place beside `coc_raw` and `count_sum`, whatever their names), and `stats --json`,
 /// `dump` and `prob --json` then give what they gave before. The fresh
 /// store's left-type statistics are checked by hand first: a is seen after
 /// `<s>` and b (2 left types), b and `</s>` after a (1 each).
@@ -262,11 +264,11 @@ fn store_of_format_version_2_opens_as_the_same_store() {
                                "n1": 2, "n2": 1, "n3plus": 0})
         );
         let x = root.remove("left_type_sum").unwrap();
-        root.insert("adjusted_sum".into(), x);
+        root.insert("earlier_sum".into(), x);
         for o in meta["orders"].as_array_mut().unwrap() {
             let o = o.as_object_mut().unwrap();
             let x = o.remove("coc_left_type").unwrap();
-            o.insert("coc_adjusted".into(), x);
+            o.insert("coc_earlier".into(), x);
         }
         meta["format_version"] = serde_json::json!(2);
     });
